@@ -1,0 +1,87 @@
+"""Shared pieces of the model builders: parameter checks, ladder operators, storage.
+
+Private module; the builders validate their keyword arguments here so every
+message has the same shape (``"<name> must be ...; got <value>"``).
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import scipy.sparse as sp
+
+from .. import _validation as val
+
+#: Builders with a truncation parameter return scipy.sparse matrices when the
+#: basis is larger than this (``sparse=None``); dense ndarrays otherwise.
+SPARSE_AUTO_SIZE = 512
+
+
+def real(x: Any, name: str) -> float:
+    """A finite real number (ints accepted; bool, complex and strings refused)."""
+    if isinstance(x, (bool, np.bool_)) or isinstance(x, (complex, np.complexfloating)):
+        raise TypeError(f"{name} must be a real number; got {x!r}")
+    try:
+        f = float(x)
+    except (TypeError, ValueError):
+        raise TypeError(f"{name} must be a real number; got {x!r}") from None
+    if not np.isfinite(f):
+        raise ValueError(f"{name} must be finite; got {x!r}")
+    return f
+
+
+def positive(x: Any, name: str) -> float:
+    """A finite real number > 0."""
+    f = real(x, name)
+    if f <= 0:
+        raise ValueError(f"{name} must be > 0; got {x!r}")
+    return f
+
+
+def nonnegative(x: Any, name: str) -> float:
+    """A finite real number >= 0."""
+    f = real(x, name)
+    if f < 0:
+        raise ValueError(f"{name} must be >= 0; got {x!r}")
+    return f
+
+
+def size(x: Any, name: str, minimum: int, maximum: int | None = None) -> int:
+    """A truncation size or count (int within bounds)."""
+    return val.check_int(x, name, minimum=minimum, maximum=maximum)
+
+
+def flag(x: Any, name: str) -> bool:
+    """A bool (not 0/1, not a string)."""
+    if not isinstance(x, (bool, np.bool_)):
+        raise TypeError(f"{name} must be True or False; got {x!r}")
+    return bool(x)
+
+
+def sparse_choice(x: Any) -> bool | None:
+    """The ``sparse`` option: True, False or None (automatic)."""
+    if x is None:
+        return None
+    return flag(x, "sparse")
+
+
+def lowering(n: int) -> sp.csr_matrix:
+    """Lowering operator ``a|k⟩ = √k |k−1⟩`` on levels 0..n−1, shape (n, n), CSR."""
+    return sp.diags(np.sqrt(np.arange(1, n, dtype=float)), 1, shape=(n, n), format="csr")
+
+
+def finish(h0: Any, v: Any, sparse: bool | None) -> tuple[Any, Any]:
+    """Return (h0, v) as CSR matrices or dense ndarrays.
+
+    ``sparse=None`` chooses CSR when the basis is larger than
+    :data:`SPARSE_AUTO_SIZE`.
+    """
+    n = h0.shape[0]
+    use_sparse = (n > SPARSE_AUTO_SIZE) if sparse is None else sparse
+    if use_sparse:
+        h0s, vs = sp.csr_matrix(h0), sp.csr_matrix(v)
+        h0s.eliminate_zeros()
+        vs.eliminate_zeros()
+        return h0s, vs
+    return (h0.toarray() if sp.issparse(h0) else np.asarray(h0)), (v.toarray() if sp.issparse(v) else np.asarray(v))
