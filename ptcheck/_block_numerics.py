@@ -1,0 +1,447 @@
+"""Numerics behind :mod:`ptcheck.blocks` (private; callers validate inputs).
+
+Everything works in the work basis, where ``H0 = diag(e0)``.  A block ``P`` is an
+index array of ``p`` levels; ``Q`` is the rest.  Full-space objects restricted to
+the block's columns are ``(N, p)`` arrays, so a model with sparse ``V`` only ever
+needs sparse-times-``(N, p)`` products.
+
+Schrieffer–Wolff (canonical van Vleck) effective Hamiltonian
+------------------------------------------------------------
+1. Bloch's wave operator ``Ω = P + X`` (``X = Q X P``, intermediate normalisation)
+   order by order (Bloch, Nucl. Phys. 6, 329 (1958); Lindgren, J. Phys. B 7, 2441
+   (1974)):
+
+       X_k = D ∘ [ Q V Ω_{k-1} - Σ_{j=1}^{k-1} X_j W_{k-1-j} ],   W_m = P V Ω_m,
+       D_qp = 1 / (E_p - E_q),
+
+   which is the order-λ^k part of ``X E_P - E_Q X = λ Q V Ω - λ X P V Ω``.
+2. Bloch's (non-Hermitian) ``H_B = P H Ω = E_P + λ P V Ω`` satisfies ``H Ω = Ω H_B``,
+   so ``Ω† H Ω = S H_B`` with ``S = Ω†Ω = 1 + X†X``.  des Cloizeaux's Hermitian
+   effective Hamiltonian is therefore
+
+       H_eff = S^{-1/2} (Ω† H Ω) S^{-1/2} = S^{1/2} H_B S^{-1/2},
+
+   with ``S^{±1/2}`` expanded as power series of ``p x p`` matrices.  The isometry
+   ``U = Ω S^{-1/2}`` maps the block onto the exact invariant subspace; it is the
+   direct rotation whose generator is block-off-diagonal, i.e. the canonical van
+   Vleck / Schrieffer–Wolff transformation (Shavitt & Redmon, J. Chem. Phys. 73,
+   5711 (1980)).  ``tests/test_blocks.py`` checks the coefficients against the
+   Taylor coefficients of ``W diag(E) W†`` built from exact eigenvectors.
+
+Brillouin–Wigner / Löwdin partitioning
+--------------------------------------
+``H_eff(E) = E_P + λ PVP + Σ_{m=2}^{k} λ^m P V (R(E) V)^{m-1} P`` with the diagonal
+``R(E) = Q (E - Q H0 Q)^{-1} Q``; each eigenvalue is solved self-consistently
+(secant iteration on ``ε(E) - E``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.optimize import linear_sum_assignment
+
+#: Largest number of ``(N, p)`` entries held at once by a batched
+#: Brillouin–Wigner evaluation (memory guard).
+_BW_BATCH_ENTRIES = 2_000_000
+
+
+# ============================================================== Schrieffer–Wolff
+@dataclass(frozen=True)
+class SWCoefficients:
+    """Power-series pieces of the Schrieffer–Wolff construction (private)."""
+
+    heff: np.ndarray  # (K+1, p, p) Hermitian parts of H_eff^(k)
+    u: np.ndarray  # (K+1, N, p) coefficients of U = Ω S^{-1/2}
+    residual: np.ndarray  # (K+1,) anti-Hermitian residual relative to the roundoff scale
+    finite_order: int  # highest order whose coefficients are finite (== K when all fine)
+
+
+def _conv_norms(*arrays: np.ndarray) -> np.ndarray:
+    out = arrays[0]
+    for a in arrays[1:]:
+        out = np.convolve(out, a)
+    return out
+
+
+def sw_coefficients(e0: np.ndarray, v, block: np.ndarray, order: int) -> SWCoefficients:
+    """Schrieffer–Wolff ``H_eff^(0..order)`` and ``U^(0..order)`` of a block.
+
+    Cost: ``order`` products of ``V`` with an ``(N, p)`` array plus
+    ``O(order² N p²)``.
+    """
+    n = e0.size
+    p = block.size
+    dtype = np.result_type(v.dtype, np.float64)
+    in_q = np.ones(n, dtype=bool)
+    in_q[block] = False
+    ep = e0[block]
+    d = np.zeros((n, p))
+    d[in_q] = 1.0 / (ep[None, :] - e0[in_q][:, None])
+
+    omega = np.zeros((order + 1, n, p), dtype=dtype)
+    omega[0][block, np.arange(p)] = 1.0
+    w = np.zeros((order + 1, p, p), dtype=dtype)  # W_m = P V Ω_m
+    finite_order = order
+    with np.errstate(over="ignore", invalid="ignore"):
+        for k in range(1, order + 1):
+            vo = np.asarray(v @ omega[k - 1])
+            w[k - 1] = vo[block]
+            rhs = vo
+            if k >= 2:
+                rhs = rhs - np.einsum("jnp,jpq->nq", omega[1:k], w[k - 2 :: -1])
+            omega[k] = d * rhs
+            if not (np.all(np.isfinite(omega[k])) and np.all(np.isfinite(w[k - 1]))):
+                finite_order = k - 1
+                break
+    kmax = finite_order
+
+    # S = 1 + Σ_k λ^k S_k,  S_k = Σ_{i=1}^{k-1} X_i† X_{k-i}
+    x = omega[1 : kmax + 1]
+    gram = np.einsum("inp,jnq->ijpq", x.conj(), x) if kmax >= 1 else np.zeros((0, 0, p, p))
+    eye = np.eye(p, dtype=dtype)
+    s = np.zeros((kmax + 1, p, p), dtype=dtype)
+    for k in range(2, kmax + 1):
+        for i in range(1, k):
+            s[k] += gram[i - 1, k - i - 1]
+    t = np.zeros_like(s)  # S^{1/2}
+    ti = np.zeros_like(s)  # S^{-1/2}
+    t[0] = eye
+    ti[0] = eye
+    for k in range(1, kmax + 1):
+        acc = s[k].copy()
+        for i in range(1, k):
+            acc -= t[i] @ t[k - i]
+        t[k] = 0.5 * acc
+    for k in range(1, kmax + 1):
+        acc = np.zeros((p, p), dtype=dtype)
+        for i in range(k):
+            acc -= ti[i] @ t[k - i]
+        ti[k] = acc
+
+    hb = np.zeros((kmax + 1, p, p), dtype=dtype)
+    hb[0] = np.diag(ep).astype(dtype)
+    hb[1:] = w[:kmax]
+    left = np.zeros_like(hb)  # (S^{1/2} H_B)_m
+    for m in range(kmax + 1):
+        for a in range(m + 1):
+            left[m] += t[a] @ hb[m - a]
+    heff = np.zeros_like(hb)
+    for k in range(kmax + 1):
+        for m in range(k + 1):
+            heff[k] += left[m] @ ti[k - m]
+
+    fro = lambda a: np.linalg.norm(a, axis=(1, 2))  # noqa: E731
+    scale = _conv_norms(fro(t), fro(hb), fro(ti))[: kmax + 1]
+    anti = fro(heff - np.conj(np.swapaxes(heff, 1, 2)))
+    tiny = np.finfo(float).tiny
+    residual = anti / (2.0 * np.maximum(scale, tiny))
+    heff = 0.5 * (heff + np.conj(np.swapaxes(heff, 1, 2)))
+
+    u = np.zeros((kmax + 1, n, p), dtype=dtype)
+    for k in range(kmax + 1):
+        for a in range(k + 1):
+            u[k] += omega[a] @ ti[k - a]
+    return SWCoefficients(heff=heff, u=u, residual=residual, finite_order=finite_order)
+
+
+def evaluate_polynomial(coefficients: np.ndarray, couplings: np.ndarray) -> np.ndarray:
+    """``Σ_j λ^j C_j`` for every coupling: (K+1, a, b), (G,) -> (G, a, b)."""
+    powers = couplings[:, None] ** np.arange(coefficients.shape[0])[None, :]
+    return np.einsum("gj,jab->gab", powers.astype(coefficients.dtype), coefficients)
+
+
+# ================================================================ eigen-tracking
+def _degenerate_clusters(w: np.ndarray, tol: float) -> list[np.ndarray]:
+    """Runs of (sorted) eigenvalues closer than ``tol`` (size >= 2 only)."""
+    out, start = [], 0
+    for i in range(1, w.size + 1):
+        if i == w.size or w[i] - w[i - 1] > tol:
+            if i - start > 1:
+                out.append(np.arange(start, i))
+            start = i
+    return out
+
+
+def match_eigenvectors(ref: np.ndarray, w: np.ndarray, vecs: np.ndarray, degeneracy_tol: float) -> tuple[np.ndarray, np.ndarray, float]:
+    """Assign eigenpairs ``(w, vecs)`` to the columns of ``ref`` by overlap.
+
+    Inside a cluster of degenerate eigenvalues the eigenvectors are first
+    rotated to align with the reference (orthogonal Procrustes), so that a
+    degenerate subspace does not scramble the assignment.
+
+    Returns
+    -------
+    energies : (p,) assigned eigenvalue of each reference column
+    vectors : (p, p) assigned eigenvectors (column i ↔ ref column i), phase
+        chosen so that ``<ref_i|vec_i>`` is real and >= 0
+    quality : float
+        Smallest assigned overlap ``|<ref_i|vec_i>|²``.
+    """
+    vecs = vecs.copy()
+    for c in _degenerate_clusters(w, degeneracy_tol):
+        b = vecs[:, c]
+        o = b.conj().T @ ref  # (m, p)
+        weight = np.sum(np.abs(o) ** 2, axis=0)
+        sel = np.sort(np.argsort(-weight, kind="stable")[: c.size])
+        uu, _, vh = np.linalg.svd(o[:, sel])
+        vecs[:, c] = b @ (uu @ vh)
+    ov = ref.conj().T @ vecs  # (p_ref, p_new)
+    rows, cols = linear_sum_assignment(-np.abs(ov) ** 2)
+    perm = np.empty(ref.shape[1], dtype=int)
+    perm[rows] = cols
+    out = vecs[:, perm]
+    phase = ov[np.arange(perm.size), perm]
+    mag = np.abs(phase)
+    out = out * np.where(mag > 0, np.conj(phase) / np.where(mag > 0, mag, 1.0), 1.0)[None, :]
+    return w[perm], out, float(np.min(mag**2)) if mag.size else 1.0
+
+
+@dataclass(frozen=True)
+class TrackResult:
+    energies: np.ndarray  # (p, C)
+    vectors: np.ndarray  # (C, p, p): vectors[c][:, i] = block-basis eigenvector of level i
+    ambiguous: bool  # some step could not be resolved to overlap >= QUALITY
+
+
+#: Smallest accepted overlap between assigned eigenvectors of neighbouring path points.
+QUALITY = 0.9
+_MAX_DEPTH = 40
+_BUDGET = 20_000
+
+
+def track_branches(
+    heff: np.ndarray, couplings: np.ndarray, seed_vectors: np.ndarray, seed_coupling: float, scale: float
+) -> TrackResult:
+    """Follow the eigenbranches of ``H_eff(λ) = Σ_j λ^j heff[j]`` from ``±seed_coupling``.
+
+    ``seed_vectors[:, i]`` is the (limit) eigenvector of block level ``i`` near
+    λ = 0.  Four monotone paths start at ±seed_coupling (outwards and inwards
+    towards 0); neighbouring points are matched by eigenvector overlap, and an
+    interval is bisected while the overlap is below :data:`QUALITY`.
+    """
+    p = heff.shape[1]
+    c = couplings.size
+    energies = np.zeros((p, c))
+    vectors = np.zeros((c, p, p), dtype=np.result_type(heff.dtype, seed_vectors.dtype))
+    dtol = 1e-10 * max(scale, np.finfo(float).tiny)
+    state = {"budget": _BUDGET, "ambiguous": False}
+
+    def eig(lams: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        return np.linalg.eigh(evaluate_polynomial(heff, lams))
+
+    def step(a: float, ref: np.ndarray, b: float, wb: np.ndarray, vb: np.ndarray, depth: int):
+        e, vv, q = match_eigenvectors(ref, wb, vb, dtol)
+        if q >= QUALITY:
+            return e, vv
+        if depth >= _MAX_DEPTH or state["budget"] <= 0:
+            state["ambiguous"] = True
+            return e, vv
+        state["budget"] -= 1
+        mid = 0.5 * (a + b)
+        wm, vm = eig(np.array([mid]))
+        _, refm = step(a, ref, mid, wm[0], vm[0], depth + 1)
+        return step(mid, refm, b, wb, vb, depth + 1)
+
+    for sign in (+1.0, -1.0):
+        start = sign * seed_coupling
+        side = couplings * sign >= 0 if sign > 0 else couplings < 0
+        for outward in (True, False):
+            if outward:
+                sel = np.flatnonzero(side & (np.abs(couplings) >= seed_coupling))
+            else:
+                sel = np.flatnonzero(side & (np.abs(couplings) < seed_coupling))
+            if sel.size == 0:
+                continue
+            order = np.argsort(np.abs(couplings[sel]))
+            if not outward:
+                order = order[::-1]
+            sel = sel[order]
+            end = couplings[sel[-1]]
+            fill = np.linspace(start, end, 33)[1:]
+            pts = np.concatenate([couplings[sel], fill])
+            pts = pts[np.argsort(np.abs(pts - start), kind="stable")]
+            w_all, v_all = eig(np.concatenate([[start], pts]))
+            _, ref, _ = match_eigenvectors(seed_vectors, w_all[0], v_all[0], dtol)
+            prev = start
+            results = []
+            for g, lam in enumerate(pts):
+                e, ref = step(prev, ref, lam, w_all[g + 1], v_all[g + 1], 0)
+                results.append((lam, e, ref))
+                prev = lam
+            lookup = {}
+            for lam, e, ref_ in results:
+                lookup[float(lam)] = (e, ref_)
+            for i in sel:
+                e, ref_ = lookup[float(couplings[i])]
+                energies[:, i] = e
+                vectors[i] = ref_
+    return TrackResult(energies=energies, vectors=vectors, ambiguous=bool(state["ambiguous"]))
+
+
+def seed_vectors(
+    heff: np.ndarray, seed_coupling: float, tie_sets: list[np.ndarray], scale: float
+) -> np.ndarray:
+    """Eigenvectors of ``H_eff(seed_coupling)`` assigned to the block levels.
+
+    Columns are assigned by largest overlap with the block basis vectors
+    (work basis = good states), except inside a *tie set* (levels of one
+    exactly degenerate group with equal first-order shift), whose branches are
+    given to its levels in ascending energy at the (positive) seed coupling.
+    """
+    p = heff.shape[1]
+    w, vecs = np.linalg.eigh(evaluate_polynomial(heff, np.array([seed_coupling]))[0])
+    eye = np.eye(p, dtype=vecs.dtype)
+    _, out, _ = match_eigenvectors(eye, w, vecs, 1e-10 * max(scale, np.finfo(float).tiny))
+    energies = np.real(np.einsum("ai,ab,bi->i", out.conj(), evaluate_polynomial(heff, np.array([seed_coupling]))[0], out))
+    for ts in tie_sets:
+        order = np.argsort(energies[ts], kind="stable")
+        out[:, ts] = out[:, ts[order]]
+        energies[ts] = energies[ts[order]]
+    return out
+
+
+# ============================================================ Brillouin–Wigner
+def _resolvent(e0: np.ndarray, in_q: np.ndarray, energies: np.ndarray) -> np.ndarray:
+    """``R(E)`` diagonals, shape (B, N); zero on block rows."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r = 1.0 / (energies[:, None] - e0[None, :])
+    r[:, ~in_q] = 0.0
+    return r
+
+
+def bw_matrices(e0: np.ndarray, v, block: np.ndarray, order: int, energies: np.ndarray) -> np.ndarray:
+    """``M_m(E) = P V (R(E) V)^{m-1} P`` for m = 0..order, each E: (B, order+1, p, p).
+
+    ``M_0 = E_P`` and ``M_1 = PVP`` do not depend on E.
+    """
+    n, p, b = e0.size, block.size, energies.size
+    dtype = np.result_type(v.dtype, np.float64)
+    in_q = np.ones(n, dtype=bool)
+    in_q[block] = False
+    out = np.zeros((b, order + 1, p, p), dtype=dtype)
+    out[:, 0] = np.diag(e0[block])
+    if order == 0:
+        return out
+    basis = np.zeros((n, p), dtype=dtype)
+    basis[block, np.arange(p)] = 1.0
+    z1 = np.asarray(v @ basis)  # (N, p)
+    out[:, 1] = z1[block]
+    if order == 1:
+        return out
+    chunk = max(1, _BW_BATCH_ENTRIES // max(n * p, 1))
+    for lo in range(0, b, chunk):
+        hi = min(b, lo + chunk)
+        r = _resolvent(e0, in_q, energies[lo:hi])  # (B', N)
+        z = np.broadcast_to(z1[:, None, :], (n, hi - lo, p))
+        for m in range(2, order + 1):
+            y = r.T[:, :, None] * z  # (N, B', p)
+            z = np.asarray(v @ y.reshape(n, -1)).reshape(n, hi - lo, p)
+            out[lo:hi, m] = np.transpose(z[block], (1, 0, 2))
+    return out
+
+
+def bw_states(e0: np.ndarray, v, block: np.ndarray, order: int, energies: np.ndarray, couplings: np.ndarray, phis: np.ndarray) -> np.ndarray:
+    """``Σ_{m=0}^{order} λ^m (R(E) V)^m P φ`` (un-normalised), shape (B, N)."""
+    n, b = e0.size, energies.size
+    dtype = np.result_type(v.dtype, np.float64, phis.dtype)
+    in_q = np.ones(n, dtype=bool)
+    in_q[block] = False
+    out = np.zeros((b, n), dtype=dtype)
+    chunk = max(1, _BW_BATCH_ENTRIES // max(n, 1))
+    for lo in range(0, b, chunk):
+        hi = min(b, lo + chunk)
+        r = _resolvent(e0, in_q, energies[lo:hi])
+        y = np.zeros((n, hi - lo), dtype=dtype)
+        y[block] = phis[lo:hi].T
+        acc = y.copy()
+        for m in range(1, order + 1):
+            y = r.T * np.asarray(v @ y)
+            acc = acc + couplings[lo:hi][None, :] ** m * y
+        out[lo:hi] = acc.T
+    return out
+
+
+@dataclass(frozen=True)
+class BWSolution:
+    energies: np.ndarray  # (B,)
+    vectors: np.ndarray  # (B, p) block-basis eigenvector at the final energy
+    converged: np.ndarray  # (B,) bool
+    iterations: np.ndarray  # (B,) int
+
+
+def bw_solve(
+    e0: np.ndarray,
+    v,
+    block: np.ndarray,
+    order: int,
+    couplings: np.ndarray,
+    start_energies: np.ndarray,
+    reference: np.ndarray,
+    *,
+    rtol: float,
+    max_iter: int,
+    scale: float,
+) -> BWSolution:
+    """Self-consistent ``E = ε(E)`` for a batch of (coupling, reference vector).
+
+    ``ε(E)`` is the eigenvalue of ``H_eff(E)`` whose eigenvector overlaps most
+    with ``reference`` (B, p).  Secant iteration on ``g(E) = ε(E) - E`` started
+    from ``start_energies`` with a fixed-point step; at most ``max_iter``
+    evaluations per entry.
+    """
+    b = couplings.size
+    p = block.size
+
+    def evaluate(idx: np.ndarray, e: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        mats = bw_matrices(e0, v, block, order, e)  # (B', K+1, p, p)
+        powers = couplings[idx][:, None] ** np.arange(order + 1)[None, :]
+        h = np.einsum("bk,bkij->bij", powers.astype(mats.dtype), mats)
+        h = 0.5 * (h + np.conj(np.swapaxes(h, 1, 2)))
+        eps = np.full(idx.size, np.nan)
+        vec = np.zeros((idx.size, p), dtype=np.result_type(h.dtype, reference.dtype))
+        good = np.all(np.isfinite(h), axis=(1, 2))
+        if np.any(good):
+            w, vv = np.linalg.eigh(h[good])
+            ov = np.abs(np.einsum("bi,bij->bj", reference[idx][good].conj(), vv))
+            j = np.argmax(ov, axis=1)
+            eps[good] = w[np.arange(j.size), j]
+            vec[good] = vv[np.arange(j.size), :, j]
+        return eps - e, vec
+
+    e_prev = start_energies.astype(float).copy()
+    idx_all = np.arange(b)
+    g_prev, vec = evaluate(idx_all, e_prev)
+    vectors = vec.copy()
+    iterations = np.ones(b, dtype=int)
+    tol = rtol * np.maximum(np.abs(e_prev), scale)
+    converged = np.isfinite(g_prev) & (np.abs(g_prev) <= tol)
+    energies = e_prev.copy()
+    failed = ~np.isfinite(g_prev)
+    e_cur = np.where(converged | failed, e_prev, e_prev + np.nan_to_num(g_prev))
+    active = ~(converged | failed)
+    while np.any(active) and iterations.max(initial=0) < max_iter:
+        idx = np.flatnonzero(active)
+        g_cur, vec = evaluate(idx, e_cur[idx])
+        iterations[idx] += 1
+        energies[idx] = e_cur[idx]
+        vectors[idx] = vec
+        fin = np.isfinite(g_cur)
+        tol = rtol * np.maximum(np.abs(e_cur[idx]), scale)
+        done = fin & (np.abs(g_cur) <= tol)
+        converged[idx[done]] = True
+        failed[idx[~fin]] = True
+        go = fin & ~done
+        ii = idx[go]
+        denom = g_cur[go] - g_prev[ii]
+        de = e_cur[ii] - e_prev[ii]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            secant = e_cur[ii] - g_cur[go] * de / denom
+        ok = np.isfinite(secant) & (np.abs(denom) > 0)
+        nxt = np.where(ok, secant, e_cur[ii] + g_cur[go])
+        e_prev[ii] = e_cur[ii]
+        g_prev[ii] = g_cur[go]
+        e_cur[ii] = nxt
+        active[idx[~go]] = False
+    return BWSolution(energies=energies, vectors=vectors, converged=converged, iterations=iterations)
