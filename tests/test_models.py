@@ -379,8 +379,8 @@ def test_truncation_check_converged_quartic():
 
 
 def test_truncation_check_cubic_never_converges():
-    # the cubic oscillator has no bound states (spectrum unbounded below; e.g. Bender & Wu,
-    # Phys. Rev. 184, 1231 (1969), discussion of odd anharmonicities — from memory)
+    # common practice, no source: x² /2 + λ x³ is unbounded below, so the truncated spectrum has
+    # spurious low states that sink as the basis grows
     r = truncation_check("anharmonic_oscillator", "n_basis", [40, 60, 80], params={"kind": "cubic"}, coupling=0.1)
     assert not r.converged
     assert r.changes[-1] < -1.0  # spurious states come down as the basis grows
@@ -388,7 +388,7 @@ def test_truncation_check_cubic_never_converges():
 
 
 def test_truncation_check_by_label_in_rabi():
-    # Jaynes & Cummings 1963 closed form, reached from the Rabi truncation check in the RWA-free model:
+    # common practice, no source: at weak coupling the low Rabi levels converge fast in n_photons;
     # the label (1, 0) is resolved at every size
     r = truncation_check(rabi, "n_photons", [4, 8, 12], level=(1, 0), coupling=1.0, params={"g": 0.2})
     assert r.converged and r.level == "(1, 0)"

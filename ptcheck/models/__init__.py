@@ -10,9 +10,9 @@ a truncated model's exact level has converged in the truncation.
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from types import MappingProxyType
-from typing import Mapping
+
 
 from ..model import Model
 from .cavity import jaynes_cummings, rabi

@@ -82,7 +82,7 @@ def anharmonic_oscillator(*, kind: str = "quartic", n_basis: int = 60, sparse: b
     Examples
     --------
     >>> m = anharmonic_oscillator(kind="quartic", n_basis=10)
-    >>> float(m.v[0, 0])  # ⟨0|x⁴|0⟩ = 3/4
+    >>> round(float(m.v[0, 0]), 12)  # ⟨0|x⁴|0⟩ = 3/4
     0.75
     """
     kind = val.check_choice(kind, "kind", OSCILLATOR_KINDS)

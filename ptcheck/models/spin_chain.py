@@ -87,8 +87,10 @@ def spin_chain(
     boundary : {"periodic", "open"}, default "periodic"
 
     Defaults are invented round numbers.  No truncation: the basis is the
-    full 2^N space; finite-size effects are the user's to check (e.g. with
-    :func:`ptcheck.models.truncation_check` over ``"n_spins"``).
+    full 2^N space.  Finite-size effects are the user's to check on
+    intensive quantities (energy per site, gaps);
+    :func:`ptcheck.models.truncation_check` compares total energies, which
+    grow with N, so it is not the tool for them.
 
     Returns
     -------
