@@ -13,7 +13,6 @@ from __future__ import annotations
 from collections.abc import Callable, Mapping
 from types import MappingProxyType
 
-
 from ..model import Model
 from .cavity import jaynes_cummings, rabi
 from .charge import charge_qubit, planar_rotor
