@@ -1,0 +1,38 @@
+"""The engine never imports matplotlib or ipywidgets (import graph runs one way)."""
+
+import subprocess
+import sys
+
+ENGINE = [
+    "ptcheck",
+    "ptcheck.model",
+    "ptcheck.series",
+    "ptcheck.blocks",
+    "ptcheck.exact",
+    "ptcheck.compare",
+    "ptcheck.convergence",
+    "ptcheck.degeneracy",
+    "ptcheck.quantities",
+    "ptcheck.treatment",
+    "ptcheck.models",
+]
+
+
+def test_engine_imports_without_matplotlib_or_widgets():
+    code = (
+        "import sys\n"
+        "class Block:\n"
+        "    def find_spec(self, name, path=None, target=None):\n"
+        "        if name.split('.')[0] in ('matplotlib', 'ipywidgets', 'ipympl'):\n"
+        "            raise ImportError('blocked for the test: ' + name)\n"
+        "sys.meta_path.insert(0, Block())\n"
+        "import importlib\n"
+        f"for m in {ENGINE!r}:\n"
+        "    importlib.import_module(m)\n"
+        "bad = [m for m in sys.modules if m.split('.')[0] in ('matplotlib', 'ipywidgets')]\n"
+        "assert not bad, bad\n"
+        "print('ok')\n"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
+    assert out.returncode == 0, out.stderr
+    assert out.stdout.strip() == "ok"
