@@ -1,0 +1,531 @@
+"""Model files: a small TOML file that names a model and what to check about it.
+
+The command line (``ptcheck check MODEL``) reads one of these; so can you, with
+:func:`load_model_file`.  Every table and key is optional except ``[model]``;
+unknown keys are refused (a typo must not pass silently).  Command-line flags
+override the ``[check]`` table.
+
+Schema
+------
+A built-in model (a name from :data:`ptcheck.models.BUILDERS`)::
+
+    [model]
+    builtin = "kerr_qubit_resonator"
+    name = "my qubit"              # optional display name
+    [model.params]                 # keyword arguments of the builder
+    omega_q = 4.83
+    g = 0.087
+    n_photons = 8
+
+or matrices saved with numpy or scipy (paths relative to the TOML file)::
+
+    [model]
+    h0 = "h0.npy"                  # numpy.save; or a scipy.sparse.save_npz file
+    v = "v.npy"
+    # or one dense archive:  matrices = "model.npz"   (numpy.savez(path, h0=..., v=...))
+    labels = ["g", "e"]            # optional names of the basis states
+    dims = [2, 5]                  # optional product-basis sizes
+
+what to check (all optional here; flags can give or override each entry)::
+
+    [check]
+    levels = [0, [1, 0], "g"]      # energy ranks, tuple labels as arrays, or string labels
+    orders = [2, 4, "pade2/2"]     # every order listed is judged
+    coupling = 1.0                 # the coupling λ you use (dimensionless)
+    rtol = 0.01                    # or tol = 1e-3 (absolute, energy units); not both
+    treatment = "auto"             # "auto" | "nondegenerate" | "block"
+    backend = "auto"               # exact solver
+
+derived quantities, any number of them (linear combinations of levels)::
+
+    [[quantity]]
+    name = "chi"
+    expr = "0.5*(1,1) - 0.5*(1,0) - 0.5*(0,1) + 0.5*(0,0)"
+    # or: levels = [[1, 1], [1, 0], [0, 1], [0, 0]]  and  weights = [0.5, -0.5, -0.5, 0.5]
+    relative_to = "value"          # or "shift": denominator of the relative error
+    units = "GHz"
+
+Level syntax (in files and on the command line): ``3`` is the energy rank 3
+(0 = lowest unperturbed level), ``(1,0)`` or ``|1,0⟩`` the label ``(1, 0)`` of
+a product basis, anything else a string label such as ``g``.
+"""
+
+from __future__ import annotations
+
+import inspect
+import re
+import tomllib
+from collections.abc import Hashable, Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from types import MappingProxyType
+from typing import Any
+
+import numpy as np
+import scipy.sparse as sp
+
+from .approximants import parse_orders
+from .model import Model
+from .models import BUILDERS
+from .quantities import Quantity
+
+__all__ = ["ModelFile", "load_model_file", "parse_level", "parse_quantity", "SIZE_PARAMS", "MODEL_KINDS"]
+
+#: Where a model came from.
+MODEL_KINDS = ("builtin", "npy", "npz", "sparse-npz")
+
+#: Builder parameters that set a basis truncation (used for truncation checks).
+SIZE_PARAMS = ("n_photons", "n_qubit", "n_basis", "n_max", "m_max", "n_levels")
+
+_MODEL_KEYS = {"builtin", "name", "params", "h0", "v", "matrices", "labels", "dims"}
+_CHECK_KEYS = {"levels", "orders", "coupling", "tol", "rtol", "treatment", "backend"}
+_QUANTITY_KEYS = {"name", "expr", "levels", "weights", "relative_to", "units"}
+_TOP_KEYS = {"model", "check", "quantity", "title"}
+
+
+@dataclass(frozen=True, repr=False, eq=False)
+class ModelFile:
+    """A model file, read and checked.
+
+    Attributes
+    ----------
+    path : str
+        The file read.
+    kind : str
+        One of :data:`MODEL_KINDS`.
+    model : Model
+        The model ``H0 + λ V``.
+    builder : str or None
+        Name of the built-in builder (``kind == "builtin"``).
+    params : mapping
+        Builder keyword arguments as given (read-only; empty for matrices).
+    levels : tuple
+        Level keys from ``[check] levels`` (ranks, tuple or string labels).
+    quantities : tuple of Quantity
+        From the ``[[quantity]]`` tables.
+    orders : tuple
+        Order specs (``int`` or ``Pade``); empty if not given.
+    coupling : float or None
+    tol, rtol : float or None
+    treatment, backend : str or None
+    title : str or None
+        Optional report title (top-level ``title = "..."``).
+    """
+
+    path: str
+    kind: str
+    model: Model
+    builder: str | None
+    params: Mapping[str, Any] = field(default_factory=dict)
+    levels: tuple = ()
+    quantities: tuple = ()
+    orders: tuple = ()
+    coupling: float | None = None
+    tol: float | None = None
+    rtol: float | None = None
+    treatment: str | None = None
+    backend: str | None = None
+    title: str | None = None
+
+    def __repr__(self) -> str:
+        src = self.builder if self.kind == "builtin" else self.kind
+        return f"ModelFile({Path(self.path).name!r}, {src}, N={self.model.n}, levels={list(self.levels)})"
+
+    def to_dict(self) -> dict:
+        return {
+            "path": self.path,
+            "kind": self.kind,
+            "builder": self.builder,
+            "params": _jsonable(dict(self.params)),
+            "model_name": self.model.name,
+            "n": self.model.n,
+            "levels": [_jsonable(k) for k in self.levels],
+            "quantities": [quantity_to_dict(q) for q in self.quantities],
+            "orders": [str(o) for o in self.orders],
+            "coupling": self.coupling,
+            "tol": self.tol,
+            "rtol": self.rtol,
+            "treatment": self.treatment,
+            "backend": self.backend,
+            "title": self.title,
+        }
+
+
+def quantity_to_dict(q: Quantity) -> dict:
+    """JSON-safe description of a :class:`Quantity`."""
+    return {
+        "name": q.name,
+        "levels": [_jsonable(k) for k in q.weights],
+        "weights": [float(w) for w in q.weights.values()],
+        "relative_to": q.relative_to,
+        "units": q.units,
+    }
+
+
+def _jsonable(x: Any) -> Any:
+    if isinstance(x, tuple):
+        return [_jsonable(t) for t in x]
+    if isinstance(x, dict):
+        return {str(k): _jsonable(v) for k, v in x.items()}
+    if isinstance(x, list):
+        return [_jsonable(t) for t in x]
+    if isinstance(x, np.generic):
+        return x.item()
+    return x
+
+
+# ---------------------------------------------------------------------- levels and quantities
+_INT_RE = re.compile(r"^[+-]?\d+$")
+
+
+def parse_level(token: Any) -> Hashable:
+    """A level key from what people type.
+
+    ``3`` / ``"3"`` → rank 3; ``"(1,0)"``, ``"|1,0⟩"``, ``"|1,0>"`` or ``[1, 0]``
+    → label ``(1, 0)``; any other string → that string label.
+
+    Examples
+    --------
+    >>> parse_level("(1, 0)"), parse_level("2"), parse_level("g")
+    ((1, 0), 2, 'g')
+    """
+    if isinstance(token, bool):
+        raise TypeError(f"a level must be a rank (int) or a label; got {token!r}")
+    if isinstance(token, (int, np.integer)):
+        return int(token)
+    if isinstance(token, (list, tuple)):
+        if not token:
+            raise ValueError("a level label cannot be empty: got []")
+        return tuple(parse_level(t) if not isinstance(t, str) else _label_part(t) for t in token)
+    if isinstance(token, float):
+        raise TypeError(f"a level must be a rank (int) or a label; got the float {token!r}")
+    if not isinstance(token, str):
+        raise TypeError(f"a level must be a rank (int) or a label; got {token!r}")
+    s = token.strip()
+    if not s:
+        raise ValueError("a level cannot be an empty string")
+    if _INT_RE.match(s):
+        return int(s)
+    m = re.match(r"^(?:\((.*)\)|\|(.*?)(?:⟩|>))$", s)
+    if m:
+        inner = m.group(1) if m.group(1) is not None else m.group(2)
+        parts = [p.strip() for p in inner.split(",")]
+        if not inner.strip() or any(not p for p in parts):
+            raise ValueError(f"cannot read the level label {token!r}; write it like (1,0)")
+        return tuple(_label_part(p) for p in parts)
+    return s
+
+
+def _label_part(p: str) -> Hashable:
+    p = p.strip()
+    return int(p) if _INT_RE.match(p) else p
+
+
+_TERM_RE = re.compile(
+    r"\s*(?P<sign>[+-])?\s*"
+    r"(?:(?P<w>(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*\*\s*)?"
+    r"(?P<lvl>\([^()]*\)|\|[^⟩>]*(?:⟩|>)|[A-Za-z_][\w.]*|\d+)\s*"
+)
+
+
+def parse_quantity(text: str, *, name: str | None = None, relative_to: str = "value", units: str = "") -> Quantity:
+    """A :class:`Quantity` from ``"name = w1*level1 + w2*level2 ..."``.
+
+    Parameters
+    ----------
+    text : str
+        ``"f01 = (1,0) - (0,0)"``; the ``name =`` part may be left out when
+        ``name`` is given.  Weights are plain decimal numbers followed by ``*``;
+        a term without a weight has weight ±1.
+    name : str, optional
+        Name (when ``text`` has no ``name =`` part).
+    relative_to, units : str
+        Passed to :class:`Quantity`.
+
+    Examples
+    --------
+    >>> q = parse_quantity("chi = 0.5*(1,1) - 0.5*(1,0) - 0.5*(0,1) + 0.5*(0,0)")
+    >>> q.name, q.weights[(1, 1)]
+    ('chi', 0.5)
+    """
+    if not isinstance(text, str):
+        raise TypeError(f"a quantity must be a string like 'f01 = (1,0) - (0,0)'; got {text!r}")
+    expr = text
+    if "=" in text:
+        nm, expr = text.split("=", 1)
+        nm = nm.strip()
+        if not nm:
+            raise ValueError(f"quantity {text!r} has an empty name before '='")
+        name = nm
+    if not name:
+        raise ValueError(f"quantity {text!r} needs a name: write it like 'f01 = (1,0) - (0,0)'")
+    weights: dict[Hashable, float] = {}
+    pos = 0
+    expr = expr.strip()
+    first = True
+    if not expr:
+        raise ValueError(f"quantity {text!r} has no terms")
+    while pos < len(expr):
+        m = _TERM_RE.match(expr, pos)
+        if not m or m.end() == pos or (not first and m.group("sign") is None):
+            raise ValueError(
+                f"cannot read quantity {text!r} near {expr[pos:pos + 12]!r}; write terms like '0.5*(1,0) - (0,0)'"
+            )
+        w = float(m.group("w")) if m.group("w") else 1.0
+        if m.group("sign") == "-":
+            w = -w
+        key = parse_level(m.group("lvl"))
+        weights[key] = weights.get(key, 0.0) + w
+        pos = m.end()
+        first = False
+    return Quantity(name, weights, units=units, relative_to=relative_to)
+
+
+# ---------------------------------------------------------------------- loading
+def load_model_file(path: str | Path) -> ModelFile:
+    """Read a model file (TOML, or a dense ``.npz`` archive with arrays ``h0`` and ``v``).
+
+    Parameters
+    ----------
+    path : str or Path
+        A ``.toml`` file following the schema in this module's docstring, or
+        an ``.npz`` written by ``numpy.savez(path, h0=..., v=...)``.
+
+    Returns
+    -------
+    ModelFile
+
+    Raises
+    ------
+    FileNotFoundError
+        The file (or a matrix file it names) does not exist.
+    ValueError
+        Malformed TOML, unknown keys or model names, bad matrices (the message
+        names the file and the problem).
+    """
+    p = Path(path)
+    if not p.exists():
+        raise FileNotFoundError(f"model file {str(p)!r} does not exist")
+    if p.is_dir():
+        raise IsADirectoryError(f"model file {str(p)!r} is a directory")
+    if p.suffix.lower() == ".npz":
+        model, kind = _model_from_matrices({"matrices": p.name}, p.parent, p)
+        return ModelFile(path=str(p), kind=kind, model=model, builder=None, params=MappingProxyType({}))
+    try:
+        with open(p, "rb") as fh:
+            doc = tomllib.load(fh)
+    except tomllib.TOMLDecodeError as exc:
+        raise ValueError(f"{p}: not valid TOML ({exc})") from None
+    except UnicodeDecodeError:
+        raise ValueError(f"{p}: not a text (TOML) file") from None
+    return _from_document(doc, p)
+
+
+def _where(p: Path, what: str) -> str:
+    return f"{p}: {what}"
+
+
+def _check_keys(table: Any, allowed: set[str], where: str) -> dict:
+    if not isinstance(table, dict):
+        raise ValueError(f"{where} must be a table; got {table!r}")
+    unknown = sorted(set(table) - allowed)
+    if unknown:
+        raise ValueError(f"{where} has unknown key(s) {', '.join(map(repr, unknown))}; allowed: {', '.join(sorted(allowed))}")
+    return table
+
+
+def _from_document(doc: dict, p: Path) -> ModelFile:
+    _check_keys(doc, _TOP_KEYS, _where(p, "the file"))
+    if "model" not in doc:
+        raise ValueError(_where(p, "no [model] table: name a built-in model (builtin = ...) or matrix files (h0/v or matrices)"))
+    mt = _check_keys(doc["model"], _MODEL_KEYS, _where(p, "[model]"))
+    title = doc.get("title")
+    if title is not None and not isinstance(title, str):
+        raise ValueError(_where(p, f"title must be a string; got {title!r}"))
+
+    params: dict = {}
+    builder = None
+    if "builtin" in mt:
+        extra = sorted(set(mt) & {"h0", "v", "matrices", "labels", "dims"})
+        if extra:
+            raise ValueError(_where(p, f"[model] names a built-in model and also {', '.join(extra)}; give one or the other"))
+        builder = mt["builtin"]
+        if not isinstance(builder, str) or builder not in BUILDERS:
+            raise ValueError(_where(p, f"unknown built-in model {builder!r}; known: {', '.join(sorted(BUILDERS))}"))
+        params = mt.get("params", {})
+        if not isinstance(params, dict):
+            raise ValueError(_where(p, f"[model.params] must be a table of builder arguments; got {params!r}"))
+        model = build_model(builder, params, where=str(p))
+        kind = "builtin"
+    else:
+        if "params" in mt:
+            raise ValueError(_where(p, "[model.params] is only for built-in models (builtin = ...)"))
+        model, kind = _model_from_matrices(mt, p.parent, p)
+    if isinstance(mt.get("name"), str):
+        model.name = mt["name"]
+    elif "name" in mt:
+        raise ValueError(_where(p, f"[model] name must be a string; got {mt['name']!r}"))
+
+    ct = _check_keys(doc.get("check", {}), _CHECK_KEYS, _where(p, "[check]"))
+    try:
+        levels = tuple(parse_level(k) for k in _as_list(ct.get("levels", []), "levels"))
+        orders = parse_orders(_as_list(ct["orders"], "orders")) if "orders" in ct else ()
+        coupling = _number(ct.get("coupling"), "coupling")
+        tol = _number(ct.get("tol"), "tol")
+        rtol = _number(ct.get("rtol"), "rtol")
+        if tol is not None and rtol is not None:
+            raise ValueError(f"give tol or rtol, not both; got tol={tol!r}, rtol={rtol!r}")
+        treatment = _string(ct.get("treatment"), "treatment")
+        backend = _string(ct.get("backend"), "backend")
+        qts = doc.get("quantity", [])
+        if isinstance(qts, dict):
+            qts = [qts]
+        if not isinstance(qts, list):
+            raise ValueError(f"[[quantity]] must be an array of tables; got {qts!r}")
+        quantities = tuple(_quantity(q, i) for i, q in enumerate(qts))
+        names = [q.name for q in quantities]
+        if len(set(names)) != len(names):
+            raise ValueError(f"quantity names must be distinct; got {names}")
+        # resolve every level now, so that a bad label is reported against the file
+        for k in levels:
+            model.level_index(k)
+        for q in quantities:
+            q.resolve(model)
+    except (ValueError, TypeError) as exc:
+        raise ValueError(_where(p, str(exc))) from None
+    return ModelFile(
+        path=str(p), kind=kind, model=model, builder=builder, params=MappingProxyType(dict(params)),
+        levels=levels, quantities=quantities, orders=orders, coupling=coupling, tol=tol, rtol=rtol,
+        treatment=treatment, backend=backend, title=title,
+    )
+
+
+def build_model(builder: str, params: Mapping[str, Any], *, where: str = "") -> Model:
+    """Call a built-in builder with keyword ``params``; unknown names give a clear error."""
+    prefix = f"{where}: " if where else ""
+    if builder not in BUILDERS:
+        raise ValueError(f"{prefix}unknown built-in model {builder!r}; known: {', '.join(sorted(BUILDERS))}")
+    fn = BUILDERS[builder]
+    names = [n for n in inspect.signature(fn).parameters]
+    unknown = sorted(set(params) - set(names))
+    if unknown:
+        raise ValueError(f"{prefix}{builder} has no parameter(s) {', '.join(map(repr, unknown))}; its parameters are {', '.join(names)}")
+    try:
+        return fn(**params)
+    except (ValueError, TypeError) as exc:
+        raise ValueError(f"{prefix}{builder}: {exc}") from None
+
+
+def _as_list(x: Any, name: str) -> list:
+    if isinstance(x, list):
+        return x
+    if isinstance(x, (int, str)) and not isinstance(x, bool):
+        return [x]
+    raise TypeError(f"{name} must be a list; got {x!r}")
+
+
+def _number(x: Any, name: str) -> float | None:
+    if x is None:
+        return None
+    if isinstance(x, bool) or not isinstance(x, (int, float)):
+        raise TypeError(f"{name} must be a number; got {x!r}")
+    return float(x)
+
+
+def _string(x: Any, name: str) -> str | None:
+    if x is None:
+        return None
+    if not isinstance(x, str):
+        raise TypeError(f"{name} must be a string; got {x!r}")
+    return x
+
+
+def _quantity(q: Any, i: int) -> Quantity:
+    where = f"[[quantity]] #{i + 1}"
+    if not isinstance(q, dict):
+        raise ValueError(f"{where} must be a table; got {q!r}")
+    unknown = sorted(set(q) - _QUANTITY_KEYS)
+    if unknown:
+        raise ValueError(f"{where} has unknown key(s) {', '.join(map(repr, unknown))}; allowed: {', '.join(sorted(_QUANTITY_KEYS))}")
+    name = q.get("name")
+    if not isinstance(name, str) or not name:
+        raise ValueError(f"{where} needs a name (a non-empty string); got {name!r}")
+    rel = q.get("relative_to", "value")
+    units = q.get("units", "")
+    if "expr" in q:
+        if "levels" in q or "weights" in q:
+            raise ValueError(f"quantity {name!r}: give expr or levels/weights, not both")
+        parsed = parse_quantity(q["expr"], name=name, relative_to=rel, units=units)
+        return Quantity(name, dict(parsed.weights), units=units, relative_to=rel)  # the table's name wins
+    if "levels" not in q or "weights" not in q:
+        raise ValueError(f"quantity {name!r} needs expr = '...' or both levels = [...] and weights = [...]")
+    lv, ws = _as_list(q["levels"], "levels"), _as_list(q["weights"], "weights")
+    if len(lv) != len(ws):
+        raise ValueError(f"quantity {name!r}: levels and weights differ in length ({len(lv)} vs {len(ws)})")
+    weights: dict[Hashable, float] = {}
+    for k, w in zip(lv, ws):
+        key = parse_level(k)
+        weights[key] = weights.get(key, 0.0) + float(_number(w, f"quantity {name!r} weight"))
+    return Quantity(name, weights, units=units, relative_to=rel)
+
+
+def _load_matrix(path: Path, name: str, source: Path) -> tuple[Any, str]:
+    if not path.exists():
+        raise FileNotFoundError(f"{source}: matrix file {str(path)!r} ({name}) does not exist")
+    suffix = path.suffix.lower()
+    try:
+        if suffix == ".npy":
+            return np.load(path, allow_pickle=False), "npy"
+        if suffix == ".npz":
+            with np.load(path, allow_pickle=False) as z:
+                is_sparse = "format" in z.files and "shape" in z.files
+            if not is_sparse:
+                raise ValueError(
+                    f"{path} is not a scipy.sparse .npz (scipy.sparse.save_npz); for dense arrays use .npy files "
+                    "or one archive with `matrices = ...` holding h0 and v"
+                )
+            return sp.load_npz(path), "sparse-npz"
+    except (OSError, EOFError) as exc:
+        raise ValueError(f"{source}: cannot read {name} from {path} ({exc})") from None
+    raise ValueError(f"{source}: {name} file {path.name!r} must end in .npy (numpy.save) or .npz (scipy.sparse.save_npz)")
+
+
+def _model_from_matrices(mt: dict, base: Path, source: Path) -> tuple[Model, str]:
+    if "matrices" in mt:
+        if "h0" in mt or "v" in mt:
+            raise ValueError(_where(source, "[model] gives matrices = ... and h0/v; give one or the other"))
+        arch = base / str(mt["matrices"])
+        if not arch.exists():
+            raise FileNotFoundError(f"{source}: matrix archive {str(arch)!r} does not exist")
+        try:
+            with np.load(arch, allow_pickle=False) as z:
+                files = set(z.files)
+                if {"format", "shape"} <= files:
+                    raise ValueError(
+                        f"{arch} is a single scipy.sparse matrix; save h0 and v separately with "
+                        "scipy.sparse.save_npz and name them with h0 = ... and v = ..."
+                    )
+                missing = sorted({"h0", "v"} - files)
+                if missing:
+                    raise ValueError(f"{arch} has no array(s) {', '.join(missing)} (it has {', '.join(sorted(files)) or 'none'}); "
+                                     "write it with numpy.savez(path, h0=..., v=...)")
+                h0, v = z["h0"], z["v"]
+        except (OSError, EOFError, ValueError) as exc:
+            msg = str(exc)
+            raise ValueError(msg if str(arch) in msg else f"{source}: cannot read {arch} ({msg})") from None
+        kind = "npz"
+    elif "h0" in mt and "v" in mt:
+        h0, k0 = _load_matrix(base / str(mt["h0"]), "h0", source)
+        v, k1 = _load_matrix(base / str(mt["v"]), "v", source)
+        kind = "sparse-npz" if "sparse-npz" in (k0, k1) else "npy"
+    else:
+        raise ValueError(_where(source, "[model] needs builtin = ..., or h0 = ... and v = ..., or matrices = ..."))
+    labels = mt.get("labels")
+    if labels is not None:
+        labels = [parse_level(x) if not isinstance(x, str) else x for x in _as_list(labels, "labels")]
+    dims = mt.get("dims")
+    try:
+        model = Model(h0, v, labels=labels, dims=dims, name=source.stem)
+    except (ValueError, TypeError) as exc:
+        raise ValueError(_where(source, str(exc))) from None
+    return model, kind
