@@ -569,8 +569,8 @@ def convergence(
     >>> from ptcheck import Model
     >>> m = Model(np.diag([0.0, 1.0]), [[0, 0.25], [0.25, 0]])
     >>> r = convergence(m, 0, 30)
-    >>> np.round(r.exceptional_points, 6)
-    array([0.+2.j, 0.-2.j])
+    >>> np.round(r.exceptional_points.imag, 6)       # closed form: λ = ±iΔ/(2|v|)
+    array([ 2., -2.])
     """
     if not isinstance(m, Model):
         raise TypeError(f"m must be a ptcheck Model; got {type(m).__name__}")
