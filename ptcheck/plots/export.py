@@ -1,0 +1,130 @@
+"""Slide export: PNG, SVG or PDF at 16:9 with fonts legible on a projector."""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from matplotlib.figure import Figure
+from matplotlib.text import Text
+
+from ._style import SLIDE_SIZE
+
+__all__ = ["SavedFigure", "save", "FORMATS", "MIN_FONT_SIZE"]
+
+#: Formats :func:`save` writes.
+FORMATS = ("png", "svg", "pdf")
+#: Smallest font (points) on a 13.33 x 7.5 in slide: text below it is enlarged.
+MIN_FONT_SIZE = 12.0
+
+
+@dataclass(frozen=True)
+class SavedFigure:
+    """What :func:`save` wrote.
+
+    Attributes
+    ----------
+    path : Path
+    format : str
+        ``"png"``, ``"svg"`` or ``"pdf"``.
+    size_inches : tuple of float
+        Page size written (width, height).
+    dpi : float
+        Resolution (PNG pixels = size x dpi).
+    min_fontsize : float
+        Smallest font size (points) of the visible text written.
+    """
+
+    path: Path
+    format: str
+    size_inches: tuple
+    dpi: float
+    min_fontsize: float
+
+
+def _figure_of(obj: Any) -> Figure:
+    if isinstance(obj, Figure):
+        return obj
+    fig = getattr(obj, "figure", None)
+    if isinstance(fig, Figure):
+        return fig
+    raise TypeError(f"save needs a matplotlib Figure or an artists object with a .figure; got {type(obj).__name__}")
+
+
+def save(
+    fig_or_artists: Any,
+    path: str | os.PathLike,
+    *,
+    format: str | None = None,  # noqa: A002 - matplotlib's own word
+    size: tuple[float, float] = SLIDE_SIZE,
+    dpi: float = 150.0,
+    min_fontsize: float = MIN_FONT_SIZE,
+) -> SavedFigure:
+    """Write a figure as a 16:9 slide (PNG, SVG or PDF).
+
+    The figure is laid out at ``size`` (default 13.33 x 7.5 in, a wide slide)
+    with every font scaled by ``size[0] / current width`` and raised to at
+    least ``min_fontsize`` points; the figure on screen is restored afterwards.
+
+    Parameters
+    ----------
+    fig_or_artists : Figure or artists object (e.g. LevelArtists)
+    path : str or path-like
+        Target file; the format is taken from the suffix unless ``format`` is given.
+    format : {"png", "svg", "pdf"}, optional
+    size : (float, float)
+        Page size in inches.
+    dpi : float
+        Resolution of the PNG.
+    min_fontsize : float
+        Smallest font size (points) on the page.
+
+    Returns
+    -------
+    SavedFigure
+    """
+    fig = _figure_of(fig_or_artists)
+    path = Path(path)
+    fmt = (format or path.suffix.lstrip(".")).lower()
+    if fmt not in FORMATS:
+        raise ValueError(f"format must be one of {list(FORMATS)} (from the file suffix or format=); got {fmt!r} for {str(path)!r}")
+    w, h = (float(size[0]), float(size[1]))
+    if not (w > 0 and h > 0):
+        raise ValueError(f"size must be two positive numbers (inches); got {size!r}")
+    if not path.parent.exists():
+        raise ValueError(f"folder {str(path.parent)!r} does not exist")
+    old_size = tuple(fig.get_size_inches())
+    scale = w / old_size[0]
+    fig.draw_without_rendering()  # make tick labels exist at their current size
+    ticks: list[tuple[Any, str, float]] = []
+    tick_texts: set[int] = set()
+    for ax in fig.axes:
+        for name, axis in (("x", ax.xaxis), ("y", ax.yaxis)):
+            major = axis.get_major_ticks()
+            if major:
+                size0 = float(major[0].label1.get_fontsize())
+                ticks.append((ax, name, size0))
+                for t in major + axis.get_minor_ticks():
+                    tick_texts.update((id(t.label1), id(t.label2)))
+    texts = [t for t in fig.findobj(Text) if id(t) not in tick_texts]
+    old_fonts = [(t, float(t.get_fontsize())) for t in texts]
+    try:
+        for ax, name, s0 in ticks:
+            ax.tick_params(axis=name, which="both", labelsize=max(s0 * scale, min_fontsize))
+        for t, s0 in old_fonts:
+            t.set_fontsize(max(s0 * scale, min_fontsize))
+        fig.set_size_inches(w, h, forward=False)
+        fig.savefig(path, format=fmt, dpi=dpi, facecolor="white")
+        visible = [t.get_fontsize() for t, _ in old_fonts if t.get_visible() and t.get_text()]
+        visible += [max(s0 * scale, min_fontsize) for _, _, s0 in ticks]
+        smallest = float(min(visible)) if visible else float("nan")
+    finally:
+        fig.set_size_inches(*old_size, forward=False)
+        for ax, name, s0 in ticks:
+            ax.tick_params(axis=name, which="both", labelsize=s0)
+        for t, s0 in old_fonts:
+            t.set_fontsize(s0)
+        fig.canvas.draw_idle()
+    return SavedFigure(path=path, format=fmt, size_inches=(w, h), dpi=float(dpi), min_fontsize=smallest)
