@@ -1,0 +1,269 @@
+"""One figure each: build the artists after heavy work, move markers on a coupling change (private)."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+from typing import Any
+
+import numpy as np
+from matplotlib.figure import Figure
+
+from ..plots import mixing_map, plot_divergence, plot_errors, plot_levels, plot_pairs
+from ..plots._common import nearest_index, positive_or_nan
+from ..plots._style import SCREEN_SIZE, style
+from ..quantities import Quantity
+
+__all__ = ["LevelsView", "ErrorsView", "DivergenceView", "PairsView", "VIEWS", "use_ipympl"]
+
+
+def use_ipympl(canvas: str) -> bool:
+    """Whether figures go on an ipympl canvas (``%matplotlib widget``) or inline images."""
+    if canvas == "ipympl":
+        return True
+    if canvas == "image":
+        return False
+    import matplotlib
+
+    backend = str(matplotlib.get_backend()).lower()
+    return "ipympl" in backend or backend == "widget"
+
+
+class _View:
+    """A figure, its widget and the artists drawn on it."""
+
+    name = "view"
+    title = "view"
+    needs = frozenset()  # which heavy results the view draws: {"comparison", "boundaries", "divergence"}
+
+    def __init__(self, ipympl: bool, figsize: tuple[float, float] = SCREEN_SIZE) -> None:
+        import ipywidgets as w
+
+        self.ipympl = ipympl
+        with style(figsize[0] / 13.333):
+            self.figure = Figure(figsize=figsize, layout="constrained")
+        if ipympl:
+            from ipympl.backend_nbagg import Canvas, FigureManager
+
+            canvas = Canvas(self.figure)
+            FigureManager(canvas, 0)
+            canvas.header_visible = False
+            canvas.footer_visible = False
+            canvas.resizable = False
+            canvas.toolbar_position = "right"
+            self.widget = canvas
+        else:
+            from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+            FigureCanvasAgg(self.figure)
+            self.widget = w.Image(format="png", layout=w.Layout(width="100%", max_width=f"{int(figsize[0] * 100)}px"))
+        self._setup_axes()
+        self.artists: Any = None
+        self.stale = True  # artists changed but not shown yet
+        self._background = None
+        self._cid = None
+
+    def _setup_axes(self) -> None:
+        self.ax = self.figure.add_subplot()
+
+    # -------------------------------------------------------------- drawing
+    def moving(self) -> list:
+        """Artists a coupling move changes (drawn on top of a cached background)."""
+        a = self.artists
+        if a is None:
+            return []
+        return [x for x in (getattr(a, "coupling_line", None), getattr(a, "coupling_markers", None),
+                            getattr(a, "coupling_marker", None)) if x is not None]
+
+    def _on_draw(self, event: Any) -> None:
+        # after every full draw on the screen canvas: keep the background, put the moving artists on it
+        canvas = self.figure.canvas
+        if getattr(event, "renderer", None) is not getattr(canvas, "renderer", None):
+            return  # a draw for export (other size or vector renderer)
+        self._background = canvas.copy_from_bbox(self.figure.bbox)
+        for art in self.moving():
+            if art.get_animated():
+                self.figure.draw_artist(art)
+
+    def redraw(self, *, full: bool = True) -> None:
+        """Show the figure: a full draw, or (``full=False``) only the moving artists over the cached background."""
+        canvas = self.figure.canvas
+        if self._cid is None:
+            self._cid = canvas.mpl_connect("draw_event", self._on_draw)
+        quick = not full and self._background is not None and all(a.get_animated() for a in self.moving())
+        if quick:
+            canvas.restore_region(self._background)
+            for art in self.moving():
+                self.figure.draw_artist(art)
+        if self.ipympl:
+            if quick:
+                canvas.blit(self.figure.bbox)
+            else:
+                canvas.draw_idle()
+        else:
+            if not quick:
+                canvas.draw()
+            self.widget.value = _png(canvas)
+        self.stale = False
+
+    def set_moving_animated(self, flag: bool) -> None:
+        for art in self.moving():
+            art.set_animated(flag)
+
+    def clear(self) -> None:
+        self.ax.clear()
+        self.artists = None
+
+    def build(self, panel: Any) -> None:
+        """New artists after heavy work, laid out once; later coupling moves keep this layout.
+
+        The constrained layout is computed here and then frozen (layout engine
+        "none"), so that a coupling move redraws without laying out again.
+        """
+        self.figure.set_layout_engine("constrained")
+        self._background = None
+        self.render(panel)
+        self.figure.draw_without_rendering()
+        self.figure.set_layout_engine("none")
+        self.set_moving_animated(True)
+
+    # overridden
+    def render(self, panel: Any) -> None:  # heavy results -> new artists
+        raise NotImplementedError
+
+    def move(self, panel: Any, coupling: float) -> None:  # coupling -> markers only
+        raise NotImplementedError
+
+    def numbers(self, panel: Any) -> tuple[list[dict], dict]:  # rows for CSV, dict for JSON
+        raise NotImplementedError
+
+
+def _move_markers(art: Any, lam_grid: np.ndarray, coupling: float, values_at: Any) -> None:
+    if art is None or art.coupling_line is None:
+        return
+    art.coupling_line.set_xdata([coupling, coupling])
+    i = nearest_index(lam_grid, coupling)
+    y = values_at(i)
+    art.coupling_markers.set_data(np.full(len(y), lam_grid[i]), y)
+
+
+class LevelsView(_View):
+    name = "levels"
+    title = "levels vs coupling λ"
+    needs = frozenset({"comparison"})
+
+    def render(self, panel: Any) -> None:
+        self.clear()
+        r = panel.result
+        self._shift = bool(panel.controls.shift.value)
+        self.artists = plot_levels(r, coupling=panel.coupling, ax=self.ax, shift=self._shift, caption=panel.caption("levels vs coupling"))
+        self._offset = np.asarray(r.unperturbed) if self._shift else np.zeros(len(r.targets))
+
+    def move(self, panel: Any, coupling: float) -> None:
+        r = panel.result
+        _move_markers(self.artists, np.asarray(r.couplings), coupling,
+                      lambda i: np.asarray(r.exact)[:, i] - self._offset)
+
+    def numbers(self, panel: Any) -> tuple[list[dict], dict]:
+        return panel.result.to_rows(), {"comparison": panel.result.to_dict(), "coupling": panel.coupling}
+
+
+class ErrorsView(_View):
+    name = "errors"
+    title = "errors & validity boundary"
+    needs = frozenset({"comparison", "boundaries"})
+
+    def render(self, panel: Any) -> None:
+        self.clear()
+        r = panel.result
+        kind = "relative" if panel.settings.relative else "absolute"
+        self.artists = plot_errors(r, panel.boundaries, target=panel.error_target_name, error=kind, tol=panel.settings.tol,
+                                   coupling=panel.coupling, ax=self.ax,
+                                   caption=panel.caption(f"{kind} error vs coupling", boundaries=panel.boundaries))
+        ti = list(r.targets).index(self.artists.target)
+        o_idx = [list(r.order_names).index(o) for o in self.artists.orders]
+        self._data = np.asarray(r.rel_error if panel.settings.relative else r.abs_error)[ti][o_idx]
+
+    def move(self, panel: Any, coupling: float) -> None:
+        _move_markers(self.artists, np.asarray(panel.result.couplings), coupling, lambda i: positive_or_nan(self._data[:, i]))
+
+    def numbers(self, panel: Any) -> tuple[list[dict], dict]:
+        rows = [row for row in panel.result.to_rows() if row["target"] == panel.error_target_name]
+        return rows, {"comparison": panel.result.to_dict(), "boundaries": [b.to_dict() for b in panel.boundaries],
+                      "coupling": panel.coupling}
+
+
+class DivergenceView(_View):
+    name = "divergence"
+    title = "exceptional points & radius of convergence"
+    needs = frozenset({"divergence"})
+
+    def render(self, panel: Any) -> None:
+        self.clear()
+        self.artists = plot_divergence(panel.divergence, coupling=panel.coupling, model_name=panel.model.name, ax=self.ax)
+
+    def move(self, panel: Any, coupling: float) -> None:
+        if self.artists is not None and self.artists.coupling_marker is not None:
+            self.artists.coupling_marker.set_data([coupling], [0.0])
+
+    def numbers(self, panel: Any) -> tuple[list[dict], dict]:
+        d = panel.divergence
+        rows = []
+        for i, lab in enumerate(d.labels):
+            eps = d.exceptional_points[i]
+            rows.append({"level": lab, "kind": d.kinds[i], "radius": float(d.radius[i]), "kato_bound": float(d.kato_bound[i]),
+                         "nearest_exceptional_point": str(complex(eps[0])) if eps.size else ""})
+        return rows, {"divergence_map": d.to_dict(), "coupling": panel.coupling}
+
+
+class PairsView(_View):
+    name = "pairs"
+    title = "near-degenerate pairs"
+    needs = frozenset()
+
+    def _setup_axes(self) -> None:
+        gs = self.figure.add_gridspec(1, 2, width_ratios=(20, 1))
+        self.ax = self.figure.add_subplot(gs[0, 0])
+        self.cax = self.figure.add_subplot(gs[0, 1])
+
+    def clear(self) -> None:
+        self.ax.clear()
+        self.cax.clear()
+        self.artists = None
+
+    def render(self, panel: Any) -> None:
+        self.move(panel, panel.coupling)
+
+    def move(self, panel: Any, coupling: float) -> None:
+        # mixing ratios are cheap (one row of V per level): recomputed at each coupling, not counted as heavy
+        levels = [t for t in panel.settings.targets if not isinstance(t, Quantity)] or None
+        self.map = mixing_map(panel.model, coupling, levels=levels, threshold=panel.settings.threshold)
+        self.clear()
+        self.artists = plot_pairs(self.map, ax=self.ax, cax=self.cax)
+
+    def numbers(self, panel: Any) -> tuple[list[dict], dict]:
+        return self.map.to_rows(), {"mixing_map": self.map.to_dict()}
+
+
+def _png(canvas: Any) -> bytes:
+    """PNG of the Agg buffer as it is (no redraw), quickly compressed."""
+    from PIL import Image
+
+    buf = io.BytesIO()
+    Image.fromarray(np.asarray(canvas.buffer_rgba())).save(buf, format="png", compress_level=1)
+    return buf.getvalue()
+
+
+VIEWS = {v.name: v for v in (LevelsView, ErrorsView, DivergenceView, PairsView)}
+
+
+def write_numbers(rows: list[dict], data: dict, csv_path: Any, json_path: Any) -> None:
+    """CSV (one row per record) and JSON (the result's to_dict) next to the figure."""
+    buf = io.StringIO()
+    if rows:
+        wr = csv.DictWriter(buf, fieldnames=list(rows[0]))
+        wr.writeheader()
+        wr.writerows(rows)
+    csv_path.write_text(buf.getvalue(), encoding="utf-8")
+    json_path.write_text(json.dumps(data, indent=1, ensure_ascii=False, default=str), encoding="utf-8")
