@@ -1,0 +1,1050 @@
+"""The full check of one model, and its report (JSON, CSV, Markdown + figures).
+
+:func:`run_check` answers "can I trust order k at my coupling λ?" for each
+level or derived quantity: it compares perturbative and exact values
+(:func:`ptcheck.compare.compare`), finds the validity boundary of every order
+asked for (:func:`ptcheck.compare.validity_boundary`), diagnoses the
+convergence of each level's series (:func:`ptcheck.convergence.convergence`),
+lists near-degenerate pairs at λ and, for a built-in model with a truncation
+parameter, checks the truncation.  The result is a :class:`CheckReport`.
+
+:func:`write_report` writes it to a directory:
+
+- ``report.json``: everything, machine-readable (ptcheck version, all settings);
+- ``comparison.csv`` (one row per target × order × coupling) and
+  ``boundaries.csv`` (one row per target × order);
+- ``report.md``: the verdict in plain words, the cautions, tables, and the
+  figures (PNG files beside it).
+
+Every file is written atomically (temporary file + ``os.replace``); a
+different existing report is never overwritten unless ``force=True``.
+"""
+
+from __future__ import annotations
+
+import csv
+import html
+import io
+import json
+import math
+import platform
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from . import _validation as val
+from ._atomic import ReportExistsError, write_all
+from ._progress import ProgressCallback, report_progress
+from .approximants import Pade, order_name, parse_orders
+from .compare import TRUNCATION_NOTE, ComparisonResult, ValidityBoundary, compare, validity_boundary
+from .degeneracy import DEFAULT_MIXING_THRESHOLD, NearDegeneratePair, near_degenerate_pairs
+from .model import Model
+from .quantities import Quantity
+
+__all__ = [
+    "CheckReport",
+    "Verdict",
+    "Figure",
+    "FORMATS",
+    "ReportExistsError",
+    "run_check",
+    "write_report",
+    "default_figures",
+    "to_json",
+    "to_markdown",
+    "comparison_csv",
+    "boundaries_csv",
+]
+
+#: Report formats :func:`write_report` can write.
+FORMATS = ("json", "md", "csv")
+
+#: Default relative tolerance when none is given (1 % of the exact shift / value).
+DEFAULT_RTOL = 0.01
+
+#: Default orders judged when none are given.
+DEFAULT_ORDERS = (2,)
+
+#: Truncation parameters of the built-in builders (see ptcheck.models).
+SIZE_PARAMS = ("n_photons", "n_qubit", "n_basis", "n_max", "m_max", "n_levels")
+
+
+def _version() -> str:
+    from . import __version__
+
+    return __version__
+
+
+# ---------------------------------------------------------------------- result types
+@dataclass(frozen=True)
+class Verdict:
+    """Is one order of one target within tolerance at the coupling asked about?
+
+    Attributes
+    ----------
+    target : str
+        Level label or quantity name.
+    order : int or Pade
+    coupling : float
+        The coupling λ asked about (dimensionless).
+    error : float
+        Error at ``coupling``: absolute (energy units) or relative, as the
+        tolerance; NaN when a relative error is undefined there.
+    tolerance : float
+    relative : bool
+        Whether ``tolerance`` and ``error`` are relative.
+    valid : bool
+        ``error <= tolerance`` (False when ``error`` is NaN).
+    boundary : float
+        Signed validity boundary λ* of this order (``inf`` if not reached, NaN
+        if ill defined).
+    boundary_status : str
+        ``ValidityBoundary.status``.
+    text : str
+        The verdict in one plain sentence.
+    """
+
+    target: str
+    order: Any
+    coupling: float
+    error: float
+    tolerance: float
+    relative: bool
+    valid: bool
+    boundary: float
+    boundary_status: str
+    text: str
+
+    def to_dict(self) -> dict:
+        return {
+            "target": self.target,
+            "order": order_name(self.order),
+            "coupling": self.coupling,
+            "error": _finite_or_str(self.error),
+            "tolerance": self.tolerance,
+            "relative": self.relative,
+            "valid": self.valid,
+            "boundary": _finite_or_str(self.boundary),
+            "boundary_status": self.boundary_status,
+            "text": self.text,
+        }
+
+
+@dataclass(frozen=True, repr=False, eq=False)
+class CheckReport:
+    """Everything the full check found about one model at one coupling.
+
+    Attributes
+    ----------
+    title : str
+    description : str
+        What the model is (for an invented scenario: says so).
+    invented : bool
+        The model's numbers are invented (demo data).
+    model : dict
+        Name, basis size N, dims, source (built-in builder and parameters, or
+        matrix files), ``norm_v`` (energy units).
+    settings : dict
+        Targets, orders, coupling, tol/rtol, treatment, backend, threshold,
+        the coupling grid of the comparison and the ptcheck version.
+    valid : bool
+        Every order asked for meets the tolerance for every target at the
+        coupling.
+    verdicts : tuple of Verdict
+        One per target × order asked for.
+    comparison : ComparisonResult
+        On a grid of couplings from ~0 to beyond the coupling, for the orders
+        asked for plus neighbouring truncation orders (context).
+    boundaries : tuple of ValidityBoundary
+        One per target × order asked for (same order as ``verdicts``).
+    convergence : tuple
+        One ``ConvergenceResult`` per level involved (``None`` where the
+        analysis was not possible; see ``notes``).
+    pairs : tuple of NearDegeneratePair
+        Near-degenerate pairs at the coupling involving the levels used.
+    truncation : tuple
+        ``TruncationCheck`` results (built-in models with a size parameter).
+    lowest_valid_order : dict
+        Target -> lowest truncation order compared that meets the tolerance at
+        the coupling (None: none of those compared).
+    cautions : tuple of str
+        Plain-words cautions, most important first.
+    notes : tuple of str
+        All remarks of the engine (deduplicated).
+    extras : dict
+        Optional additions, e.g. a validity map (``{"validity_map": ValidityMap}``).
+    source_model : Model
+        The model checked (not serialised; used by figure makers).
+    """
+
+    title: str
+    description: str
+    invented: bool
+    model: dict
+    settings: dict
+    valid: bool
+    verdicts: tuple
+    comparison: ComparisonResult
+    boundaries: tuple
+    convergence: tuple
+    pairs: tuple
+    truncation: tuple
+    lowest_valid_order: dict
+    cautions: tuple
+    notes: tuple
+    extras: dict = field(default_factory=dict)
+    source_model: Any = field(default=None, repr=False)
+
+    @property
+    def exit_status(self) -> int:
+        """0 if valid, 1 if not (the command line's exit status)."""
+        return 0 if self.valid else 1
+
+    @property
+    def verdict_text(self) -> str:
+        """The verdict in plain words (a short paragraph starting with VALID or NOT VALID)."""
+        return f"{'VALID' if self.valid else 'NOT VALID'}: {_verdict_paragraph(self)}"
+
+    def __repr__(self) -> str:
+        return (
+            f"CheckReport({self.title!r}, λ={self.settings['coupling']:g}, "
+            f"{'VALID' if self.valid else 'NOT VALID'}, {len(self.verdicts)} verdicts, {len(self.cautions)} cautions)"
+        )
+
+    def to_dict(self) -> dict:
+        """Complete, JSON-safe description (non-finite floats as the strings 'inf', '-inf', 'nan')."""
+        d = {
+            "ptcheck_version": _version(),
+            "versions": _versions(),
+            "title": self.title,
+            "description": self.description,
+            "invented": self.invented,
+            "model": self.model,
+            "settings": self.settings,
+            "verdict": {
+                "valid": self.valid,
+                "exit_status": self.exit_status,
+                "text": self.verdict_text,
+                "per_target": [v.to_dict() for v in self.verdicts],
+                "lowest_valid_order": {k: (None if v is None else order_name(v)) for k, v in self.lowest_valid_order.items()},
+            },
+            "cautions": list(self.cautions),
+            "boundaries": [b.to_dict() for b in self.boundaries],
+            "convergence": [None if c is None else c.to_dict() for c in self.convergence],
+            "near_degenerate_pairs": [p.to_dict() for p in self.pairs],
+            "truncation": [t.to_dict() for t in self.truncation],
+            "comparison": self.comparison.to_dict(),
+            "notes": list(self.notes),
+        }
+        for k, v in self.extras.items():
+            d[k] = v.to_dict() if hasattr(v, "to_dict") else v
+        return _json_safe(d)
+
+    def _repr_html_(self) -> str:
+        rows = "".join(
+            f"<tr><td>{html.escape(v.target)}</td><td>{html.escape(order_name(v.order))}</td>"
+            f"<td>{_fmt_err(v.error, v.relative)}</td><td>{'✔' if v.valid else '✘'}</td>"
+            f"<td>{_fmt_lam(v.boundary)}</td></tr>"
+            for v in self.verdicts
+        )
+        cautions = "".join(f"<li>{html.escape(c)}</li>" for c in self.cautions)
+        return (
+            f"<b>{html.escape(self.title)}</b>: <b>{'VALID' if self.valid else 'NOT VALID'}</b> at "
+            f"λ = {self.settings['coupling']:g}<table><tr><th>target</th><th>order</th><th>error</th>"
+            f"<th>ok</th><th>λ*</th></tr>{rows}</table><ul>{cautions}</ul>"
+        )
+
+
+@dataclass(frozen=True)
+class Figure:
+    """A figure file of a report.
+
+    Attributes
+    ----------
+    filename : str
+        File name inside the report directory (``.png``).
+    caption : str
+    png : bytes
+        The image.
+    """
+
+    filename: str
+    caption: str
+    png: bytes = field(repr=False)
+
+
+#: Signature of a figure step: report -> figures.
+FigureMaker = Callable[[CheckReport], Sequence[Figure]]
+
+
+# ---------------------------------------------------------------------- the check
+
+def run_check(
+    model: Model,
+    levels: Any = None,
+    orders: Any = None,
+    *,
+    coupling: float,
+    tol: float | None = None,
+    rtol: float | None = None,
+    treatment: str = "auto",
+    backend: str = "auto",
+    threshold: float = DEFAULT_MIXING_THRESHOLD,
+    builder: str | None = None,
+    params: Mapping[str, Any] | None = None,
+    source: Mapping[str, Any] | None = None,
+    title: str | None = None,
+    description: str = "",
+    invented: bool = False,
+    n_points: int = 41,
+    convergence_order: int = 40,
+    progress: ProgressCallback | None = None,
+) -> CheckReport:
+    """Run the full check of levels / quantities of a model at one coupling.
+
+    Parameters
+    ----------
+    model : Model
+    levels : level key, Quantity, or list of them, optional
+        What to check (default: level 0, the lowest unperturbed level).
+    orders : int, str, Pade or list of them, optional
+        The orders you rely on (default ``[2]``); *every* order listed is judged.
+    coupling : float
+        The coupling λ you use (dimensionless).
+    tol, rtol : float, optional
+        Absolute tolerance (energy units) or relative tolerance (relative to
+        the exact shift of a level / the reference a quantity names).  At most
+        one; default ``rtol = 0.01``.
+    treatment : {"auto", "nondegenerate", "block"}
+    backend : str
+        Exact solver backend.
+    threshold : float
+        Mixing-ratio threshold for near-degenerate pairs and the "auto" treatment.
+    builder, params : optional
+        Name and keyword arguments of the built-in builder that made ``model``
+        (enables the truncation check and is recorded in the report).
+    source : mapping, optional
+        Where the model came from (recorded in the report).
+    title, description : str, optional
+    invented : bool
+        Mark the model's numbers as invented (demo data).
+    n_points : int, default 41
+        Couplings in the comparison grid.
+    convergence_order : int, default 40
+        Series order analysed by the convergence diagnosis.
+    progress : callable(done, total), optional
+        Called after each step.
+
+    Returns
+    -------
+    CheckReport
+    """
+    if not isinstance(model, Model):
+        raise TypeError(f"model must be a ptcheck Model; got {type(model).__name__}")
+    lam0 = val.as_coupling(coupling)
+    if tol is not None and rtol is not None:
+        raise ValueError(f"give tol or rtol, not both; got tol={tol!r}, rtol={rtol!r}")
+    if tol is None and rtol is None:
+        rtol = DEFAULT_RTOL
+    relative = rtol is not None
+    thr = float(val.check_positive(rtol if relative else tol, "rtol" if relative else "tol"))
+    n_points = val.check_int(n_points, "n_points", minimum=3)
+    convergence_order = val.check_int(convergence_order, "convergence_order", minimum=2)
+    targets = list(val.as_sequence(levels)) if levels is not None else [0]
+    if not targets:
+        targets = [0]
+    specs = parse_orders(orders if orders is not None else list(DEFAULT_ORDERS))
+    direction = -1 if lam0 < 0 else 1
+
+    # names and levels of the targets (resolves labels: bad ones raise here)
+    names, level_sets = [], []
+    for t in targets:
+        if isinstance(t, Quantity):
+            names.append(t.name)
+            level_sets.append(list(t.resolve(model)))
+        else:
+            n = model.level_index(t)
+            names.append(model.label(n))
+            level_sets.append([n])
+    if len(set(names)) != len(names):
+        raise ValueError(f"targets must be distinct; got {names}")
+    needed = list(dict.fromkeys(n for s in level_sets for n in s))
+
+    do_trunc = builder is not None and any(p in (params or {}) or _has_param(builder, p) for p in SIZE_PARAMS)
+    total = 2 + len(targets) * len(specs) + len(needed) + (1 if do_trunc else 0)
+    step = 0
+
+    def tick() -> None:
+        nonlocal step
+        step += 1
+        report_progress(progress, step, total)
+
+    opts = {"treatment": treatment, "backend": backend}
+    tolkw = {"rtol": thr} if relative else {"tol": thr}
+
+    # 1. validity boundaries of every order asked for
+    boundaries = []
+    for t in targets:
+        for s in specs:
+            boundaries.append(validity_boundary(model, t, s, direction=direction, threshold=threshold, **tolkw, **opts))
+            tick()
+
+    # 2. comparison on a grid reaching past the coupling and the boundaries found
+    reach = abs(lam0)
+    finite_b = [abs(b.coupling) for b in boundaries if math.isfinite(b.coupling) and b.coupling != 0]
+    if finite_b:
+        reach = max(reach, min(1.25 * max(finite_b), 4 * max(abs(lam0), 1e-300)))
+    if reach == 0:
+        reach = min(finite_b) if finite_b else 1.0
+    grid = direction * np.linspace(reach / (n_points - 1), reach, n_points - 1)
+    grid = np.unique(np.append(grid, lam0)) if lam0 != 0 else np.unique(np.append(grid, 0.0))
+    int_orders = [s for s in specs if not isinstance(s, Pade)]
+    kmax = max(int_orders, default=2)
+    context = list(range(1, min(kmax + 2, 40) + 1))
+    all_orders = list(dict.fromkeys(list(specs) + context))
+    comp = compare(model, targets, all_orders, grid, coupling=lam0 if lam0 != 0 else None, threshold=threshold, **opts)
+    tick()
+    ci = int(np.argmin(np.abs(comp.couplings - lam0)))
+    errs = comp.rel_error if relative else comp.abs_error
+
+    # 3. verdicts
+    verdicts = []
+    bi = 0
+    for ti, name in enumerate(comp.targets):
+        for s in specs:
+            oi = comp.orders.index(s)
+            e = float(errs[ti, oi, ci])
+            b = boundaries[bi]
+            bi += 1
+            ok = bool(np.isfinite(e) and e <= thr)
+            verdicts.append(Verdict(name, s, lam0, e, thr, relative, ok, float(b.coupling), b.status, _verdict_sentence(name, s, lam0, e, thr, relative, ok, b)))
+    lowest: dict[str, Any] = {}
+    for ti, name in enumerate(comp.targets):
+        lowest[name] = None
+        for k in sorted(o for o in comp.orders if not isinstance(o, Pade)):
+            e = float(errs[ti, comp.orders.index(k), ci])
+            if np.isfinite(e) and e <= thr:
+                lowest[name] = k
+                break
+
+    # 4. convergence of each level's series
+    from .convergence import convergence as _convergence  # lazy: heavier module
+
+    conv = []
+    conv_notes = []
+    for n in needed:
+        try:
+            conv.append(_convergence(model, n, convergence_order, coupling=lam0))
+        except (ValueError, FloatingPointError) as exc:
+            conv.append(None)
+            conv_notes.append(f"No convergence diagnosis for level {model.label(n)}: {exc}")
+        tick()
+
+    # 5. near-degenerate pairs at the coupling
+    pairs = tuple(near_degenerate_pairs(model, lam0, threshold, levels=needed)) if lam0 != 0 else tuple(
+        near_degenerate_pairs(model, 0.0, threshold, levels=needed)
+    )
+
+    # 6. truncation (built-in models with a size parameter)
+    trunc = []
+    trunc_notes = []
+    if do_trunc:
+        trunc, trunc_notes = _truncation_checks(model, builder, dict(params or {}), needed, lam0)
+        tick()
+
+    cautions = _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam0, builder, source)
+    notes = list(comp.notes)
+    for b in boundaries:
+        notes.extend(b.notes)
+    for c in conv:
+        if c is not None:
+            notes.extend(c.notes)
+    notes.extend(conv_notes)
+    notes.extend(trunc_notes)
+
+    model_info = {
+        "name": model.name,
+        "n": model.n,
+        "dims": list(model.dims) if model.dims else None,
+        "norm_v": model.norm_v,
+        "sparse": bool(model.is_sparse),
+        "builder": builder,
+        "params": _json_safe(dict(params)) if params is not None else None,
+        "source": _json_safe(dict(source)) if source is not None else None,
+        "unperturbed_energies": {model.label(n): float(model.e0[n]) for n in needed},
+    }
+    settings = {
+        "targets": list(comp.targets),
+        "levels": [_key_json(t) for t in targets],
+        "orders": [order_name(s) for s in specs],
+        "context_orders": [order_name(s) for s in comp.orders],
+        "coupling": lam0,
+        "tol": None if relative else thr,
+        "rtol": thr if relative else None,
+        "treatment": treatment,
+        "backend": backend,
+        "threshold": threshold,
+        "direction": direction,
+        "comparison_couplings": [float(x) for x in comp.couplings],
+        "convergence_order": convergence_order,
+        "ptcheck_version": _version(),
+    }
+    report_progress(progress, total, total)
+    return CheckReport(
+        title=title or f"Can perturbation theory be trusted for {model.name} at λ = {lam0:g}?",
+        description=description,
+        invented=bool(invented),
+        model=model_info,
+        settings=settings,
+        valid=all(v.valid for v in verdicts),
+        verdicts=tuple(verdicts),
+        comparison=comp,
+        boundaries=tuple(boundaries),
+        convergence=tuple(conv),
+        pairs=pairs,
+        truncation=tuple(trunc),
+        lowest_valid_order=lowest,
+        cautions=tuple(dict.fromkeys(cautions)),
+        notes=tuple(dict.fromkeys(notes)),
+        source_model=model,
+    )
+
+
+def _has_param(builder: str, name: str) -> bool:
+    import inspect
+
+    from .models import BUILDERS
+
+    fn = BUILDERS.get(builder)
+    return fn is not None and name in inspect.signature(fn).parameters
+
+
+def _truncation_checks(model: Model, builder: str, params: dict, needed: list[int], lam: float):
+    """Rebuild the model with each size parameter enlarged; is every level used converged?"""
+    import inspect
+
+    from .models import BUILDERS, truncation_check
+
+    fn = BUILDERS[builder]
+    sig = inspect.signature(fn).parameters
+    out, notes = [], []
+    for p in SIZE_PARAMS:
+        if p not in sig:
+            continue
+        s = params.get(p, sig[p].default)
+        if not isinstance(s, int) or isinstance(s, bool):
+            continue
+        bigger = s + max(2, s // 2)
+        others = {k: v for k, v in params.items() if k != p}
+        for n in needed:
+            lab = model.labels[n] if model.labels[n] is not None else n
+            try:
+                out.append(truncation_check(fn, p, [s, bigger], level=lab, coupling=lam, params=others))
+            except (ValueError, TypeError) as exc:
+                notes.append(f"Truncation check of {p} for level {model.label(n)} was not possible: {exc}")
+    return out, notes
+
+
+def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam, builder, source):
+    out = []
+    # accidental agreement: within tolerance at λ although the error crossed it on the way
+    for v in verdicts:
+        if v.valid and v.boundary_status == "found" and abs(v.boundary) < abs(v.coupling):
+            out.append(
+                f"{v.target}, {order_name(v.order)}: the error is within tolerance at λ = {v.coupling:g} only by "
+                f"accident — it already exceeds the tolerance at |λ| = {abs(v.boundary):.4g} and comes back; "
+                "do not rely on it."
+            )
+        if not np.isfinite(v.error):
+            out.append(
+                f"{v.target}, {order_name(v.order)}: the relative error is undefined at λ = {v.coupling:g} (the exact "
+                "reference is ~0); judge it with an absolute tolerance (--tol)."
+            )
+    # basis truncation
+    bad = [t for t in trunc if not t.converged]
+    if bad:
+        for t in bad:
+            out.append(f"Basis truncation: {t.note}")
+    elif trunc:
+        params = sorted({t.size_param for t in trunc})
+        out.append(
+            f"Basis truncation: the exact levels used are converged in {', '.join(params)} at λ = {lam:g} "
+            "(checked by enlarging the basis)."
+        )
+    else:
+        out.append("Basis truncation: " + TRUNCATION_NOTE)
+    # convergence / asymptotic series
+    for n, c in zip(needed, conv):
+        if c is None:
+            continue
+        lab = model.label(n)
+        if c.kind == "asymptotic":
+            oo = f"; at λ = {lam:g} the smallest term is at order {c.optimal_order}" if c.optimal_order is not None else ""
+            out.append(
+                f"Level {lab}: its series is divergent (asymptotic, coefficients grow factorially){oo}. "
+                "Adding orders beyond that makes it worse."
+            )
+        elif c.kind == "convergent" and math.isfinite(c.radius) and abs(lam) >= c.radius:
+            out.append(
+                f"Level {lab}: λ = {lam:g} is beyond the radius of convergence ≈ {c.radius:.3g} of its series "
+                "(nearest exceptional point): low orders may still be accurate, but the series diverges — more "
+                "orders will not help; a Padé approximant or the block treatment might."
+            )
+    # near-degenerate levels
+    if pairs:
+        worst = pairs[0]
+        ratio = "∞ (exactly degenerate)" if not math.isfinite(worst.ratio) else f"{worst.ratio:.3g}"
+        out.append(
+            f"Near-degenerate levels: {len(pairs)} pair(s) with mixing ratio |λV|/|ΔE| above the threshold at "
+            f"λ = {lam:g}; the largest is {worst.labels[0]}–{worst.labels[1]} (ratio {ratio}). Non-degenerate "
+            "formulas are unreliable for these levels."
+        )
+    # treatment used
+    blocks = [t for t, tr in zip(comp.targets, comp.treatments) if tr in ("block", "mixed")]
+    if blocks:
+        out.append(
+            f"Block treatment used for {', '.join(blocks)}: the perturbative values come from an effective "
+            "Hamiltonian of a near-degenerate cluster (Schrieffer–Wolff), not from the plain Rayleigh–Schrödinger "
+            "formula; a textbook non-degenerate formula for these would be less accurate."
+        )
+    for b in boundaries:
+        if b.status == "ill_defined":
+            out.append(f"{b.target}, {order_name(b.order)}: validity boundary ill defined — " + (b.notes[-1] if b.notes else ""))
+    out.extend(n for n in trunc_notes)
+    return out
+
+
+# ---------------------------------------------------------------------- plain words
+def _fmt_err(e: float, relative: bool) -> str:
+    if not np.isfinite(e):
+        return "undefined"
+    return f"{100 * e:.3g} %" if relative else f"{e:.3g}"
+
+
+def _fmt_lam(x: float) -> str:
+    if math.isnan(x):
+        return "—"
+    if math.isinf(x):
+        return "not reached"
+    return f"{x:.4g}"
+
+
+def _verdict_sentence(name, spec, lam, e, thr, relative, ok, b: ValidityBoundary) -> str:
+    tol = _fmt_err(thr, relative)
+    what = f"{name}, {order_name(spec)}: error {_fmt_err(e, relative)}"
+    if ok:
+        s = f"{what} ≤ {tol} at λ = {lam:g} — valid."
+    elif np.isfinite(e):
+        s = f"{what} > {tol} at λ = {lam:g} — NOT valid."
+    else:
+        s = f"{what} at λ = {lam:g} — cannot be judged with a relative tolerance."
+    if b.status == "found":
+        s += f" It meets the tolerance up to |λ| ≈ {abs(b.coupling):.4g}."
+    elif b.status == "not_reached":
+        s += f" It meets the tolerance over the whole range searched (|λ| ≤ {b.max_coupling:.4g})."
+    elif b.status == "fails_at_zero":
+        s += " It does not meet the tolerance at any nonzero coupling."
+    return s
+
+
+def _verdict_paragraph(r: CheckReport) -> str:
+    lam = r.settings["coupling"]
+    tol = _fmt_err(r.verdicts[0].tolerance, r.verdicts[0].relative) if r.verdicts else ""
+    kind = "relative" if r.settings["rtol"] is not None else "absolute"
+    orders = ", ".join(r.settings["orders"])
+    if r.valid:
+        head = (
+            f"at λ = {lam:g}, {orders} meet{'s' if len(r.settings['orders']) == 1 else ''} the {kind} "
+            f"tolerance {tol} for every target checked ({', '.join(r.settings['targets'])})."
+        )
+    else:
+        bad = [v for v in r.verdicts if not v.valid]
+        which = "; ".join(f"{v.target} at {order_name(v.order)}" for v in bad)
+        head = f"at λ = {lam:g}, the {kind} tolerance {tol} is not met for {which}."
+    low = []
+    for t, k in r.lowest_valid_order.items():
+        if k is None:
+            low.append(f"{t}: no truncation order up to {max(o for o in r.comparison.orders if not isinstance(o, Pade))} meets it")
+        else:
+            low.append(f"{t}: order {k} is the lowest that meets it")
+    return head + (" Lowest sufficient order at this coupling — " + "; ".join(low) + "." if low else "")
+
+
+# ---------------------------------------------------------------------- serialisers
+def _finite_or_str(x: Any) -> Any:
+    if isinstance(x, float) and not math.isfinite(x):
+        return str(x)
+    return x
+
+
+def _json_safe(x: Any) -> Any:
+    """Plain JSON types; non-finite floats become 'inf', '-inf' or 'nan'."""
+    if isinstance(x, dict):
+        return {str(k): _json_safe(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [_json_safe(v) for v in x]
+    if isinstance(x, np.ndarray):
+        return _json_safe(x.tolist())
+    if isinstance(x, (bool, np.bool_)):
+        return bool(x)
+    if isinstance(x, (int, np.integer)):
+        return int(x)
+    if isinstance(x, (float, np.floating)):
+        f = float(x)
+        return f if math.isfinite(f) else str(f)
+    if isinstance(x, complex):
+        return [_json_safe(x.real), _json_safe(x.imag)]
+    if x is None or isinstance(x, str):
+        return x
+    if isinstance(x, Pade):
+        return str(x)
+    return str(x)
+
+
+def _key_json(k: Any) -> Any:
+    if isinstance(k, Quantity):
+        return {"quantity": k.name, "levels": [_json_safe(list(l) if isinstance(l, tuple) else l) for l in k.weights],
+                "weights": list(k.weights.values()), "relative_to": k.relative_to, "units": k.units}
+    return _json_safe(list(k) if isinstance(k, tuple) else k)
+
+
+def _versions() -> dict:
+    import numpy
+    import scipy
+
+    return {"python": platform.python_version(), "numpy": numpy.__version__, "scipy": scipy.__version__}
+
+
+def to_json(report: CheckReport, *, figures: Sequence[Figure] = (), files: Sequence[str] = ()) -> str:
+    """The JSON report (strict JSON: no NaN/Infinity literals)."""
+    d = report.to_dict()
+    d["figures"] = [{"file": f.filename, "caption": f.caption} for f in figures]
+    d["files"] = list(files)
+    return json.dumps(d, indent=1, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+def _csv(rows: Sequence[Mapping[str, Any]], columns: Sequence[str]) -> str:
+    buf = io.StringIO()
+    w = csv.DictWriter(buf, fieldnames=list(columns), lineterminator="\n", extrasaction="ignore")
+    w.writeheader()
+    for r in rows:
+        w.writerow({k: _csv_value(r.get(k)) for k in columns})
+    return buf.getvalue()
+
+
+def _csv_value(x: Any) -> Any:
+    if isinstance(x, float):
+        return repr(x) if math.isfinite(x) else str(x)
+    if x is None:
+        return ""
+    if isinstance(x, (list, tuple)):
+        return " | ".join(str(_csv_value(v)) for v in x)
+    return x
+
+
+def comparison_csv(report: CheckReport) -> str:
+    """One row per target × order × coupling (exact, perturbative, errors, infidelity)."""
+    cols = ["target", "order", "treatment", "coupling", "exact", "perturbative", "abs_error", "rel_error", "infidelity"]
+    return _csv(report.comparison.to_rows(), cols)
+
+
+def boundaries_csv(report: CheckReport) -> str:
+    """One row per target × order asked for: error at λ, verdict and validity boundary."""
+    rows = []
+    for v, b in zip(report.verdicts, report.boundaries):
+        rows.append({
+            "target": v.target, "order": order_name(v.order), "treatment": b.treatment,
+            "coupling": v.coupling, "error_at_coupling": v.error, "tolerance": v.tolerance,
+            "tolerance_kind": "relative" if v.relative else "absolute", "valid": v.valid,
+            "boundary": b.coupling, "boundary_status": b.status, "exact_solves": b.exact_solves,
+        })
+    cols = ["target", "order", "treatment", "coupling", "error_at_coupling", "tolerance", "tolerance_kind", "valid",
+            "boundary", "boundary_status", "exact_solves"]
+    return _csv(rows, cols)
+
+
+def _order_sort_key(o: Any) -> tuple:
+    return (1, o.order, o.num) if isinstance(o, Pade) else (0, int(o), 0)
+
+
+def _md_table(header: Sequence[str], rows: Sequence[Sequence[Any]]) -> str:
+    def cell(x: Any) -> str:
+        return str(x).replace("|", "\\|").replace("\n", " ")
+
+    lines = ["| " + " | ".join(cell(h) for h in header) + " |", "|" + "---|" * len(header)]
+    lines += ["| " + " | ".join(cell(c) for c in r) + " |" for r in rows]
+    return "\n".join(lines)
+
+
+def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: Sequence[str] = ()) -> str:
+    """The Markdown summary: verdict in plain words, cautions, tables, embedded figures."""
+    r = report
+    s = r.settings
+    out = [f"# {r.title}", ""]
+    if r.invented:
+        out += ["> **Invented scenario.** The model and its numbers are made up for this demonstration; "
+                "they describe no real device.", ""]
+    if r.description:
+        out += [r.description, ""]
+    out += ["## Verdict", "", f"**{'VALID' if r.valid else 'NOT VALID'}:** {_verdict_paragraph(r)}", ""]
+    out += [f"- {v.text}" for v in r.verdicts]
+    out += ["", "## Cautions", ""]
+    out += [f"- {c}" for c in r.cautions] or ["- none"]
+    m = r.model
+    src = f"built-in `{m['builder']}`" if m.get("builder") else (
+        ", ".join(f"{k} = `{v}`" for k, v in (m.get("source") or {}).items()) or "matrices given in Python")
+    out += ["", "## Model", "", _md_table(["", ""], [
+        ["name", m["name"]], ["basis size N", m["n"]], ["dims", m["dims"] or "—"], ["source", src],
+        ["builder parameters", ", ".join(f"{k} = {v}" for k, v in (m.get("params") or {}).items()) or "—"],
+        ["‖V‖ (energy units)", f"{m['norm_v']:.6g}"],
+    ])]
+    tol = f"relative {s['rtol']:g}" if s["rtol"] is not None else f"absolute {s['tol']:g} (energy units)"
+    out += ["", "## Settings", "", _md_table(["", ""], [
+        ["targets", ", ".join(s["targets"])], ["orders judged", ", ".join(s["orders"])],
+        ["coupling λ", f"{s['coupling']:g}"], ["tolerance", tol], ["treatment", s["treatment"]],
+        ["exact backend", f"{s['backend']} (used: {r.comparison.backend})"],
+        ["near-degeneracy threshold", f"{s['threshold']:g}"], ["ptcheck", s["ptcheck_version"]],
+    ])]
+    out += ["", "## Validity boundaries", "",
+            "λ* is the smallest |λ| at which the order stops meeting the tolerance (searched towards the sign of λ).", "",
+            _md_table(["target", "order", "treatment", f"error at λ = {s['coupling']:g}", "valid", "λ*", "status", "exact solves"], [
+                [v.target, order_name(v.order), b.treatment, _fmt_err(v.error, v.relative), "yes" if v.valid else "no",
+                 _fmt_lam(abs(b.coupling)) if math.isfinite(b.coupling) else _fmt_lam(b.coupling), b.status, b.exact_solves]
+                for v, b in zip(r.verdicts, r.boundaries)])]
+    comp = r.comparison
+    ci = int(np.argmin(np.abs(comp.couplings - s["coupling"])))
+    errs = comp.rel_error if s["rtol"] is not None else comp.abs_error
+    rel = s["rtol"] is not None
+    cols = sorted(range(len(comp.orders)), key=lambda i: _order_sort_key(comp.orders[i]))
+    out += ["", f"## Error at λ = {s['coupling']:g}, order by order", "",
+            "Orders next to the ones judged are shown for context.", "",
+            _md_table(["target", "exact value"] + [comp.order_names[i] for i in cols], [
+                [t, f"{comp.exact[ti, ci]:.10g}"] + [_fmt_err(float(errs[ti, oi, ci]), rel) for oi in cols]
+                for ti, t in enumerate(comp.targets)])]
+    convs = [c for c in r.convergence if c is not None]
+    if convs:
+        out += ["", "## Convergence of the series", "",
+                _md_table(["level", "kind", "radius", "Kato bound", f"optimal order at λ = {s['coupling']:g}"], [
+                    [c.label, c.kind, _fmt_lam(c.radius), f"{c.kato_bound:.4g}", "—" if c.optimal_order is None else c.optimal_order]
+                    for c in convs]), ""]
+        out += [f"- **{c.label}**: {c.summary}" for c in convs]
+    out += ["", "## Near-degenerate pairs", ""]
+    if r.pairs:
+        out += [_md_table(["levels", "mixing ratio |λV|/|ΔE|", "|ΔE|", "|V|"], [
+            [f"{p.labels[0]} – {p.labels[1]}", "∞" if not math.isfinite(p.ratio) else f"{p.ratio:.3g}", f"{p.gap:.4g}",
+             f"{p.coupling_element:.4g}"] for p in r.pairs[:20]])]
+        if len(r.pairs) > 20:
+            out += ["", f"({len(r.pairs) - 20} more in report.json)"]
+    else:
+        out += [f"None above the threshold {s['threshold']:g} at λ = {s['coupling']:g}."]
+    if r.truncation:
+        out += ["", "## Basis truncation", "", _md_table(["level", "parameter", "sizes", "last change", "converged"], [
+            [t.level, t.size_param, " → ".join(map(str, t.sizes)), f"{t.changes[-1]:.3g}", "yes" if t.converged else "NO"]
+            for t in r.truncation])]
+    for k, v in r.extras.items():
+        if hasattr(v, "to_markdown"):
+            out += ["", v.to_markdown()]
+    if figures:
+        out += ["", "## Figures", ""]
+        for f in figures:
+            out += [f"![{f.caption}]({f.filename})", "", f"*{f.caption}*", ""]
+    if files:
+        out += ["", "## Files", ""] + [f"- `{f}`" for f in files]
+    if r.notes:
+        out += ["", "## Notes", ""] + [f"- {n}" for n in r.notes]
+    out += ["", f"---", f"Written by ptcheck {s['ptcheck_version']}."]
+    return "\n".join(out) + "\n"
+
+
+# ---------------------------------------------------------------------- figures
+def _render(fig: Any, *, dpi: int = 110) -> bytes:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None})
+    return buf.getvalue()
+
+
+def _new_figure(figsize: tuple[float, float] = (10.0, 5.625)):
+    from matplotlib.figure import Figure as MplFigure  # no pyplot: no global state
+
+    fig = MplFigure(figsize=figsize, layout="constrained")
+    return fig, fig.add_subplot()
+
+
+def default_figures(report: CheckReport) -> list[Figure]:
+    """Figures of a report, made by :mod:`ptcheck.plots` (slide format, 16:9).
+
+    Per target: values against λ and errors against λ (with the tolerance and
+    the validity boundaries); the convergence discs / exceptional points of
+    the levels used; the validity map if the report carries one.  When
+    :mod:`ptcheck.plots` cannot be imported, one simple error figure is drawn
+    here instead.
+    """
+    plots = _plots_module()
+    if plots is None:
+        return [_fallback_error_figure(report)]
+    comp = report.comparison
+    s = report.settings
+    lam = s["coupling"]
+    rel = s["rtol"] is not None
+    judged = [comp.orders[i] for i in _judged_indices(report)]
+    figs: list[Figure] = []
+    for ti, t in enumerate(comp.targets):
+        slug = _slug(t, ti)
+        fig, ax = _new_figure()
+        plots.plot_levels(comp, targets=[t], orders=judged, coupling=lam, ax=ax)
+        figs.append(Figure(f"values-{slug}.png", f"{t}: exact and perturbative values against λ (vertical line: λ = {lam:g}).",
+                           _save_png(plots, fig)))
+        fig, ax = _new_figure()
+        bnds = [b for b in report.boundaries if b.target == t]
+        plots.plot_errors(comp, bnds, target=t, orders=judged, error="relative" if rel else "absolute",
+                          tol=s["rtol"] if rel else s["tol"], coupling=lam, ax=ax)
+        figs.append(Figure(f"errors-{slug}.png", f"{t}: error of each order against λ, the tolerance, and where each "
+                           "order stops meeting it (shaded beyond).", _save_png(plots, fig)))
+    convs = [c for c in report.convergence if c is not None]
+    if convs and hasattr(plots, "plot_divergence"):
+        fig, ax = _new_figure()
+        plots.plot_divergence(convs, coupling=lam, model_name=report.model["name"], ax=ax)
+        figs.append(Figure("convergence.png", "Complex coupling plane: exceptional points, convergence discs and Kato "
+                           "bounds of the levels used; your λ on the real axis.", _save_png(plots, fig)))
+    if report.source_model is not None and report.pairs and hasattr(plots, "plot_pairs"):
+        needed = sorted({n for q in report.comparison.levels for n in _levels_of(report.source_model, q)})
+        fig, ax = _new_figure()
+        plots.plot_pairs(plots.mixing_map(report.source_model, lam, levels=needed, threshold=s["threshold"]), ax=ax)
+        figs.append(Figure("pairs.png", f"Mixing ratios |λV|/|ΔE| at λ = {lam:g}; flagged pairs are near-degenerate.",
+                           _save_png(plots, fig)))
+    vm = report.extras.get("validity_map")
+    if vm is not None:
+        from .maps_plot import plot_validity_map
+
+        fig, ax = _new_figure()
+        plot_validity_map(vm, ax=ax)
+        figs.append(Figure("validity-map.png", vm.caption(), _save_png(plots, fig)))
+    return figs
+
+
+def _levels_of(model: Model, key: Any) -> list[int]:
+    return list(key.resolve(model)) if isinstance(key, Quantity) else [int(key)]
+
+
+def _slug(name: str, i: int) -> str:
+    keep = "".join(ch if ch.isascii() and ch.isalnum() else "-" for ch in name).strip("-")
+    while "--" in keep:
+        keep = keep.replace("--", "-")
+    return f"{i + 1}-{keep}" if keep else f"{i + 1}"
+
+
+def _save_png(plots: Any, fig: Any) -> bytes:
+    """PNG bytes of a figure exported by ``ptcheck.plots.save`` (slide size, legible fonts)."""
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as d:
+        path = Path(d) / "figure.png"
+        plots.save(fig, path)
+        return path.read_bytes()
+
+
+def _judged_indices(report: CheckReport) -> list[int]:
+    """Indices into ``report.comparison.orders`` of the orders judged (in the order asked)."""
+    specs = list(dict.fromkeys(v.order for v in report.verdicts))
+    return [report.comparison.orders.index(o) for o in specs]
+
+
+def _plots_module() -> Any:
+    try:
+        import ptcheck.plots as plots  # noqa: PLC0415
+    except ImportError:
+        return None
+    return plots
+
+
+def _fallback_error_figure(report: CheckReport) -> Figure:
+    """|error| of every order judged against λ, log scale, with the tolerance and λ*."""
+    comp = report.comparison
+    s = report.settings
+    rel = s["rtol"] is not None
+    thr = s["rtol"] if rel else s["tol"]
+    errs = comp.rel_error if rel else comp.abs_error
+    judged = _judged_indices(report)
+    fig, ax = _new_figure()
+    x = np.abs(comp.couplings)
+    srt = np.argsort(x)
+    for ti, t in enumerate(comp.targets):
+        for oi in judged:
+            y = np.asarray(errs[ti, oi], dtype=float)[srt]
+            y = np.where(y > 0, y, np.nan)
+            ax.plot(x[srt], y, marker=".", label=f"{t}, {comp.order_names[oi]}")
+    ax.axhline(thr, color="k", linestyle="--", linewidth=1.2, label=f"tolerance {thr:g}")
+    ax.axvline(abs(s["coupling"]), color="0.4", linewidth=1.2, label=f"your |λ| = {abs(s['coupling']):g}")
+    for b in report.boundaries:
+        if b.status == "found":
+            ax.axvline(abs(b.coupling), color="C3", linestyle=":", linewidth=1)
+    ax.set_yscale("log")
+    ax.set_xlabel("|coupling λ|")
+    ax.set_ylabel("relative error" if rel else "absolute error (energy units)")
+    ax.set_title(f"{comp.model_name}: error against the coupling (dotted: validity boundaries λ*)")
+    ax.grid(True, color="#DDDDDD")
+    ax.legend(fontsize=8)
+    return Figure("errors.png", "Error of each judged order against |λ|; dashed: tolerance; dotted: validity boundaries.", _render(fig))
+
+
+# ---------------------------------------------------------------------- writing
+def write_report(
+    report: CheckReport,
+    out_dir: str | Path,
+    *,
+    formats: Sequence[str] = FORMATS,
+    figures: FigureMaker | bool = True,
+    force: bool = False,
+) -> list[Path]:
+    """Write a report directory atomically.
+
+    Parameters
+    ----------
+    report : CheckReport
+    out_dir : str or Path
+        Created if missing.
+    formats : sequence of {"json", "md", "csv"}
+        Default: all three.
+    figures : bool or callable
+        ``True``: :func:`default_figures`; ``False``: no figures; a callable
+        ``report -> [Figure, ...]`` to make your own.  Figures are written
+        with the Markdown summary (which embeds them).
+    force : bool
+        Replace a *different* existing report.  Without it,
+        :class:`ReportExistsError` is raised and nothing is written.
+
+    Returns
+    -------
+    list of Path
+        Files of the report (written or already identical), the JSON last.
+    """
+    formats = tuple(dict.fromkeys(formats))
+    if not formats:
+        raise ValueError("formats is empty; give at least one of json, md, csv")
+    for f in formats:
+        val.check_choice(f, "format", FORMATS)
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise NotADirectoryError(f"output directory {str(out)!r} is a file")
+    figs: list[Figure] = []
+    if "md" in formats and figures:
+        maker = default_figures if figures is True else figures
+        if not callable(maker):
+            raise TypeError(f"figures must be True, False or a callable report -> figures; got {figures!r}")
+        figs = list(maker(report))
+    files: dict[Path, str | bytes] = {}
+    for f in figs:
+        files[out / f.filename] = f.png
+    if "csv" in formats:
+        files[out / "comparison.csv"] = comparison_csv(report)
+        files[out / "boundaries.csv"] = boundaries_csv(report)
+    names = [p.name for p in files] + (["report.md"] if "md" in formats else []) + (["report.json"] if "json" in formats else [])
+    if "md" in formats:
+        files[out / "report.md"] = to_markdown(report, figures=figs, files=names)
+    if "json" in formats:
+        files[out / "report.json"] = to_json(report, figures=figs, files=names)
+    out.mkdir(parents=True, exist_ok=True)
+    return write_all(files, force=force)
