@@ -40,7 +40,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
 
 #: Largest number of ``(N, p)`` entries held at once by a batched
 #: Brillouin–Wigner evaluation (memory guard).
@@ -53,7 +52,8 @@ class SWCoefficients:
     """Power-series pieces of the Schrieffer–Wolff construction (private)."""
 
     heff: np.ndarray  # (K+1, p, p) Hermitian parts of H_eff^(k)
-    u: np.ndarray  # (K+1, N, p) coefficients of U = Ω S^{-1/2}
+    omega: np.ndarray  # (N, K+1, p): omega[:, k, :] = Ω_k (Ω_0 = P, Ω_k = X_k)
+    s_inv_sqrt: np.ndarray  # (K+1, p, p) coefficients of S^{-1/2}
     residual: np.ndarray  # (K+1,) anti-Hermitian residual relative to the roundoff scale
     finite_order: int  # highest order whose coefficients are finite (== K when all fine)
 
@@ -80,26 +80,30 @@ def sw_coefficients(e0: np.ndarray, v, block: np.ndarray, order: int) -> SWCoeff
     d = np.zeros((n, p))
     d[in_q] = 1.0 / (ep[None, :] - e0[in_q][:, None])
 
-    omega = np.zeros((order + 1, n, p), dtype=dtype)
-    omega[0][block, np.arange(p)] = 1.0
+    # omega[:, k, :] = Ω_k (N, p); stored (N, K+1, p) so that sums over orders are one matmul
+    omega = np.zeros((n, order + 1, p), dtype=dtype)
+    omega[block, 0, np.arange(p)] = 1.0
     w = np.zeros((order + 1, p, p), dtype=dtype)  # W_m = P V Ω_m
     finite_order = order
     with np.errstate(over="ignore", invalid="ignore"):
         for k in range(1, order + 1):
-            vo = np.asarray(v @ omega[k - 1])
+            vo = np.asarray(v @ omega[:, k - 1, :])
             w[k - 1] = vo[block]
             rhs = vo
             if k >= 2:
-                rhs = rhs - np.einsum("jnp,jpq->nq", omega[1:k], w[k - 2 :: -1])
-            omega[k] = d * rhs
-            if not (np.all(np.isfinite(omega[k])) and np.all(np.isfinite(w[k - 1]))):
+                # Σ_{j=1}^{k-1} X_j W_{k-1-j}
+                for j in range(1, k):
+                    rhs = rhs - omega[:, j, :] @ w[k - 1 - j]
+            omega[:, k, :] = d * rhs
+            if not (np.all(np.isfinite(omega[:, k, :])) and np.all(np.isfinite(w[k - 1]))):
                 finite_order = k - 1
                 break
     kmax = finite_order
 
     # S = 1 + Σ_k λ^k S_k,  S_k = Σ_{i=1}^{k-1} X_i† X_{k-i}
-    x = omega[1 : kmax + 1]
-    gram = np.einsum("inp,jnq->ijpq", x.conj(), x) if kmax >= 1 else np.zeros((0, 0, p, p))
+    x = omega[:, 1 : kmax + 1, :].reshape(n, kmax * p)
+    # (einsum, not BLAS: a threaded BLAS is erratic for this tall-skinny product on a busy machine)
+    gram = np.einsum("ni,nj->ij", x.conj(), x).reshape(kmax, p, kmax, p).transpose(0, 2, 1, 3)
     eye = np.eye(p, dtype=dtype)
     s = np.zeros((kmax + 1, p, p), dtype=dtype)
     for k in range(2, kmax + 1):
@@ -139,11 +143,20 @@ def sw_coefficients(e0: np.ndarray, v, block: np.ndarray, order: int) -> SWCoeff
     residual = anti / (2.0 * np.maximum(scale, tiny))
     heff = 0.5 * (heff + np.conj(np.swapaxes(heff, 1, 2)))
 
-    u = np.zeros((kmax + 1, n, p), dtype=dtype)
-    for k in range(kmax + 1):
-        for a in range(k + 1):
-            u[k] += omega[a] @ ti[k - a]
-    return SWCoefficients(heff=heff, u=u, residual=residual, finite_order=finite_order)
+    return SWCoefficients(heff=heff, omega=omega[:, : kmax + 1, :], s_inv_sqrt=ti, residual=residual, finite_order=finite_order)
+
+
+def isometry_at(sw: SWCoefficients, order: int, couplings: np.ndarray) -> np.ndarray:
+    """``U^{(≤order)}(λ) = Σ_{k≤order} λ^k U_k``, ``U_k = Σ_a Ω_a S^{-1/2}_{k-a}``: (C, N, p)."""
+    ti = sw.s_inv_sqrt[: order + 1]
+    powers = couplings[:, None] ** np.arange(order + 1)[None, :]  # (C, K+1)
+    # Σ_k λ^k Σ_a Ω_a T_{k-a} = Σ_a Ω_a λ^a Σ_b λ^b T_b  with b <= order - a
+    n, _, p = sw.omega.shape
+    out = np.zeros((couplings.size, n, p), dtype=np.result_type(sw.omega.dtype, ti.dtype))
+    for a in range(order + 1):
+        tb = np.einsum("cb,bpq->cpq", powers[:, : order - a + 1].astype(ti.dtype), ti[: order - a + 1])
+        out += powers[:, a, None, None] * np.einsum("np,cpq->cnq", sw.omega[:, a, :], tb)
+    return out
 
 
 def evaluate_polynomial(coefficients: np.ndarray, couplings: np.ndarray) -> np.ndarray:
@@ -162,6 +175,24 @@ def _degenerate_clusters(w: np.ndarray, tol: float) -> list[np.ndarray]:
                 out.append(np.arange(start, i))
             start = i
     return out
+
+
+def _greedy_assignment(weights: np.ndarray) -> np.ndarray:
+    """``perm[i]`` = column given to row i, taking the largest remaining weight first.
+
+    For the unitary overlap matrices used here, whenever every assigned weight
+    exceeds 1/2 (all accepted steps have >= QUALITY) the assignment is unique,
+    so the greedy choice is the optimal one.
+    """
+    w = weights.astype(float).copy()
+    p = w.shape[0]
+    perm = np.empty(p, dtype=int)
+    for _ in range(p):
+        i, j = np.unravel_index(int(np.argmax(w)), w.shape)
+        perm[i] = j
+        w[i, :] = -1.0
+        w[:, j] = -1.0
+    return perm
 
 
 def match_eigenvectors(ref: np.ndarray, w: np.ndarray, vecs: np.ndarray, degeneracy_tol: float) -> tuple[np.ndarray, np.ndarray, float]:
@@ -188,9 +219,7 @@ def match_eigenvectors(ref: np.ndarray, w: np.ndarray, vecs: np.ndarray, degener
         uu, _, vh = np.linalg.svd(o[:, sel])
         vecs[:, c] = b @ (uu @ vh)
     ov = ref.conj().T @ vecs  # (p_ref, p_new)
-    rows, cols = linear_sum_assignment(-np.abs(ov) ** 2)
-    perm = np.empty(ref.shape[1], dtype=int)
-    perm[rows] = cols
+    perm = _greedy_assignment(np.abs(ov) ** 2)
     out = vecs[:, perm]
     phase = ov[np.arange(perm.size), perm]
     mag = np.abs(phase)

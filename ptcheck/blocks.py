@@ -566,9 +566,7 @@ class BlockSeries:
         self._warn(sol)
         p, c, n = self.size, lam.size, self.model.n
         if self.method == "schrieffer-wolff" or k < 2:
-            u = self._sw.u[: k + 1]
-            powers = lam[:, None] ** np.arange(k + 1)[None, :]
-            ul = np.einsum("cj,jnp->cnp", powers.astype(u.dtype), u)  # (C, N, p)
+            ul = num.isometry_at(self._sw, k, lam)  # (C, N, p)
             psi = np.einsum("cnp,cpi->icn", ul, sol.vectors)
         else:
             phis = np.transpose(sol.vectors, (2, 0, 1)).reshape(p * c, p)
