@@ -716,7 +716,7 @@ def _closed_form(model: Model, quantity: Quantity) -> tuple[str, float, int | No
         text, value = quantity.closed_form
         return text, value, quantity.closed_form_order, "given by the user"
     for cf in CLOSED_FORMS:
-        if cf.model != model.name or cf.kind != quantity.kind:
+        if cf.model != model.name or quantity.kind not in (cf.kind, "combination"):
             continue
         try:
             if not _same_combination(model, quantity.resolve(model), cf.weights):
@@ -745,7 +745,8 @@ def leading_order_formula(model: Model, quantity: Quantity) -> tuple[str, float]
 
     The quantity's own ``closed_form`` if it has one; otherwise the entry of
     :data:`CLOSED_FORMS` registered for ``(model.name, quantity.kind)``
-    whose levels and weights match the quantity exactly, evaluated with the
+    whose levels and weights match the quantity exactly (a hand-made
+    ``Quantity`` of kind ``"combination"`` matches on its weights), evaluated with the
     model's parameters (``model.params`` if present, else read from the
     unperturbed energies and the matrix elements of ``V``); else ``None``.
 
