@@ -28,6 +28,8 @@ class MapArtists:
         |λ*| against the parameter (points where it is finite).
     not_reached : Line2D
         Markers at the top of the axes where λ* was not reached.
+    mark : Line2D or None
+        The point passed as ``mark``.
     """
 
     figure: Any
@@ -36,9 +38,12 @@ class MapArtists:
     colorbar: Any
     boundary: Any
     not_reached: Any
+    mark: Any = None
 
 
-def plot_validity_map(result: Any, *, ax: Any = None, colorbar: bool = True) -> MapArtists:
+def plot_validity_map(
+    result: Any, *, ax: Any = None, colorbar: bool = True, mark: tuple[float, float] | None = None, mark_label: str = "your design"
+) -> MapArtists:
     """Draw where one order is valid over (parameter, |λ|).
 
     With an error grid: colour = log10(error / tolerance) (blue: within
@@ -51,6 +56,10 @@ def plot_validity_map(result: Any, *, ax: Any = None, colorbar: bool = True) -> 
     ax : matplotlib Axes, optional
         Draw here; a new figure is made only when None.
     colorbar : bool, default True
+    mark : (float, float), optional
+        A point (parameter value, |λ|) to mark, e.g. the design point.
+    mark_label : str
+        Its legend entry.
 
     Returns
     -------
@@ -87,6 +96,10 @@ def plot_validity_map(result: Any, *, ax: Any = None, colorbar: bool = True) -> 
     inf = np.isinf(b)
     (nr,) = ax.plot(x[inf], np.full(int(inf.sum()), top), linestyle="none", marker="^", color="k",
                     label="λ* beyond the range searched" if inf.any() else None)
+    mk = None
+    if mark is not None:
+        (mk,) = ax.plot([float(mark[0])], [abs(float(mark[1]))], linestyle="none", marker="*", markersize=16,
+                        color="#E69F00", markeredgecolor="k", label=mark_label, zorder=5)
     ax.set_xlabel(result.param_name)
     ax.set_ylabel("|coupling λ|")
     kind = f"rtol {result.rtol:g}" if result.rtol is not None else f"tol {result.tol:g}"
@@ -94,4 +107,4 @@ def plot_validity_map(result: Any, *, ax: Any = None, colorbar: bool = True) -> 
 
     ax.set_title(f"{result.target}, {order_name(result.order)} ({kind}) — model {result.builder}")
     ax.legend(loc="best", fontsize=9)
-    return MapArtists(figure=fig, ax=ax, mesh=mesh, colorbar=cbar, boundary=line, not_reached=nr)
+    return MapArtists(figure=fig, ax=ax, mesh=mesh, colorbar=cbar, boundary=line, not_reached=nr, mark=mk)

@@ -45,6 +45,11 @@ derived quantities, any number of them (linear combinations of levels)::
     relative_to = "value"          # or "shift": denominator of the relative error
     units = "GHz"
 
+    [[quantity]]                   # or a ready-made one from ptcheck.quantities:
+    kind = "transition_frequency"  # transition_frequency, stark_shift, dispersive_shift,
+    upper = [1, 0]                 # zz_coupling, cross_kerr, anharmonicity, exchange;
+    lower = [0, 0]                 # the other keys are that constructor's arguments
+
 Level syntax (in files and on the command line): ``3`` is the energy rank 3
 (0 = lowest unperturbed level), ``(1,0)`` or ``|1,0⟩`` the label ``(1, 0)`` of
 a product basis, anything else a string label such as ``g``.
@@ -69,7 +74,7 @@ from .model import Model
 from .models import BUILDERS
 from .quantities import Quantity
 
-__all__ = ["ModelFile", "load_model_file", "parse_level", "parse_quantity", "SIZE_PARAMS", "MODEL_KINDS"]
+__all__ = ["ModelFile", "load_model_file", "build_model", "parse_level", "parse_quantity", "SIZE_PARAMS", "MODEL_KINDS", "QUANTITY_KINDS"]
 
 #: Where a model came from.
 MODEL_KINDS = ("builtin", "npy", "npz", "sparse-npz")
@@ -79,7 +84,12 @@ SIZE_PARAMS = ("n_photons", "n_qubit", "n_basis", "n_max", "m_max", "n_levels")
 
 _MODEL_KEYS = {"builtin", "name", "params", "h0", "v", "matrices", "labels", "dims"}
 _CHECK_KEYS = {"levels", "orders", "coupling", "tol", "rtol", "treatment", "backend"}
-_QUANTITY_KEYS = {"name", "expr", "levels", "weights", "relative_to", "units"}
+_QUANTITY_KEYS = {"name", "expr", "levels", "weights", "relative_to", "units", "kind"}
+
+#: ``kind = ...`` in a ``[[quantity]]`` table -> constructor in ptcheck.quantities.
+QUANTITY_KINDS = ("transition_frequency", "stark_shift", "dispersive_shift", "zz_coupling", "cross_kerr",
+                  "anharmonicity", "exchange")
+_LEVEL_ARGS = ("upper", "lower", "triplet", "singlet")
 _TOP_KEYS = {"model", "check", "quantity", "title"}
 
 
@@ -444,6 +454,8 @@ def _quantity(q: Any, i: int) -> Quantity:
     where = f"[[quantity]] #{i + 1}"
     if not isinstance(q, dict):
         raise ValueError(f"{where} must be a table; got {q!r}")
+    if "kind" in q:
+        return _quantity_of_kind(q, where)
     unknown = sorted(set(q) - _QUANTITY_KEYS)
     if unknown:
         raise ValueError(f"{where} has unknown key(s) {', '.join(map(repr, unknown))}; allowed: {', '.join(sorted(_QUANTITY_KEYS))}")
@@ -467,6 +479,27 @@ def _quantity(q: Any, i: int) -> Quantity:
         key = parse_level(k)
         weights[key] = weights.get(key, 0.0) + float(_number(w, f"quantity {name!r} weight"))
     return Quantity(name, weights, units=units, relative_to=rel)
+
+
+def _quantity_of_kind(q: dict, where: str) -> Quantity:
+    """``kind = "dispersive_shift"`` etc.: call the constructor of ptcheck.quantities with the other keys."""
+    from . import quantities
+
+    kind = q["kind"]
+    if kind not in QUANTITY_KINDS:
+        raise ValueError(f"{where}: unknown kind {kind!r}; known: {', '.join(QUANTITY_KINDS)} (or use expr = '...')")
+    fn = getattr(quantities, kind)
+    names = [n for n in inspect.signature(fn).parameters if n not in ("closed_form", "closed_form_order")]
+    args = {k: v for k, v in q.items() if k != "kind"}
+    unknown = sorted(set(args) - set(names))
+    if unknown:
+        raise ValueError(f"{where}: {kind} has no argument(s) {', '.join(map(repr, unknown))}; its arguments are {', '.join(names)}")
+    for k in _LEVEL_ARGS:
+        if k in args:
+            args[k] = parse_level(args[k])
+    if isinstance(args.get("axes"), list):
+        args["axes"] = tuple(args["axes"])
+    return fn(**args)
 
 
 def _load_matrix(path: Path, name: str, source: Path) -> tuple[Any, str]:

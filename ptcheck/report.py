@@ -42,6 +42,7 @@ from .approximants import Pade, order_name, parse_orders
 from .compare import TRUNCATION_NOTE, ComparisonResult, ValidityBoundary, compare, validity_boundary
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, NearDegeneratePair, near_degenerate_pairs
 from .model import Model
+from .modelfile import SIZE_PARAMS
 from .quantities import Quantity
 
 __all__ = [
@@ -68,8 +69,6 @@ DEFAULT_RTOL = 0.01
 #: Default orders judged when none are given.
 DEFAULT_ORDERS = (2,)
 
-#: Truncation parameters of the built-in builders (see ptcheck.models).
-SIZE_PARAMS = ("n_photons", "n_qubit", "n_basis", "n_max", "m_max", "n_levels")
 
 
 def _version() -> str:
@@ -240,7 +239,7 @@ class CheckReport:
             "notes": list(self.notes),
         }
         for k, v in self.extras.items():
-            d[k] = v.to_dict() if hasattr(v, "to_dict") else v
+            d[k] = v.to_dict() if hasattr(v, "to_dict") else _json_safe(v)
         return _json_safe(d)
 
     def _repr_html_(self) -> str:
@@ -551,12 +550,21 @@ def _truncation_checks(model: Model, builder: str, params: dict, needed: list[in
 def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam, builder, source):
     out = []
     # accidental agreement: within tolerance at λ although the error crossed it on the way
-    for v in verdicts:
-        if v.valid and v.boundary_status == "found" and abs(v.boundary) < abs(v.coupling):
+    treat = dict(zip(comp.targets, comp.treatments))
+    for v, b in zip(verdicts, boundaries):
+        same = b.treatment == treat.get(v.target)
+        inside = v.boundary_status == "found" and abs(v.boundary) < abs(v.coupling)
+        if v.valid and inside and same:
             out.append(
                 f"{v.target}, {order_name(v.order)}: the error is within tolerance at λ = {v.coupling:g} only by "
                 f"accident — it already exceeds the tolerance at |λ| = {abs(v.boundary):.4g} and comes back; "
                 "do not rely on it."
+            )
+        elif not same and (v.valid == inside or (not v.valid and v.boundary_status == "not_reached")):
+            out.append(
+                f"{v.target}, {order_name(v.order)}: the error at λ = {v.coupling:g} uses the {treat.get(v.target)} "
+                f"treatment chosen there, while the validity boundary λ* = {abs(v.boundary):.4g} was found with the "
+                f"{b.treatment} treatment; the two describe different perturbative formulas."
             )
         if not np.isfinite(v.error):
             out.append(
@@ -920,7 +928,7 @@ def default_figures(report: CheckReport) -> list[Figure]:
         from .maps_plot import plot_validity_map
 
         fig, ax = _new_figure()
-        plot_validity_map(vm, ax=ax)
+        plot_validity_map(vm, ax=ax, mark=report.extras.get("validity_map_mark"))
         figs.append(Figure("validity-map.png", vm.caption(), _save_png(plots, fig)))
     return figs
 
