@@ -851,7 +851,8 @@ def block_series(
     basis = np.zeros((model.n, idx.size))
     basis[idx, np.arange(idx.size)] = 1.0
     vcol = float(np.max(np.linalg.norm(np.asarray(model.v @ basis), axis=0)))
-    escale = float(max(np.max(np.abs(ep)), np.ptp(e0), vcol, np.finfo(float).tiny))
+    # energy scale of the block (tolerances of the branch matching and of Brillouin–Wigner)
+    escale = float(max(np.max(np.abs(ep)), np.ptp(ep), vcol, gap if np.isfinite(gap) else 0.0, np.finfo(float).tiny))
     if vcol > 0 and gaps:
         lam_scale = min(gaps) / (2.0 * vcol)
     else:
