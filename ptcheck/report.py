@@ -950,7 +950,7 @@ def _save_png(plots: Any, fig: Any) -> bytes:
 
     with tempfile.TemporaryDirectory() as d:
         path = Path(d) / "figure.png"
-        plots.save(fig, path)
+        plots.save(fig, path, dpi=100)
         return path.read_bytes()
 
 

@@ -1,0 +1,174 @@
+"""The full check and its report files: verdicts against closed forms, JSON/CSV/Markdown, atomic writing."""
+
+import csv
+import io
+import json
+import math
+import os
+
+import numpy as np
+import pytest
+from scipy.optimize import brentq
+
+from ptcheck import report as rp
+from ptcheck._atomic import ReportExistsError
+from ptcheck.models import two_level
+from ptcheck.report import FORMATS, Figure, run_check, to_json, write_report
+
+DELTA, V = 1.0, 0.2
+
+
+# Two-level system H = diag(-Δ/2, Δ/2) + λ v σx: exact ground level E = -√((Δ/2)² + λ²v²)
+# (any QM text).  Its Taylor series in λ (binomial series of the square root):
+# E = -Δ/2 - λ²v²/Δ + λ⁴v⁴/Δ³ - 2 λ⁶v⁶/Δ⁵ + ...
+def exact_ground(lam):
+    return -math.sqrt((DELTA / 2) ** 2 + (lam * V) ** 2)
+
+
+def rs_ground(lam, order):
+    terms = [-DELTA / 2, 0.0, -(lam * V) ** 2 / DELTA, 0.0, (lam * V) ** 4 / DELTA**3, 0.0, -2 * (lam * V) ** 6 / DELTA**5]
+    return sum(terms[: order + 1])
+
+
+def closed_form_boundary(order, tol):
+    return brentq(lambda x: abs(rs_ground(x, order) - exact_ground(x)) - tol, 1e-3, 0.99 * DELTA / (2 * V))
+
+
+@pytest.fixture(scope="module")
+def report():
+    m = two_level(delta=DELTA, v=V)
+    return run_check(m, [0], [2, 4], coupling=0.45, tol=1e-5, treatment="nondegenerate", title="two-level check")
+
+
+def test_verdicts_match_closed_form(report):
+    v2, v4 = report.verdicts
+    # errors at λ = 0.45 against the closed form (source: any QM text, see exact_ground)
+    assert v2.error == pytest.approx(abs(rs_ground(0.45, 2) - exact_ground(0.45)), rel=1e-9)
+    assert v4.error == pytest.approx(abs(rs_ground(0.45, 4) - exact_ground(0.45)), rel=1e-6)
+    assert (v2.valid, v4.valid) == (False, True)
+    assert report.valid is False and report.exit_status == 1
+    # validity boundaries: roots of the closed-form error (boundary precision xrtol = 1e-3)
+    assert report.boundaries[0].coupling == pytest.approx(closed_form_boundary(2, 1e-5), rel=2e-3)
+    assert report.boundaries[1].coupling == pytest.approx(closed_form_boundary(4, 1e-5), rel=2e-3)
+    # the series has only even powers, so order 3 = order 2 and order 4 is the lowest sufficient one
+    assert report.lowest_valid_order == {"g": 4}
+    assert report.verdict_text.startswith("NOT VALID")
+
+
+def test_json_is_strict_and_complete(report):
+    text = to_json(report)
+
+    def refuse(name):
+        raise AssertionError(f"non-standard JSON constant {name}")
+
+    d = json.loads(text, parse_constant=refuse)
+    assert d["ptcheck_version"] == report.settings["ptcheck_version"]
+    assert d["settings"]["tol"] == 1e-5 and d["settings"]["coupling"] == 0.45
+    assert d["settings"]["orders"] == ["order 2", "order 4"]
+    assert d["verdict"]["valid"] is False and d["verdict"]["exit_status"] == 1
+    per = d["verdict"]["per_target"]
+    assert [p["valid"] for p in per] == [False, True]
+    assert per[0]["error"] == report.verdicts[0].error
+    assert d["boundaries"][0]["coupling"] == report.boundaries[0].coupling
+    assert np.array(d["comparison"]["exact"]).shape == report.comparison.exact.shape
+    assert d["model"]["n"] == 2 and d["convergence"][0]["kind"] == "convergent"
+
+
+def test_csv_tables(report):
+    rows = list(csv.DictReader(io.StringIO(rp.comparison_csv(report))))
+    c = report.comparison
+    assert len(rows) == len(c.targets) * len(c.orders) * c.couplings.size
+    r = next(r for r in rows if r["order"] == "order 2" and float(r["coupling"]) == 0.45)
+    assert float(r["exact"]) == pytest.approx(exact_ground(0.45), rel=1e-12)
+    b = list(csv.DictReader(io.StringIO(rp.boundaries_csv(report))))
+    assert [x["valid"] for x in b] == ["False", "True"]
+    assert float(b[0]["boundary"]) == report.boundaries[0].coupling
+
+
+def test_markdown_states_verdict_and_cautions(report):
+    md = rp.to_markdown(report, figures=[Figure("errors.png", "cap", b"")])
+    assert "**NOT VALID:**" in md
+    assert "## Cautions" in md and "Basis truncation" in md  # matrices given: the truncation caution is stated
+    assert "![cap](errors.png)" in md
+    assert "g, order 2: error" in md
+
+
+def test_write_report_all_formats_with_figures(report, tmp_path):
+    files = write_report(report, tmp_path / "out")
+    names = {p.name for p in files}
+    assert {"report.json", "report.md", "comparison.csv", "boundaries.csv"} <= names
+    pngs = [p for p in files if p.suffix == ".png"]
+    assert pngs and all(p.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" for p in pngs)
+    md = (tmp_path / "out" / "report.md").read_text(encoding="utf-8")
+    for p in pngs:
+        assert f"]({p.name})" in md
+    assert files[-1].name == "report.json"  # written last
+    assert not list((tmp_path / "out").glob("*.tmp"))
+
+
+def test_formats_and_figure_step_are_pluggable(report, tmp_path, monkeypatch):
+    files = write_report(report, tmp_path / "j", formats=["json"])
+    assert [p.name for p in files] == ["report.json"]
+    files = write_report(report, tmp_path / "nofig", formats=["md"], figures=False)
+    assert [p.name for p in files] == ["report.md"]
+    files = write_report(report, tmp_path / "mine", formats=["md"], figures=lambda r: [Figure("x.png", "mine", b"png!")])
+    assert (tmp_path / "mine" / "x.png").read_bytes() == b"png!"
+    # without ptcheck.plots the report still gets a figure of its own
+    monkeypatch.setattr(rp, "_plots_module", lambda: None)
+    files = write_report(report, tmp_path / "fallback", formats=["md"])
+    assert (tmp_path / "fallback" / "errors.png").exists()
+    with pytest.raises(ValueError, match="format"):
+        write_report(report, tmp_path / "bad", formats=["pdf"])
+    assert set(FORMATS) == {"json", "md", "csv"}
+
+
+def test_overwrite_rules(report, tmp_path):
+    out = tmp_path / "r"
+    write_report(report, out, formats=["json", "csv"])
+    before = (out / "report.json").stat().st_mtime_ns
+    write_report(report, out, formats=["json", "csv"])  # same content: fine, untouched
+    assert (out / "report.json").stat().st_mtime_ns == before
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    with pytest.raises(ReportExistsError, match="force"):
+        write_report(other, out, formats=["json", "csv"])
+    assert json.loads((out / "report.json").read_text())["settings"]["coupling"] == 0.45  # nothing written
+    write_report(other, out, formats=["json", "csv"], force=True)
+    assert json.loads((out / "report.json").read_text())["settings"]["coupling"] == 0.25
+
+
+def test_interrupted_write_leaves_no_partial_file(report, tmp_path, monkeypatch):
+    out = tmp_path / "r"
+    real_replace = os.replace
+
+    def interrupted(src, dst):
+        if str(dst).endswith("report.json"):
+            raise KeyboardInterrupt  # interrupted just before the final rename
+        real_replace(src, dst)
+
+    monkeypatch.setattr("ptcheck._atomic.os.replace", interrupted)
+    with pytest.raises(KeyboardInterrupt):
+        write_report(report, out, formats=["json", "csv"])
+    assert not (out / "report.json").exists()
+    assert not [p for p in out.iterdir() if p.name.startswith(".")]  # temp files removed
+
+
+def test_serializer_failure_writes_nothing(report, tmp_path, monkeypatch):
+    def boom(*a, **k):
+        raise RuntimeError("serializer failed midway")
+
+    monkeypatch.setattr(rp, "to_json", boom)
+    with pytest.raises(RuntimeError):
+        write_report(report, tmp_path / "r", formats=["csv", "json"])
+    assert not (tmp_path / "r").exists() or not list((tmp_path / "r").iterdir())
+
+
+def test_bad_input():
+    m = two_level()
+    with pytest.raises(ValueError, match="not both"):
+        run_check(m, [0], [2], coupling=0.1, tol=1e-3, rtol=1e-2)
+    with pytest.raises(ValueError, match="unknown level"):
+        run_check(m, ["x"], [2], coupling=0.1)
+    with pytest.raises(ValueError, match="order"):
+        run_check(m, [0], ["two"], coupling=0.1)
+    with pytest.raises(TypeError, match="Model"):
+        run_check("two_level", [0], [2], coupling=0.1)
