@@ -53,6 +53,7 @@ from .approximants import OrderSpec
 from .degeneracy import DEFAULT_MIXING_THRESHOLD
 from .errors import AmbiguousLevelError, DegenerateLevelError
 from .model import Model
+from .series import rs_series
 from .treatment import TREATMENTS, expansions
 
 __all__ = [
@@ -1188,8 +1189,6 @@ def _nonzero_mask(model, levels, weights, level_c, c, rtol) -> np.ndarray:
 # ---------------------------------------------------------------------- block Taylor series
 def _block_level_taylor(model: Model, level: int, order: int, cache: dict) -> tuple[np.ndarray | None, str]:
     """Taylor coefficients of a block-treated level's energy, and a note."""
-    from .series import rs_series  # lazy: keeps this module's import light
-
     grp = model.degenerate_group_of(level)
     if grp is None:
         s = rs_series(model, level, order)

@@ -113,6 +113,17 @@ def test_validity_boundary_of_chi_with_absolute_and_relative_tolerance():
     assert b_neg.coupling == pytest.approx(-want_abs, rel=5e-3)  # χ(λ) is even in λ
 
 
+def test_block_treated_levels_keep_the_taylor_coefficients_of_the_closed_form():
+    # at a large coupling of interest "auto" puts |1,1⟩ and |0,2⟩ (mixing ratio > 0.1) in a block; the Taylor
+    # series of χ is unique, so the coefficients are still those of the Jaynes–Cummings closed form
+    s = quantity_series(jc(), dispersive_shift(), 6, coupling=2.0)
+    assert "block" in s.treatments and "nondegenerate" in s.treatments
+    assert_allclose(s.coefficients, jc_chi_taylor(6), atol=1e-15)
+    assert any("block-treated" in n for n in s.notes)
+    # the block value (eigenvalue of the truncated H_eff) is a resummation: close to the closed form
+    assert abs(s.energy(2.0, order=2) - jc_chi_exact(2.0)) < abs(G**2 * 4 / DELTA - jc_chi_exact(2.0))
+
+
 def test_labels_reach_figure_captions():
     import matplotlib.pyplot as plt
 
