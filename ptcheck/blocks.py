@@ -782,7 +782,9 @@ def block_series(
         The block's levels: energy ranks (ints) or labels, e.g. ``[2, 3]`` or
         ``[(0, 1), (1, 0)]``.  Must hold whole exactly degenerate groups.  A
         block of one level is allowed (Schrieffer–Wolff then reproduces the
-        Rayleigh–Schrödinger series).
+        Rayleigh–Schrödinger series).  A *tuple* is read as one label when the
+        model has that label, otherwise as a sequence of levels; a list is
+        never ambiguous.
     order : int
         Highest order (>= 0).
     method : {"schrieffer-wolff", "brillouin-wigner"}
