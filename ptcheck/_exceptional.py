@@ -17,9 +17,9 @@ Method
    two adjacent levels, the hyperbola ``gap² = g² + a (λ - λc)²`` fitted to
    three grid points has its zeros at ``λc ± i g / √a``;
    (c) poles of Padé approximants of the series (passed in by the caller).
-2. *Approach.*  Secant iteration on ``f(λ) = (E_a(λ) - E_b(λ))²`` for the
-   closest pair of eigenvalues near the current target energy; ``f`` is
-   analytic with a simple zero at an EP.
+2. *Approach.*  Secant iteration on ``f(λ) = (E_a(λ) - E_b(λ))²``, with E_a
+   the eigenvalue followed from the seed's energy (nearest the previous E_a)
+   and E_b its nearest neighbour; ``f`` is analytic with a simple zero at an EP.
 3. *Polish.*  Newton on the bordered Jordan-chain ("defective eigenvalue")
    system in the unknowns ``(x, y, E, λ)``::
 
@@ -169,9 +169,10 @@ class ExceptionalPointSearch:
         return a, int(np.argmin(dist))
 
     def _gapsq(self, lam: complex, target: complex) -> tuple[complex, complex]:
+        """(E_a - E_b)^2 for the eigenvalue a nearest ``target`` and its neighbour b; and E_a."""
         w = self.eigvals(lam)
         a, b = self._pair(w, target)
-        return complex((w[a] - w[b]) ** 2), complex(0.5 * (w[a] + w[b]))
+        return complex((w[a] - w[b]) ** 2), complex(w[a])
 
     def approach(self, lam: complex, target: complex, *, maxiter: int = 30) -> tuple[complex, complex] | None:
         """Secant iteration on (E_a - E_b)^2 from a seed; returns (λ, E) or None."""
@@ -351,6 +352,9 @@ class ExceptionalPointSearch:
             if lam.imag < 0:
                 lam = lam.conjugate()
                 e = None if e is None else complex(e).conjugate()
+            if e is None:
+                # follow the level's own branch towards the seed: the pair to chase contains it
+                e = self._continue(lam, 0.0, 1.0, complex(self.e0[level]), lam * complex(self.v[level, level]), max_steps=200)
             target = complex(self.e0[level]) if e is None else complex(e)
             got = self.approach(lam, target)
             if got is None:

@@ -82,9 +82,9 @@ def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
     if nzk.size == 0:
         return _nan_result("terminating", 1, 0, 0, ["all corrections beyond order 0 vanish"])
     es = energy_scale if np.isfinite(energy_scale) and energy_scale > 0 else float(np.max(mag[1:]))
-    with np.errstate(over="ignore", divide="ignore"):
+    with np.errstate(all="ignore"):
         s = float(np.min((es / mag[nzk]) ** (1.0 / nzk)))
-        cs = mag * s ** k.astype(float)
+        cs = np.where(mag > 0, np.exp(np.log(np.where(mag > 0, mag, 1.0)) + k * np.log(s)), 0.0)
     cs[0] = 0.0
     top = float(np.max(cs))
     sig = cs > NOISE_RTOL * top
@@ -126,7 +126,7 @@ def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
 
     # ---- growth class: log|ratio| vs log j (Theil–Sen slope, robust to outliers)
     b = _growth_exponent(jj, dd, half)
-    if np.isfinite(b) and b > ASYMPTOTIC_SLOPE:
+    if np.isfinite(b) and b > ASYMPTOTIC_SLOPE and _confirm_factorial(jj, dd, logm, half, p):
         return _nan_result("asymptotic", p, o, k0, notes, b)
 
     # ---- root test: upper hull of log|d_j| + 1.5 log j (square-root branch point,
@@ -233,6 +233,32 @@ def _growth_exponent(jj: np.ndarray, dd: np.ndarray, half: int) -> float:
     h, jh = _hg_quotient(jj, dd, half)
     ok = np.isfinite(h) & (h > 0)
     return _theil_sen(np.log(jh[ok]), 0.5 * np.log(h[ok]))
+
+
+def _confirm_factorial(jj: np.ndarray, dd: np.ndarray, logm: np.ndarray, half: int, p: int) -> bool:
+    """Second, independent sign of factorial growth (guards against beats of several singularities).
+
+    Regular signs: the ratios |d_j/d_{j-1}| increase steadily (>= 80 % of steps).
+    Oscillating signs: the growth rate of the upper envelope of log|d_j| over the
+    last third exceeds that over the middle third by more than 0.4 p (factorial
+    growth: p log(5/3) ≈ 0.51 p; geometric growth: 0).
+    """
+    rt, _, regular = _regular_ratios(jj, dd, half)
+    if regular:
+        a = np.abs(rt)
+        return bool(np.mean(np.diff(a) > 0) >= 0.8)
+    n = jj.size
+    if n < 9:
+        return False
+    thirds = [slice(n // 3, 2 * n // 3 + 1), slice(2 * n // 3, n)]
+    slopes = []
+    for sl in thirds:
+        x, y = jj[sl], logm[sl]
+        hv = _upper_hull(x, y)
+        if hv.size < 2:
+            return False
+        slopes.append((y[hv[-1]] - y[hv[0]]) / (x[hv[-1]] - x[hv[0]]))
+    return bool(slopes[1] - slopes[0] > 0.4 * p)
 
 
 def _upper_hull(x: np.ndarray, y: np.ndarray) -> np.ndarray:
