@@ -1,0 +1,58 @@
+"""Benchmark (d): a 2-D validity map on 2 local worker processes vs serially.
+
+The map: validity boundary of the dispersive shift χ (order 2, 1 %) and its
+error on a coupling grid, over 8 resonator frequencies of an invented
+transmon-like qubit + resonator.  The same tasks run in this process
+(``executor="serial"``) and on ``ProcessPoolExecutor(max_workers=2)`` (pool
+start-up included); the results must be identical.
+
+On a 2-core machine the ideal is 2×; process start-up and other load on the
+machine eat into it.  Run: ``python benchmarks/bench_maps.py``.
+"""
+
+from __future__ import annotations
+
+import time
+from concurrent.futures import ProcessPoolExecutor
+
+import numpy as np
+
+from ptcheck.maps import validity_map
+from ptcheck.quantities import dispersive_shift
+
+PARAMS = dict(omega_q=5.0, alpha=-0.25, g=0.1, n_qubit=4, n_photons=12)  # invented (GHz)
+OMEGA_R = np.linspace(6.0, 7.6, 8)
+COUPLINGS = np.linspace(0.1, 2.0, 30)
+
+
+def _map(executor):
+    return validity_map(
+        "kerr_qubit_resonator", "omega_r", OMEGA_R, level=dispersive_shift(), order=2, rtol=0.01,
+        couplings=COUPLINGS, builder_kwargs=PARAMS, executor=executor,
+    )
+
+
+def run() -> list[dict]:
+    t = time.perf_counter()
+    serial = _map("serial")
+    t_serial = time.perf_counter() - t
+    t = time.perf_counter()
+    with ProcessPoolExecutor(max_workers=2) as ex:
+        pooled = _map(ex)
+    t_pool = time.perf_counter() - t
+    same = np.array_equal(serial.boundary, pooled.boundary, equal_nan=True) and np.array_equal(
+        serial.errors, pooled.errors, equal_nan=True)
+    return [{
+        "benchmark": f"(d) validity map, {OMEGA_R.size} values × {COUPLINGS.size} couplings, N = {4 * 12}",
+        "baseline": f"serial: {t_serial:.3g} s",
+        "ptcheck": f"2 worker processes: {t_pool:.3g} s",
+        "ratio": t_serial / t_pool,
+        "target": "speed-up with 2 workers (ideal 2×)",
+        "check": "identical results" if same else "RESULTS DIFFER",
+    }]
+
+
+if __name__ == "__main__":
+    for row in run():
+        for k, v in row.items():
+            print(f"{k:>10}: {v:.3g}" if isinstance(v, float) else f"{k:>10}: {v}")
