@@ -170,8 +170,12 @@ def test_property_kato_bound_and_partial_sums(case):
         lam_out = 1.5 * radius * sign
         terms = np.abs(s.energy_coefficients) * abs(lam_out) ** np.arange(41)
         assert np.max(terms[31:]) > 10 * np.max(terms[11:21])
+        # partial sums run away from the exact energy (compared over windows of orders: with a
+        # complex-conjugate pair of singularities the terms oscillate in size)
         e_out = exact(lam_out)
-        assert abs(s.energy(lam_out, order=40) - e_out) > abs(s.energy(lam_out, order=20) - e_out)
+        sums = s.energies_by_order(lam_out)[:, 0]
+        err_out = np.abs(sums - e_out)
+        assert np.max(err_out[31:]) > 10 * np.max(err_out[11:21])
 
 
 # ---------------------------------------------------------------- results, validation, map
