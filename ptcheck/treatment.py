@@ -32,6 +32,12 @@ __all__ = ["TREATMENTS", "LevelExpansion", "expansions"]
 
 TREATMENTS = ("auto", "nondegenerate", "block")
 
+#: Largest cluster 'auto' treats as a block.  Block treatments are for small
+#: quasi-degenerate sets (doublets, manifolds); a cluster that percolates
+#: further (e.g. a whole oscillator ladder) means no small block isolates the
+#: level, and 'auto' keeps the non-degenerate series with a note.
+AUTO_MAX_BLOCK = 16
+
 
 class LevelExpansion(Protocol):
     """What compare / validity_boundary / convergence need from one level's expansion."""
@@ -103,9 +109,16 @@ def expansions(
             out.append(s)
         return out
 
-    from .blocks import block_series, find_blocks  # lazy: keeps the import graph one-way and light
+    from .blocks import MAX_BLOCK_SIZE, block_series, find_blocks  # lazy: keeps the import graph light
 
-    blocks = find_blocks(model, lam, threshold, levels=levels)
+    try:
+        blocks = find_blocks(model, lam, threshold, levels=levels, max_size=AUTO_MAX_BLOCK if treatment == "auto" else MAX_BLOCK_SIZE)
+    except ValueError:
+        if treatment != "auto":
+            raise
+        # the near-degeneracy percolates through the spectrum (e.g. a ladder): no small block
+        # isolates the level, so 'auto' keeps the non-degenerate series (compare notes the mixing)
+        blocks = find_blocks(model, 0.0, threshold, levels=levels)
     block_of: dict[int, tuple[int, ...]] = {}
     for b in blocks:
         for n in b.levels:

@@ -1,0 +1,205 @@
+"""compare and validity_boundary against closed forms and fine grid scans."""
+
+import numpy as np
+import pytest
+from hypothesis import given, settings, strategies as st
+from scipy.optimize import brentq
+from scipy.special import binom
+
+from ptcheck import Model
+from ptcheck.approximants import Pade
+from ptcheck.compare import compare, validity_boundary
+from ptcheck.errors import DegenerateLevelError, NearDegenerateWarning
+from ptcheck.quantities import Quantity
+
+from conftest import oscillator_x
+
+DELTA, V = 1.0, 0.25
+
+
+def two_level():
+    return Model(np.diag([-DELTA / 2, DELTA / 2]), [[0, V], [V, 0]], name="two-level")
+
+
+def e_minus(lam):
+    # E_- = -sqrt((Δ/2)^2 + λ^2 v^2)  (Cohen-Tannoudji, Diu, Laloë, Quantum Mechanics, Complement B_IV)
+    return -np.sqrt((DELTA / 2) ** 2 + (np.asarray(lam) * V) ** 2)
+
+
+def e_minus_truncated(lam, k):
+    # Taylor expansion of the closed form: -(Δ/2) Σ_j binom(1/2, j) (2λv/Δ)^(2j), terms up to λ^k
+    lam = np.asarray(lam, dtype=float)
+    out = np.zeros_like(lam)
+    for j in range(k // 2 + 1):
+        out += -(DELTA / 2) * binom(0.5, j) * (2 * lam * V / DELTA) ** (2 * j)
+    return out
+
+
+def test_two_level_errors_match_closed_form():
+    m = two_level()
+    lam = np.linspace(-1.5, 1.5, 31)
+    # at |λ| = 1.5 the mixing ratio is 0.375: 'auto' would take the (here exact) block treatment,
+    # so the non-degenerate series is forced, with a warning
+    with pytest.warns(NearDegenerateWarning):
+        r = compare(m, 0, [0, 2, 4, 6], lam, treatment="nondegenerate")
+    assert r.exact.shape == (1, 31) and r.abs_error.shape == (1, 4, 31)
+    np.testing.assert_allclose(r.exact[0], e_minus(lam), atol=1e-12)
+    for oi, k in enumerate([0, 2, 4, 6]):
+        np.testing.assert_allclose(r.perturbative[0, oi], e_minus_truncated(lam, k), atol=1e-12)
+        np.testing.assert_allclose(r.abs_error[0, oi], np.abs(e_minus_truncated(lam, k) - e_minus(lam)), atol=1e-12)
+    # relative to the exact shift; NaN where the shift is zero (λ = 0)
+    shift = np.abs(e_minus(lam) + DELTA / 2)
+    ok = shift > 1e-9
+    np.testing.assert_allclose(r.rel_error[0, 1, ok], r.abs_error[0, 1, ok] / shift[ok], rtol=1e-9)
+    assert np.isnan(r.rel_error[0, 1, ~ok]).all()
+    # state infidelity: order 0 at λ: 1 - cos^2(θ/2) with tan θ = 2λv/Δ (closed form of the eigenvectors)
+    theta = np.arctan2(2 * lam * V, DELTA)
+    np.testing.assert_allclose(r.infidelity[0, 0], np.sin(theta / 2) ** 2, atol=1e-10)
+    assert r.treatments == ("nondegenerate",)
+    assert any("truncation" in n for n in r.notes)
+    d = r.to_dict()
+    assert d["orders"] == ["order 0", "order 2", "order 4", "order 6"] and len(d["couplings"]) == 31
+    assert len(r.to_rows()) == 4 * 31
+
+
+def test_linear_term_exact_at_second_order():
+    # E_n(λ) = n + 1/2 - λ^2/2 for H = a†a + 1/2 + λx (completing the square; standard textbook result)
+    n = 60
+    m = Model(np.diag(np.arange(n) + 0.5), oscillator_x(n)[:n, :n])
+    lam = np.array([0.1, 0.3, 0.5])
+    r = compare(m, [0, 1], [1, 2, 3], lam)
+    # the whole ladder is strongly mixed, so 'auto' finds no small block and keeps the RS series
+    assert r.treatments == ("nondegenerate", "nondegenerate")
+    np.testing.assert_allclose(r.exact[0], 0.5 - lam**2 / 2, atol=1e-10)
+    np.testing.assert_allclose(r.exact[1], 1.5 - lam**2 / 2, atol=1e-10)
+    assert np.max(r.abs_error[:, 1:, :]) < 1e-10  # orders 2, 3 are exact up to truncation
+    np.testing.assert_allclose(r.abs_error[0, 0], lam**2 / 2, atol=1e-10)
+
+
+def test_pade_order_in_compare_and_quantity():
+    m = two_level()
+    lam = np.array([0.5, 1.0, 3.0 * DELTA / (2 * V)])
+    gap = Quantity("transition", {1: 1.0, 0: -1.0})
+    with pytest.warns(NearDegenerateWarning):
+        r = compare(m, [0, gap], [4, Pade(2, 2, in_square=True)], lam, treatment="nondegenerate")
+    # transition frequency sqrt(Δ^2 + 4λ^2 v^2) (two-level closed form)
+    np.testing.assert_allclose(r.exact[1], np.sqrt(DELTA**2 + 4 * lam**2 * V**2), atol=1e-12)
+    # [2/2] Padé in λ² of sqrt(1+x) is far better than the order-4 truncation beyond the radius
+    assert r.abs_error[0, 1, -1] < 0.05 * r.abs_error[0, 0, -1]
+    assert np.isnan(r.infidelity[0, 1]).all() and np.isnan(r.infidelity[1]).all()
+    assert r.error(gap, 4).shape == (3,)
+    with pytest.raises(ValueError, match="was not compared"):
+        r.error(0, 7)
+
+
+def _closed_form_boundary(k, tol):
+    f = lambda x: abs(e_minus_truncated(x, k) - e_minus(x)) - tol  # noqa: E731
+    grid = np.linspace(1e-4, 2.0, 20001)
+    vals = np.array([f(x) for x in grid])
+    i = np.flatnonzero(vals > 0)[0]
+    return brentq(f, grid[i - 1], grid[i], xtol=1e-12)
+
+
+@pytest.mark.parametrize("k, tol", [(2, 1e-4), (4, 1e-6), (2, 1e-2)])
+def test_boundary_two_level_few_solves(k, tol):
+    m = two_level()
+    b = validity_boundary(m, 0, k, tol=tol)
+    ref = _closed_form_boundary(k, tol)
+    assert b.status == "found"
+    assert b.coupling == pytest.approx(ref, rel=1e-3)
+    assert b.exact_solves <= 20
+    bn = validity_boundary(m, 0, k, tol=tol, direction=-1)
+    assert bn.coupling == pytest.approx(-ref, rel=1e-3)
+
+
+def test_boundary_relative_and_not_reached():
+    m = two_level()
+    b = validity_boundary(m, 0, 2, rtol=0.01)
+    # reference: |E2(λ) - E(λ)| = 0.01 |E(λ) + Δ/2| solved on the closed form
+    f = lambda x: abs(e_minus_truncated(x, 2) - e_minus(x)) - 0.01 * abs(e_minus(x) + DELTA / 2)  # noqa: E731
+    assert b.coupling == pytest.approx(brentq(f, 1e-3, 2.0), rel=1e-3)
+    # a terminating series never misses the tolerance
+    n = 40
+    ho = Model(np.diag(np.arange(n) + 0.5), oscillator_x(n)[:n, :n])
+    nb = validity_boundary(ho, 0, 2, tol=1e-6, max_coupling=1.0)
+    assert nb.status == "not_reached" and np.isinf(nb.coupling)
+    # order 0 with a relative tolerance fails at once
+    z = validity_boundary(m, 0, 0, rtol=0.1)
+    assert z.status == "fails_at_zero" and z.coupling == 0.0
+
+
+def test_relative_boundary_ill_defined_where_shift_crosses_zero():
+    # level 1: E^(1) = -0.1, E^(2) = +v^2/Δ > 0, so the exact shift -0.1λ + 0.09λ² + ... passes through 0
+    # near λ ≈ 1.1 (two-level closed form); the order-2 relative error blows up there only because of that
+    m = Model(np.diag([0.0, 1.0]), [[0, 0.3], [0.3, -0.1]])
+    b = validity_boundary(m, 1, 2, rtol=0.2, treatment="nondegenerate")
+    assert b.status == "ill_defined" and np.isnan(b.coupling)
+    assert any("absolute tolerance" in n for n in b.notes)
+
+
+@settings(max_examples=12, deadline=None)
+@given(seed=st.integers(0, 5000), k=st.integers(1, 4))
+def test_boundary_agrees_with_fine_grid(seed, k):
+    r = np.random.default_rng(seed)
+    n = 6
+    e0 = np.sort(r.uniform(0, 5, n)) + 0.5 * np.arange(n)
+    a = r.normal(size=(n, n))
+    m = Model(np.diag(e0), (a + a.T) / 2)
+    level = int(r.integers(n))
+    tol = 1e-4
+    b = validity_boundary(m, level, k, tol=tol)
+    s = m.series(level, k)
+    grid = np.linspace(0, 3 * abs(b.coupling) if b.status == "found" else 1.0, 3001)[1:]
+    exact = np.array([np.linalg.eigvalsh(m.hamiltonian(x)) for x in grid])
+    # exact level by energy rank (independent of ptcheck's tracker): before the first tolerance
+    # crossing at tol = 1e-4 the level has not crossed another, so rank = identity there
+    err = np.abs(s.energy(grid, order=k) - exact[:, level])
+    above = np.flatnonzero(err > tol)
+    if b.status == "found":
+        assert above.size, "grid never exceeds tol but a boundary was reported"
+        first = grid[above[0]]
+        assert abs(b.coupling) == pytest.approx(first, abs=2 * (grid[1] - grid[0]) + 2e-3 * first)
+    else:
+        assert above.size == 0
+
+
+def test_treatments_and_refusals():
+    v = np.array([[0, 0.3, 0.1], [0.3, 0, 0.2], [0.1, 0.2, 0]])
+    m = Model(np.diag([0.0, 0.0, 1.0]), v)
+    with pytest.raises(DegenerateLevelError, match="block"):
+        compare(m, [0], [2], [0.1], treatment="nondegenerate")
+    r = compare(m, [0, 1, 2], [2, 4], [0.05, 0.1])
+    assert r.treatments[:2] == ("block", "block") and r.treatments[2] == "nondegenerate"
+    exact = np.array([np.linalg.eigvalsh(m.hamiltonian(x)) for x in (0.05, 0.1)]).T
+    np.testing.assert_allclose(r.exact, exact, atol=1e-10)
+    assert np.max(r.abs_error[:, 1]) < 1e-5
+    near = Model(np.diag([0.0, 1.0, 1.02]), [[0, 0.1, 0], [0.1, 0, 0.05], [0, 0.05, 0]])
+    with pytest.warns(NearDegenerateWarning, match="near-degenerate"):
+        compare(near, [1], [2], [0.5], treatment="nondegenerate")
+
+
+@pytest.mark.parametrize(
+    "kwargs, exc, match",
+    [
+        (dict(tol=1e-3, rtol=1e-2), ValueError, "exactly one of tol"),
+        (dict(), ValueError, "exactly one of tol"),
+        (dict(tol=-1.0), ValueError, "tol must be a positive"),
+        (dict(tol=1e-3, direction=0), ValueError, "direction must be"),
+        (dict(tol=1e-3, treatment="magic"), ValueError, "treatment must be one of"),
+    ],
+)
+def test_boundary_bad_input(kwargs, exc, match):
+    with pytest.raises(exc, match=match):
+        validity_boundary(two_level(), 0, 2, **kwargs)
+
+
+def test_compare_bad_input():
+    m = two_level()
+    with pytest.raises(ValueError, match="couplings must be finite"):
+        compare(m, 0, 2, [0.1, np.nan])
+    with pytest.raises(ValueError, match="order must be"):
+        compare(m, 0, ["two"], [0.1])
+    with pytest.raises(ValueError, match="unknown level"):
+        compare(m, "x", 2, [0.1])
+    with pytest.raises(ValueError, match="backend"):
+        compare(m, 0, 2, [0.1], backend="gpu")
