@@ -68,8 +68,12 @@ class Dashboard(Panel):
 
         views = list(self.views.values())
         self.tabs = w.Tab(children=[v.widget for v in views], titles=[v.title for v in views])
+        self.tabs.add_class("ptcheck-tabs")
         self.tabs.observe(self._on_tab, names="selected_index")
-        return self.tabs
+        # let the tab titles (plain physics names) show in full instead of a fixed 144 px
+        css = w.HTML("<style>.ptcheck-tabs > .lm-TabBar .lm-TabBar-tab, .ptcheck-tabs > .p-TabBar .p-TabBar-tab "
+                     "{flex: 0 0 auto !important; min-width: 9em; max-width: none !important;}</style>")
+        return w.VBox([css, self.tabs])
 
     @property
     def visible_views(self) -> list:

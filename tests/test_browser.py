@@ -1,0 +1,157 @@
+"""The dashboard in a real browser: Voilà serves notebooks/dashboard.ipynb, headless Chromium drives it.
+
+Checks that the plot is drawn, that moving the coupling (keyboard on the slider
+handle, or a typed value) changes the rendered plot, and that the page logs no
+JavaScript error and shows no Python traceback.  One test throws on purpose to
+prove the error detector works.  Skipped only when no Chromium executable exists.
+"""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+import pytest
+
+from browser_support import (
+    CHROMIUM_ARGS,
+    PageWatch,
+    canvas_is_drawn,
+    find_chromium,
+    local_only,
+    png_diff_area,
+    start_voila,
+)
+
+pytestmark = [pytest.mark.browser, pytest.mark.timeout(180)]
+
+CHROMIUM = find_chromium()
+if CHROMIUM is None:
+    pytest.skip("no Chromium executable found (apt-get install chromium)", allow_module_level=True)
+
+NOTEBOOKS = Path(__file__).resolve().parents[1] / "notebooks"
+PLOT = ".widget-tab-contents .jupyter-matplotlib-figure >> visible=true"
+CANVAS = ".jupyter-matplotlib-canvas-div canvas"
+HANDLE = ".widget-slider .noUi-handle"
+MIN_DIFF_AREA = 1000  # px: a moved line and its markers, far above antialiasing noise
+
+
+@pytest.fixture(scope="module")
+def server():
+    srv = start_voila(NOTEBOOKS)
+    yield srv
+    srv.stop()
+
+
+@pytest.fixture(scope="module")
+def browser():
+    from playwright.sync_api import sync_playwright
+
+    with sync_playwright() as p:
+        b = p.chromium.launch(executable_path=CHROMIUM, headless=True, args=CHROMIUM_ARGS)
+        yield b
+        b.close()
+
+
+@pytest.fixture
+def page(browser):
+    ctx = browser.new_context(viewport={"width": 1400, "height": 1600})
+    pg = ctx.new_page()
+    pg.route("**/*", local_only)
+    watch = PageWatch()
+    watch.attach(pg)
+    pg.watch = watch
+    yield pg
+    ctx.close()
+
+
+def _open_dashboard(page, server, attempts: int = 3) -> None:
+    """Load the page until the slider and a drawn plot are there (a reload gets a fresh kernel)."""
+    last = None
+    for _ in range(attempts):
+        try:
+            page.goto(server.url("dashboard.ipynb"), timeout=60_000)
+            page.wait_for_selector(HANDLE, state="visible", timeout=60_000)
+            page.wait_for_selector(PLOT, timeout=30_000)
+            t0 = time.monotonic()
+            while not canvas_is_drawn(page, CANVAS):
+                if time.monotonic() - t0 > 30:
+                    raise TimeoutError("the plot canvas stayed blank for 30 s")
+                time.sleep(0.2)
+            _stable_shot(page)
+            return
+        except Exception as exc:  # noqa: BLE001 - retried, then re-raised below
+            last = exc
+    raise AssertionError(f"dashboard did not load in {attempts} attempts: {last}")
+
+
+def _stable_shot(page, timeout: float = 20.0) -> bytes:
+    """Screenshot of the plot once two in a row are identical."""
+    prev = page.locator(PLOT).screenshot()
+    t0 = time.monotonic()
+    while time.monotonic() - t0 < timeout:
+        time.sleep(0.3)
+        cur = page.locator(PLOT).screenshot()
+        if cur == prev:
+            return cur
+        prev = cur
+    return prev
+
+
+def _wait_for_change(page, before: bytes, timeout: float = 20.0) -> int:
+    t0 = time.monotonic()
+    area = 0
+    while time.monotonic() - t0 < timeout:
+        area = png_diff_area(before, page.locator(PLOT).screenshot())
+        if area > MIN_DIFF_AREA:
+            return area
+        time.sleep(0.25)
+    return area
+
+
+def _assert_clean(page) -> None:
+    assert page.watch.errors == [], page.watch.errors
+    assert "Traceback" not in page.inner_text("body")
+    assert "Cannot compute this" not in page.inner_text("body")
+
+
+def test_keyboard_on_the_coupling_slider_moves_the_plot(page, server):
+    _open_dashboard(page, server)
+    readout = page.locator(".widget-slider .widget-readout").first
+    value0 = readout.inner_text()
+    numbers0 = page.locator("text=At coupling λ").first.inner_text()
+    before = _stable_shot(page)
+    handle = page.locator(HANDLE).first
+    handle.focus()
+    for _ in range(40):
+        page.keyboard.press("ArrowRight")
+    assert readout.inner_text() != value0
+    area = _wait_for_change(page, before)
+    assert area > MIN_DIFF_AREA, f"the plot did not change after moving the coupling (diff area {area} px)"
+    assert page.locator("text=At coupling λ").first.inner_text() != numbers0  # the numbers followed
+    _assert_clean(page)
+
+
+def test_typed_coupling_moves_the_plot(page, server):
+    _open_dashboard(page, server)
+    before = _stable_shot(page)
+    box = page.locator(".widget-text:has-text('λ =') input").first
+    box.fill("1.6")
+    box.press("Enter")
+    assert _wait_for_change(page, before) > MIN_DIFF_AREA
+    page.wait_for_function("() => document.body.innerText.includes('At coupling λ = 1.6')", timeout=20_000)
+    assert page.locator(".widget-slider .widget-readout").first.inner_text().startswith("1.6")
+    _assert_clean(page)
+
+
+def test_error_detector_sees_a_deliberate_error(page, server):
+    _open_dashboard(page, server)
+    page.evaluate("() => { setTimeout(() => { throw new Error('deliberate test error'); }, 0); }")
+    page.evaluate("() => console.error('deliberate console error')")
+    t0 = time.monotonic()
+    while len(page.watch.errors) < 2 and time.monotonic() - t0 < 10:
+        time.sleep(0.1)
+    assert any("deliberate test error" in e for e in page.watch.errors)
+    assert any("deliberate console error" in e for e in page.watch.errors)
+    with pytest.raises(AssertionError):
+        _assert_clean(page)
