@@ -244,3 +244,16 @@ def test_styling_leaves_global_rcparams_alone(result, bounds, ax):
     plot_levels(result, ax=ax)
     plot_errors(result, bounds, target="|1,0⟩", ax=Figure().add_subplot())
     assert dict(matplotlib.rcParams) == before
+
+
+def test_avoided_crossing_is_marked_at_its_coupling(ax):
+    # levels 1 and 2 cross at λ = 0.2 in H0 + λ diag(V) (1 + 0.5 λ = 1.2 − 0.5 λ); V_12 = 0.01 opens a gap
+    m = Model(np.diag([0.0, 1.0, 1.2]), [[0, 0.02, 0], [0.02, 0.5, 0.01], [0, 0.01, -0.5]], name="crossing")
+    r = compare(m, [1], [2], np.linspace(0, 0.6, 13))
+    assert r.avoided_crossings, "test set-up: the exact sweep should report the avoided crossing"
+    art = plot_levels(r, ax=ax)
+    lines = [a for a in art.crossings if hasattr(a, "get_xdata")]
+    labels = [a for a in art.crossings if hasattr(a, "get_text")]
+    assert [ln.get_xdata()[0] for ln in lines] == [ac.coupling for ac in r.avoided_crossings]
+    assert lines[0].get_xdata()[0] == pytest.approx(0.2, abs=0.01)
+    assert "avoided crossing n=1–n=2" in labels[0].get_text()

@@ -60,7 +60,7 @@ def crossing_info(crossing: Any) -> tuple[float | None, str]:
     if not labels:
         levels = getattr(crossing, "levels", None) or d.get("levels") or ()
         labels = [str(x) for x in levels]
-    gap = finite_or_none(getattr(crossing, "gap", d.get("gap")))
+    gap = finite_or_none(getattr(crossing, "min_gap", d.get("min_gap", d.get("gap"))))
     text = "avoided crossing"
     if labels:
         text += " " + "–".join(str(x) for x in labels)

@@ -52,6 +52,9 @@ class _View:
             canvas.footer_visible = False
             canvas.resizable = False
             canvas.toolbar_position = "right"
+            # no PNG snapshot of the whole figure on every frame (only used to save a static notebook):
+            # halves the work of a coupling move
+            canvas.syncing_data_url = False
             self.widget = canvas
         else:
             from matplotlib.backends.backend_agg import FigureCanvasAgg
