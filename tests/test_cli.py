@@ -124,17 +124,24 @@ def test_check_dense_npz_and_sparse_npz(tmp_path):
 
 
 # ---------------------------------------------------------------------- bad input: exit 2, one line
-def test_bad_files_give_one_line_and_exit_2(tmp_path):
-    r = run_cli("check", "missing.toml", "--coupling", 0.1, cwd=tmp_path)
-    assert r.returncode == 2 and "does not exist" in one_error_line(r.stderr)
+def test_bad_file_in_a_subprocess_gives_one_line_and_exit_2(tmp_path):
     (tmp_path / "bad.toml").write_text("[model\nbuiltin = 1", encoding="utf-8")
     r = run_cli("check", "bad.toml", "--coupling", 0.1, cwd=tmp_path)
     assert r.returncode == 2 and "not valid TOML" in one_error_line(r.stderr)
+    assert r.stdout == ""
+
+
+def test_missing_and_non_hermitian_files(tmp_path, capsys):
+    assert main(["check", str(tmp_path / "missing.toml"), "--coupling", "0.1"]) == 2
+    assert "does not exist" in one_error_line(capsys.readouterr().err)
     np.save(tmp_path / "h0.npy", np.diag([0.0, 1.0]))
     np.save(tmp_path / "v.npy", np.array([[0.0, 0.3], [0.1, 0.0]]))
     (tmp_path / "nh.toml").write_text('[model]\nh0 = "h0.npy"\nv = "v.npy"\n', encoding="utf-8")
-    r = run_cli("check", "nh.toml", "--coupling", 0.1, cwd=tmp_path)
-    assert r.returncode == 2 and "not Hermitian" in one_error_line(r.stderr)
+    assert main(["check", str(tmp_path / "nh.toml"), "--coupling", "0.1"]) == 2
+    assert "not Hermitian" in one_error_line(capsys.readouterr().err)
+    np.save(tmp_path / "v.npy", np.eye(3))
+    assert main(["check", str(tmp_path / "nh.toml"), "--coupling", "0.1"]) == 2
+    assert "same shape" in one_error_line(capsys.readouterr().err)
 
 
 @pytest.mark.parametrize(
