@@ -565,6 +565,7 @@ def validity_boundary(
     xrtol: float = 1e-3,
     threshold: float = DEFAULT_MIXING_THRESHOLD,
     method: str = "schrieffer-wolff",
+    coupling: float | None = None,
 ) -> ValidityBoundary:
     """Smallest |λ| along ``direction`` where the error first exceeds the tolerance.
 
@@ -591,6 +592,13 @@ def validity_boundary(
         Largest |λ| searched.  Default: 100 x (isolation distance / ‖V‖).
     xrtol : float, default 1e-3
         Relative precision of the boundary.
+    threshold : float
+        Mixing-ratio threshold for grouping levels into blocks.
+    method : str
+        Block method.
+    coupling : float, optional
+        Coupling at which blocks are judged for ``treatment="block"``
+        (default: where the next series terms reach the tolerance).
 
     Returns
     -------
@@ -634,15 +642,23 @@ def validity_boundary(
     degenerate = any(model.degenerate_group_of(n) for n in target.weights)
     if treatment == "auto" and degenerate:
         chosen = "block"
-    result = _boundary_search(model, target, spec, chosen, solver, direction, relative, thr, s_max, s_nat, xrtol, threshold, method)
-    if treatment == "auto" and chosen == "nondegenerate" and result.status == "found":
+    block_coupling = coupling
+    if chosen == "block" and block_coupling is None and not degenerate:
+        # judge clusters where the non-degenerate series itself expects to fail (no exact solves)
+        nd = dict(zip(list(target.weights), expansions(model, list(target.weights), required_order(spec) + 3, treatment="nondegenerate")))
+        probe = _ErrorFunction(model, target, nd, spec, solver, direction, relative)
+        block_coupling = _first_guess(probe, spec, thr, min(1e-6 * s_nat, s_max * 1e-6), s_max)
+    result = _boundary_search(model, target, spec, chosen, solver, direction, relative, thr, s_max, s_nat, xrtol, threshold, method, block_coupling)
+    if treatment == "auto" and chosen == "nondegenerate" and result.status == "found" and isinstance(spec, Pade):
+        pass  # Padé needs a scalar series: no block alternative
+    elif treatment == "auto" and chosen == "nondegenerate" and result.status == "found":
         s_star = abs(result.coupling)
         mixed = False
         for n in target.weights:
             partners, ratios = mixing_ratios(model, n, s_star)
             mixed |= bool(partners.size and np.max(ratios) >= threshold)
         if mixed:
-            blk = _boundary_search(model, target, spec, "block", solver, direction, relative, thr, s_max, s_nat, xrtol, threshold, method)
+            blk = _boundary_search(model, target, spec, "block", solver, direction, relative, thr, s_max, s_nat, xrtol, threshold, method, s_star)
             note = (
                 f"auto: the non-degenerate series fails at |λ| = {s_star:.4g} where a near-degenerate partner's "
                 f"mixing ratio exceeds {threshold:g}; the block treatment was used instead."
@@ -657,11 +673,11 @@ def _replace(b: ValidityBoundary, **kw: Any) -> ValidityBoundary:
     return replace(b, **kw)
 
 
-def _boundary_search(model, target, spec, treatment, solver, direction, relative, thr, s_max, s_nat, xrtol, threshold, method):
+def _boundary_search(model, target, spec, treatment, solver, direction, relative, thr, s_max, s_nat, xrtol, threshold, method, coupling=None):
     needed = list(target.weights)
     exps = dict(zip(needed, expansions(
-        model, needed, max(required_order(spec) + 3, required_order(spec) * 2 if isinstance(spec, Pade) else 0),
-        treatment=treatment, coupling=None, threshold=threshold, method=method,
+        model, needed, required_order(spec) + 3,
+        treatment=treatment, coupling=coupling, threshold=threshold, method=method,
     )))
     kinds = {e.treatment for e in exps.values()}
     tname = kinds.pop() if len(kinds) == 1 else "mixed"

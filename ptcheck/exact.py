@@ -246,8 +246,51 @@ class ExactSolver:
             if best < s0 < s and all(n in known for n in levels):
                 best = s0
         if best == 0.0:
-            return 0.0, {n: (float(self.model.e0[n]), _unit(self.model.n, n)) for n in levels}
+            return self._origin(ray, levels, s)
         return best, path[best]
+
+    def _origin(self, ray: int, levels: list[int], s: float) -> tuple[float, dict]:
+        """Starting states: e_n at λ = 0; for exactly degenerate groups, exact states at a tiny coupling.
+
+        Inside a degenerate group the λ → 0 limit of a branch is fixed only by V (the model's good
+        states) or, where V leaves a tie, by higher orders.  The group's exact states at a coupling
+        far below any structure are assigned to its levels by first-order shift along this ray, ties
+        in ascending energy — the same convention as the block treatment.
+        """
+        known = {n: (float(self.model.e0[n]), _unit(self.model.n, n)) for n in levels}
+        groups = [g for g in self.model.degenerate_groups if any(n in g for n in levels)]
+        if not groups:
+            return 0.0, known
+        model = self.model
+        nv = max(model.norm_v, 1e-300)
+        eps_all = []
+        for g in groups:
+            d = np.abs(model.e0 - model.e0[g[0]])
+            d = d[d > model.degeneracy_tol]
+            eps_all.append(1e-4 * (d.min() if d.size else 1.0) / nv)
+        eps = min(min(eps_all), 0.5 * s) if s > 0 else min(eps_all)
+        w, vec = self._window(ray * eps, [model.e0[g[0]] for g in groups] + [known[n][0] for n in levels])
+        vdiag = model.v_diagonal()
+        scale = nv
+        for g in groups:
+            gi = np.asarray(g)
+            weight = np.sum(np.abs(vec[gi, :]) ** 2, axis=0)
+            cols = np.sort(np.argsort(weight)[-len(g):])
+            cols = cols[np.argsort(w[cols], kind="stable")]
+            key = np.round(ray * vdiag[gi] / (1e-9 * scale))
+            members = gi[np.lexsort((gi, key))]
+            for n, c in zip(members, cols):
+                psi = vec[:, c].copy()
+                ph = np.vdot(_unit(model.n, int(n)), psi)
+                if abs(ph) > 1e-8:
+                    psi *= np.conj(ph) / abs(ph)
+                known[int(n)] = (float(w[c]), psi)
+        # other levels: follow from λ = 0 to eps
+        rest = [n for n in levels if not any(n in g for g in groups)]
+        if rest:
+            known.update(self._step(ray, 0.0, {n: known[n] for n in rest}, eps, rest))
+        self._paths[ray].setdefault(eps, {}).update({n: known[n] for n in levels})
+        return eps, {n: known[n] for n in levels}
 
     def _step(self, ray: int, s0: float, known: dict, s1: float, levels: list[int], depth: int = 0) -> dict:
         lam = ray * s1
@@ -314,8 +357,9 @@ class ExactSolver:
         for ray in (1, -1):
             sel = np.flatnonzero((lam > 0) if ray == 1 else (lam < 0))
             order = sel[np.argsort(np.abs(lam[sel]))]
-            known = {n: (float(self.model.e0[n]), _unit(self.model.n, n)) for n in idx}
-            s_prev = 0.0
+            if order.size == 0:
+                continue
+            s_prev, known = self._origin(ray, idx, float(abs(lam[order[0]])))
             for ci in order:
                 s = float(abs(lam[ci]))
                 if s != s_prev:

@@ -103,18 +103,18 @@ def _closed_form_boundary(k, tol):
 @pytest.mark.parametrize("k, tol", [(2, 1e-4), (4, 1e-6), (2, 1e-2)])
 def test_boundary_two_level_few_solves(k, tol):
     m = two_level()
-    b = validity_boundary(m, 0, k, tol=tol)
+    b = validity_boundary(m, 0, k, tol=tol, treatment="nondegenerate")
     ref = _closed_form_boundary(k, tol)
     assert b.status == "found"
     assert b.coupling == pytest.approx(ref, rel=1e-3)
     assert b.exact_solves <= 20
-    bn = validity_boundary(m, 0, k, tol=tol, direction=-1)
+    bn = validity_boundary(m, 0, k, tol=tol, direction=-1, treatment="nondegenerate")
     assert bn.coupling == pytest.approx(-ref, rel=1e-3)
 
 
 def test_boundary_relative_and_not_reached():
     m = two_level()
-    b = validity_boundary(m, 0, 2, rtol=0.01)
+    b = validity_boundary(m, 0, 2, rtol=0.01, treatment="nondegenerate")
     # reference: |E2(λ) - E(λ)| = 0.01 |E(λ) + Δ/2| solved on the closed form
     f = lambda x: abs(e_minus_truncated(x, 2) - e_minus(x)) - 0.01 * abs(e_minus(x) + DELTA / 2)  # noqa: E731
     assert b.coupling == pytest.approx(brentq(f, 1e-3, 2.0), rel=1e-3)
@@ -147,7 +147,7 @@ def test_boundary_agrees_with_fine_grid(seed, k):
     m = Model(np.diag(e0), (a + a.T) / 2)
     level = int(r.integers(n))
     tol = 1e-4
-    b = validity_boundary(m, level, k, tol=tol)
+    b = validity_boundary(m, level, k, tol=tol, treatment="nondegenerate")
     s = m.series(level, k)
     grid = np.linspace(0, 3 * abs(b.coupling) if b.status == "found" else 1.0, 3001)[1:]
     exact = np.array([np.linalg.eigvalsh(m.hamiltonian(x)) for x in grid])
@@ -203,3 +203,11 @@ def test_compare_bad_input():
         compare(m, "x", 2, [0.1])
     with pytest.raises(ValueError, match="backend"):
         compare(m, 0, 2, [0.1], backend="gpu")
+
+
+def test_auto_switches_to_block_when_the_series_fails_on_a_near_degenerate_pair():
+    # two-level system: where order 2 misses tol the mixing ratio is > 0.1, so 'auto' moves to the block
+    # of both levels, which is the whole (exact) problem: the tolerance is then never missed
+    b = validity_boundary(two_level(), 0, 2, tol=1e-4, max_coupling=10.0)
+    assert b.treatment == "block" and b.status == "not_reached"
+    assert any("block treatment was used" in n for n in b.notes)
