@@ -1,5 +1,16 @@
-"""ptcheck: can a perturbative formula be trusted for this model at this coupling?"""
+"""ptcheck: can a perturbative formula be trusted for this model at this coupling?
 
+The engine (everything imported here) never imports matplotlib or ipywidgets;
+figures live in :mod:`ptcheck.plots`, notebook panels in :mod:`ptcheck.widgets`,
+the command line in :mod:`ptcheck.cli`.
+"""
+
+from . import models
+from .approximants import Pade, parse_order
+from .blocks import Block, BlockSeries, block_series, find_blocks
+from .compare import ComparisonResult, ValidityBoundary, compare, validity_boundary
+from .convergence import ConvergenceResult, DivergenceMap, convergence, divergence_map
+from .degeneracy import DEFAULT_MIXING_THRESHOLD, NearDegeneratePair, near_degenerate_pairs
 from .errors import (
     AccuracyWarning,
     AmbiguousLevelError,
@@ -10,6 +21,70 @@ from .errors import (
     TrackingWarning,
     TruncationWarning,
 )
+from .exact import AvoidedCrossing, ExactSolver, ExactSweep, track
 from .model import Model
+from .products import product_model
+from .quantities import (
+    Quantity,
+    QuantitySeries,
+    anharmonicity,
+    combination,
+    cross_kerr,
+    dispersive_shift,
+    exchange,
+    quantity_series,
+    stark_shift,
+    transition_frequency,
+    zz_coupling,
+)
+from .series import SeriesResult, rs_series
 
 __version__ = "0.1.0"
+
+__all__ = [
+    "AccuracyWarning",
+    "AmbiguousLevelError",
+    "AvoidedCrossing",
+    "BasisTooLargeError",
+    "Block",
+    "BlockSeries",
+    "ComparisonResult",
+    "ConvergenceResult",
+    "DEFAULT_MIXING_THRESHOLD",
+    "DegenerateLevelError",
+    "DivergenceMap",
+    "ExactSolver",
+    "ExactSweep",
+    "Model",
+    "NearDegeneratePair",
+    "NearDegenerateWarning",
+    "Pade",
+    "PtcheckWarning",
+    "Quantity",
+    "QuantitySeries",
+    "SeriesResult",
+    "TrackingWarning",
+    "TruncationWarning",
+    "ValidityBoundary",
+    "anharmonicity",
+    "block_series",
+    "combination",
+    "compare",
+    "convergence",
+    "cross_kerr",
+    "dispersive_shift",
+    "divergence_map",
+    "exchange",
+    "find_blocks",
+    "models",
+    "near_degenerate_pairs",
+    "parse_order",
+    "product_model",
+    "quantity_series",
+    "rs_series",
+    "stark_shift",
+    "track",
+    "transition_frequency",
+    "validity_boundary",
+    "zz_coupling",
+]
