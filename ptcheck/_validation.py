@@ -48,7 +48,7 @@ def as_operator(x: Any, name: str) -> tuple[np.ndarray | sp.csr_matrix, list | N
             is_dense = isinstance(x.data, qutip.data.Dense)
         except Exception:  # pragma: no cover - very old qutip
             is_dense = True
-        x = x.full() if is_dense else x.data_as("csr_matrix")
+        x = x.full() if is_dense else x.to("csr").data_as("csr_matrix")
     if sp.issparse(x):
         m = sp.csr_matrix(x)
         if m.ndim != 2:  # pragma: no cover - sparse is always 2-D

@@ -218,9 +218,8 @@ def test_zz_of_kerr_ladders_matches_second_order_formula_and_exact_numerics(a1, 
 
 # --------------------------------------------------------------------------- Hubbard dimer: exchange
 # The singly occupied pair is exactly degenerate and V splits it only at second order, so an overlap tracker
-# may report (TrackingWarning) that it cannot tell the branches apart at tiny λ; the exact values asserted
+# is followed from the exact states at a tiny coupling (block convention); the exact values asserted
 # below are what decides whether the branches were followed correctly.
-@pytest.mark.filterwarnings("ignore::ptcheck.errors.TrackingWarning")
 def test_hubbard_exchange_is_4t2_over_u_and_matches_the_dimer_closed_form():
     # Anderson superexchange J = 4t²/U (P. W. Anderson, Phys. Rev. 115, 2 (1959)); exact two-site Hubbard at
     # half filling: singlet (U − √(U² + 16t²))/2, triplet 0 (e.g. Fazekas, Lecture Notes on Electron Correlation
