@@ -13,8 +13,14 @@ and its load; the ratio is measured in one process, back to back.
 
 from __future__ import annotations
 
+import sys
 import time
+from pathlib import Path
 
+try:  # run from a checkout without installing: use the package beside this folder
+    import ptcheck  # noqa: F401
+except ImportError:
+    sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 import numpy as np
 import scipy.linalg as sla
 import scipy.sparse as sp

@@ -1,7 +1,7 @@
 """Benchmark (d): a 2-D validity map on 2 local worker processes vs serially.
 
 The map: validity boundary of the dispersive shift χ (order 2, 1 %) and its
-error on a coupling grid, over 8 resonator frequencies of an invented
+error on a coupling grid, over 12 resonator frequencies of an invented
 transmon-like qubit + resonator.  The same tasks run in this process
 (``executor="serial"``) and on ``ProcessPoolExecutor(max_workers=2)`` (pool
 start-up included); the results must be identical.
@@ -12,7 +12,14 @@ machine eat into it.  Run: ``python benchmarks/bench_maps.py``.
 
 from __future__ import annotations
 
+import sys
 import time
+from pathlib import Path
+
+try:  # run from a checkout without installing: use the package beside this folder
+    import ptcheck  # noqa: F401
+except ImportError:
+    sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from concurrent.futures import ProcessPoolExecutor
 
 import numpy as np
@@ -20,8 +27,8 @@ import numpy as np
 from ptcheck.maps import validity_map
 from ptcheck.quantities import dispersive_shift
 
-PARAMS = dict(omega_q=5.0, alpha=-0.25, g=0.1, n_qubit=4, n_photons=12)  # invented (GHz)
-OMEGA_R = np.linspace(6.0, 7.6, 8)
+PARAMS = dict(omega_q=5.0, alpha=-0.25, g=0.1, n_qubit=5, n_photons=24)  # invented (GHz)
+OMEGA_R = np.linspace(6.0, 7.6, 12)
 COUPLINGS = np.linspace(0.1, 2.0, 30)
 
 
@@ -43,7 +50,7 @@ def run() -> list[dict]:
     same = np.array_equal(serial.boundary, pooled.boundary, equal_nan=True) and np.array_equal(
         serial.errors, pooled.errors, equal_nan=True)
     return [{
-        "benchmark": f"(d) validity map, {OMEGA_R.size} values × {COUPLINGS.size} couplings, N = {4 * 12}",
+        "benchmark": f"(d) validity map, {OMEGA_R.size} values × {COUPLINGS.size} couplings, N = {5 * 24}",
         "baseline": f"serial: {t_serial:.3g} s",
         "ptcheck": f"2 worker processes: {t_pool:.3g} s",
         "ratio": t_serial / t_pool,

@@ -11,8 +11,14 @@ Run: ``python benchmarks/bench_series.py``.
 
 from __future__ import annotations
 
+import sys
 import time
+from pathlib import Path
 
+try:  # run from a checkout without installing: use the package beside this folder
+    import ptcheck  # noqa: F401
+except ImportError:
+    sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 import numpy as np
 import scipy.linalg as sla
 

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import importlib.util
 import math
+import os
 import subprocess
 import sys
 import time
@@ -38,6 +39,10 @@ def main() -> int:
             rows.append({"benchmark": name, "baseline": "", "ptcheck": f"FAILED: {type(exc).__name__}: {exc}",
                          "ratio": math.nan, "target": "", "check": ""})
     others = sorted(p for p in HERE.glob("bench_*.py") if p.stem not in OURS)
+    load = os.getloadavg() if hasattr(os, "getloadavg") else (math.nan,) * 3
+    blas = {k: os.environ[k] for k in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS") if k in os.environ}
+    print(f"machine: {os.cpu_count()} cores, load average {load[0]:.1f} / {load[1]:.1f} / {load[2]:.1f} "
+          f"(1/5/15 min; other work on the machine slows every number), BLAS threads env: {blas or 'default'}\n")
     print(f"{'benchmark':<58} {'ratio':>8}  {'target':<34} details")
     print("-" * 140)
     for r in rows:
