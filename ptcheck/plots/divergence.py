@@ -115,9 +115,12 @@ def plot_divergence(
     fig, ax, scale = new_axes(ax)
     lw = max(scale, 0.75)
     labels = rec["labels"]
-    reach = [x for x in rec["radius"] if math.isfinite(x) and x > 0]
-    reach += [x for x in rec["kato"] if math.isfinite(x) and x > 0]
-    reach += [float(np.max(np.abs(e))) for e in rec["eps"] if e.size]
+    # view: the coupling range and the nearest singularity (or the smallest disc); larger discs are clipped
+    near = [x for x in rec["radius"] if math.isfinite(x) and x > 0]
+    near += [float(np.min(np.abs(e))) for e in rec["eps"] if e.size]
+    if not near:
+        near = [x for x in rec["kato"] if math.isfinite(x) and x > 0]
+    reach = [min(near)] if near else []
     if rec["couplings"] is not None and rec["couplings"].size:
         reach.append(float(np.max(np.abs(rec["couplings"]))))
     if coupling is not None:
