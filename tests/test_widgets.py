@@ -84,6 +84,8 @@ def test_errors_panel_tolerance_and_boundaries(jc):
     p = ErrorsPanel(jc, levels=[(1, 0)], tol=1e-5, **OPTS)
     try:
         assert [b.tol for b in p.boundaries] == [1e-5, 1e-5]
+        assert p.progress.max == 1 + 2 and p.progress.value == 3  # sweep + one boundary per order
+        assert p.progress.layout.visibility == "hidden"  # shown only while working
         assert_array_equal(p.artists.tolerance_line.get_ydata(), [1e-5, 1e-5])
         before = p.heavy_computations
         p.controls.tolerance.value = 1e-3

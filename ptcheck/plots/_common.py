@@ -74,7 +74,9 @@ def caption_text(
     """
     parts = [kind, f"{model} (N = {n})" if n is not None else model]
     if levels:
-        parts.append(("level " if len(levels) == 1 else "levels ") + ", ".join(map(str, levels)))
+        names = [str(x) for x in levels]
+        word = "level" if all(x.startswith(("|", "n=")) for x in names) else "target"
+        parts.append((word + " " if len(names) == 1 else word + "s ") + ", ".join(names))
     if orders:
         names = [str(o).replace("order ", "") for o in orders]
         parts.append(("order " if len(names) == 1 else "orders ") + ", ".join(names))
