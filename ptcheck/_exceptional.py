@@ -337,21 +337,32 @@ class ExceptionalPointSearch:
         seeds: list[tuple[complex, complex | None]],
         *,
         max_points: int = 4,
-        max_checks: int = 8,
+        reach_factor: float = 1.5,
     ) -> tuple[list[EPCandidate], int]:
-        """Find, verify and connect EPs from the seeds.
+        """Find, verify and connect EPs from the seeds (taken nearest first).
+
+        Each new verified EP is checked for connection at once; seeds farther
+        than ``reach_factor`` x the nearest connected EP are skipped (they
+        cannot be expected to lead to a nearer one).
 
         Returns the connected (and not-disproved) EPs nearest first and the
         number of verified EPs found in all.
         """
-        found: list[tuple[complex, complex, float]] = []
+        found: list[tuple[complex, complex]] = []
+        out: list[EPCandidate] = []
+        best = np.inf
+        seeds = sorted(seeds, key=lambda t: abs(t[0]))
         for lam, e in seeds:
             if not np.isfinite(lam) or lam == 0:
                 continue
+            if abs(lam) > reach_factor * best or len(out) >= max_points:
+                break
             lam = complex(lam)
             if lam.imag < 0:
                 lam = lam.conjugate()
                 e = None if e is None else complex(e).conjugate()
+            if any(abs(lam - f[0]) <= 1e-3 * abs(lam) for f in found):
+                continue  # this seed sits on an EP already found
             if e is None:
                 # follow the level's own branch towards the seed: the pair to chase contains it
                 e = self._continue(lam, 0.0, 1.0, complex(self.e0[level]), lam * complex(self.v[level, level]), max_steps=200)
@@ -368,15 +379,14 @@ class ExceptionalPointSearch:
             if any(abs(lam_ep - f[0]) <= tol_l and abs(e_ep - f[1]) <= tol_e for f in found):
                 continue
             ok, ov = self.coalescence(lam_ep, e_ep)
-            if ok:
-                found.append((lam_ep, e_ep, ov))
-        found.sort(key=lambda f: abs(f[0]))
-        out: list[EPCandidate] = []
-        for lam_ep, e_ep, ov in found[:max_checks]:
+            if not ok:
+                continue
+            found.append((lam_ep, e_ep))
             conn, partner = self.connect(level, lam_ep, e_ep)
             if conn is False:
                 continue
             out.append(EPCandidate(lam_ep, e_ep, conn, partner, ov))
-            if len(out) >= max_points:
-                break
+            if conn:
+                best = min(best, abs(lam_ep))
+        out.sort(key=lambda c: abs(c.coupling))
         return out, len(found)

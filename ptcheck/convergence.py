@@ -69,8 +69,9 @@ __all__ = [
 
 #: Largest basis for which ``ep_search="auto"`` runs the (dense, O(N³) per
 #: step) exceptional-point search.  Larger models skip it with a note; force
-#: it with ``ep_search="always"``.
-EP_DENSE_LIMIT = 200
+#: it with ``ep_search="always"``.  Rough cost on an idle 2-core machine with
+#: one BLAS thread: N = 50: 0.5 s, N = 100: 4 s, N = 200: 25 s per level.
+EP_DENSE_LIMIT = 120
 
 #: Coefficient and singularity radii "agree" when they differ by at most this
 #: fraction of the singularity radius.  The coefficient radius is the median of
@@ -299,7 +300,7 @@ def _ep_seeds(
     seeds: list[tuple[complex, complex | None]] = []
     seeds += [(z, None) for z in ca.pade_poles]  # energy: found by continuing the branch
     seeds += search.pair_seeds(level)
-    seeds += search.crossing_seeds(level, reach)
+    seeds += search.crossing_seeds(level, reach, points=60 if search.n <= 50 else 25)
     seeds += extra
     # nearest first; drop exact duplicates
     seeds = [s for s in seeds if np.isfinite(s[0]) and s[0] != 0]
@@ -312,7 +313,7 @@ def _ep_seeds(
         if any(abs(z - o[0]) <= 1e-3 * abs(z) for o in out):
             continue
         out.append((z, e))
-    return out[:24]
+    return out[:16]
 
 
 def _median_finite(x: np.ndarray) -> float:
@@ -696,7 +697,9 @@ def divergence_map(
     orders : order spec or sequence, optional
         If given, the validity boundary of each (level, order) is computed
         with ``ptcheck.compare.validity_boundary(m, level, order, tol=tol,
-        rtol=rtol)`` (exactly one of ``tol``/``rtol`` is needed then).
+        rtol=rtol, treatment="nondegenerate")`` (exactly one of ``tol``/``rtol``
+        is needed then): the boundary of the plain Rayleigh–Schrödinger series
+        whose divergence this map describes, positive couplings.
     tol, rtol : float, optional
         Tolerance passed to ``validity_boundary``.
     ep_search : {'auto', 'always', 'never'}
@@ -761,7 +764,7 @@ def divergence_map(
         for i, n in enumerate(idx):
             for j, s in enumerate(specs):
                 try:
-                    b = validity_boundary(m, n, s, tol=tol, rtol=rtol)
+                    b = validity_boundary(m, n, s, tol=tol, rtol=rtol, treatment="nondegenerate")
                 except ValueError as exc:  # e.g. a degenerate level for this order
                     notes.append(f"validity boundary of level {m.label(n)}, {names[j]} failed: {exc}")
                     continue
