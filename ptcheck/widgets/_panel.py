@@ -314,8 +314,19 @@ class Panel:
         return (fig_path, folder / f"{stem}.csv", folder / f"{stem}.json")
 
     def close(self) -> None:
-        """Close the widgets (and the figures' canvases)."""
-        self.widget.close_all() if hasattr(self.widget, "close_all") else self.widget.close()
+        """Close this panel's widgets (controls, canvases, containers); other widgets are left alone."""
+
+        def close(wid: Any) -> None:
+            for child in getattr(wid, "children", ()):
+                close(child)
+            wid.close()
+
+        close(self.widget)
+        for v in list(self.views.values()) + list(vars(self.controls).values()):
+            if hasattr(v, "widget"):
+                v.widget.close()
+            elif hasattr(v, "close"):
+                v.close()
 
     def _repr_mimebundle_(self, **kwargs: Any) -> Any:
         return self.widget._repr_mimebundle_(**kwargs)
