@@ -33,6 +33,22 @@ the resolvent of ``H(λ)`` converges uniformly on Γ for every complex
 inside Γ, is then holomorphic in that disc.  The bound holds for the model as
 given (for a truncated basis: the truncated model).
 
+Limits
+------
+* The EP search is dense (one N x N eigenvalue problem per step); with
+  ``ep_search="auto"`` it runs for N <= :data:`EP_DENSE_LIMIT` and is skipped
+  with a note above that (and for asymptotic series, whose truncated-basis
+  singularities only describe the truncation).
+* The search starts from seeds (two-level estimates, real-axis avoided
+  crossings, Padé poles); it can miss an EP.  A miss shows up as
+  ``agreement == 'disagree'`` and the smaller radius is reported.
+* Coefficient estimators need ~10+ orders and assume one dominant singularity
+  (or a conjugate pair); two singularities at nearly the same distance, or a
+  pair very close to the real axis, cause slow beats and poorer estimates.
+* 'terminating' and 'asymptotic' describe the computed orders only: in a
+  truncated basis a terminating or factorially growing series eventually
+  turns geometric (the finite matrix always has a finite radius).
+
 Examples
 --------
 >>> import numpy as np
