@@ -226,3 +226,26 @@ def test_single_divergence_and_pairs_panels(jc):
     finally:
         p.close()
         q.close()
+
+
+# ipympl's own toolbar triggers this traitlets deprecation (third-party, not ours)
+@pytest.mark.filterwarnings(r"ignore:Passing unrecognized arguments to super\(Toolbar\):DeprecationWarning")
+def test_ipympl_canvas_moves_and_exports(jc, tmp_path):
+    pytest.importorskip("ipympl")
+    p = LevelsPanel(jc, **dict(OPTS, canvas="ipympl"))
+    try:
+        from ipympl.backend_nbagg import Canvas
+
+        assert isinstance(p.view.widget, Canvas)
+        p.figure.canvas.draw()  # what the browser's first frame request does: caches the background
+        n = p.heavy_computations
+        p.controls.coupling.value = 0.7
+        assert_array_equal(p.artists.coupling_line.get_xdata(), [0.7, 0.7])
+        assert p.heavy_computations == n
+        fig_path = p.export(tmp_path, "png")[0]
+        assert fig_path.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+        assert p.figure.canvas is p.view.widget  # the on-screen canvas is kept
+        p.controls.coupling.value = 0.2  # no stale background after the export
+        assert_array_equal(p.artists.coupling_line.get_xdata(), [0.2, 0.2])
+    finally:
+        p.close()

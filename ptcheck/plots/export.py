@@ -116,7 +116,8 @@ def save(
         for t, s0 in old_fonts:
             t.set_fontsize(max(s0 * scale, min_fontsize))
         fig.set_size_inches(w, h, forward=False)
-        fig.savefig(path, format=fmt, dpi=dpi, facecolor="white")
+        # a temporary canvas of the file's own backend: an interactive canvas on screen is not redrawn
+        fig.savefig(path, format=fmt, dpi=dpi, facecolor="white", backend={"png": "agg"}.get(fmt, fmt))
         visible = [t.get_fontsize() for t, _ in old_fonts if t.get_visible() and t.get_text()]
         visible += [max(s0 * scale, min_fontsize) for _, _, s0 in ticks]
         smallest = float(min(visible)) if visible else float("nan")

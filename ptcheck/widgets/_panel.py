@@ -307,6 +307,7 @@ class Panel:
             save(view.figure, fig_path)
         finally:
             view.set_moving_animated(True)
+            view._background = None  # until the next full draw on screen
         rows, data = view.numbers(self)
         data = {"model": self.model.name, "n": self.model.n, "settings": self._settings_dict(), **data}
         write_numbers(rows, data, folder / f"{stem}.csv", folder / f"{stem}.json")

@@ -61,6 +61,7 @@ class _View:
 
             FigureCanvasAgg(self.figure)
             self.widget = w.Image(format="png", layout=w.Layout(width="100%", max_width=f"{int(figsize[0] * 100)}px"))
+        self._canvas = self.figure.canvas
         self._setup_axes()
         self.artists: Any = None
         self.stale = True  # artists changed but not shown yet
@@ -82,8 +83,8 @@ class _View:
     def _on_draw(self, event: Any) -> None:
         # after every full draw on the screen canvas: keep the background, put the moving artists on it
         canvas = self.figure.canvas
-        if getattr(event, "renderer", None) is not getattr(canvas, "renderer", None):
-            return  # a draw for export (other size or vector renderer)
+        if event.canvas is not self._canvas or getattr(event, "renderer", None) is not getattr(canvas, "renderer", None):
+            return  # a draw for export (temporary canvas, other size or vector renderer)
         self._background = canvas.copy_from_bbox(self.figure.bbox)
         for art in self.moving():
             if art.get_animated():
