@@ -29,7 +29,7 @@ import json
 import math
 import platform
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -385,10 +385,15 @@ def run_check(
     tolkw = {"rtol": thr} if relative else {"tol": thr}
 
     # 1. validity boundaries of every order asked for
+    from .exact import BACKENDS
+    from .treatment import TREATMENTS
+
+    val.check_choice(treatment, "treatment", TREATMENTS)
+    val.check_choice(backend, "backend", BACKENDS)
     boundaries = []
-    for t in targets:
+    for t, name in zip(targets, names):
         for s in specs:
-            boundaries.append(validity_boundary(model, t, s, direction=direction, threshold=threshold, **tolkw, **opts))
+            boundaries.append(_boundary(model, t, name, s, direction, threshold, tolkw, treatment, backend))
             tick()
 
     # 2. comparison on a grid reaching past the coupling and the boundaries found
@@ -512,6 +517,36 @@ def run_check(
     )
 
 
+def _boundary(model, target, name, spec, direction, threshold, tolkw, treatment, backend) -> ValidityBoundary:
+    """validity_boundary, robust to a failure of the search itself (reported, not raised).
+
+    Inputs were validated before; a ValueError here is a numerical outcome (e.g.
+    the "auto" treatment meeting a cluster too large for a block).  With
+    "auto" the non-degenerate search is tried instead; if that fails too, a
+    boundary with status ``"error"`` and the message in ``notes`` is returned.
+    """
+    kw = dict(direction=direction, threshold=threshold, backend=backend, **tolkw)
+    try:
+        return validity_boundary(model, target, spec, treatment=treatment, **kw)
+    except (ValueError, ArithmeticError) as exc:
+        first = f"{type(exc).__name__}: {exc}"
+    if treatment == "auto":
+        try:
+            b = validity_boundary(model, target, spec, treatment="nondegenerate", **kw)
+            note = (f"auto treatment failed ({first}); the boundary of the non-degenerate series is reported "
+                    "instead.")
+            return replace(b, notes=b.notes + (note,))
+        except (ValueError, ArithmeticError) as exc:
+            first += f"; non-degenerate: {type(exc).__name__}: {exc}"
+    rel = "rtol" in tolkw
+    thr = tolkw.get("rtol", tolkw.get("tol"))
+    return ValidityBoundary(
+        target=name, order=spec, treatment=treatment, tol=None if rel else thr, rtol=thr if rel else None,
+        direction=direction, coupling=math.nan, status="error", exact_solves=0, bracket=(math.nan, math.nan),
+        error_at_boundary=math.nan, max_coupling=math.nan, notes=(f"The validity boundary search failed: {first}",),
+    )
+
+
 def _has_param(builder: str, name: str) -> bool:
     import inspect
 
@@ -619,6 +654,8 @@ def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes
             "formula; a textbook non-degenerate formula for these would be less accurate."
         )
     for b in boundaries:
+        if b.status == "error" or any(n.startswith("auto treatment failed") for n in b.notes):
+            out.append(f"{b.target}, {order_name(b.order)}: " + b.notes[-1])
         if b.status == "ill_defined":
             out.append(f"{b.target}, {order_name(b.order)}: validity boundary ill defined — " + (b.notes[-1] if b.notes else ""))
     out.extend(n for n in trunc_notes)
@@ -655,6 +692,8 @@ def _verdict_sentence(name, spec, lam, e, thr, relative, ok, b: ValidityBoundary
         s += f" It meets the tolerance over the whole range searched (|λ| ≤ {b.max_coupling:.4g})."
     elif b.status == "fails_at_zero":
         s += " It does not meet the tolerance at any nonzero coupling."
+    elif b.status == "error":
+        s += " Its validity boundary could not be found (see the cautions)."
     return s
 
 
