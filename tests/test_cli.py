@@ -153,6 +153,7 @@ def test_missing_and_non_hermitian_files(tmp_path, capsys):
         ('[model]\nbuiltin = "two_level"\n', ["--coupling", "0.1", "--orders", "x"], "order must be"),
         ('[model]\nbuiltin = "two_level"\n', ["--coupling", "0.1", "--quantity", "f = e e"], "cannot read quantity"),
         ('[model]\nbuiltin = "two_level"\n', ["--coupling", "0.1", "--rtol", "-1"], "rtol"),
+        ('[model]\nbuiltin = "two_level"\n', ["--coupling", "0.1", "--backend", "gpu"], "backend must be one of"),
     ],
 )
 def test_bad_input_in_process(tmp_path, capsys, toml, args, match):

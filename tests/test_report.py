@@ -172,3 +172,29 @@ def test_bad_input():
         run_check(m, [0], ["two"], coupling=0.1)
     with pytest.raises(TypeError, match="Model"):
         run_check("two_level", [0], [2], coupling=0.1)
+
+
+def test_failed_boundary_search_is_reported_not_raised(monkeypatch):
+    real = rp.validity_boundary
+
+    def auto_fails(model, target, spec, *, treatment, **kw):
+        if treatment == "auto":
+            raise ValueError("the block grows beyond max_size")
+        return real(model, target, spec, treatment=treatment, **kw)
+
+    monkeypatch.setattr(rp, "validity_boundary", auto_fails)
+    r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5)
+    (b,) = r.boundaries
+    assert b.status == "found" and b.treatment == "nondegenerate"
+    assert b.coupling == pytest.approx(closed_form_boundary(2, 1e-5), rel=2e-3)  # closed form, as above
+    assert any("auto treatment failed" in c for c in r.cautions)
+
+    def always_fails(*a, **k):
+        raise ValueError("no luck")
+
+    monkeypatch.setattr(rp, "validity_boundary", always_fails)
+    r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5)
+    assert r.boundaries[0].status == "error" and math.isnan(r.boundaries[0].coupling)
+    assert r.verdicts[0].valid  # the error at λ is still judged from the comparison
+    assert any("search failed" in c for c in r.cautions)
+    json.loads(to_json(r), parse_constant=lambda c: pytest.fail(c))
