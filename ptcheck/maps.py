@@ -18,13 +18,16 @@ value is one independent task, run on any :class:`concurrent.futures.Executor`:
 
 Tasks are the module-level function :func:`_map_task` applied to picklable
 jobs, and every task computes exactly what the serial loop computes, so the
-result does not depend on the executor.  Pass a builder by its name in
+result does not depend on the executor.  Each task limits BLAS to one thread
+(with ``threadpoolctl``, when it is installed): tasks side by side then do not
+oversubscribe the cores, and the numbers are bit-for-bit the same everywhere.  Pass a builder by its name in
 :data:`ptcheck.models.BUILDERS` (always importable on workers) or as a
 module-level function.
 """
 
 from __future__ import annotations
 
+import contextlib
 import html
 import math
 import warnings
@@ -215,8 +218,27 @@ def _resolve_builder(builder: Any) -> Callable[..., Model]:
     return builder
 
 
+def _single_thread_blas() -> Any:
+    """Context limiting BLAS to one thread (no-op without threadpoolctl).
+
+    Tasks run side by side on the cores; multi-threaded BLAS inside each would
+    oversubscribe them.  The same limit in every task (serial ones too) also
+    makes the numbers bit-for-bit the same on every executor.
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # optional dependency
+        return contextlib.nullcontext()
+    return threadpool_limits(limits=1, user_api="blas")
+
+
 def _map_task(job: _Job) -> _Point:
     """Compute one parameter value of a validity map (runs on a worker)."""
+    with _single_thread_blas():
+        return _map_point(job)
+
+
+def _map_point(job: _Job) -> _Point:
     prefix = f"{job.param_name} = {job.value:g}: " if isinstance(job.value, (int, float)) else f"{job.param_name} = {job.value!r}: "
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
