@@ -255,7 +255,8 @@ def _png(canvas: Any) -> bytes:
     from PIL import Image
 
     buf = io.BytesIO()
-    Image.fromarray(np.asarray(canvas.buffer_rgba())).save(buf, format="png", compress_level=1)
+    rgb = np.ascontiguousarray(np.asarray(canvas.buffer_rgba())[..., :3])  # opaque figure: alpha carries nothing
+    Image.fromarray(rgb).save(buf, format="png", compress_level=1)
     return buf.getvalue()
 
 
