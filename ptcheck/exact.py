@@ -1,12 +1,50 @@
-"""Exact side: eigen-solvers (dense, sparse, qutip) and level tracking along the coupling.
+"""Exact side of the comparison: eigensolvers and level tracking.
 
-"Level n at λ" is the exact eigenstate continuously connected to unperturbed
-level n (the work-basis unit vector e_n at λ = 0).  It is followed along each
-ray of couplings (λ > 0 and λ < 0 separately) by overlap continuity: states at
-consecutive couplings are matched with an assignment on |⟨ψ_prev|φ⟩|², and
-the step is refined (midpoints inserted, recursively) wherever the match is
-ambiguous.  A crossing narrower than the refinement can resolve is followed
-diabatically and reported with a :class:`~ptcheck.errors.TrackingWarning`.
+"Level n at λ" is the exact eigenstate continuously connected to the
+unperturbed level n (the work-basis unit vector e_n at λ = 0; inside an exactly
+degenerate group of H0 the model has already rotated the basis to the good
+states, so e_n is still the λ → 0 limit).  It is followed along the coupling
+path by overlap continuity; positive and negative couplings are separate rays
+from 0.
+
+Tracking rules (all thresholds are class attributes of :class:`ExactSolver`):
+
+* identities are carried from one path point to the next with
+  ``scipy.optimize.linear_sum_assignment`` on the squared overlaps
+  ``|⟨ψ_i(λ_a)|ψ_j(λ_b)⟩|²``; a cluster of numerically equal eigenvalues is
+  first rotated to match the previous point (so an exact crossing is followed
+  diabatically, as it must be);
+* a step is *refined* (the midpoint is inserted, recursively, up to
+  ``max_depth`` halvings) when a tracked level's best overlap is below
+  ``MIN_OVERLAP`` = 0.8, or when it swapped energy order with a state it is
+  coupled to (``|⟨ψ_t|V|ψ_q⟩|`` above what the solver's residual can explain),
+  i.e. when the step jumped over an avoided crossing;
+* if the depth cap is reached, the level is continued diabatically (largest
+  overlap), a note is recorded in the result and a
+  :class:`~ptcheck.errors.TrackingWarning` is emitted;
+* the window of eigenpairs holds the tracked levels plus ``pad`` neighbours
+  on each side; it is widened when a tracked level is lost (its weight in the
+  window drops below ``LOST_WEIGHT`` = 0.9) or sits on the window edge.
+
+Avoided crossings met on the way are reported for each tracked level: interior
+local minima of the gap to its nearest neighbouring eigenvalue along the path
+(sampled couplings plus refinement points) whose neighbour keeps its identity
+through the minimum, refined by successive parabolic interpolation of the
+squared gap with a few extra exact solves.
+
+Backends (``BACKENDS``) and the ``'auto'`` rule (:func:`auto_backend`):
+
+* ``'dense'``: ``scipy.linalg.eigh`` (``subset_by_index`` windows); refuses a
+  basis larger than :data:`ptcheck.model.DENSE_LIMIT`;
+* ``'sparse'``: warm-started Chebyshev-filtered subspace iteration for the
+  lowest levels (ARPACK ``eigsh`` for cold starts and as fallback) and ARPACK
+  shift-invert for windows high in the spectrum;
+* ``'qutip'``: ``qutip.Qobj(H).eigenstates``;
+* ``'auto'``: ``'dense'`` if N <= 200; else ``'sparse'`` if V is stored sparse
+  with at most 10 % non-zeros; else ``'dense'`` if N <= DENSE_LIMIT; else
+  ``'sparse'``.
+
+Energies are in the units of H0; couplings are dimensionless; ħ = 1.
 """
 
 from __future__ import annotations
@@ -17,130 +55,245 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import scipy.linalg as sla
 import scipy.sparse as sp
-from scipy.optimize import linear_sum_assignment, minimize_scalar
 
 from . import _validation as val
-from .errors import BasisTooLargeError, TrackingWarning
+from ._eigensolvers import make_backend
+from ._tracking import (
+    PathPoint,
+    align_clusters,
+    assign,
+    fix_phase,
+    gap_minima,
+    overlaps,
+    parabolic_minimum,
+)
+from .errors import TrackingWarning
 from .model import DENSE_LIMIT, Model
 
-__all__ = ["BACKENDS", "AvoidedCrossing", "ExactSweep", "ExactSolver", "track", "eigenpairs"]
+__all__ = [
+    "BACKENDS",
+    "AvoidedCrossing",
+    "ExactSweep",
+    "ExactSolver",
+    "track",
+    "eigenpairs",
+    "auto_backend",
+]
 
-#: Exact backends.  ``"auto"``: dense for N <= 1500 or a dense V, sparse otherwise.
 BACKENDS = ("auto", "dense", "sparse", "qutip")
-_AUTO_DENSE_MAX = 1500
-_FULL_DENSE_MAX = 600  # below this a dense solve returns the whole spectrum
-_AMBIGUOUS = 0.6  # an overlap |<prev|new>|^2 below this is not a clear match
-_MAX_DEPTH = 14  # step refinements (2^-14 of a step) before giving up and going diabatic
+
+#: 'auto' uses LAPACK up to this basis size whatever the storage.
+AUTO_DENSE_MAX = 200
+#: 'auto' treats V as sparse if stored sparse with at most this fraction of non-zeros.
+AUTO_SPARSE_DENSITY = 0.10
+#: The sparse backend serves windows reaching down to the ground state up to this
+#: rank with its warm-started lowest-levels solver; higher windows use shift-invert.
+LOWEST_WINDOW_MAX = 64
 
 
-def _ro(a: Any) -> np.ndarray:
-    a = np.array(a)
+def _readonly(a: np.ndarray) -> np.ndarray:
+    a = np.asarray(a)
     a.setflags(write=False)
     return a
 
 
+def auto_backend(model: Model, n_levels: int | None = None) -> str:
+    """The backend ``'auto'`` resolves to for ``model``.
+
+    Rule: ``'dense'`` if N <= 200 (LAPACK is fast and exact there); else
+    ``'sparse'`` if ``model.v`` is stored sparse with density <= 10 %;
+    else ``'dense'`` if N <= DENSE_LIMIT; else ``'sparse'``.  ``n_levels`` is
+    accepted for future use and does not change the rule.
+    """
+    n = model.n
+    if n <= AUTO_DENSE_MAX:
+        return "dense"
+    v = model.v
+    if sp.issparse(v) and v.nnz <= AUTO_SPARSE_DENSITY * float(n) * n:
+        return "sparse"
+    if n <= DENSE_LIMIT:
+        return "dense"
+    return "sparse"
+
+
+# ============================================================================ results
 @dataclass(frozen=True)
 class AvoidedCrossing:
-    """An avoided crossing met by a tracked level.
+    """An avoided crossing met by a tracked level along the coupling path.
 
     Attributes
     ----------
     coupling : float
-        Coupling λ of the smallest gap.
+        Position λ of the minimum gap (dimensionless).
     min_gap : float
-        Smallest gap between the two levels (energy units).
+        Minimum distance between the two exact levels (energy units).
     levels : tuple of int
-        The tracked level and its partner (work indices; partner ``-1`` if it
-        could not be identified with an unperturbed level).
+        (tracked level, partner), work-basis indices of the unperturbed levels
+        the two exact states are connected to.  When the partner was not tracked
+        its identity is carried by overlap continuity inside the eigenpair
+        window; if it entered the window later, the index of its largest
+        work-basis component is given instead and its label ends in ``"?"``.
     labels : tuple of str
+        Printable names of the two levels.
     """
 
     coupling: float
     min_gap: float
-    levels: tuple
-    labels: tuple
+    levels: tuple[int, int]
+    labels: tuple[str, str]
 
     def to_dict(self) -> dict:
-        return {"coupling": self.coupling, "min_gap": self.min_gap, "levels": list(self.levels), "labels": list(self.labels)}
+        return {
+            "coupling": float(self.coupling),
+            "min_gap": float(self.min_gap),
+            "levels": [int(self.levels[0]), int(self.levels[1])],
+            "labels": [str(self.labels[0]), str(self.labels[1])],
+        }
+
+    def __repr__(self) -> str:
+        return (
+            f"AvoidedCrossing({self.labels[0]} ~ {self.labels[1]} at λ={self.coupling:.6g}, "
+            f"min_gap={self.min_gap:.4g})"
+        )
 
 
 @dataclass(frozen=True, repr=False, eq=False)
 class ExactSweep:
-    """Tracked exact levels over a set of couplings.
+    """Exact energies (and states) of tracked levels over a set of couplings.
 
     Attributes
     ----------
-    couplings : (C,) ndarray
-        Couplings in the order given.
+    couplings : (C,) ndarray, read-only
+        Couplings λ in the order given by the user.
     levels : tuple of int
-        Work indices of the tracked levels (length L).
-    energies : (L, C) ndarray
-        Exact energies (energy units).
-    states : (L, C, N) ndarray or None
-        Exact states in the work basis, normalised, phase continuous along each ray.
+        Work-basis indices of the tracked levels (L of them).
+    energies : (L, C) ndarray, read-only
+        Exact energy of each tracked level at each coupling (energy units).
+    states : (L, C, N) ndarray or None, read-only
+        Normalised exact states in the work basis, phase fixed so that
+        ⟨e_n|ψ_n⟩ is real and >= 0 where it is not tiny (|.| > 1e-6), and
+        continuous along the path elsewhere.  ``None`` if not kept.
     avoided_crossings : tuple of AvoidedCrossing
+        Avoided crossings met by the tracked levels (ordered by coupling).
     backend : str
-        Backend actually used.
+        The backend actually used (``'dense'``, ``'sparse'`` or ``'qutip'``).
     solves : int
-        Exact diagonalisations used.
+        Number of exact diagonalisations this sweep needed.
     notes : tuple of str
+        Numerical remarks (crossings too narrow to resolve, solver fallbacks).
+    labels : tuple of str
+        Printable names of the tracked levels.
     """
 
     couplings: np.ndarray
-    levels: tuple
+    levels: tuple[int, ...]
     energies: np.ndarray
     states: np.ndarray | None
-    avoided_crossings: tuple
+    avoided_crossings: tuple[AvoidedCrossing, ...]
     backend: str
     solves: int
-    labels: tuple = ()
-    notes: tuple = field(default=())
+    notes: tuple[str, ...]
+    labels: tuple[str, ...] = field(default=())
 
-    def energy(self, level: int) -> np.ndarray:
-        """Energies of one tracked level, shape (C,)."""
-        if level not in self.levels:
-            raise ValueError(f"level {level} was not tracked; tracked levels are {list(self.levels)}")
-        return self.energies[self.levels.index(level)]
+    def _row(self, level: Any) -> int:
+        if isinstance(level, (int, np.integer)) and not isinstance(level, bool) and int(level) in self.levels:
+            return self.levels.index(int(level))
+        if isinstance(level, str) and level in self.labels:
+            return self.labels.index(level)
+        raise ValueError(f"level {level!r} was not tracked in this sweep; tracked levels: {list(self.levels)}")
 
-    def __repr__(self) -> str:
-        return (
-            f"ExactSweep(levels={list(self.levels)}, couplings={self.couplings.size}, backend={self.backend!r}, "
-            f"solves={self.solves}, avoided_crossings={len(self.avoided_crossings)})"
-        )
+    def energy(self, level: Any) -> np.ndarray:
+        """Energies of one tracked level (work index or label), shape (C,)."""
+        return self.energies[self._row(level)]
+
+    def state(self, level: Any) -> np.ndarray:
+        """States of one tracked level, shape (C, N); raises if states were not kept."""
+        if self.states is None:
+            raise ValueError("this sweep was computed with keep_states=False")
+        return self.states[self._row(level)]
 
     def to_dict(self) -> dict:
+        """JSON-safe summary (states are not included; use :attr:`states`)."""
         return {
             "couplings": self.couplings.tolist(),
             "levels": list(self.levels),
             "labels": list(self.labels),
             "energies": self.energies.tolist(),
+            "has_states": self.states is not None,
             "avoided_crossings": [a.to_dict() for a in self.avoided_crossings],
             "backend": self.backend,
-            "solves": self.solves,
+            "solves": int(self.solves),
             "notes": list(self.notes),
         }
 
+    def __repr__(self) -> str:
+        lab = ", ".join(self.labels) if self.labels else ", ".join(map(str, self.levels))
+        c = self.couplings
+        span = f"{c.min():.4g}..{c.max():.4g}" if c.size else "-"
+        return (
+            f"ExactSweep(levels=[{lab}], C={c.size}, λ={span}, backend={self.backend!r}, "
+            f"solves={self.solves}, avoided_crossings={len(self.avoided_crossings)}, notes={len(self.notes)})"
+        )
+
     def _repr_html_(self) -> str:
-        ac = "".join(
-            f"<li>{html.escape(' / '.join(a.labels))} at λ = {a.coupling:.4g}, min gap {a.min_gap:.3g}</li>"
+        esc = html.escape
+        rows = "".join(
+            f"<tr><td>{esc(a.labels[0])} ~ {esc(a.labels[1])}</td><td>{a.coupling:.6g}</td><td>{a.min_gap:.4g}</td></tr>"
             for a in self.avoided_crossings
         )
-        return f"<code>{html.escape(repr(self))}</code><ul>{ac}</ul>"
+        table = (
+            f"<table><tr><th>pair</th><th>λ</th><th>min gap</th></tr>{rows}</table>" if rows else "<p>no avoided crossings</p>"
+        )
+        notes = "".join(f"<li>{esc(n)}</li>" for n in self.notes)
+        return (
+            f"<b>Exact sweep</b>: {len(self.levels)} level(s), {self.couplings.size} couplings, "
+            f"backend {esc(self.backend)}, {self.solves} solves{table}"
+            + (f"<ul>{notes}</ul>" if notes else "")
+        )
+
+
+# ============================================================================ solver
+@dataclass
+class _Raw:
+    """One exact solve: spec, energies, vectors."""
+
+    spec: tuple
+    coupling: float
+    energies: np.ndarray
+    vectors: np.ndarray
+    lo: int | None
+    top: bool
+    res_tol: float
+
+
+@dataclass
+class _StepCheck:
+    ok: bool
+    lost: bool
+    problems: list  # (level, partner_id, kind)
 
 
 class ExactSolver:
-    """Exact eigenpairs of ``H0 + λV`` with caching and level tracking.
+    """Exact eigenpairs and tracked levels of one model, with a cache of path points.
 
     Parameters
     ----------
     model : Model
-    backend : {"auto", "dense", "sparse", "qutip"}
-        ``"auto"`` uses dense LAPACK for N <= 1500 or a dense V, sparse Lanczos
-        (``eigsh``, shift-invert when an energy estimate is known) otherwise.
+    backend : {'auto', 'dense', 'sparse', 'qutip'}, default 'auto'
+        See the module docstring for the ``'auto'`` rule.
     n_levels_hint : int, optional
-        How many levels will be tracked (sizes the eigenpair window).
+        How many levels the caller will follow (accepted for sizing; windows
+        are sized from the levels actually requested).
+    rtol : float, default 1e-8
+        Residual tolerance of the iterative solvers relative to the spectral
+        scale ``max|E0| + |λ| ‖V‖``: ``‖Hψ - Eψ‖ <= rtol x scale``.  Energies are
+        then accurate to about ``(rtol x scale)² / gap``.
+    max_depth : int, default 16
+        Largest number of step halvings when refining an ambiguous step.
+    cache_mb : float, default 256
+        Memory budget of the path-point cache (least recently used points are
+        dropped first).
 
     Attributes
     ----------
@@ -148,317 +301,586 @@ class ExactSolver:
         Running count of exact diagonalisations.
     backend : str
         The resolved backend.
+    notes : list of str
+        Tracking remarks accumulated by :meth:`level_at` (crossings too narrow
+        to resolve); :meth:`track` reports its own in the result.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from ptcheck import Model
+    >>> m = Model(np.diag([0.0, 1.0, 3.0]), 0.2 * np.ones((3, 3)))
+    >>> s = ExactSolver(m)
+    >>> e, psi = s.level_at(1, 0.5)
+    >>> psi.shape
+    (3,)
     """
 
-    def __init__(self, model: Model, *, backend: str = "auto", n_levels_hint: int | None = None) -> None:
-        backend = val.check_choice(backend, "backend", BACKENDS)
-        if backend == "auto":
-            backend = "dense" if (model.n <= _AUTO_DENSE_MAX or not sp.issparse(model.v)) else "sparse"
-        if backend in ("dense", "qutip") and model.n > DENSE_LIMIT:
-            raise BasisTooLargeError(
-                f"backend {backend!r} needs a dense {model.n} x {model.n} matrix (N > {DENSE_LIMIT}); "
-                "use backend='sparse' (or 'auto') for a basis this large"
-            )
-        if backend == "sparse" and model.n < 3:
-            backend = "dense"
+    MIN_OVERLAP = 0.8
+    LOST_WEIGHT = 0.9
+    MATCH_OVERLAP = 0.5
+
+    def __init__(
+        self,
+        model: Model,
+        *,
+        backend: str = "auto",
+        n_levels_hint: int | None = None,
+        rtol: float = 1e-8,
+        max_depth: int = 16,
+        cache_mb: float = 256.0,
+    ) -> None:
+        if not isinstance(model, Model):
+            raise TypeError(f"model must be a ptcheck.Model; got {type(model).__name__}")
+        val.check_choice(backend, "backend", BACKENDS)
+        if n_levels_hint is not None:
+            n_levels_hint = val.check_int(n_levels_hint, "n_levels_hint", minimum=1, maximum=model.n)
+        self.rtol = float(val.check_positive(rtol, "rtol"))
+        self.max_depth = val.check_int(max_depth, "max_depth", minimum=0)
+        self._cache_budget = float(val.check_positive(cache_mb, "cache_mb")) * 2**20
         self.model = model
-        self.backend = backend
+        self.n_levels_hint = n_levels_hint
+        self.backend = auto_backend(model, n_levels_hint) if backend == "auto" else backend
+        self._rng = np.random.default_rng(20240607)
+        self._impl = make_backend(self.backend, model, rtol=self.rtol, rng=self._rng)
         self.solves = 0
-        self._hint = max(1, int(n_levels_hint or 1))
-        # per ray (+1/-1): {s: {level: (energy, state)}}
-        self._paths: dict[int, dict[float, dict[int, tuple[float, np.ndarray]]]] = {1: {}, -1: {}}
-        self._windows: dict[float, tuple[np.ndarray, np.ndarray]] = {}
+        self._spread = float(max(np.max(np.abs(model.e0)), np.ptp(model.e0))) if model.n else 0.0
+        self._cache: dict[int, list[PathPoint]] = {+1: [], -1: []}
+        self._cache_clock = 0
+        self._cache_used: dict[int, int] = {}
+        self._anon = -1
         self.notes: list[str] = []
 
-    # ---------------------------------------------------------------- eigen-solvers
-    def eigenpairs(self, coupling: float, *, k: int, sigma: float | None = None) -> tuple[np.ndarray, np.ndarray]:
-        """``k`` eigenvalues (ascending) and vectors ``(N, k)`` at ``coupling``.
+    def __repr__(self) -> str:
+        return f"ExactSolver({self.model!r}, backend={self.backend!r}, solves={self.solves})"
 
-        The lowest ``k`` when ``sigma`` is None, else the ``k`` nearest ``sigma``.
+    # ------------------------------------------------------------------ basics
+    def _scale(self, coupling: float) -> float:
+        return self._spread + abs(coupling) * self.model.norm_v if self.model.n else 1.0
+
+    def _res_tol(self, coupling: float) -> float:
+        rel = self.rtol if self._impl.iterative else 1e-12
+        return rel * max(self._scale(coupling), 1e-300)
+
+    def eigenpairs(self, coupling: float, *, k: int, sigma: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """k exact eigenpairs of H(λ) in the work basis.
+
+        Parameters
+        ----------
+        coupling : float
+        k : int
+            Number of eigenpairs, 1 <= k <= N.
+        sigma : float, optional
+            If given, the k eigenvalues closest to ``sigma`` (energy units);
+            otherwise the k lowest.
+
+        Returns
+        -------
+        energies : (k,) ndarray, ascending (energy units)
+        vectors : (N, k) ndarray, orthonormal columns
         """
         lam = val.as_coupling(coupling)
-        n = self.model.n
-        k = int(min(max(k, 1), n))
+        k = val.check_int(k, "k", minimum=1, maximum=self.model.n)
+        if sigma is not None:
+            sigma = val.as_coupling(sigma, "sigma")
         self.solves += 1
-        h = self.model.hamiltonian(lam)
-        if self.backend == "qutip":
-            import qutip
-
-            q = qutip.Qobj(h)
-            w, vecs = q.eigenstates()
-            vec = np.column_stack([v.full().ravel() for v in vecs])
-            return self._select(np.asarray(w, dtype=float), vec, k, sigma)
-        if self.backend == "dense" or k >= n - 1:
-            hd = h.toarray() if sp.issparse(h) else h
-            if n <= _FULL_DENSE_MAX or sigma is not None or k >= n:
-                w, vec = sla.eigh(hd)
-                return self._select(w, vec, k, sigma)
-            w, vec = sla.eigh(hd, subset_by_index=[0, k - 1])
-            return w, vec
-        from scipy.sparse.linalg import ArpackNoConvergence, eigsh
-
-        hs = sp.csr_matrix(h)
-        try:
-            if sigma is None:
-                w, vec = eigsh(hs, k=k, which="SA", tol=1e-12)
-            else:
-                w, vec = eigsh(hs, k=k, sigma=sigma, which="LM", tol=1e-12)
-        except ArpackNoConvergence as exc:  # pragma: no cover - rare
-            raise RuntimeError(f"sparse eigensolver did not converge at coupling {lam:g}: {exc}") from None
-        order = np.argsort(w)
-        return w[order], vec[:, order]
-
-    @staticmethod
-    def _select(w: np.ndarray, vec: np.ndarray, k: int, sigma: float | None):
         if sigma is None:
-            return w[:k], vec[:, :k]
-        idx = np.sort(np.argsort(np.abs(w - sigma))[:k])
-        return w[idx], vec[:, idx]
+            return self._impl.lowest(lam, k)
+        return self._impl.nearest(lam, sigma, k)
 
-    def _window(self, lam: float, prev_energies: list[float]) -> tuple[np.ndarray, np.ndarray]:
-        """Eigenpairs around the previous energies of the levels being followed."""
-        key = float(lam)
-        if key in self._windows:
-            return self._windows[key]
+    # ------------------------------------------------------------------ windows
+    def _pad(self) -> int:
+        return 1 if not self._impl.supports_rank_window else 2
+
+    def _origin(self, tracked: frozenset) -> PathPoint:
+        """λ = 0: unit vectors around the tracked levels."""
         n = self.model.n
-        if self.backend in ("dense", "qutip") and n <= _FULL_DENSE_MAX:
-            out = self.eigenpairs(lam, k=n)
-        else:
-            pad = 6
-            # how many eigenvalues lie below the highest previous energy (estimate from H0 ranks)
-            top = max(prev_energies)
-            rank = int(np.searchsorted(self.model.e0, top + self.model.norm_v * abs(lam), side="right"))
-            k = min(n, max(rank, len(prev_energies)) + pad)
-            if k <= max(3 * self._hint + pad, 40) or self.backend == "dense":
-                out = self.eigenpairs(lam, k=k)
-            else:
-                span = max(prev_energies) - min(prev_energies)
-                out = self.eigenpairs(lam, k=min(n - 1, len(prev_energies) + 2 * pad), sigma=float(np.mean(prev_energies)) - 1e-7 * (1 + span))
-        self._windows[key] = out
-        return out
+        pad = self._pad()
+        members = set(tracked)
+        for t in tracked:
+            g = self.model.degenerate_group_of(t)
+            if g is not None:
+                members.update(g)
+        lo = max(0, min(members) - pad)
+        hi = min(n, max(members) + pad + 1)
+        if not self._impl.supports_rank_window and hi <= LOWEST_WINDOW_MAX:
+            lo = 0
+        idx = np.arange(lo, hi)
+        x = np.zeros((n, idx.size), dtype=self.model.dtype)
+        x[idx, np.arange(idx.size)] = 1.0
+        return PathPoint(
+            coupling=0.0,
+            energies=np.array(self.model.e0[lo:hi], dtype=float),
+            vectors=x,
+            ids=idx.astype(np.int64),
+            lo=lo,
+            top=hi == n,
+            res_tol=0.0,
+            certified=frozenset(range(n)),
+        )
 
-    # ---------------------------------------------------------------- tracking core
-    def _start(self, ray: int, s: float, levels: list[int]) -> tuple[float, dict[int, tuple[float, np.ndarray]]]:
-        """Nearest cached point below s on this ray where all levels are known (λ = 0 always is)."""
-        best = 0.0
-        path = self._paths[ray]
-        for s0, known in path.items():
-            if best < s0 < s and all(n in known for n in levels):
-                best = s0
-        if best == 0.0:
-            return self._origin(ray, levels, s)
-        return best, path[best]
+    def _seed(self, origin: PathPoint, ray: int, tracked: frozenset, first: float, notes: list) -> PathPoint | None:
+        """Exact states of degenerate groups at a tiny coupling, by the block convention.
 
-    def _origin(self, ray: int, levels: list[int], s: float) -> tuple[float, dict]:
-        """Starting states: e_n at λ = 0; for exactly degenerate groups, exact states at a tiny coupling.
-
-        Inside a degenerate group the λ → 0 limit of a branch is fixed only by V (the model's good
-        states) or, where V leaves a tie, by higher orders.  The group's exact states at a coupling
-        far below any structure are assigned to its levels by first-order shift along this ray, ties
-        in ascending energy — the same convention as the block treatment.
+        Inside an exactly degenerate group of H0 the λ → 0 limit of a branch is
+        fixed by V (the model's good states) or, where V leaves a tie, only by
+        higher orders.  At a coupling ``ε`` far below any structure
+        (``ε = c x`` distance to the nearest other level ``/ ‖V‖``, c = 1e-4 for
+        LAPACK backends and 1e-2 for the iterative one, at most half the first
+        coupling asked for) the group's exact states are given to its levels in
+        order of first-order shift along this ray, ties in ascending energy —
+        the convention of the block treatment.  ``None`` if no tracked level
+        lies in a degenerate group.
         """
-        known = {n: (float(self.model.e0[n]), _unit(self.model.n, n)) for n in levels}
-        groups = [g for g in self.model.degenerate_groups if any(n in g for n in levels)]
-        if not groups:
-            return 0.0, known
         model = self.model
-        nv = max(model.norm_v, 1e-300)
-        eps_all = []
+        groups = []
+        for g in model.degenerate_groups:
+            if any(t in g for t in tracked) and g not in groups:
+                groups.append(g)
+        if not groups or model.norm_v == 0.0:
+            return None
+        factor = 1e-2 if self._impl.iterative else 1e-4
+        eps = np.inf
         for g in groups:
             d = np.abs(model.e0 - model.e0[g[0]])
             d = d[d > model.degeneracy_tol]
-            eps_all.append(1e-4 * (d.min() if d.size else 1.0) / nv)
-        eps = min(min(eps_all), 0.5 * s) if s > 0 else min(eps_all)
-        w, vec = self._window(ray * eps, [model.e0[g[0]] for g in groups] + [known[n][0] for n in levels])
+            eps = min(eps, factor * (d.min() if d.size else 1.0) / model.norm_v)
+        eps = float(min(eps, 0.5 * first))
+        lam = ray * eps
+        raw = self._solve(lam, ("rank", origin.lo, origin.lo + origin.energies.size)
+                          if self._impl.supports_rank_window or origin.lo == 0 else self._spec(origin, tracked, self._pad()),
+                          origin.vectors)
+        b, check = self._match(origin, raw, tracked)
         vdiag = model.v_diagonal()
-        scale = nv
+        scale = max(model.norm_v, 1e-300)
+        ids = b.ids.copy()
+        x = b.vectors
         for g in groups:
             gi = np.asarray(g)
-            weight = np.sum(np.abs(vec[gi, :]) ** 2, axis=0)
+            weight = np.sum(np.abs(x[gi, :]) ** 2, axis=0)
             cols = np.sort(np.argsort(weight)[-len(g):])
-            cols = cols[np.argsort(w[cols], kind="stable")]
+            cols = cols[np.argsort(b.energies[cols], kind="stable")]
             key = np.round(ray * vdiag[gi] / (1e-9 * scale))
             members = gi[np.lexsort((gi, key))]
-            for n, c in zip(members, cols):
-                psi = vec[:, c].copy()
-                ph = np.vdot(_unit(model.n, int(n)), psi)
-                if abs(ph) > 1e-8:
-                    psi *= np.conj(ph) / abs(ph)
-                known[int(n)] = (float(w[c]), psi)
-        # other levels: follow from λ = 0 to eps
-        rest = [n for n in levels if not any(n in g for g in groups)]
-        if rest:
-            known.update(self._step(ray, 0.0, {n: known[n] for n in rest}, eps, rest))
-        self._paths[ray].setdefault(eps, {}).update({n: known[n] for n in levels})
-        return eps, {n: known[n] for n in levels}
+            for mem in members:
+                ids[ids == mem] = self._new_id()
+            ids[cols] = members
+        b.ids = ids
+        fix_phase(x, ids, None, None)
+        for t, partner, kind in check.problems:
+            if model.degenerate_group_of(t) is None and kind != "lost":
+                msg = f"level {model.label(t)}: ambiguous already at the seed coupling λ={lam:.3g}"
+                if msg not in notes:
+                    notes.append(msg)
+        return b
 
-    def _step(self, ray: int, s0: float, known: dict, s1: float, levels: list[int], depth: int = 0) -> dict:
-        lam = ray * s1
-        w, vec = self._window(lam, [known[n][0] for n in levels])
-        prev = np.stack([known[n][1] for n in levels], axis=1)  # (N, L)
-        ov = np.abs(prev.conj().T @ vec) ** 2  # (L, K)
-        rows, cols = linear_sum_assignment(-ov)
-        got = ov[rows, cols]
-        second = np.array([np.max(np.delete(ov[r], c)) if ov.shape[1] > 1 else 0.0 for r, c in zip(rows, cols)])
-        ambiguous = bool(np.any(got < _AMBIGUOUS) or np.any(got - second < 0.3))
-        if ambiguous and depth < _MAX_DEPTH and s1 - s0 > 1e-12 * max(1.0, s1):
-            mid = 0.5 * (s0 + s1)
-            kn_mid = self._step(ray, s0, known, mid, levels, depth + 1)
-            return self._step(ray, mid, kn_mid, s1, levels, depth + 1)
-        if ambiguous:
-            msg = (
-                f"levels {[self.model.label(n) for n in levels]} could not be followed unambiguously near "
-                f"λ = {lam:.6g} (a crossing narrower than {s1 - s0:.2g} in λ); continued by best overlap"
-            )
-            if msg not in self.notes:
-                self.notes.append(msg)
-                warnings.warn(msg, TrackingWarning, stacklevel=4)
-        out = {}
-        for r, c in zip(rows, cols):
-            n = levels[r]
-            psi = vec[:, c].copy()
-            ph = np.vdot(known[n][1], psi)
-            if abs(ph) > 0:
-                psi *= np.conj(ph) / abs(ph)
-            out[n] = (float(w[c]), psi)
-        self._paths[ray].setdefault(s1, {}).update(out)
+    def _spec(self, a: PathPoint, tracked: frozenset, pad: int) -> tuple:
+        n = self.model.n
+        cols = [a.column(t) for t in tracked]
+        cols = [c for c in cols if c is not None]
+        if not cols:
+            cols = list(range(a.energies.size))
+        cmin, cmax = min(cols), max(cols)
+        if a.lo is not None:
+            rmin, rmax = a.lo + cmin, a.lo + cmax
+            lo = max(0, rmin - pad)
+            hi = min(n, rmax + pad + 1)
+            if self._impl.supports_rank_window:
+                return ("rank", lo, hi)
+            if hi <= LOWEST_WINDOW_MAX:
+                return ("rank", 0, hi)
+        e = a.energies
+        sigma = 0.5 * (e[cmin] + e[cmax])
+        k = min(n, (cmax - cmin + 1) + 2 * pad)
+        return ("sigma", float(sigma), int(k))
+
+    def _solve(self, coupling: float, spec: tuple, start: np.ndarray | None) -> _Raw:
+        self.solves += 1
+        n = self.model.n
+        if spec[0] == "rank":
+            lo, hi = spec[1], spec[2]
+            w, x = self._impl.lowest(coupling, hi, start) if lo == 0 else self._impl.window(coupling, lo, hi, start)
+            w, x = np.asarray(w, dtype=float), np.asarray(x)
+            return _Raw(spec, coupling, w, x, lo, hi == n, self._res_tol(coupling))
+        sigma, k = spec[1], spec[2]
+        w, x = self._impl.nearest(coupling, sigma, k, start)
+        return _Raw(spec, coupling, np.asarray(w, dtype=float), np.asarray(x), None, False, self._res_tol(coupling))
+
+    # ------------------------------------------------------------------ one step
+    def _new_id(self) -> int:
+        self._anon -= 1
+        return self._anon + 1
+
+    def _match(self, a: PathPoint, raw: _Raw, tracked: frozenset) -> tuple[PathPoint, _StepCheck]:
+        """Carry identities from ``a`` to the solve ``raw`` and judge the step."""
+        ctol = 10.0 * max(raw.res_tol, a.res_tol)
+        w, x = align_clusters(a.vectors, raw.energies, raw.vectors, ctol)
+        if not x.flags.writeable or x is raw.vectors:
+            x = np.array(x)
+        ov = overlaps(a.vectors, x)
+        col_of = assign(ov)
+        kb = w.size
+        ids = np.full(kb, 0, dtype=np.int64)
+        taken = np.zeros(kb, dtype=bool)
+        match = np.full(kb, -1, dtype=int)
+        for r, c in enumerate(col_of):
+            if c < 0:
+                continue
+            if ov[r, c] >= self.MATCH_OVERLAP or int(a.ids[r]) in tracked:
+                ids[c] = a.ids[r]
+                taken[c] = True
+                match[c] = r
+        for c in np.flatnonzero(~taken):
+            ids[c] = self._new_id()
+        fix_phase(x, ids, a.vectors, match)
+        b = PathPoint(
+            coupling=raw.coupling, energies=w, vectors=x, ids=ids, lo=raw.lo, top=raw.top, res_tol=raw.res_tol,
+            certified=frozenset(tracked),
+        )
+        problems: list = []
+        lost = False
+        vnorm = max(self.model.norm_v, 1e-300)
+        for t in tracked:
+            r = a.column(t)
+            if r is None:
+                continue
+            c = col_of[r]
+            weight = float(np.sum(ov[r]))
+            at_low_edge = c == 0 and raw.lo != 0
+            at_high_edge = c == kb - 1 and not raw.top
+            if c < 0 or weight < self.LOST_WEIGHT or at_low_edge or at_high_edge:
+                lost = True
+                continue
+            if ov[r, c] < self.MIN_OVERLAP:
+                second = np.partition(ov[r], -2)[-2] if kb > 1 else 0.0
+                q = int(np.argmax(np.where(np.arange(kb) == c, -1.0, ov[r])))
+                problems.append((t, int(ids[q]) if second > 0 else None, "ambiguous"))
+                continue
+            # energy-order swaps with coupled states: a skipped avoided crossing
+            ea_t, eb_t = a.energies[r], w[c]
+            for r2, c2 in enumerate(col_of):
+                if r2 == r or c2 < 0 or match[c2] != r2:
+                    continue
+                da = ea_t - a.energies[r2]
+                db = eb_t - w[c2]
+                if da * db >= 0 or abs(da) <= ctol or abs(db) <= ctol:
+                    continue
+                if self._coupled(a, r, r2, abs(da), vnorm) and self._coupled(b, c, c2, abs(db), vnorm):
+                    problems.append((t, int(ids[c2]), "swap"))
+        return b, _StepCheck(ok=not problems and not lost, lost=lost, problems=problems)
+
+    def _coupled(self, p: PathPoint, i: int, j: int, gap: float, vnorm: float) -> bool:
+        """Is |⟨ψ_i|V|ψ_j⟩| larger than eigenvector errors (residual / gap) can explain?"""
+        if p.coupling == 0.0 and p.res_tol == 0.0:
+            elem = abs(self.model.v[p.ids[i], p.ids[j]]) if p.ids[i] >= 0 and p.ids[j] >= 0 else 0.0
+            return bool(elem > 1e-12 * vnorm)
+        vi = self.model.v @ p.vectors[:, i]
+        elem = abs(np.vdot(p.vectors[:, j], vi))
+        noise = 10.0 * (p.res_tol / max(gap, 1e-300)) * 2.0 * vnorm + 1e-12 * vnorm
+        return bool(elem > noise)
+
+    def _step(self, a: PathPoint, coupling: float, tracked: frozenset, raw: _Raw | None) -> tuple[PathPoint, _StepCheck, _Raw]:
+        pad = self._pad()
+        check = None
+        b = None
+        for attempt in range(4):
+            spec = self._spec(a, tracked, pad)
+            if raw is None or raw.spec != spec or raw.coupling != coupling:
+                raw = self._solve(coupling, spec, a.vectors)
+            b, check = self._match(a, raw, tracked)
+            if not check.lost:
+                break
+            pad = 2 * pad + 2
+            if raw.spec[0] == "rank" and raw.lo == 0 and raw.top:
+                break  # whole spectrum already in the window
+        assert b is not None and check is not None
+        if check.lost:
+            check = _StepCheck(ok=False, lost=True, problems=check.problems + [(t, None, "lost") for t in tracked])
+        return b, check, raw
+
+    def _advance(self, a: PathPoint, target: float, tracked: frozenset, notes: list) -> list[PathPoint]:
+        """Path points from ``a`` to ``target`` (same ray), refining where ambiguous."""
+        out: list[PathPoint] = []
+        stack: list[tuple[float, int, _Raw | None]] = [(target, 0, None)]
+        cur = a
+        budget = 8 * (self.max_depth + 2)
+        while stack:
+            lam, depth, raw = stack.pop()
+            b, check, raw = self._step(cur, lam, tracked, raw)
+            if check.ok:
+                out.append(b)
+                cur = b
+                continue
+            if depth < self.max_depth and budget > 0 and not (check.lost and not check.problems):
+                budget -= 1
+                stack.append((lam, depth + 1, raw))
+                stack.append((0.5 * (cur.coupling + lam), depth + 1, None))
+                continue
+            for t, partner, kind in check.problems:
+                if kind == "lost":
+                    msg = (
+                        f"level {self.model.label(t)}: lost from the eigenpair window between λ={cur.coupling:.6g} "
+                        f"and λ={lam:.6g}; continued with the state of largest overlap"
+                    )
+                else:
+                    who = self._name(partner) if partner is not None else "a neighbouring level"
+                    msg = (
+                        f"level {self.model.label(t)}: crossing with {who} between λ={cur.coupling:.6g} and "
+                        f"λ={lam:.6g} is narrower than resolvable (step {abs(lam - cur.coupling):.2g} after "
+                        f"{depth} halvings); followed diabatically"
+                    )
+                if msg not in notes:
+                    notes.append(msg)
+            out.append(b)
+            cur = b
         return out
 
-    def _follow(self, ray: int, s: float, levels: list[int]) -> dict:
-        if s == 0.0:
-            return {n: (float(self.model.e0[n]), _unit(self.model.n, n)) for n in levels}
-        cached = self._paths[ray].get(s)
-        if cached is not None and all(n in cached for n in levels):
-            return cached
-        s0, known = self._start(ray, s, levels)
-        return self._step(ray, s0, known, s, levels)
+    def _name(self, pid: int) -> str:
+        return self.model.label(pid) if pid >= 0 else "an untracked level"
 
-    # ---------------------------------------------------------------- public
-    def level_at(self, level: int, coupling: float) -> tuple[float, np.ndarray]:
-        """Tracked exact energy and state (work basis) of unperturbed ``level`` at ``coupling``."""
-        lam = val.as_coupling(coupling)
+    # ------------------------------------------------------------------ cache
+    def _cache_add(self, ray: int, pts: list[PathPoint]) -> None:
+        lst = self._cache[ray]
+        for p in pts:
+            lst.append(p)
+            self._cache_clock += 1
+            self._cache_used[id(p)] = self._cache_clock
+        lst.sort(key=lambda p: abs(p.coupling))
+        total = sum(p.nbytes for r in self._cache.values() for p in r)
+        while total > self._cache_budget:
+            victims = [(self._cache_used.get(id(p), 0), r, p) for r in self._cache for p in self._cache[r]]
+            if not victims:
+                break
+            _, r, p = min(victims, key=lambda t: t[0])
+            self._cache[r].remove(p)
+            self._cache_used.pop(id(p), None)
+            total -= p.nbytes
+
+    def _cache_start(self, ray: int, mag: float, tracked: frozenset) -> PathPoint | None:
+        """Nearest cached point with |λ| <= mag on this ray that certifies ``tracked``."""
+        best = None
+        for p in self._cache[ray]:
+            if abs(p.coupling) <= mag and tracked <= p.certified:
+                best = p
+            elif abs(p.coupling) > mag:
+                break
+        if best is not None:
+            self._cache_clock += 1
+            self._cache_used[id(best)] = self._cache_clock
+        return best
+
+    # ------------------------------------------------------------------ public tracking
+    def _resolve_levels(self, levels: Any) -> tuple[int, ...]:
+        seq = val.as_sequence(levels)
+        if not seq:
+            raise ValueError("levels is empty; give at least one level (energy rank or label)")
+        out = tuple(self.model.level_index(x) for x in seq)
+        if len(set(out)) != len(out):
+            raise ValueError(f"levels must be distinct; got {list(seq)!r} (work indices {list(out)})")
+        return out
+
+    def level_at(self, level: Any, coupling: float) -> tuple[float, np.ndarray]:
+        """Tracked exact energy and state of one level at one coupling.
+
+        The level is followed from the nearest cached path point below |λ| on
+        the same ray (or from λ = 0), refining the step where overlaps are
+        ambiguous; every solved point is cached, so probes in any order (a
+        bisection) stay cheap and consistent.
+
+        Parameters
+        ----------
+        level : int or label
+        coupling : float
+
+        Returns
+        -------
+        energy : float
+            Exact energy of the level (energy units).
+        state : (N,) ndarray
+            Normalised work-basis state, phase as in :class:`ExactSweep`.
+        """
         n = self.model.level_index(level)
-        ray = 1 if lam >= 0 else -1
-        got = self._follow(ray, abs(lam), [n])
-        return got[n]
+        lam = val.as_coupling(coupling)
+        if lam == 0.0:
+            e = np.zeros(self.model.n, dtype=self.model.dtype)
+            e[n] = 1.0
+            return float(self.model.e0[n]), e
+        tracked = frozenset({n})
+        ray = 1 if lam > 0 else -1
+        start = self._cache_start(ray, abs(lam), tracked)
+        if start is not None and start.coupling == lam:
+            c = start.column(n)
+            return float(start.energies[c]), start.vectors[:, c].copy()
+        notes: list[str] = []
+        pts = []
+        if start is None:
+            start = self._origin(tracked)
+            seed = self._seed(start, ray, tracked, abs(lam), notes)
+            if seed is not None:
+                pts.append(seed)
+                start = seed
+        pts += self._advance(start, lam, tracked, notes)
+        self._cache_add(ray, pts)
+        self._warn(notes)
+        p = pts[-1]
+        c = p.column(n)
+        return float(p.energies[c]), p.vectors[:, c].copy()
+
+    def _warn(self, notes: list[str]) -> None:
+        fresh = [m for m in notes if m not in self.notes]
+        self.notes.extend(fresh)
+        if notes:
+            warnings.warn(
+                "exact level tracking: " + "; ".join(notes[:3]) + (f" (+{len(notes) - 3} more)" if len(notes) > 3 else ""),
+                TrackingWarning,
+                stacklevel=3,
+            )
 
     def track(self, levels: Any, couplings: Any, *, keep_states: bool = True, find_crossings: bool = True) -> ExactSweep:
-        """Follow ``levels`` over ``couplings``; see :func:`track`."""
-        idx = [self.model.level_index(k) for k in val.as_sequence(levels)]
-        if not idx:
-            raise ValueError("levels is empty")
-        idx = list(dict.fromkeys(idx))
-        self._hint = max(self._hint, len(idx))
+        """Follow levels over couplings; see :func:`track`."""
+        return self._track(levels, couplings, keep_states=keep_states, find_crossings=find_crossings, stacklevel=3)
+
+    def _track(self, levels: Any, couplings: Any, *, keep_states: bool, find_crossings: bool, stacklevel: int) -> ExactSweep:
+        lv = self._resolve_levels(levels)
         lam = val.as_couplings(couplings)
-        n_l, n_c = len(idx), lam.size
-        energies = np.empty((n_l, n_c))
-        states = np.empty((n_l, n_c, self.model.n), dtype=complex if np.iscomplexobj(self.model.v.data if sp.issparse(self.model.v) else self.model.v) else float) if keep_states else None
-        start_solves = self.solves
-        for ray in (1, -1):
-            sel = np.flatnonzero((lam > 0) if ray == 1 else (lam < 0))
-            order = sel[np.argsort(np.abs(lam[sel]))]
-            if order.size == 0:
+        tracked = frozenset(lv)
+        solves0 = self.solves
+        fallbacks0 = getattr(self._impl, "fallbacks", 0)
+        nl, nc, n = len(lv), lam.size, self.model.n
+        energies = np.empty((nl, nc))
+        states = np.empty((nl, nc, n), dtype=self.model.dtype) if keep_states else None
+        notes: list[str] = []
+        crossings: list[AvoidedCrossing] = []
+        origin = self._origin(tracked)
+        zero = np.flatnonzero(lam == 0.0)
+        for i, t in enumerate(lv):
+            energies[i, zero] = self.model.e0[t]
+            if states is not None and zero.size:
+                states[i, zero] = 0.0
+                states[i, zero, t] = 1.0
+        for ray in (+1, -1):
+            sel = np.flatnonzero(lam * ray > 0)
+            if sel.size == 0:
                 continue
-            s_prev, known = self._origin(ray, idx, float(abs(lam[order[0]])))
-            for ci in order:
-                s = float(abs(lam[ci]))
-                if s != s_prev:
-                    cached = self._paths[ray].get(s)
-                    if cached is not None and all(n in cached for n in idx):
-                        known = cached
-                    else:
-                        known = self._step(ray, s_prev, known, s, idx)
-                    s_prev = s
-                for li, n in enumerate(idx):
-                    energies[li, ci] = known[n][0]
+            mags = np.abs(lam[sel])
+            uniq, inv = np.unique(mags, return_inverse=True)
+            path = [origin]
+            seed = self._seed(origin, ray, tracked, float(uniq[0]), notes)
+            if seed is not None:
+                path.append(seed)
+            where = np.empty(uniq.size, dtype=int)
+            cur = path[-1]
+            for u_i, mag in enumerate(uniq):
+                pts = self._advance(cur, ray * float(mag), tracked, notes)
+                path.extend(pts)
+                where[u_i] = len(path) - 1
+                cur = pts[-1]
+            self._cache_add(ray, path[1:])
+            for j, s in enumerate(sel):
+                p = path[where[inv[j]]]
+                for i, t in enumerate(lv):
+                    c = p.column(t)
+                    energies[i, s] = p.energies[c]
                     if states is not None:
-                        states[li, ci] = np.real_if_close(known[n][1]) if states.dtype == float else known[n][1]
-        zero = np.flatnonzero(lam == 0)
-        for ci in zero:
-            for li, n in enumerate(idx):
-                energies[li, ci] = self.model.e0[n]
-                if states is not None:
-                    states[li, ci] = _unit(self.model.n, n)
-        crossings = self._crossings(idx, lam, energies) if find_crossings and n_c >= 3 else ()
+                        states[i, s] = p.vectors[:, c]
+            if find_crossings:
+                crossings.extend(self._crossings(path, lv))
+        fb = getattr(self._impl, "fallbacks", 0) - fallbacks0
+        if fb:
+            notes.append(f"the warm-started sparse solver fell back to ARPACK {fb} time(s)")
+        crossings = _dedupe(crossings)
+        if any("narrower than resolvable" in m or "lost from" in m for m in notes):
+            tracking_notes = [m for m in notes if "narrower than resolvable" in m or "lost from" in m]
+            warnings.warn(
+                "exact level tracking: "
+                + "; ".join(tracking_notes[:3])
+                + (f" (+{len(tracking_notes) - 3} more)" if len(tracking_notes) > 3 else ""),
+                TrackingWarning,
+                stacklevel=stacklevel,
+            )
         return ExactSweep(
-            couplings=_ro(lam),
-            levels=tuple(idx),
-            energies=_ro(energies),
-            states=_ro(states) if states is not None else None,
-            avoided_crossings=tuple(crossings),
+            couplings=_readonly(lam.copy()),
+            levels=lv,
+            energies=_readonly(energies),
+            states=_readonly(states) if states is not None else None,
+            avoided_crossings=tuple(sorted(crossings, key=lambda a: (a.coupling, a.levels))),
             backend=self.backend,
-            solves=self.solves - start_solves,
-            labels=tuple(self.model.label(n) for n in idx),
-            notes=tuple(self.notes),
+            solves=self.solves - solves0,
+            notes=tuple(notes),
+            labels=tuple(self.model.label(t) for t in lv),
         )
 
-    def _gap_partner(self, lam: float, energy: float) -> tuple[float, float]:
-        w, _ = self._windows.get(float(lam)) or self._window(lam, [energy])
-        d = np.abs(w - energy)
-        d[np.argmin(d)] = np.inf  # the level itself
-        j = int(np.argmin(d))
-        return float(d[j]), float(w[j])
-
-    def _crossings(self, idx: list[int], lam: np.ndarray, energies: np.ndarray) -> list[AvoidedCrossing]:
-        out: list[AvoidedCrossing] = []
-        order = np.argsort(lam)
-        xs = lam[order]
-        for li, n in enumerate(idx):
-            es = energies[li, order]
-            gaps = np.array([self._gap_partner(x, e)[0] if x != 0 else np.inf for x, e in zip(xs, es)])
-            for i in range(1, len(xs) - 1):
-                g0, g1, g2 = gaps[i - 1], gaps[i], gaps[i + 1]
-                if not (np.isfinite(g0) and np.isfinite(g2)) or not (g1 < g0 and g1 < g2):
-                    continue
-                if g1 > 0.5 * max(g0, g2):
-                    continue  # shallow dip: not an avoided crossing
-                a, b = xs[i - 1], xs[i + 1]
-
-                def gap_at(x: float) -> float:
-                    e = self.level_at(n, x)[0]
-                    return self._gap_partner(x, e)[0]
-
-                res = minimize_scalar(gap_at, bounds=(a, b), method="bounded", options={"xatol": 1e-6 * max(1.0, abs(b)), "maxiter": 25})
-                x_min, g_min = float(res.x), float(res.fun)
-                e_min = self.level_at(n, x_min)[0]
-                partner_e = self._gap_partner(x_min, e_min)[1]
-                partner = self._identify(x_min, partner_e, exclude=n)
-                pair = (n, partner)
-                if any(abs(c.coupling - x_min) < 1e-6 * max(1.0, abs(x_min)) and set(c.levels) == set(pair) for c in out):
-                    continue
-                out.append(
-                    AvoidedCrossing(
-                        coupling=x_min,
-                        min_gap=g_min,
-                        levels=pair,
-                        labels=(self.model.label(n), self.model.label(partner) if partner >= 0 else "?"),
-                    )
-                )
+    # ------------------------------------------------------------------ avoided crossings
+    def _crossings(self, path: list[PathPoint], levels: tuple[int, ...]) -> list[AvoidedCrossing]:
+        out = []
+        scale = self._scale(abs(path[-1].coupling))
+        for t in levels:
+            for gm in gap_minima(path, t, scale):
+                out.append(self._refine_crossing(path, gm))
         return out
 
-    def _identify(self, lam: float, energy: float, exclude: int) -> int:
-        """Unperturbed level whose tracked energy at lam is ``energy`` (search near neighbours)."""
-        e0 = self.model.e0
-        cands = np.argsort(np.abs(e0 - e0[exclude]))[1:9]
-        for c in cands:
-            c = int(c)
-            if c == exclude:
-                continue
-            try:
-                e = self.level_at(c, lam)[0]
-            except Exception:  # pragma: no cover - defensive
-                continue
-            if abs(e - energy) <= 1e-8 * max(1.0, abs(energy)):
-                return c
-        return -1
+    def _refine_crossing(self, path: list[PathPoint], gm: Any) -> AvoidedCrossing:
+        j = gm.index
+        p = path[j]
+        ct = p.column(gm.level)
+        cp = ct + gm.side
+        pair = p.vectors[:, [ct, cp]]
+        spec = (
+            ("rank", p.lo, p.lo + p.energies.size)
+            if p.lo is not None
+            else ("sigma", float(0.5 * (p.energies[ct] + p.energies[cp])), int(p.energies.size))
+        )
+
+        def gap2(lam: float) -> float:
+            raw = self._solve(float(lam), spec, p.vectors)
+            x, w = raw.vectors, raw.energies
+            if w.size < 2:
+                return np.inf
+            proj = np.abs(x.conj().T @ pair) ** 2
+            weight = proj.sum(axis=1)
+            best = int(np.argmax(weight[:-1] + weight[1:]))
+            return float((w[best + 1] - w[best]) ** 2)
+
+        xs = (path[j - 1].coupling, p.coupling, path[j + 1].coupling)
+        gaps = []
+        for q in (path[j - 1], p, path[j + 1]):
+            c = q.column(gm.level)
+            gaps.append(float((q.energies[c + gm.side] - q.energies[c]) ** 2))
+        if xs[0] > xs[2]:
+            xs, gaps = xs[::-1], gaps[::-1]
+        xtol = 1e-6 * max(abs(xs[2] - xs[0]), 1e-300) + 1e-12
+        lam_min, g2, _ = parabolic_minimum(gap2, xs, tuple(gaps), max_evals=4, xtol=xtol)
+        partner, plabel = self._partner(gm.partner_id, p.vectors[:, cp])
+        a, b = (gm.level, partner), (self.model.label(gm.level), plabel)
+        return AvoidedCrossing(coupling=float(lam_min), min_gap=float(np.sqrt(max(g2, 0.0))), levels=a, labels=b)
+
+    def _partner(self, pid: int, vec: np.ndarray) -> tuple[int, str]:
+        if pid >= 0:
+            return pid, self.model.label(pid)
+        guess = int(np.argmax(np.abs(vec)))
+        return guess, self.model.label(guess) + "?"
 
 
-def _unit(n: int, i: int) -> np.ndarray:
-    e = np.zeros(n)
-    e[i] = 1.0
-    return e
+def _dedupe(crossings: list[AvoidedCrossing]) -> list[AvoidedCrossing]:
+    """One entry per pair and position (a crossing of two tracked levels is found twice)."""
+    out: list[AvoidedCrossing] = []
+    for a in crossings:
+        key = frozenset(a.levels)
+        dup = False
+        for i, b in enumerate(out):
+            if frozenset(b.levels) == key and abs(a.coupling - b.coupling) <= 1e-6 * max(1.0, abs(a.coupling)) + 1e-3 * abs(a.coupling):
+                dup = True
+                if a.min_gap < b.min_gap:
+                    out[i] = a
+                break
+        if not dup:
+            out.append(a)
+    return [AvoidedCrossing(a.coupling, a.min_gap, tuple(sorted(a.levels)) if a.labels[1][-1:] != "?" else a.levels,
+                            a.labels if a.labels[1][-1:] == "?" or a.levels[0] <= a.levels[1] else a.labels[::-1])
+            for a in out]
 
 
+# ============================================================================ one-off functions
 def track(
     model: Model,
     levels: Any,
@@ -468,27 +890,72 @@ def track(
     keep_states: bool = True,
     find_crossings: bool = True,
 ) -> ExactSweep:
-    """Follow exact levels continuously from λ = 0 over ``couplings``.
+    """Exact energies (and states) of tracked levels over a list of couplings.
 
     Parameters
     ----------
     model : Model
-    levels : level key or list of them
+    levels : int, label, or sequence of them
+        Unperturbed levels to follow (energy rank in the work basis or label).
     couplings : float or (C,) array_like
-    backend : {"auto", "dense", "sparse", "qutip"}
-    keep_states : bool
-        Keep the exact states (L, C, N) in the result.
-    find_crossings : bool
-        Locate avoided crossings (a few extra solves each).
+        Couplings λ, any order; 0 is allowed (no solve needed there).
+    backend : {'auto', 'dense', 'sparse', 'qutip'}, default 'auto'
+    keep_states : bool, default True
+        Keep the (L, C, N) array of states.
+    find_crossings : bool, default True
+        Locate and refine the avoided crossings met by the tracked levels.
 
     Returns
     -------
     ExactSweep
+
+    Warns
+    -----
+    TrackingWarning
+        A crossing was narrower than the refinement can resolve; the level was
+        followed diabatically there (also recorded in ``notes``).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from ptcheck import Model
+    >>> m = Model(np.diag([-0.5, 0.5]), [[0, 1], [1, 0]])
+    >>> sw = track(m, [0, 1], [0.0, 0.5, 1.0])
+    >>> np.round(sw.energy(1), 6)
+    array([0.5     , 0.707107, 1.118034])
     """
-    return ExactSolver(model, backend=backend).track(levels, couplings, keep_states=keep_states, find_crossings=find_crossings)
+    if not isinstance(model, Model):
+        raise TypeError(f"model must be a ptcheck.Model; got {type(model).__name__}")
+    val.check_choice(backend, "backend", BACKENDS)
+    lv = val.as_sequence(levels)
+    hint = None
+    solver = ExactSolver(model, backend=backend, n_levels_hint=hint)
+    return solver._track(lv, couplings, keep_states=bool(keep_states), find_crossings=bool(find_crossings), stacklevel=3)
 
 
-def eigenpairs(model: Model, coupling: float, *, k: int | None = None, backend: str = "auto", sigma: float | None = None):
-    """One-off exact eigenpairs: ``k`` lowest (or nearest ``sigma``); all when ``k`` is None."""
-    solver = ExactSolver(model, backend=backend)
-    return solver.eigenpairs(coupling, k=model.n if k is None else val.check_int(k, "k", minimum=1), sigma=sigma)
+def eigenpairs(
+    model: Model, coupling: float, *, k: int | None = None, backend: str = "auto", sigma: float | None = None
+) -> tuple[np.ndarray, np.ndarray]:
+    """Exact eigenpairs of H(λ) = H0 + λV in the work basis (a plain one-off call).
+
+    Parameters
+    ----------
+    model : Model
+    coupling : float
+    k : int, optional
+        Number of eigenpairs; default all N (needs N <= DENSE_LIMIT).
+    backend : {'auto', 'dense', 'sparse', 'qutip'}, default 'auto'
+    sigma : float, optional
+        Return the k eigenpairs closest to this energy instead of the lowest.
+
+    Returns
+    -------
+    energies : (k,) ndarray, ascending (energy units)
+    vectors : (N, k) ndarray, orthonormal columns in the work basis
+    """
+    if not isinstance(model, Model):
+        raise TypeError(f"model must be a ptcheck.Model; got {type(model).__name__}")
+    val.check_choice(backend, "backend", BACKENDS)
+    kk = model.n if k is None else val.check_int(k, "k", minimum=1, maximum=model.n)
+    solver = ExactSolver(model, backend=backend, n_levels_hint=min(kk, model.n))
+    return solver.eigenpairs(coupling, k=kk, sigma=sigma)
