@@ -90,6 +90,10 @@ def test_levels_rejects_unknown_target_and_order(result, ax):
         plot_levels(result, ax=ax, targets=["|5,5⟩"])
     with pytest.raises(ValueError, match="was not compared"):
         plot_levels(result, ax=ax, orders=[7])
+    with pytest.raises(TypeError, match="needs a ComparisonResult"):
+        plot_errors({"exact": [1.0]}, ax=ax)
+    with pytest.raises(TypeError, match="needs a MixingMap"):
+        plot_pairs(result, ax=ax)
 
 
 def test_new_figure_only_without_axes_and_it_is_16_by_9(result):

@@ -11,7 +11,7 @@ import numpy as np
 from ..approximants import order_name
 from ._common import add_caption, caption_text, nearest_index, new_axes, positive_or_nan, style_axes
 from ._style import EXACT_COLOR, FONT_SIZES, MARKER_COLOR, order_style, style
-from .levels import _order_indices, _target_indices
+from .levels import _order_indices, _target_indices, check_comparison
 
 __all__ = ["ErrorArtists", "plot_errors", "ERROR_KINDS"]
 
@@ -108,6 +108,7 @@ def plot_errors(
     -------
     ErrorArtists
     """
+    check_comparison(result, "plot_errors")
     if error not in ERROR_KINDS:
         raise ValueError(f"error must be one of {list(ERROR_KINDS)}; got {error!r}")
     (ti,) = _target_indices(result, [target] if target is not None else [result.targets[0]])

@@ -117,6 +117,7 @@ def plot_levels(
     >>> art.exact[0].get_ydata().shape
     (11,)
     """
+    check_comparison(result, "plot_levels")
     t_idx = _target_indices(result, targets)
     o_idx = _order_indices(result, orders)
     fig, ax, scale = new_axes(ax)
@@ -183,6 +184,13 @@ def plot_levels(
         exact=tuple(exact_lines), perturbative=tuple(pert_lines), coupling_line=line, coupling_markers=markers,
         crossings=tuple(crossings), caption=cap, legend=legend,
     )
+
+
+def check_comparison(result: Any, who: str) -> None:
+    """TypeError unless ``result`` looks like a ComparisonResult."""
+    need = ("couplings", "exact", "perturbative", "abs_error", "targets", "orders", "order_names")
+    if not all(hasattr(result, a) for a in need):
+        raise TypeError(f"{who} needs a ComparisonResult (from ptcheck.compare.compare); got {type(result).__name__}")
 
 
 def _treatment_note(result: Any, t_idx: list[int]) -> str:

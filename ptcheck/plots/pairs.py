@@ -222,6 +222,8 @@ def plot_pairs(
     -------
     PairArtists
     """
+    if not isinstance(mmap, MixingMap):
+        raise TypeError(f"plot_pairs needs a MixingMap (from ptcheck.plots.mixing_map); got {type(mmap).__name__}")
     fig, ax, scale = new_axes(ax)
     k = len(mmap.levels)
     r = np.asarray(mmap.ratios, dtype=float)
