@@ -424,7 +424,8 @@ def run_check(
             b = boundaries[bi]
             bi += 1
             ok = bool(np.isfinite(e) and e <= thr)
-            verdicts.append(Verdict(name, s, lam0, e, thr, relative, ok, float(b.coupling), b.status, _verdict_sentence(name, s, lam0, e, thr, relative, ok, b)))
+            text = _verdict_sentence(name, s, lam0, e, thr, relative, ok, b, comp.treatments[ti])
+            verdicts.append(Verdict(name, s, lam0, e, thr, relative, ok, float(b.coupling), b.status, text))
     lowest: dict[str, Any] = {}
     for ti, name in enumerate(comp.targets):
         lowest[name] = None
@@ -677,19 +678,21 @@ def _fmt_lam(x: float) -> str:
     return f"{x:.4g}"
 
 
-def _verdict_sentence(name, spec, lam, e, thr, relative, ok, b: ValidityBoundary) -> str:
+def _verdict_sentence(name, spec, lam, e, thr, relative, ok, b: ValidityBoundary, treatment_here: str) -> str:
     tol = _fmt_err(thr, relative)
-    what = f"{name}, {order_name(spec)}: error {_fmt_err(e, relative)}"
+    how = "" if treatment_here == "nondegenerate" else f" ({treatment_here} treatment)"
+    what = f"{name}, {order_name(spec)}{how}: error {_fmt_err(e, relative)}"
     if ok:
         s = f"{what} ≤ {tol} at λ = {lam:g} — valid."
     elif np.isfinite(e):
         s = f"{what} > {tol} at λ = {lam:g} — NOT valid."
     else:
         s = f"{what} at λ = {lam:g} — cannot be judged with a relative tolerance."
+    other = f" with the {b.treatment} treatment" if b.treatment != treatment_here else ""
     if b.status == "found":
-        s += f" It meets the tolerance up to |λ| ≈ {abs(b.coupling):.4g}."
+        s += f" It meets the tolerance up to |λ| ≈ {abs(b.coupling):.4g}{other}."
     elif b.status == "not_reached":
-        s += f" It meets the tolerance over the whole range searched (|λ| ≤ {b.max_coupling:.4g})."
+        s += f" It meets the tolerance over the whole range searched (|λ| ≤ {b.max_coupling:.4g}){other}."
     elif b.status == "fails_at_zero":
         s += " It does not meet the tolerance at any nonzero coupling."
     elif b.status == "error":
