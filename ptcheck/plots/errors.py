@@ -36,7 +36,8 @@ class ErrorArtists:
         Orders drawn, one line each.
     lines : tuple of Line2D
         Error against the coupling, one per order (non-positive values are
-        left out: NaN on the log axis).
+        left out: NaN on the log axis); the legend names the block treatment
+        where the target uses it.
     tolerance_line : Line2D or None
         Horizontal line at the tolerance.
     boundary_lines : tuple of Line2D
@@ -128,7 +129,8 @@ def plot_errors(
         ax.set_yscale("log")
         lines = []
         for oi in o_idx:
-            (ln,) = ax.plot(x, positive_or_nan(data[ti, oi])[srt], label=result.order_names[oi], **order_style(oi))
+            tag = f" ({result.treatments[ti]})" if result.treatments[ti] in ("block", "mixed") else ""
+            (ln,) = ax.plot(x, positive_or_nan(data[ti, oi])[srt], label=result.order_names[oi] + tag, **order_style(oi))
             lines.append(ln)
         if x.size > 1 and x[-1] > x[0]:
             ax.set_xlim(x[0], x[-1])
