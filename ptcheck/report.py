@@ -618,6 +618,8 @@ def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes
             f"Basis truncation: the exact levels used are converged in {', '.join(params)} at λ = {lam:g} "
             "(checked by enlarging the basis)."
         )
+    elif builder is not None and not any(_has_param(builder, p) for p in SIZE_PARAMS):
+        out.append(f"Basis truncation: none — the built-in model {builder} is finite as it stands (no truncation parameter).")
     else:
         out.append("Basis truncation: " + TRUNCATION_NOTE)
     # convergence / asymptotic series
