@@ -583,9 +583,11 @@ def validity_boundary(
     direction : {+1, -1}
         Search positive or negative couplings.
     treatment : {"auto", "nondegenerate", "block"}
-        ``"auto"`` first uses the non-degenerate series; if a partner's mixing
-        ratio at the boundary found is above ``threshold`` it switches the
-        level's cluster to the block treatment and searches again.
+        With ``coupling`` given, ``"auto"`` makes the same choice as
+        :func:`compare` at that coupling of interest.  Without it, ``"auto"``
+        first uses the non-degenerate series; if a partner's mixing ratio at
+        the boundary found is above ``threshold`` it switches the level's
+        cluster to the block treatment and searches again.
     backend : str
         Exact solver backend.
     max_coupling : float, optional
@@ -597,8 +599,9 @@ def validity_boundary(
     method : str
         Block method.
     coupling : float, optional
-        Coupling at which blocks are judged for ``treatment="block"``
-        (default: where the next series terms reach the tolerance).
+        Coupling of interest at which near-degeneracy is judged (for
+        ``"auto"`` and the blocks of ``"block"``; default for ``"block"``: where
+        the next series terms reach the tolerance).
 
     Returns
     -------
@@ -640,8 +643,14 @@ def validity_boundary(
     solver = ExactSolver(model, backend=backend, n_levels_hint=len(target.weights))
     chosen = "nondegenerate" if treatment == "auto" else treatment
     degenerate = any(model.degenerate_group_of(n) for n in target.weights)
+    if coupling is not None:
+        coupling = abs(val.as_coupling(coupling))
     if treatment == "auto" and degenerate:
         chosen = "block"
+    elif treatment == "auto" and coupling is not None:
+        # the same per-level choice compare() makes at this coupling of interest
+        kinds = {e.treatment for e in expansions(model, list(target.weights), 1, treatment="auto", coupling=coupling, threshold=threshold, method=method)}
+        chosen = "block" if "block" in kinds else "nondegenerate"
     block_coupling = coupling
     if chosen == "block" and block_coupling is None and not degenerate:
         # judge clusters where the non-degenerate series itself expects to fail (no exact solves)
@@ -649,7 +658,9 @@ def validity_boundary(
         probe = _ErrorFunction(model, target, nd, spec, solver, direction, relative)
         block_coupling = _first_guess(probe, spec, thr, min(1e-6 * s_nat, s_max * 1e-6), s_max)
     result = _boundary_search(model, target, spec, chosen, solver, direction, relative, thr, s_max, s_nat, xrtol, threshold, method, block_coupling)
-    if treatment == "auto" and chosen == "nondegenerate" and result.status == "found" and isinstance(spec, Pade):
+    if treatment == "auto" and coupling is not None:
+        pass  # the treatment was fixed at the coupling of interest
+    elif treatment == "auto" and chosen == "nondegenerate" and result.status == "found" and isinstance(spec, Pade):
         pass  # Padé needs a scalar series: no block alternative
     elif treatment == "auto" and chosen == "nondegenerate" and result.status == "found":
         s_star = abs(result.coupling)

@@ -211,3 +211,14 @@ def test_auto_switches_to_block_when_the_series_fails_on_a_near_degenerate_pair(
     b = validity_boundary(two_level(), 0, 2, tol=1e-4, max_coupling=10.0)
     assert b.treatment == "block" and b.status == "not_reached"
     assert any("block treatment was used" in n for n in b.notes)
+
+
+def test_auto_with_coupling_of_interest_matches_compare():
+    # with a coupling of interest, validity_boundary's 'auto' makes compare's choice at that coupling
+    m = two_level()
+    r = compare(m, 0, [2], [0.1, 0.2])  # small couplings: non-degenerate
+    b = validity_boundary(m, 0, 2, tol=1e-4, coupling=0.2)
+    assert r.treatments == ("nondegenerate",) and b.treatment == "nondegenerate"
+    assert b.coupling == pytest.approx(_closed_form_boundary(2, 1e-4), rel=1e-3)
+    b2 = validity_boundary(m, 0, 2, tol=1e-4, coupling=1.0, max_coupling=10.0)
+    assert b2.treatment == "block" and compare(m, 0, [2], [1.0]).treatments == ("block",)

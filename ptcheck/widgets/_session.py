@@ -106,7 +106,8 @@ class Session:
                     reach = max(abs(s.coupling_min), abs(s.coupling_max))
                     self._boundaries[k] = self._call(
                         validity_boundary, self.model, target, o, direction=d, treatment=s.treatment,
-                        backend=s.backend, max_coupling=reach, threshold=s.threshold, **s.tolerance_kwargs(),
+                        backend=s.backend, max_coupling=reach, threshold=s.threshold, coupling=reach,
+                        **s.tolerance_kwargs(),
                     )
                     if progress is not None:
                         progress()
