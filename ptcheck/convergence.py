@@ -72,6 +72,9 @@ from . import _validation as val
 from ._exceptional import EPCandidate, ExceptionalPointSearch
 from ._radius import CoefficientAnalysis, analyse
 from .model import Model
+from .degeneracy import DEFAULT_MIXING_THRESHOLD
+from .quantities import Quantity
+from .treatment import TREATMENTS, expansions
 
 __all__ = [
     "ConvergenceResult",
@@ -238,6 +241,10 @@ class ConvergenceResult:
     summary: str
     notes: tuple[str, ...] = field(default=())
     energy_coefficients: np.ndarray = field(default_factory=lambda: _ro(np.zeros(0)))
+    treatment: str = "nondegenerate"
+    target: str = ""
+    limiting_level: int | None = None
+    level_radii: tuple = ()
 
     def __repr__(self) -> str:
         ep = f", nearest EP {self.exceptional_points[0]:.4g}" if self.exceptional_points.size else ""
@@ -268,6 +275,10 @@ class ConvergenceResult:
             "summary": self.summary,
             "notes": list(self.notes),
             "energy_coefficients": [float(c) for c in self.energy_coefficients],
+            "treatment": self.treatment,
+            "target": self.target or self.label,
+            "limiting_level": self.limiting_level,
+            "level_radii": [[lab, _jf(r)] for lab, r in self.level_radii],
         }
 
     def _repr_html_(self) -> str:
@@ -557,6 +568,8 @@ def convergence(
     *,
     coupling: float | None = None,
     ep_search: str = "auto",
+    treatment: str = "auto",
+    threshold: float = DEFAULT_MIXING_THRESHOLD,
 ) -> ConvergenceResult:
     """Radius of convergence, exceptional points and growth class of a level's series.
 
@@ -573,6 +586,16 @@ def convergence(
         are reported (and placed relative to the radius in ``summary``).
     ep_search : {'auto', 'always', 'never'}
         Exceptional-point search: 'auto' runs it for N <= :data:`EP_DENSE_LIMIT`.
+    treatment : {'auto', 'nondegenerate', 'block'}
+        'auto' analyses the block effective Hamiltonian (root test on
+        ‖H_eff^(k)‖, Kato's bound for the block) for exactly degenerate levels
+        and for levels in a near-degenerate cluster at ``coupling``.
+    threshold : float
+        Mixing-ratio threshold for clusters (:mod:`ptcheck.degeneracy`).
+
+    A :class:`~ptcheck.quantities.Quantity` may be given instead of a level:
+    its radius is the smallest among its levels, and ``limiting_level`` /
+    ``level_radii`` say which level limits it.
 
     Returns
     -------
@@ -594,12 +617,114 @@ def convergence(
     """
     if not isinstance(m, Model):
         raise TypeError(f"m must be a ptcheck Model; got {type(m).__name__}")
-    n = m.level_index(level)
     order = val.check_int(order, "order", minimum=2)
     if coupling is not None:
         coupling = val.as_coupling(coupling)
     ep_search = val.check_choice(ep_search, "ep_search", EP_SEARCH)
+    treatment = val.check_choice(treatment, "treatment", TREATMENTS)
+    threshold = float(val.check_positive(threshold, "threshold"))
+    if isinstance(level, Quantity):
+        return _analyse_quantity(m, level, order, coupling, ep_search, treatment, threshold)
+    n = m.level_index(level)
+    if _uses_block(m, n, coupling, treatment, threshold):
+        return _analyse_block(m, n, order, coupling, threshold)
     return _analyse_level(m, n, order, coupling, ep_search, None, [])
+
+
+def _uses_block(m: Model, n: int, coupling: float | None, treatment: str, threshold: float) -> bool:
+    if treatment == "block":
+        return True
+    if treatment == "nondegenerate":
+        return False  # an exactly degenerate level raises in the series
+    if m.degenerate_group_of(n) is not None:
+        return True
+    if coupling is None:
+        return False
+    (e,) = expansions(m, [n], 1, treatment="auto", coupling=coupling, threshold=threshold)
+    return e.treatment == "block"
+
+
+def _analyse_block(m: Model, n: int, order: int, coupling: float | None, threshold: float) -> ConvergenceResult:
+    """Radius of the block effective-Hamiltonian series: root test on ‖H_eff^(k)‖, Kato's bound for the block."""
+    from .blocks import block_series, find_blocks
+
+    (blk,) = find_blocks(m, 0.0 if coupling is None else abs(coupling), threshold, levels=[n])
+    levels = list(blk.levels)
+    bs = block_series(m, levels, order)
+    norms = np.array([np.linalg.norm(h, 2) for h in bs.coefficients])
+    inside = np.isin(np.arange(m.n), levels)
+    e_in, e_out = m.e0[inside], m.e0[~inside]
+    d = float(np.min(np.abs(e_out[:, None] - e_in[None, :]))) if e_out.size else math.inf
+    kato = _kato(d, m.norm_v)
+    ca = analyse(norms, d if np.isfinite(d) else 1.0)
+    label = m.label(n)
+    if ca.kind == "terminating":
+        radius = math.inf
+    else:
+        radius = _median_finite(np.array([ca.root, ca.domb_sykes]))
+    spread = float(np.nanmax(np.abs(np.array([ca.root, ca.domb_sykes]) - radius))) if np.isfinite(radius) else 0.0
+    k = np.arange(order + 1)
+    smallest, opt = math.nan, None
+    if coupling is not None and ca.kind == "asymptotic":
+        terms = norms[1:] * abs(coupling) ** k[1:]
+        j = int(np.argmin(terms))
+        opt, smallest = j + 1, float(terms[j])
+    names = ", ".join(m.label(i) for i in levels)
+    where = (
+        "" if coupling is None or not np.isfinite(radius)
+        else f" λ = {coupling:g} lies {'inside' if abs(coupling) < radius else 'outside'} that disc."
+    )
+    if ca.kind == "asymptotic":
+        body = (f"The block effective Hamiltonian of ({names}) grows factorially with the order: an asymptotic "
+                "series; adding orders helps only up to the optimal order.")
+    elif ca.kind == "terminating":
+        body = f"The block effective Hamiltonian of ({names}) terminates: no radius limit."
+    else:
+        body = (f"Level {label} is treated in the block ({names}); the root test on ‖H_eff^(k)‖ gives a radius "
+                f"≈ {radius:.4g}.{where}")
+    summary = (
+        body + f" Kato's rigorous bound for the block (gap {d:.3g} to the other levels) guarantees convergence "
+        f"for |λ| < {kato:.4g}. The exceptional-point search runs for non-degenerate levels only. These are "
+        "numerical estimates: confirm them with your own convergence checks (more orders, a larger basis)."
+    )
+    est = RadiusEstimates(ratio=ca.ratio, root=ca.root, domb_sykes=ca.domb_sykes)
+    return ConvergenceResult(
+        level=n, label=label, order=order, kind=ca.kind, radius=float(radius), radius_uncertainty=spread,
+        estimates=est, exceptional_points=_ro(np.zeros(0, complex)), partners=_ro(np.zeros(0, int)),
+        ep_energies=_ro(np.zeros(0, complex)), kato_bound=float(kato), isolation=float(d), period=int(ca.period),
+        coupling=coupling, optimal_order=opt, smallest_term=smallest, agreement="unavailable", summary=summary,
+        notes=tuple(ca.notes), energy_coefficients=_ro(np.zeros(0)), treatment="block",
+    )
+
+
+def _analyse_quantity(m: Model, q: Quantity, order: int, coupling: float | None, ep_search: str,
+                      treatment: str, threshold: float) -> ConvergenceResult:
+    """A derived quantity converges where all its levels do: radius = the smallest of theirs."""
+    from dataclasses import replace
+
+    levels = list(q.resolve(m))
+    if not levels:
+        raise ValueError(f"quantity {q.name!r} has no level with a nonzero weight")
+    per = [convergence(m, n, order, coupling=coupling, ep_search=ep_search, treatment=treatment, threshold=threshold)
+           for n in levels]
+    radii = np.array([r.radius for r in per])
+    j = int(np.nanargmin(np.where(np.isnan(radii), np.inf, radii))) if np.any(np.isfinite(radii) | np.isinf(radii)) else 0
+    lim = per[j]
+    kinds = {r.kind for r in per}
+    kind = "asymptotic" if "asymptotic" in kinds else ("convergent" if "convergent" in kinds else "terminating")
+    level_radii = tuple((r.label, float(r.radius)) for r in per)
+    listing = ", ".join(f"{lab}: {rad:.4g}" for lab, rad in level_radii)
+    summary = (
+        f"{q.name} combines levels ({listing}); it converges where all of them do, so its radius is "
+        f"{lim.radius:.4g}, limited by level {lim.label}. (Singularities can cancel in a combination, so the "
+        "quantity's own series may converge further; this is the safe bound.) Limiting level: " + lim.summary
+    )
+    notes = tuple(dict.fromkeys(n for r in per for n in r.notes))
+    return replace(
+        lim, kind=kind, summary=summary, target=q.name, label=q.name, limiting_level=lim.level,
+        level_radii=level_radii, notes=notes,
+        treatment=lim.treatment if len({r.treatment for r in per}) == 1 else "mixed",
+    )
 
 
 @dataclass(frozen=True, repr=False, eq=False)

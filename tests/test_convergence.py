@@ -5,7 +5,7 @@ import math
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, given, note, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from scipy.special import gamma
@@ -150,6 +150,7 @@ def test_property_kato_bound_and_partial_sums(case):
     # Kato 1966 ch. II §3: the series converges at least for |λ| < d/(2‖V‖); and by
     # Cauchy–Hadamard partial sums converge inside the radius and diverge outside it.
     m, level = case
+    note(f"e0={m.e0.tolist()}, v={np.asarray(m.v).tolist()}, level={level}")
     r = convergence(m, level, 40)
     assert r.kind == "convergent"
     assert r.kato_bound <= r.radius * (1 + 1e-9)
@@ -180,7 +181,8 @@ def test_property_kato_bound_and_partial_sums(case):
 
 # ---------------------------------------------------------------- results, validation, map
 def test_result_is_frozen_and_serialisable():
-    r = convergence(two_level(1.0, 0.25), 0, 30, coupling=1.0)
+    # at λ = 1 the mixing ratio is 0.25, so 'auto' would analyse the (exact) block: ask for RS
+    r = convergence(two_level(1.0, 0.25), 0, 30, coupling=1.0, treatment="nondegenerate")
     assert isinstance(r, ConvergenceResult)
     with pytest.raises(AttributeError):
         r.radius = 1.0
@@ -220,7 +222,8 @@ def test_ep_search_can_be_switched_off():
 def test_degenerate_level_raises():
     m = Model(np.diag([0.0, 0.0, 1.0]), np.array([[0, 0, 0.1], [0, 0.2, 0.1], [0.1, 0.1, 0]]))
     with pytest.raises(DegenerateLevelError):
-        convergence(m, 0, 10)
+        convergence(m, 0, 10, treatment="nondegenerate")
+    assert convergence(m, 0, 10).treatment == "block"  # 'auto' analyses its block instead
 
 
 @pytest.mark.parametrize(
