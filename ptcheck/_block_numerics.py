@@ -241,19 +241,19 @@ _BUDGET = 20_000
 
 
 def track_branches(
-    heff: np.ndarray, couplings: np.ndarray, seed_vectors: np.ndarray, seed_coupling: float, scale: float
+    heff: np.ndarray, couplings: np.ndarray, guess_vectors: np.ndarray, guess_coupling: float, scale: float
 ) -> TrackResult:
-    """Follow the eigenbranches of ``H_eff(λ) = Σ_j λ^j heff[j]`` from ``±seed_coupling``.
+    """Follow the eigenbranches of ``H_eff(λ) = Σ_j λ^j heff[j]`` from ``±guess_coupling``.
 
-    ``seed_vectors[:, i]`` is the (limit) eigenvector of block level ``i`` near
-    λ = 0.  Four monotone paths start at ±seed_coupling (outwards and inwards
+    ``guess_vectors[:, i]`` is the (limit) eigenvector of block level ``i`` near
+    λ = 0.  Four monotone paths start at ±guess_coupling (outwards and inwards
     towards 0); neighbouring points are matched by eigenvector overlap, and an
     interval is bisected while the overlap is below :data:`QUALITY`.
     """
     p = heff.shape[1]
     c = couplings.size
     energies = np.zeros((p, c))
-    vectors = np.zeros((c, p, p), dtype=np.result_type(heff.dtype, seed_vectors.dtype))
+    vectors = np.zeros((c, p, p), dtype=np.result_type(heff.dtype, guess_vectors.dtype))
     dtol = 1e-10 * max(scale, np.finfo(float).tiny)
     state = {"budget": _BUDGET, "ambiguous": False}
 
@@ -274,13 +274,13 @@ def track_branches(
         return step(mid, refm, b, wb, vb, depth + 1)
 
     for sign in (+1.0, -1.0):
-        start = sign * seed_coupling
+        start = sign * guess_coupling
         side = couplings * sign >= 0 if sign > 0 else couplings < 0
         for outward in (True, False):
             if outward:
-                sel = np.flatnonzero(side & (np.abs(couplings) >= seed_coupling))
+                sel = np.flatnonzero(side & (np.abs(couplings) >= guess_coupling))
             else:
-                sel = np.flatnonzero(side & (np.abs(couplings) < seed_coupling))
+                sel = np.flatnonzero(side & (np.abs(couplings) < guess_coupling))
             if sel.size == 0:
                 continue
             order = np.argsort(np.abs(couplings[sel]))
@@ -292,7 +292,7 @@ def track_branches(
             pts = np.concatenate([couplings[sel], fill])
             pts = pts[np.argsort(np.abs(pts - start), kind="stable")]
             w_all, v_all = eig(np.concatenate([[start], pts]))
-            _, ref, _ = match_eigenvectors(seed_vectors, w_all[0], v_all[0], dtol)
+            _, ref, _ = match_eigenvectors(guess_vectors, w_all[0], v_all[0], dtol)
             prev = start
             results = []
             for g, lam in enumerate(pts):
@@ -309,21 +309,21 @@ def track_branches(
     return TrackResult(energies=energies, vectors=vectors, ambiguous=bool(state["ambiguous"]))
 
 
-def seed_vectors(
-    heff: np.ndarray, seed_coupling: float, tie_sets: list[np.ndarray], scale: float
+def guess_vectors(
+    heff: np.ndarray, guess_coupling: float, tie_sets: list[np.ndarray], scale: float
 ) -> np.ndarray:
-    """Eigenvectors of ``H_eff(seed_coupling)`` assigned to the block levels.
+    """Eigenvectors of ``H_eff(guess_coupling)`` assigned to the block levels.
 
     Columns are assigned by largest overlap with the block basis vectors
     (work basis = good states), except inside a *tie set* (levels of one
     exactly degenerate group with equal first-order shift), whose branches are
-    given to its levels in ascending energy at the (positive) seed coupling.
+    given to its levels in ascending energy at the (positive) guess coupling.
     """
     p = heff.shape[1]
-    w, vecs = np.linalg.eigh(evaluate_polynomial(heff, np.array([seed_coupling]))[0])
+    w, vecs = np.linalg.eigh(evaluate_polynomial(heff, np.array([guess_coupling]))[0])
     eye = np.eye(p, dtype=vecs.dtype)
     _, out, _ = match_eigenvectors(eye, w, vecs, 1e-10 * max(scale, np.finfo(float).tiny))
-    energies = np.real(np.einsum("ai,ab,bi->i", out.conj(), evaluate_polynomial(heff, np.array([seed_coupling]))[0], out))
+    energies = np.real(np.einsum("ai,ab,bi->i", out.conj(), evaluate_polynomial(heff, np.array([guess_coupling]))[0], out))
     for ts in tie_sets:
         order = np.argsort(energies[ts], kind="stable")
         out[:, ts] = out[:, ts[order]]

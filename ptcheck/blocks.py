@@ -409,8 +409,8 @@ class BlockSeries:
     max_iter: int
     model: Model = field(repr=False)
     _sw: num.SWCoefficients = field(repr=False)
-    _seed: np.ndarray = field(repr=False)
-    _seed_coupling: float = field(repr=False)
+    _guess: np.ndarray = field(repr=False)
+    _guess_coupling: float = field(repr=False)
     _scale: float = field(repr=False)
     _cache: dict = field(default_factory=dict, repr=False)
 
@@ -512,7 +512,7 @@ class BlockSeries:
         if key in self._cache:
             return self._cache[key]
         heff = self._sw.heff[: k + 1]
-        tr = num.track_branches(heff, lam, self._seed, self._seed_coupling, self._scale)
+        tr = num.track_branches(heff, lam, self._guess, self._guess_coupling, self._scale)
         energies, vectors, ambiguous = tr.energies, tr.vectors, tr.ambiguous
         converged = np.ones(energies.shape, dtype=bool)
         if self.method == "brillouin-wigner" and k >= 2:
@@ -861,7 +861,7 @@ def block_series(
         lam_scale = 1.0 / vcol if vcol > 0 else 1.0
     vd = model.v_diagonal()
     ties = _first_order_ties(model, block)
-    # distinct first-order shifts inside degenerate groups: keep the seed coupling well below
+    # distinct first-order shifts inside degenerate groups: keep the guess coupling well below
     # the coupling at which higher orders could reorder them
     dv = []
     for grp in model.degenerate_groups:
@@ -869,8 +869,8 @@ def block_series(
             d = np.diff(vd[list(grp)])
             dv.extend(d[d > 1e-9 * max(vcol, np.finfo(float).tiny)].tolist())
     factor = min(1.0, min(dv) / vcol) if (dv and vcol > 0) else 1.0
-    seed_coupling = max(1e-3 * lam_scale * factor, 1e-9 * lam_scale)
-    seed = num.seed_vectors(sw.heff, seed_coupling, ties, escale)
+    guess_coupling = max(1e-3 * lam_scale * factor, 1e-9 * lam_scale)
+    guess = num.guess_vectors(sw.heff, guess_coupling, ties, escale)
     for ts in ties:
         names = ", ".join(model.label(block[i]) for i in ts)
         notes.append(
@@ -907,7 +907,7 @@ def block_series(
         max_iter=max_iter,
         model=model,
         _sw=sw,
-        _seed=seed,
-        _seed_coupling=float(seed_coupling),
+        _guess=guess,
+        _guess_coupling=float(guess_coupling),
         _scale=escale,
     )

@@ -55,10 +55,10 @@ def taylor_coefficients(f, radius, order, points=64):
     return np.array([c[k] / radius**k for k in range(order + 1)])
 
 
-def separated_model(seed, n, p, *, complex_=False, spread=0.5, gap=2.0):
+def separated_model(key, n, p, *, complex_=False, spread=0.5, gap=2.0):
     """Invented random model: p block levels in [0, spread + 0.1 (p - 1)], at least 0.1 apart,
     the rest in [gap, gap + 2]; ‖V‖ = 1."""
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(key)
     block = np.sort(rng.uniform(0, spread, p)) + 0.1 * np.arange(p)
     e = np.concatenate([block, np.sort(rng.uniform(gap, gap + 2, n - p))])
     a = rng.normal(size=(n, n))
@@ -213,8 +213,8 @@ def test_hubbard_dimer_superexchange():
 # ======================================================== construction checks
 def test_sw_coefficients_match_exact_canonical_heff_taylor_coefficients_order_8():
     # coefficients of the exact canonical H_eff (see exact_canonical_heff) by Cauchy's formula
-    for seed, complex_ in ((1, False), (2, True)):
-        h0, v = separated_model(seed, 7, 3, complex_=complex_)
+    for key, complex_ in ((1, False), (2, True)):
+        h0, v = separated_model(key, 7, 3, complex_=complex_)
         m = Model(h0, v)
         b = m.block_series([0, 1, 2], 8)
         ref = taylor_coefficients(lambda lam: exact_canonical_heff(h0, m.v, [0, 1, 2], lam), 0.3, 8)
@@ -239,9 +239,9 @@ def test_sw_heff_equals_lowdin_construction_at_real_coupling():
 
 
 @settings(max_examples=20, deadline=None)
-@given(seed=st.integers(0, 2**31 - 1), p=st.integers(1, 3), complex_=st.booleans())
-def test_property_hermitian_and_converging(seed, p, complex_):
-    h0, v = separated_model(seed, 6, p, complex_=complex_)
+@given(key=st.integers(0, 2**31 - 1), p=st.integers(1, 3), complex_=st.booleans())
+def test_property_hermitian_and_converging(key, p, complex_):
+    h0, v = separated_model(key, 6, p, complex_=complex_)
     m = Model(h0, v)
     b = m.block_series(list(range(p)), 6)
     # Hermitian at every order, before symmetrisation too (common practice, no source)
@@ -260,11 +260,11 @@ def test_property_hermitian_and_converging(seed, p, complex_):
 
 
 @settings(max_examples=15, deadline=None)
-@given(seed=st.integers(0, 2**31 - 1), p=st.integers(2, 3), complex_=st.booleans())
-def test_property_sw_and_bw_agree_at_small_coupling(seed, p, complex_):
+@given(key=st.integers(0, 2**31 - 1), p=st.integers(2, 3), complex_=st.booleans())
+def test_property_sw_and_bw_agree_at_small_coupling(key, p, complex_):
     # both are order-k accurate, so they differ by O(λ^(k+1)) (Löwdin partitioning and the
     # canonical expansion have the same exact limit; Lindgren, J. Phys. B 7, 2441 (1974))
-    h0, v = separated_model(seed, 6, p, complex_=complex_)
+    h0, v = separated_model(key, 6, p, complex_=complex_)
     m = Model(h0, v)
     sw = m.block_series(list(range(p)), 4)
     bw = m.block_series(list(range(p)), 4, method="brillouin-wigner")
@@ -280,10 +280,10 @@ def test_property_sw_and_bw_agree_at_small_coupling(seed, p, complex_):
 
 
 @settings(max_examples=15, deadline=None)
-@given(seed=st.integers(0, 2**31 - 1), p=st.integers(1, 3))
-def test_property_states_approach_exact_eigenvectors(seed, p):
+@given(key=st.integers(0, 2**31 - 1), p=st.integers(1, 3))
+def test_property_states_approach_exact_eigenvectors(key, p):
     # infidelity of the order-k state ~ λ^(2(k+1)) (common practice, no source)
-    h0, v = separated_model(seed, 7, p, spread=1.0)
+    h0, v = separated_model(key, 7, p, spread=1.0)
     m = Model(h0, v)
     b = m.block_series(list(range(p)), 6)
     lam = 0.03

@@ -273,8 +273,8 @@ def test_resonant_jc_vacuum_rabi_splitting_from_block_levels():
 
 
 # --------------------------------------------------------------------------- properties
-def random_product_model(draw_seed, d1, d2):
-    rng = np.random.default_rng(draw_seed)
+def random_product_model(draw_key, d1, d2):
+    rng = np.random.default_rng(draw_key)
     e1 = np.cumsum(0.5 + rng.random(d1)) - 0.5
     e2 = np.cumsum(0.37 + 0.6 * rng.random(d2))
     a = rng.normal(size=(d1, d1))
@@ -284,10 +284,10 @@ def random_product_model(draw_seed, d1, d2):
 
 
 @settings(max_examples=25, deadline=None)
-@given(seed=st.integers(0, 2**31 - 1), d1=st.integers(2, 3), d2=st.integers(2, 3), order=st.integers(0, 5))
-def test_series_of_a_quantity_is_the_combination_of_level_series(seed, d1, d2, order):
+@given(key=st.integers(0, 2**31 - 1), d1=st.integers(2, 3), d2=st.integers(2, 3), order=st.integers(0, 5))
+def test_series_of_a_quantity_is_the_combination_of_level_series(key, d1, d2, order):
     # common practice, no source: linearity of the RS expansion
-    m, rng = random_product_model(seed, d1, d2)
+    m, rng = random_product_model(key, d1, d2)
     assume(np.min(np.diff(m.e0)) > 1e-3)
     labels = [lab for lab in m.labels]
     pick = rng.choice(len(labels), size=int(rng.integers(1, len(labels) + 1)), replace=False)
@@ -302,11 +302,11 @@ def test_series_of_a_quantity_is_the_combination_of_level_series(seed, d1, d2, o
 
 
 @settings(max_examples=25, deadline=None)
-@given(seed=st.integers(0, 2**31 - 1), m_cancel=st.integers(1, 3))
-def test_exact_cancellation_up_to_an_order_reports_the_first_nonzero_order(seed, m_cancel):
+@given(key=st.integers(0, 2**31 - 1), m_cancel=st.integers(1, 3))
+def test_exact_cancellation_up_to_an_order_reports_the_first_nonzero_order(key, m_cancel):
     # construction: weights w in the null space of the (m+1) x m matrix of level coefficients of orders
     # 0..m−1, so Σ w E^(k) = 0 for k < m (common practice, no source)
-    m, rng = random_product_model(seed, 3, 3)
+    m, rng = random_product_model(key, 3, 3)
     assume(np.min(np.diff(m.e0)) > 1e-3)
     order = 5
     levels = rng.choice(m.n, size=m_cancel + 1, replace=False)

@@ -101,8 +101,8 @@ def test_state_matches_exact_eigenvector(rng):
         s.state(lam, order=Pade(1, 1))
 
 
-def _random_model(seed, n, complex_):
-    r = np.random.default_rng(seed)
+def _random_model(key, n, complex_):
+    r = np.random.default_rng(key)
     e0 = np.sort(r.uniform(0, 10, n))
     e0 = e0 + 0.2 * np.arange(n)  # isolation >= 0.2
     a = r.normal(size=(n, n)) + (1j * r.normal(size=(n, n)) if complex_ else 0)
@@ -110,11 +110,11 @@ def _random_model(seed, n, complex_):
 
 
 @settings(max_examples=25, deadline=None)
-@given(seed=st.integers(0, 10_000), n=st.integers(2, 9), complex_=st.booleans())
-def test_trace_sum_rules(seed, n, complex_):
+@given(key=st.integers(0, 10_000), n=st.integers(2, 9), complex_=st.booleans())
+def test_trace_sum_rules(key, n, complex_):
     # Tr H(λ) = Tr H0 + λ Tr V for every λ, so Σ_n E_n^(1) = Tr V and Σ_n E_n^(k) = 0 for k >= 2
     # (linearity of the trace; common practice, no source needed beyond that identity)
-    m = _random_model(seed, n, complex_)
+    m = _random_model(key, n, complex_)
     coeffs = np.array([m.series(k, 5).energy_coefficients for k in range(n)])
     assert coeffs[:, 1].sum() == pytest.approx(np.trace(m.v).real, abs=1e-9)
     scale = np.max(np.abs(coeffs[:, 2:])) + 1
@@ -122,12 +122,12 @@ def test_trace_sum_rules(seed, n, complex_):
 
 
 @settings(max_examples=20, deadline=None)
-@given(seed=st.integers(0, 10_000), n=st.integers(2, 7))
-def test_hellmann_feynman_and_convergence_against_exact(seed, n):
+@given(key=st.integers(0, 10_000), n=st.integers(2, 7))
+def test_hellmann_feynman_and_convergence_against_exact(key, n):
     # dE/dλ at 0 = <n|V|n> (Hellmann–Feynman theorem), d²E/dλ² / 2 = E^(2): checked by central
     # differences of exact eigenvalues; partial sums approach the exact level as the order grows.
-    m = _random_model(seed, n, False)
-    level = int(np.random.default_rng(seed).integers(n))
+    m = _random_model(key, n, False)
+    level = int(np.random.default_rng(key).integers(n))
     s = m.series(level, 6)
     h = 1e-4
     e = [np.linalg.eigvalsh(m.hamiltonian(x))[level] for x in (-h, 0.0, h)]
