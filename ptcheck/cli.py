@@ -93,6 +93,7 @@ model file (TOML; see also `python -c "import ptcheck.modelfile as m; help(m)"`)
 levels: 3 = energy rank 3 (0 = lowest unperturbed level); (1,0) or |1,0> = the label
 (1, 0); anything else = a string label.  --quantity "f01 = (1,0) - (0,0)".
 orders: 2, 4, pade2/2, pade2/2@2 (Padé in λ²).
+Give MODEL before the options that take several values (--levels, --orders, --format).
 
 output (in --out, default <MODEL name>-report): report.md (verdict, cautions, tables,
 figures), report.json (everything), comparison.csv, boundaries.csv, figures (*.png).

@@ -165,6 +165,7 @@ def quantity_to_dict(q: Quantity) -> dict:
     """JSON-safe description of a :class:`Quantity`."""
     return {
         "name": q.name,
+        "kind": getattr(q, "kind", "combination"),
         "levels": [_jsonable(k) for k in q.weights],
         "weights": [float(w) for w in q.weights.values()],
         "relative_to": q.relative_to,
