@@ -15,6 +15,10 @@ ENGINE = [
     "ptcheck.quantities",
     "ptcheck.treatment",
     "ptcheck.models",
+    "ptcheck.products",
+    "ptcheck.maps",
+    "ptcheck.modelfile",
+    "ptcheck._atomic",
 ]
 
 
