@@ -2,17 +2,21 @@
 
 Works on the energy coefficients ``c_0 … c_K`` of one level.
 
-* Coefficients are compared on the scale fixed by the rigorous Kato disc
-  (``ĉ_k = c_k r_K^k``): every ``|ĉ_k|`` is bounded by the same constant there,
-  and round-off stays near machine precision of the largest ``|ĉ_k|``.
+* Coefficients are compared on a coupling scale ``s`` at which the largest
+  term ``|c_k| s^k`` equals the isolation distance of the level
+  (``ĉ_k = c_k s^k``); round-off then sits near machine precision of the
+  largest ``|ĉ_k|``, and a tail that falls there abruptly marks a terminating
+  series.
 * *Pattern*: when in the tail only every p-th coefficient (``k ≡ o mod p``) is
   nonzero (p = 2: a series in λ², e.g. parity), the analysis runs on
   ``d_j = c_{o + p j}``, a series in ``μ = λ^p``; radii convert back with
   ``R_λ = R_μ^(1/p)``.
-* *Root test*: least-squares fit of ``log|d_j| ≈ α - j log R + γ log j`` over the
-  tail (upper envelope over ±2 neighbours, so that oscillating signs from
-  complex-conjugate singularities do not matter).
-* *Ratio test*: geometric mean of the last ratios ``|d_{j-1}/d_j|``.
+* *Root test*: slope of the upper envelope of ``log|d_j| + 1.5 log j`` over the
+  tail (a line refitted to the points not far below it, so that the troughs of
+  oscillating coefficients from complex-conjugate singularities do not
+  matter; the 1.5 log j removes the j^(-3/2) of a square-root branch point).
+* *Ratio test*: median of the last three ratios ``|d_{j-1}/d_j|`` (for
+  oscillating signs: of the Hunter–Guerrieri quotient below), not extrapolated.
 * *Domb–Sykes*: the ratios ``r_j = d_j / d_{j-1}`` of a singularity
   ``(1 - μ/μ0)^(-g)`` lie on the line ``r_j = (1/μ0)(1 + (g-1)/j)``: a linear fit in
   ``1/j`` over the tail gives ``1/μ0`` at ``1/j = 0`` (Domb & Sykes, Proc. R.
@@ -23,10 +27,12 @@ Works on the energy coefficients ``c_0 … c_K`` of one level.
   (1980)).
 * *Padé*: nearest pole of the near-diagonal Padé approximant of the d-series
   that is stable against the next lower approximant and is no Froissart doublet.
-* *Growth class*: ``log|r_j| ≈ a + b log j``; factorial growth gives b ≈ p,
-  a convergent series b ≈ 0.  b > 0.5 → asymptotic.  A tail that falls abruptly
-  to round-off (far below the extrapolation of the coefficients before it)
-  → terminating.
+* *Growth class*: factorial growth needs two signs: ``|r_j| ~ j^b`` with
+  b > 0.5 (Theil–Sen slope of log|r_j| against log j; for oscillating signs
+  the rise of the envelope slope between the middle and last third), and an
+  envelope slope that rises steadily over three windows of the tail (beats of
+  several singularities make it rise and fall).  A tail that sits at round-off
+  far below the trend of the coefficients before it → terminating.
 """
 
 from __future__ import annotations
@@ -35,7 +41,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .pade import froissart_mask, pade_coefficients, pade_evaluate, pade_poles
+from .pade import froissart_mask, pade_coefficients, pade_poles
 
 #: Scaled coefficients below this fraction of the largest one count as round-off.
 NOISE_RTOL = 1e-11
@@ -57,12 +63,11 @@ class CoefficientAnalysis:
     domb_sykes: float
     pade: float
     pade_poles: np.ndarray  # stable poles in λ (all p roots of each μ-pole)
-    pade_energies: np.ndarray  # Padé value near each pole (for EP seeds)
     notes: tuple[str, ...] = field(default=())
 
 
 def _nan_result(kind, p, o, k0, notes, b=np.nan):
-    return CoefficientAnalysis(kind, p, o, k0, b, np.nan, np.nan, np.nan, np.nan, np.zeros(0, complex), np.zeros(0, complex), tuple(notes))
+    return CoefficientAnalysis(kind, p, o, k0, b, np.nan, np.nan, np.nan, np.nan, np.zeros(0, complex), tuple(notes))
 
 
 def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
@@ -92,18 +97,20 @@ def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
 
     p, o = _pattern(cs, sig, k0)
 
-    # ---- terminating: the tail falls to round-off abruptly
+    # ---- terminating: the tail sits at round-off AND far below the trend of the head
     if K - k0 >= max(3, 2 * p):
-        on = [j for j in range(1, k0 + 1) if sig[j] and (j - o) % p == 0]
-        if len(on) >= 2:
-            q = (cs[on[-1]] / cs[on[-2]]) ** (1.0 / (on[-1] - on[-2]))
-        else:
-            q = 1.0
-        with np.errstate(over="ignore", under="ignore"):
-            extrapolated = cs[k0] * q ** (K - k0)
-        if extrapolated > 1e4 * NOISE_RTOL * top:
+        on = np.array([j for j in range(1, k0 + 1) if sig[j] and (j - o) % p == 0])
+        head = np.log(cs[on])
+        q = 0.0  # log growth per order; one point only: no trend (Kato: |ĉ_k| stays bounded)
+        if on.size >= 2:
+            hv = _upper_hull(on.astype(float), head)
+            q = min(0.0, (head[hv[-1]] - head[hv[0]]) / (on[hv[-1]] - on[hv[0]])) if hv.size >= 2 else 0.0
+        extrapolated = float(np.max(head[-3:])) + q * (K - k0)
+        tail = float(np.max(cs[k0 + 1 :]))
+        if tail == 0 or np.log(tail) < extrapolated + np.log(1e-8):
             return _nan_result("terminating", p, o, k0, [f"coefficients beyond order {k0} vanish to round-off"])
-        notes.append(f"coefficients beyond order {k0} are below round-off; estimates use orders <= {k0}")
+    # a gradual decay below the round-off threshold is genuine: keep every order
+    k0 = K
 
     js = np.array([j for j in range((o if o > 0 else 0), k0 + 1) if (j - o) % p == 0])
     jidx = (js - o) // p  # index in the μ-series
@@ -126,26 +133,19 @@ def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
 
     # ---- growth class: log|ratio| vs log j (Theil–Sen slope, robust to outliers)
     b = _growth_exponent(jj, dd, half)
-    if np.isfinite(b) and b > ASYMPTOTIC_SLOPE and _confirm_factorial(jj, dd, logm, half, p):
+    if np.isfinite(b) and b > ASYMPTOTIC_SLOPE and _confirm_factorial(jj, dd, p):
         return _nan_result("asymptotic", p, o, k0, notes, b)
 
-    # ---- root test: upper hull of log|d_j| + 1.5 log j (square-root branch point,
+    # ---- root test: upper envelope of log|d_j| + 1.5 log j (square-root branch point,
     # generic at an exceptional point, gives |d_j| ~ j^(-3/2) R^(-j) |cos(jθ + φ)|)
     corr = logm + 1.5 * np.log(jj)
-    hv = _upper_hull(jj[tail], corr[tail])
-    if hv.size >= 2:
-        coef = _lstsq(np.column_stack([np.ones(hv.size), jj[tail][hv]]), corr[tail][hv])
-        r_root_mu = float(np.exp(-coef[1])) if coef is not None else np.nan
-        if coef is None and hv.size == 2:
-            sl = (corr[tail][hv[1]] - corr[tail][hv[0]]) / (jj[tail][hv[1]] - jj[tail][hv[0]])
-            r_root_mu = float(np.exp(-sl))
-    else:
-        r_root_mu = np.nan
+    fit = _upper_fit(jj[tail], corr[tail])
+    r_root_mu = float(np.exp(-fit[1])) if fit is not None else np.nan
 
     # ---- ratio test (last ratios, not extrapolated) and Domb–Sykes (extrapolated in 1/j)
     r_ratio_mu, r_ds_mu = _ratio_estimates(jj, dd, half)
     # ---- Padé poles
-    r_pade_mu, poles_l, energies = _pade_radius(c, d, jidx, p, o)
+    r_pade_mu, poles_l = _pade_radius(d, jidx, p)
 
     conv = lambda r: float(r) ** (1.0 / p) if np.isfinite(r) and r > 0 else np.nan  # noqa: E731
     return CoefficientAnalysis(
@@ -159,7 +159,6 @@ def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
         conv(r_ds_mu),
         conv(r_pade_mu),
         poles_l,
-        energies,
         tuple(notes),
     )
 
@@ -224,41 +223,72 @@ def _theil_sen(x: np.ndarray, y: np.ndarray) -> float:
 
 
 def _growth_exponent(jj: np.ndarray, dd: np.ndarray, half: int) -> float:
-    """b in |ratio_j| ~ j^b: ≈ 0 for a convergent series, ≈ p for factorial growth."""
+    """b in |ratio_j| ~ j^b: ≈ 0 for a convergent series, ≈ p for factorial growth.
+
+    Regular signs: Theil–Sen slope of log|d_j/d_{j-1}| against log j over the
+    tail.  Oscillating signs: the change of the upper-envelope slope of
+    log|d_j| between the middle and the last third, divided by the change of
+    log j between their centres.
+    """
     rt, jt, regular = _regular_ratios(jj, dd, half)
     if regular:
         return _theil_sen(np.log(jt), np.log(np.abs(rt)))
-    if dd.size < 6:
-        return np.nan
-    h, jh = _hg_quotient(jj, dd, half)
-    ok = np.isfinite(h) & (h > 0)
-    return _theil_sen(np.log(jh[ok]), 0.5 * np.log(h[ok]))
-
-
-def _confirm_factorial(jj: np.ndarray, dd: np.ndarray, logm: np.ndarray, half: int, p: int) -> bool:
-    """Second, independent sign of factorial growth (guards against beats of several singularities).
-
-    Regular signs: the ratios |d_j/d_{j-1}| increase steadily (>= 80 % of steps).
-    Oscillating signs: the growth rate of the upper envelope of log|d_j| over the
-    last third exceeds that over the middle third by more than 0.4 p (factorial
-    growth: p log(5/3) ≈ 0.51 p; geometric growth: 0).
-    """
-    rt, _, regular = _regular_ratios(jj, dd, half)
-    if regular:
-        a = np.abs(rt)
-        return bool(np.mean(np.diff(a) > 0) >= 0.8)
     n = jj.size
     if n < 9:
+        return np.nan
+    with np.errstate(divide="ignore"):
+        logm = np.log(np.abs(dd))
+    slopes, centres = [], []
+    for sl in (slice(n // 3, 2 * n // 3 + 1), slice(2 * n // 3, n)):
+        fit = _upper_fit(jj[sl], logm[sl])
+        if fit is None:
+            return np.nan
+        slopes.append(fit[1])
+        centres.append(np.mean(jj[sl]))
+    return float((slopes[1] - slopes[0]) / np.log(centres[1] / centres[0]))
+
+
+def _upper_fit(x: np.ndarray, y: np.ndarray, *, drop: float = 0.5, rounds: int = 6) -> tuple[float, float] | None:
+    """Line through the upper envelope of (x, y): refit on points no more than
+    ``drop`` below the previous fit (drops the troughs of oscillating data)."""
+    keep = np.isfinite(y)
+    sol = None
+    for _ in range(rounds):
+        if np.count_nonzero(keep) < 2:
+            break
+        sol = _lstsq(np.column_stack([np.ones(np.count_nonzero(keep)), x[keep]]), y[keep]) if np.count_nonzero(keep) > 2 else None
+        if sol is None:
+            xi, yi = x[keep], y[keep]
+            sol = np.array([yi[0] - (yi[1] - yi[0]) / (xi[1] - xi[0]) * xi[0], (yi[1] - yi[0]) / (xi[1] - xi[0])])
+        res = y - (sol[0] + sol[1] * x)
+        new = np.isfinite(y) & (res >= -drop)
+        if np.array_equal(new, keep):
+            break
+        keep = new
+    return None if sol is None else (float(sol[0]), float(sol[1]))
+
+
+def _confirm_factorial(jj: np.ndarray, dd: np.ndarray, p: int) -> bool:
+    """Second, independent sign of factorial growth (guards against beats of several singularities).
+
+    The upper-envelope slope of log|d_j| must rise steadily over three windows
+    [J/4, J/2], [J/2, 3J/4], [3J/4, J], each step by more than 0.2 p.  Factorial
+    growth (slope ≈ p log j) rises by p log(5/3) ≈ 0.5 p and p log(7/5) ≈ 0.34 p;
+    geometric growth with beats between singularities rises and falls.
+    """
+    J = jj.size
+    if J < 12:
         return False
-    thirds = [slice(n // 3, 2 * n // 3 + 1), slice(2 * n // 3, n)]
+    with np.errstate(divide="ignore"):
+        logm = np.log(np.abs(dd))
+    edges = [J // 4, J // 2, 3 * J // 4, J]
     slopes = []
-    for sl in thirds:
-        x, y = jj[sl], logm[sl]
-        hv = _upper_hull(x, y)
-        if hv.size < 2:
+    for lo, hi in zip(edges[:-1], edges[1:]):
+        fit = _upper_fit(jj[lo:hi], logm[lo:hi])
+        if fit is None:
             return False
-        slopes.append((y[hv[-1]] - y[hv[0]]) / (x[hv[-1]] - x[hv[0]]))
-    return bool(slopes[1] - slopes[0] > 0.4 * p)
+        slopes.append(fit[1])
+    return bool(np.all(np.diff(slopes) > 0.2 * p))
 
 
 def _upper_hull(x: np.ndarray, y: np.ndarray) -> np.ndarray:
@@ -299,40 +329,26 @@ def _ratio_estimates(jj: np.ndarray, dd: np.ndarray, half: int) -> tuple[float, 
     return ratio, float(1.0 / np.sqrt(np.median(ext)))
 
 
-def _pade_radius(c: np.ndarray, d: np.ndarray, jidx: np.ndarray, p: int, o: int) -> tuple[float, np.ndarray, np.ndarray]:
-    """Nearest stable non-Froissart Padé pole of the μ-series; λ-poles; energies."""
-    # full μ-series g(μ) = Σ_j d_j μ^j (off-pattern head terms are entire and dropped)
+def _pade_radius(d: np.ndarray, jidx: np.ndarray, p: int) -> tuple[float, np.ndarray]:
+    """Nearest stable non-Froissart Padé pole of the μ-series (radius in μ); poles in λ."""
+    # μ-series g(μ) = Σ_j d_j μ^j (off-pattern head terms are entire and dropped)
     g = np.zeros(int(jidx[-1]) + 1)
     g[jidx] = d
     J = g.size - 1
+    none = (np.nan, np.zeros(0, complex))
     if J < 4:
-        return np.nan, np.zeros(0, complex), np.zeros(0, complex)
+        return none
     m1 = J // 2
     l1 = J - m1
     poles = []
     for num, den in ((l1, m1), (l1 - 1, m1 - 1)):
-        if den < 1:
-            return np.nan, np.zeros(0, complex), np.zeros(0, complex)
         a, b = pade_coefficients(g, num, den)
         pl = pade_poles(b)
-        bad = froissart_mask(a, b)
-        poles.append((pl[~bad], a, b))
-    top, a1, b1 = poles[0]
-    low = poles[1][0]
-    stable = [z for z in top if low.size and np.min(np.abs(low - z)) <= 0.05 * abs(z)]
-    stable = np.array(stable, dtype=complex)
+        poles.append(pl[~froissart_mask(a, b)])
+    top, low = poles
+    stable = np.array([z for z in top if low.size and np.min(np.abs(low - z)) <= 0.05 * abs(z)], dtype=complex)
     if stable.size == 0:
-        return np.nan, np.zeros(0, complex), np.zeros(0, complex)
+        return none
     r_mu = float(np.min(np.abs(stable)))
-    # λ-roots of each μ-pole and a rough energy there (the Padé value slightly inside)
-    lam_poles, energies = [], []
-    coef_full = c
-    for z in stable[:6]:
-        for l in range(p):
-            lam = complex(z) ** (1.0 / p) * np.exp(2j * np.pi * l / p)
-            lam_poles.append(lam)
-            mu_in = (0.85 * lam) ** p
-            val = pade_evaluate(a1, b1, mu_in) * (0.85 * lam) ** o
-            head = sum(coef_full[k] * (0.85 * lam) ** k for k in range(coef_full.size) if (k - o) % p != 0)
-            energies.append(complex(val + head) if np.isfinite(val) else np.nan)
-    return r_mu, np.array(lam_poles, dtype=complex), np.array(energies, dtype=complex)
+    lam_poles = [complex(z) ** (1.0 / p) * np.exp(2j * np.pi * l / p) for z in stable[:6] for l in range(p)]
+    return r_mu, np.array(lam_poles, dtype=complex)
