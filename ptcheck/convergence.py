@@ -61,6 +61,7 @@ Examples
 
 from __future__ import annotations
 
+import contextlib
 import html
 import math
 from dataclasses import dataclass, field
@@ -343,6 +344,19 @@ def _ep_seeds(
     return out[:16]
 
 
+def _one_blas_thread() -> Any:
+    """Limit BLAS to one thread for the EP search (no-op without threadpoolctl).
+
+    The search solves hundreds of small dense eigenproblems; on a busy machine
+    multi-threaded BLAS makes each of them many times slower.
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover - threadpoolctl is a dependency
+        return contextlib.nullcontext()
+    return threadpool_limits(limits=1, user_api="blas")
+
+
 def _median_finite(x: np.ndarray) -> float:
     x = x[np.isfinite(x) & (x > 0)]
     return float(np.median(x)) if x.size else math.nan
@@ -388,8 +402,9 @@ def _analyse_level(
             search = ExceptionalPointSearch(model.e0, _dense_v(model))
         base = r_coef if np.isfinite(r_coef) else (4.0 * kato if np.isfinite(kato) else 1.0)
         reach = 2.5 * max(base, kato if np.isfinite(kato) else 0.0)
-        seeds = _ep_seeds(search, level, ca, reach, extra_seeds)
-        eps, n_verified = search.search(level, seeds)
+        with _one_blas_thread():  # many small dense eigenproblems: threads only add overhead
+            seeds = _ep_seeds(search, level, ca, reach, extra_seeds)
+            eps, n_verified = search.search(level, seeds)
         unsure = [e for e in eps if e.connected is None]
         if unsure:
             notes.append(
