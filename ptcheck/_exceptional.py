@@ -10,7 +10,7 @@ eigenvalues of a finite matrix pencil are algebraic functions of λ).
 
 Method
 ------
-1. *Seeds.*  (a) Two-level estimates: for every partner m the EPs of the
+1. *Guesses.*  (a) Two-level estimates: for every partner m the EPs of the
    2 x 2 pencil spanned by the unperturbed states n, m,
    ``λ = -Δ / (δ ∓ 2 i |V_nm|)`` with ``Δ = E_m - E_n``, ``δ = V_mm - V_nn``;
    (b) near-crossings of the real-λ spectrum: at a local minimum of the gap of
@@ -18,7 +18,7 @@ Method
    three grid points has its zeros at ``λc ± i g / √a``;
    (c) poles of Padé approximants of the series (passed in by the caller).
 2. *Approach.*  Secant iteration on ``f(λ) = (E_a(λ) - E_b(λ))²``, with E_a
-   the eigenvalue followed from the seed's energy (nearest the previous E_a)
+   the eigenvalue followed from the guess's energy (nearest the previous E_a)
    and E_b its nearest neighbour; ``f`` is analytic with a simple zero at an EP.
 3. *Polish.*  Newton on the bordered Jordan-chain ("defective eigenvalue")
    system in the unknowns ``(x, y, E, λ)``::
@@ -101,8 +101,8 @@ class ExceptionalPointSearch:
     def _escale(self, lam: complex) -> float:
         return self.scale + abs(lam) * self.vscale
 
-    # ------------------------------------------------------------------ seeds
-    def pair_seeds(self, level: int, count: int = 6) -> list[tuple[complex, complex]]:
+    # ------------------------------------------------------------------ guesses
+    def pair_guesses(self, level: int, count: int = 6) -> list[tuple[complex, complex]]:
         """Two-level EP estimates (λ, E) with Im λ > 0, nearest first."""
         n = level
         out = []
@@ -124,7 +124,7 @@ class ExceptionalPointSearch:
         out.sort(key=lambda t: abs(t[0]))
         return out[:count]
 
-    def crossing_seeds(self, level: int, reach: float, *, points: int = 61, window: int = 2) -> list[tuple[complex, complex]]:
+    def crossing_guesses(self, level: int, reach: float, *, points: int = 61, window: int = 2) -> list[tuple[complex, complex]]:
         """EP estimates from avoided crossings of the real spectrum in |λ| <= reach."""
         if not (np.isfinite(reach) and reach > 0) or self.n < 2:
             return []
@@ -175,11 +175,11 @@ class ExceptionalPointSearch:
         return complex((w[a] - w[b]) ** 2), complex(w[a])
 
     def approach(self, lam: complex, target: complex, *, maxiter: int = 30) -> tuple[complex, complex] | None:
-        """Secant iteration on (E_a - E_b)^2 from a seed; returns (λ, E) or None."""
+        """Secant iteration on (E_a - E_b)^2 from a guess; returns (λ, E) or None."""
         x0 = complex(lam)
         if x0.imag <= 0:
             x0 = complex(x0.real, abs(x0.imag) + 1e-3 * abs(x0))
-        seed = x0
+        guess = x0
         x1 = x0 * (1 + 1e-3j) + 1e-12
         f0, e0 = self._gapsq(x0, target)
         f1, e1 = self._gapsq(x1, e0)
@@ -193,8 +193,8 @@ class ExceptionalPointSearch:
                 step *= lim / abs(step)
             x0, f0, e0 = x1, f1, e1
             x1 = x1 + step
-            if abs(x1 - seed) > 0.75 * abs(seed):
-                return None  # wandered off: the seed was not near an EP of this pair
+            if abs(x1 - guess) > 0.75 * abs(guess):
+                return None  # wandered off: the guess was not near an EP of this pair
             f1, e1 = self._gapsq(x1, e0)
             if abs(step) <= 1e-9 * abs(x1):
                 break
@@ -334,14 +334,14 @@ class ExceptionalPointSearch:
     def search(
         self,
         level: int,
-        seeds: list[tuple[complex, complex | None]],
+        guesses: list[tuple[complex, complex | None]],
         *,
         max_points: int = 4,
         reach_factor: float = 1.5,
     ) -> tuple[list[EPCandidate], int]:
-        """Find, verify and connect EPs from the seeds (taken nearest first).
+        """Find, verify and connect EPs from the guesses (taken nearest first).
 
-        Each new verified EP is checked for connection at once; seeds farther
+        Each new verified EP is checked for connection at once; guesses farther
         than ``reach_factor`` x the nearest connected EP are skipped (they
         cannot be expected to lead to a nearer one).
 
@@ -351,8 +351,8 @@ class ExceptionalPointSearch:
         found: list[tuple[complex, complex]] = []
         out: list[EPCandidate] = []
         best = np.inf
-        seeds = sorted(seeds, key=lambda t: abs(t[0]))
-        for lam, e in seeds:
+        guesses = sorted(guesses, key=lambda t: abs(t[0]))
+        for lam, e in guesses:
             if not np.isfinite(lam) or lam == 0:
                 continue
             if abs(lam) > reach_factor * best or len(out) >= max_points:
@@ -362,9 +362,9 @@ class ExceptionalPointSearch:
                 lam = lam.conjugate()
                 e = None if e is None else complex(e).conjugate()
             if any(abs(lam - f[0]) <= 1e-3 * abs(lam) for f in found):
-                continue  # this seed sits on an EP already found
+                continue  # this guess sits on an EP already found
             if e is None:
-                # follow the level's own branch towards the seed: the pair to chase contains it
+                # follow the level's own branch towards the guess: the pair to chase contains it
                 e = self._continue(lam, 0.0, 1.0, complex(self.e0[level]), lam * complex(self.v[level, level]), max_steps=200)
             target = complex(self.e0[level]) if e is None else complex(e)
             got = self.approach(lam, target)

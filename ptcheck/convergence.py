@@ -39,7 +39,7 @@ Limits
   ``ep_search="auto"`` it runs for N <= :data:`EP_DENSE_LIMIT` and is skipped
   with a note above that (and for asymptotic series, whose truncated-basis
   singularities only describe the truncation).
-* The search starts from seeds (two-level estimates, real-axis avoided
+* The search starts from guesses (two-level estimates, real-axis avoided
   crossings, Padé poles); it can miss an EP.  A miss shows up as
   ``agreement == 'disagree'`` and the smaller radius is reported.
 * Coefficient estimators need ~10+ orders and assume one dominant singularity
@@ -322,19 +322,19 @@ def _dense_v(model: Model) -> np.ndarray:
     return v.toarray() if hasattr(v, "toarray") else np.asarray(v)
 
 
-def _ep_seeds(
+def _ep_guesses(
     search: ExceptionalPointSearch, level: int, ca: CoefficientAnalysis, reach: float, extra: list[tuple[complex, complex]]
 ) -> list[tuple[complex, complex | None]]:
-    seeds: list[tuple[complex, complex | None]] = []
-    seeds += [(z, None) for z in ca.pade_poles]  # energy: found by continuing the branch
-    seeds += search.pair_seeds(level)
-    seeds += search.crossing_seeds(level, reach, points=60 if search.n <= 50 else 25)
-    seeds += extra
+    guesses: list[tuple[complex, complex | None]] = []
+    guesses += [(z, None) for z in ca.pade_poles]  # energy: found by continuing the branch
+    guesses += search.pair_guesses(level)
+    guesses += search.crossing_guesses(level, reach, points=60 if search.n <= 50 else 25)
+    guesses += extra
     # nearest first; drop exact duplicates
-    seeds = [s for s in seeds if np.isfinite(s[0]) and s[0] != 0]
-    seeds.sort(key=lambda s: abs(s[0]))
+    guesses = [s for s in guesses if np.isfinite(s[0]) and s[0] != 0]
+    guesses.sort(key=lambda s: abs(s[0]))
     out: list[tuple[complex, complex | None]] = []
-    for s in seeds:
+    for s in guesses:
         z = complex(s[0])
         z = z if z.imag >= 0 else z.conjugate()
         e = s[1] if s[1] is None or complex(s[0]).imag >= 0 else complex(s[1]).conjugate()
@@ -369,7 +369,7 @@ def _analyse_level(
     coupling: float | None,
     ep_search: str,
     search: ExceptionalPointSearch | None,
-    extra_seeds: list[tuple[complex, complex]],
+    extra_guesses: list[tuple[complex, complex]],
 ) -> ConvergenceResult:
     series = model.series(level, order)  # DegenerateLevelError propagates
     c = np.asarray(series.energy_coefficients, dtype=float)
@@ -403,8 +403,8 @@ def _analyse_level(
         base = r_coef if np.isfinite(r_coef) else (4.0 * kato if np.isfinite(kato) else 1.0)
         reach = 2.5 * max(base, kato if np.isfinite(kato) else 0.0)
         with _one_blas_thread():  # many small dense eigenproblems: threads only add overhead
-            seeds = _ep_seeds(search, level, ca, reach, extra_seeds)
-            eps, n_verified = search.search(level, seeds)
+            guesses = _ep_guesses(search, level, ca, reach, extra_guesses)
+            eps, n_verified = search.search(level, guesses)
         unsure = [e for e in eps if e.connected is None]
         if unsure:
             notes.append(

@@ -132,7 +132,7 @@ def test_diagonal_perturbation_terminates_at_first_order():
 # ---------------------------------------------------------------- property test
 @st.composite
 def small_models(draw):
-    # invented random models: spacings drawn by hypothesis, a dense random V from a drawn seed
+    # invented random models: spacings drawn by hypothesis, a dense random V from a drawn key
     # (dense V: no symmetry, so no exact real crossings and eigvalsh()[n] is level n's branch)
     n = draw(st.integers(2, 5))
     gaps = draw(st.lists(st.floats(0.2, 2.0), min_size=n - 1, max_size=n - 1))
