@@ -97,6 +97,10 @@ def start_voila(root_dir: Path, *, timeout: float = 60.0) -> VoilaServer:
         (tmp / sub).mkdir()
         env[var] = str(tmp / sub)
     env["JUPYTER_PLATFORM_DIRS"] = "1"
+    # Voilà's templates live in <prefix>/share/jupyter; inside a virtual environment built on a
+    # system Python they may sit under the base prefix only, so name both data paths explicitly.
+    data_paths = dict.fromkeys(str(Path(p) / "share" / "jupyter") for p in (sys.prefix, sys.base_prefix))
+    env["JUPYTER_PATH"] = os.pathsep.join(list(data_paths) + ([env["JUPYTER_PATH"]] if env.get("JUPYTER_PATH") else []))
     repo = str(Path(__file__).resolve().parents[1])
     env["PYTHONPATH"] = repo + (os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else "")
     port = free_port()
