@@ -18,6 +18,8 @@ from typing import Any
 import numpy as np
 from scipy.optimize import linear_sum_assignment, minimize_scalar
 
+from ._eigensolvers import combine, inner
+
 __all__ = [
     "PathPoint",
     "align_clusters",
@@ -71,7 +73,7 @@ def align_clusters(prev: np.ndarray, w: np.ndarray, x: np.ndarray, tol: float) -
             size = i - start
             if size > 1:
                 block = x[:, start:i]
-                m = prev.conj().T @ block  # (Ka, size)
+                m = inner(prev, block)  # (Ka, size)
                 weight = np.sum(np.abs(m) ** 2, axis=1)
                 rows = np.sort(np.argsort(weight)[::-1][:size])
                 if rows.size == size:
@@ -79,7 +81,7 @@ def align_clusters(prev: np.ndarray, w: np.ndarray, x: np.ndarray, tol: float) -
                     rot = vh.conj().T @ u.conj().T  # (size, size) unitary
                     if not copied:
                         x, w, copied = np.array(x, dtype=np.result_type(x, rot)), np.array(w), True
-                    x[:, start:i] = block @ rot
+                    x[:, start:i] = combine(block, rot)
                     w[start:i] = np.real(np.einsum("ji,j,ji->i", rot.conj(), w[start:i], rot))
             start = i
     order = np.argsort(w, kind="stable")
@@ -90,8 +92,7 @@ def align_clusters(prev: np.ndarray, w: np.ndarray, x: np.ndarray, tol: float) -
 
 def overlaps(prev: np.ndarray, x: np.ndarray) -> np.ndarray:
     """Squared overlaps |⟨prev_i|x_j⟩|², shape (Ka, Kb)."""
-    m = prev.conj().T @ x
-    return np.abs(m) ** 2
+    return np.abs(inner(prev, x)) ** 2
 
 
 def assign(ov: np.ndarray) -> np.ndarray:
@@ -137,8 +138,8 @@ def gap_minima(path: list[PathPoint], level: int, scale: float) -> list[GapMinim
     For each side separately (neighbour above / below) a sampled minimum at path
     point j counts if
 
-    * the gap rises on both sides by more than the noise floor
-      ``1e-9 x scale + 10 x residual tolerance``;
+    * the gap rises on both sides by more than the noise floor ``1e-9 x scale``
+      (eigenvalue errors are of order residual² / gap, far below it);
     * the neighbour on that side keeps its identity over j-1, j, j+1 (at an
       exact crossing the neighbour changes and the gap has a V-shaped zero,
       which is not an avoided crossing);
@@ -151,7 +152,7 @@ def gap_minima(path: list[PathPoint], level: int, scale: float) -> list[GapMinim
     floor = np.zeros(npts)
     for j, p in enumerate(path):
         c = p.column(level)
-        floor[j] = 1e-9 * scale + 10.0 * p.res_tol
+        floor[j] = 1e-9 * scale
         if c is None:
             continue
         k = p.energies.size

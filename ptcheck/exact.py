@@ -58,7 +58,7 @@ import numpy as np
 import scipy.sparse as sp
 
 from . import _validation as val
-from ._eigensolvers import make_backend
+from ._eigensolvers import inner, make_backend
 from ._tracking import (
     PathPoint,
     align_clusters,
@@ -494,16 +494,20 @@ class ExactSolver:
         k = min(n, (cmax - cmin + 1) + 2 * pad)
         return ("sigma", float(sigma), int(k))
 
-    def _solve(self, coupling: float, spec: tuple, start: np.ndarray | None) -> _Raw:
+    def _solve(self, coupling: float, spec: tuple, start: np.ndarray | None, start_coupling: float | None = None) -> _Raw:
         self.solves += 1
         n = self.model.n
         if spec[0] == "rank":
             lo, hi = spec[1], spec[2]
-            w, x = self._impl.lowest(coupling, hi, start) if lo == 0 else self._impl.window(coupling, lo, hi, start)
+            w, x = (
+                self._impl.lowest(coupling, hi, start, start_coupling)
+                if lo == 0
+                else self._impl.window(coupling, lo, hi, start, start_coupling)
+            )
             w, x = np.asarray(w, dtype=float), np.asarray(x)
             return _Raw(spec, coupling, w, x, lo, hi == n, self._res_tol(coupling))
         sigma, k = spec[1], spec[2]
-        w, x = self._impl.nearest(coupling, sigma, k, start)
+        w, x = self._impl.nearest(coupling, sigma, k, start, start_coupling)
         return _Raw(spec, coupling, np.asarray(w, dtype=float), np.asarray(x), None, False, self._res_tol(coupling))
 
     # ------------------------------------------------------------------ one step
@@ -539,7 +543,7 @@ class ExactSolver:
         )
         problems: list = []
         lost = False
-        vnorm = max(self.model.norm_v, 1e-300)
+        entering_slope: dict | None = None
         for t in tracked:
             r = a.column(t)
             if r is None:
@@ -558,25 +562,48 @@ class ExactSolver:
                 continue
             # energy-order swaps with coupled states: a skipped avoided crossing
             ea_t, eb_t = a.energies[r], w[c]
-            for r2, c2 in enumerate(col_of):
-                if r2 == r or c2 < 0 or match[c2] != r2:
+            for c2 in range(kb):
+                if c2 == c:
                     continue
-                da = ea_t - a.energies[r2]
+                r2 = match[c2]
+                if r2 >= 0:
+                    ea_q = a.energies[r2]
+                else:
+                    # entered the window: its energy at λ_a by first-order extrapolation
+                    # (Hellmann–Feynman slope ⟨ψ|V|ψ⟩ at λ_b)
+                    if entering_slope is None:
+                        entering_slope = {}
+                    if c2 not in entering_slope:
+                        xc = x[:, c2]
+                        entering_slope[c2] = float(np.real(np.vdot(xc, self.model.v @ xc)))
+                    ea_q = w[c2] - (raw.coupling - a.coupling) * entering_slope[c2]
+                da = ea_t - ea_q
                 db = eb_t - w[c2]
                 if da * db >= 0 or abs(da) <= ctol or abs(db) <= ctol:
                     continue
-                if self._coupled(a, r, r2, abs(da), vnorm) and self._coupled(b, c, c2, abs(db), vnorm):
-                    problems.append((t, int(ids[c2]), "swap"))
+                coupled = self._coupled(b, c, c2, abs(db)) and (r2 < 0 or self._coupled(a, r, r2, abs(da)))
+                problems.append((t, int(ids[c2]) if r2 >= 0 else None, "swap" if coupled else "crossing"))
         return b, _StepCheck(ok=not problems and not lost, lost=lost, problems=problems)
 
-    def _coupled(self, p: PathPoint, i: int, j: int, gap: float, vnorm: float) -> bool:
-        """Is |⟨ψ_i|V|ψ_j⟩| larger than eigenvector errors (residual / gap) can explain?"""
+    def _coupled(self, p: PathPoint, i: int, j: int, gap: float) -> bool:
+        """Is |⟨ψ_i|V|ψ_j⟩| larger than the eigenvector errors of the solve can explain?
+
+        An eigenvector with residual r is mixed with a neighbour at distance
+        ``gap`` by at most r / gap, which fakes a coupling element of about
+        (r / gap) |⟨V⟩_i - ⟨V⟩_j| (and (r / gap) ‖V‖ from all other states, with
+        a 1e-3 weight since their gaps are larger).  A symmetry-protected crossing
+        has an exactly zero element; a factor 10 above this noise counts as coupled.
+        """
+        v = self.model.v
+        vnorm = max(self.model.norm_v, 1e-300)
         if p.coupling == 0.0 and p.res_tol == 0.0:
-            elem = abs(self.model.v[p.ids[i], p.ids[j]]) if p.ids[i] >= 0 and p.ids[j] >= 0 else 0.0
+            elem = abs(v[p.ids[i], p.ids[j]]) if p.ids[i] >= 0 and p.ids[j] >= 0 else 0.0
             return bool(elem > 1e-12 * vnorm)
-        vi = self.model.v @ p.vectors[:, i]
-        elem = abs(np.vdot(p.vectors[:, j], vi))
-        noise = 10.0 * (p.res_tol / max(gap, 1e-300)) * 2.0 * vnorm + 1e-12 * vnorm
+        xi, xj = p.vectors[:, i], p.vectors[:, j]
+        vi, vj = v @ xi, v @ xj
+        elem = abs(np.vdot(xj, vi))
+        slope_diff = abs(np.real(np.vdot(xi, vi)) - np.real(np.vdot(xj, vj)))
+        noise = 10.0 * (p.res_tol / max(gap, 1e-300)) * (slope_diff + 1e-3 * vnorm) + 1e-12 * vnorm
         return bool(elem > noise)
 
     def _step(self, a: PathPoint, coupling: float, tracked: frozenset, raw: _Raw | None) -> tuple[PathPoint, _StepCheck, _Raw]:
@@ -586,7 +613,7 @@ class ExactSolver:
         for attempt in range(4):
             spec = self._spec(a, tracked, pad)
             if raw is None or raw.spec != spec or raw.coupling != coupling:
-                raw = self._solve(coupling, spec, a.vectors)
+                raw = self._solve(coupling, spec, a.vectors, a.coupling)
             b, check = self._match(a, raw, tracked)
             if not check.lost:
                 break
@@ -617,6 +644,8 @@ class ExactSolver:
                 stack.append((0.5 * (cur.coupling + lam), depth + 1, None))
                 continue
             for t, partner, kind in check.problems:
+                if kind == "crossing":
+                    continue  # uncoupled states: an exact crossing, followed diabatically as it must be
                 if kind == "lost":
                     msg = (
                         f"level {self.model.label(t)}: lost from the eigenpair window between λ={cur.coupling:.6g} "
@@ -832,11 +861,11 @@ class ExactSolver:
         )
 
         def gap2(lam: float) -> float:
-            raw = self._solve(float(lam), spec, p.vectors)
+            raw = self._solve(float(lam), spec, p.vectors, p.coupling)
             x, w = raw.vectors, raw.energies
             if w.size < 2:
                 return np.inf
-            proj = np.abs(x.conj().T @ pair) ** 2
+            proj = np.abs(inner(x, pair)) ** 2
             weight = proj.sum(axis=1)
             best = int(np.argmax(weight[:-1] + weight[1:]))
             return float((w[best + 1] - w[best]) ** 2)
@@ -850,14 +879,18 @@ class ExactSolver:
             xs, gaps = xs[::-1], gaps[::-1]
         xtol = 1e-6 * max(abs(xs[2] - xs[0]), 1e-300) + 1e-12
         lam_min, g2, _ = parabolic_minimum(gap2, xs, tuple(gaps), max_evals=4, xtol=xtol)
-        partner, plabel = self._partner(gm.partner_id, p.vectors[:, cp])
+        partner, plabel = self._partner(gm.partner_id, p.vectors[:, cp], exclude=set(int(i) for i in p.ids if i >= 0))
         a, b = (gm.level, partner), (self.model.label(gm.level), plabel)
         return AvoidedCrossing(coupling=float(lam_min), min_gap=float(np.sqrt(max(g2, 0.0))), levels=a, labels=b)
 
-    def _partner(self, pid: int, vec: np.ndarray) -> tuple[int, str]:
+    def _partner(self, pid: int, vec: np.ndarray, exclude: set) -> tuple[int, str]:
+        """Identity of the partner: carried id, else its largest component outside the window's known levels."""
         if pid >= 0:
             return pid, self.model.label(pid)
-        guess = int(np.argmax(np.abs(vec)))
+        weight = np.abs(vec) ** 2
+        if exclude:
+            weight[np.fromiter(exclude, dtype=int)] = -1.0
+        guess = int(np.argmax(weight))
         return guess, self.model.label(guess) + "?"
 
 
