@@ -47,10 +47,15 @@ class PathPoint:
     top: bool  # the window reaches the top of the spectrum
     res_tol: float  # residual tolerance of the solve (energy units)
     certified: frozenset = field(default_factory=frozenset)
+    drift: int = 0  # largest change of a tracked level's column over the step that led here
 
     def column(self, level: int) -> int | None:
-        hit = np.flatnonzero(self.ids == level)
-        return int(hit[0]) if hit.size else None
+        """Column holding identity ``level`` (None if absent)."""
+        lookup = self.__dict__.get("_lookup")
+        if lookup is None or lookup[0] is not self.ids:
+            lookup = (self.ids, {int(i): c for c, i in enumerate(self.ids)})
+            self.__dict__["_lookup"] = lookup
+        return lookup[1].get(int(level))
 
     @property
     def nbytes(self) -> int:
@@ -209,7 +214,7 @@ def parabolic_minimum(
         curv = (f2 - f1) / (x2 - x1) - (f1 - f0) / (x1 - x0) if x2 > x1 > x0 else -1.0
         if den == 0 or curv <= 0:
             res = minimize_scalar(
-                f, bounds=(lo, hi), method="bounded", options={"xatol": xtol, "maxiter": max(max_evals - evals, 1)}
+                f, bounds=(lo, hi), method="bounded", options={"xatol": xtol, "maxiter": max(max_evals - evals - 1, 1)}
             )
             evals += int(res.nfev)
             if res.fun < best_f:
@@ -221,11 +226,14 @@ def parabolic_minimum(
             break
         if any(abs(x_new - p[0]) <= 0.5 * xtol for p in pts):
             break
+        predicted = float(np.polyval(np.polyfit([x0, x1, x2], [f0, f1, f2], 2), x_new))
         f_new = float(f(x_new))
         evals += 1
         last = x_new
         if f_new < best_f:
             best_x, best_f = x_new, f_new
+        if abs(f_new - predicted) <= 1e-3 * abs(f_new) + 1e-300:
+            break  # the parabola describes gap² here: its vertex is the minimum
         # keep the best point and its two neighbours
         allp = sorted(pts + [(x_new, f_new)])
         ib = int(np.argmin([p[1] for p in allp]))

@@ -18,7 +18,9 @@ Tracking rules (all thresholds are class attributes of :class:`ExactSolver`):
   ``max_depth`` halvings) when a tracked level's best overlap is below
   ``MIN_OVERLAP`` = 0.8, or when it swapped energy order with a state it is
   coupled to (``|⟨ψ_t|V|ψ_q⟩|`` above what the solver's residual can explain),
-  i.e. when the step jumped over an avoided crossing;
+  i.e. when the step jumped over an avoided crossing; a swap with an uncoupled
+  state (an exact, e.g. symmetry-protected, crossing) gets at most
+  ``EXACT_CROSSING_DEPTH`` = 1 halving and is then followed diabatically;
 * if the depth cap is reached, the level is continued diabatically (largest
   overlap), a note is recorded in the result and a
   :class:`~ptcheck.errors.TrackingWarning` is emitted;
@@ -319,6 +321,11 @@ class ExactSolver:
     MIN_OVERLAP = 0.8
     LOST_WEIGHT = 0.9
     MATCH_OVERLAP = 0.5
+    #: halvings spent on a crossing of states judged uncoupled (an exact crossing) before
+    #: accepting it; a coupled crossing is refined up to ``max_depth``.  The coupling test
+    #: (:meth:`_coupled`) sees any avoided crossing whose half-gap exceeds ~10x the
+    #: eigenvector residual, so narrower ones are followed diabatically as exact crossings.
+    EXACT_CROSSING_DEPTH = 1
 
     def __init__(
         self,
@@ -588,8 +595,8 @@ class ExactSolver:
     def _coupled(self, p: PathPoint, i: int, j: int, gap: float) -> bool:
         """Is |⟨ψ_i|V|ψ_j⟩| larger than the eigenvector errors of the solve can explain?
 
-        An eigenvector with residual r is mixed with a neighbour at distance
-        ``gap`` by at most r / gap, which fakes a coupling element of about
+        An eigenvector with residual r (measured here) is mixed with a neighbour
+        at distance ``gap`` by at most r / gap, which fakes a coupling element of about
         (r / gap) |⟨V⟩_i - ⟨V⟩_j| (and (r / gap) ‖V‖ from all other states, with
         a 1e-3 weight since their gaps are larger).  A symmetry-protected crossing
         has an exactly zero element; a factor 10 above this noise counts as coupled.
@@ -603,11 +610,17 @@ class ExactSolver:
         vi, vj = v @ xi, v @ xj
         elem = abs(np.vdot(xj, vi))
         slope_diff = abs(np.real(np.vdot(xi, vi)) - np.real(np.vdot(xj, vj)))
-        noise = 10.0 * (p.res_tol / max(gap, 1e-300)) * (slope_diff + 1e-3 * vnorm) + 1e-12 * vnorm
+        e0 = self.model.e0
+        res = max(
+            float(np.linalg.norm(e0 * xi + p.coupling * vi - p.energies[i] * xi)),
+            float(np.linalg.norm(e0 * xj + p.coupling * vj - p.energies[j] * xj)),
+            1e-15 * self._scale(p.coupling),
+        )
+        noise = 10.0 * (res / max(gap, 1e-300)) * (slope_diff + 1e-3 * vnorm) + 1e-12 * vnorm
         return bool(elem > noise)
 
     def _step(self, a: PathPoint, coupling: float, tracked: frozenset, raw: _Raw | None) -> tuple[PathPoint, _StepCheck, _Raw]:
-        pad = self._pad()
+        pad = self._pad() + a.drift  # levels that crossed on the last step will likely cross again
         check = None
         b = None
         for attempt in range(4):
@@ -621,6 +634,10 @@ class ExactSolver:
             if raw.spec[0] == "rank" and raw.lo == 0 and raw.top:
                 break  # whole spectrum already in the window
         assert b is not None and check is not None
+        if a.lo is not None and b.lo is not None:
+            moves = [abs((b.lo + cb) - (a.lo + ca)) for t in tracked
+                     if (ca := a.column(t)) is not None and (cb := b.column(t)) is not None]
+            b.drift = min(max(moves, default=0), 16)
         if check.lost:
             check = _StepCheck(ok=False, lost=True, problems=check.problems + [(t, None, "lost") for t in tracked])
         return b, check, raw
@@ -638,7 +655,9 @@ class ExactSolver:
                 out.append(b)
                 cur = b
                 continue
-            if depth < self.max_depth and budget > 0 and not (check.lost and not check.problems):
+            only_exact = bool(check.problems) and all(k == "crossing" for _, _, k in check.problems)
+            cap = min(self.max_depth, self.EXACT_CROSSING_DEPTH) if only_exact else self.max_depth
+            if depth < cap and budget > 0 and not (check.lost and not check.problems):
                 budget -= 1
                 stack.append((lam, depth + 1, raw))
                 stack.append((0.5 * (cur.coupling + lam), depth + 1, None))

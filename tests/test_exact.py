@@ -1,0 +1,365 @@
+"""Exact side: backends, level tracking, avoided crossings, caching, bad input."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+import qutip
+import scipy.sparse as sp
+from numpy.testing import assert_allclose
+
+from ptcheck import Model
+from ptcheck.errors import BasisTooLargeError, TrackingWarning
+from ptcheck.exact import BACKENDS, AvoidedCrossing, ExactSolver, ExactSweep, auto_backend, eigenpairs, track
+from ptcheck.model import DENSE_LIMIT
+
+SOLVERS = ("dense", "sparse", "qutip")
+
+
+# ----------------------------------------------------------------------------- helpers
+def two_level_eigs(delta: float, v: complex, lam: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """E± = ±√((Δ/2)² + λ²|v|²) for H = diag(-Δ/2, Δ/2) + λ [[0, v], [v*, 0]].
+
+    Closed form of the two-level eigenvalues (C. Cohen-Tannoudji, B. Diu, F. Laloë,
+    Quantum Mechanics, 1977, vol. 1, Complement B_IV, eq. (9)).
+    """
+    r = np.sqrt((delta / 2) ** 2 + lam**2 * abs(v) ** 2)
+    return -r, r
+
+
+def embedded_two_level(delta: float, v: complex, n: int) -> Model:
+    """Two-level system as levels 0, 1 of a sparse model; the other levels are far and uncoupled."""
+    e0 = np.concatenate([[-delta / 2, delta / 2], 5.0 + np.arange(n - 2) * 0.37])
+    vv = sp.lil_matrix((n, n), dtype=complex)
+    vv[0, 1], vv[1, 0] = v, np.conj(v)
+    # couplings among the far levels only (do not touch the two-level block)
+    for i in range(2, n - 1):
+        vv[i, i + 1] = vv[i + 1, i] = 0.05
+    return Model(sp.diags(e0).tocsr(), vv.tocsr(), name="embedded two-level")
+
+
+def residuals(model: Model, sweep: ExactSweep) -> np.ndarray:
+    """‖H(λ)ψ − Eψ‖ for every tracked state (common practice, no source)."""
+    out = []
+    for c, lam in enumerate(sweep.couplings):
+        h = model.hamiltonian(lam)
+        for i in range(len(sweep.levels)):
+            psi = sweep.states[i, c]
+            out.append(np.linalg.norm(h @ psi - sweep.energies[i, c] * psi))
+    return np.array(out)
+
+
+def random_model(n: int, *, complex_: bool, sparse: bool, seed: int) -> Model:
+    rng = np.random.default_rng(seed)
+    e0 = np.sort(rng.uniform(0.0, 10.0, n))
+    if sparse:
+        a = sp.random(n, n, density=0.02, random_state=seed, data_rvs=rng.standard_normal)
+        if complex_:
+            b = sp.random(n, n, density=0.02, random_state=seed + 1, data_rvs=rng.standard_normal)
+            a = a + 1j * b
+        v = ((a + a.conj().T) * 0.5).tocsr()
+        return Model(sp.diags(e0).tocsr(), v, name="random sparse")
+    a = rng.standard_normal((n, n)) + (1j * rng.standard_normal((n, n)) if complex_ else 0)
+    return Model(np.diag(e0), (a + a.conj().T) / 2, name="random dense")
+
+
+# ----------------------------------------------------------------------------- two-level closed form
+@pytest.mark.parametrize("backend", SOLVERS)
+def test_two_level_closed_form_every_backend(backend):
+    delta, v = 1.3, 0.4 - 0.3j
+    m = Model(np.diag([-delta / 2, delta / 2]), [[0, v], [np.conj(v), 0]])
+    lam = np.array([-2.0, -0.7, 0.0, 0.3, 1.1, 2.5])
+    sw = track(m, [0, 1], lam, backend=backend)
+    lo, hi = two_level_eigs(delta, v, lam)  # Cohen-Tannoudji et al., Complement B_IV
+    assert_allclose(sw.energy(0), lo, rtol=1e-12, atol=1e-12)
+    assert_allclose(sw.energy(1), hi, rtol=1e-12, atol=1e-12)
+    assert sw.backend == backend
+    assert not sw.avoided_crossings  # each ray has a monotone gap: no interior minimum
+
+
+@pytest.mark.parametrize("backend", SOLVERS)
+def test_two_level_closed_form_inside_a_larger_sparse_model(backend):
+    # the same closed form (Cohen-Tannoudji et al., Complement B_IV) for levels 0, 1 of an N = 300
+    # sparse model: the iterative solver runs here (N above its dense hand-off)
+    delta, v = 0.8, 0.25 + 0.1j
+    m = embedded_two_level(delta, v, 300)
+    lam = np.linspace(-3.0, 3.0, 25)
+    sw = track(m, [0, 1], lam, backend=backend)
+    lo, hi = two_level_eigs(delta, v, lam)
+    assert_allclose(sw.energy(0), lo, atol=1e-9)
+    assert_allclose(sw.energy(1), hi, atol=1e-9)
+    assert residuals(m, sw).max() < 1e-6
+
+
+# ----------------------------------------------------------------------------- backends agree
+@pytest.mark.parametrize("complex_", [False, True])
+@pytest.mark.parametrize("sparse", [False, True])
+def test_backends_agree_with_each_other_and_with_qutip(complex_, sparse):
+    n = 400 if sparse else 60
+    m = random_model(n, complex_=complex_, sparse=sparse, seed=3 + 2 * sparse + complex_)
+    lam = 0.37
+    # reference straight from QuTiP (outside our code) and from numpy
+    h = m.hamiltonian(lam)
+    want_q = np.sort(qutip.Qobj(h).eigenenergies())[:6]
+    want_np = np.linalg.eigvalsh(h.toarray() if sp.issparse(h) else h)[:6]
+    assert_allclose(want_q, want_np, atol=1e-10)  # test set-up: the two references agree
+    for backend in SOLVERS:
+        w, x = eigenpairs(m, lam, k=6, backend=backend)
+        assert_allclose(w, want_np, atol=1e-9, err_msg=backend)
+        r = np.linalg.norm(h @ x - x * w, axis=0)
+        assert r.max() < 1e-6, backend
+        assert_allclose(x.conj().T @ x, np.eye(6), atol=1e-8)
+    # energies near a target energy (shift-invert / dense selection)
+    target = float(want_np[3]) + 1e-3
+    for backend in SOLVERS:
+        w, _ = eigenpairs(m, lam, k=3, sigma=target, backend=backend)
+        all_w = np.linalg.eigvalsh(h.toarray() if sp.issparse(h) else h)
+        nearest = np.sort(all_w[np.argsort(np.abs(all_w - target))[:3]])
+        assert_allclose(w, nearest, atol=1e-9, err_msg=backend)
+
+
+def test_tracked_sweeps_agree_across_backends_on_a_random_sparse_model():
+    m = random_model(400, complex_=True, sparse=True, seed=11)
+    lam = np.linspace(-0.04, 0.04, 5)  # below the first anticrossings of this random model
+    sweeps = {b: track(m, [0, 1, 2], lam, backend=b, find_crossings=False) for b in SOLVERS}
+    for b in ("sparse", "qutip"):
+        assert_allclose(sweeps[b].energies, sweeps["dense"].energies, atol=1e-9, err_msg=b)
+        ov = np.abs(np.einsum("lcn,lcn->lc", sweeps[b].states.conj(), sweeps["dense"].states))
+        assert ov.min() > 1 - 1e-7, b
+    assert residuals(m, sweeps["sparse"]).max() < 1e-6
+
+
+# ----------------------------------------------------------------------------- avoided crossing
+def crossing_model(w: float, n_extra: int = 0) -> Model:
+    """Levels 1, 2 anticross: diabatic energies 1 + λ/2 and 1.2 − λ/2 (crossing at λ = 0.2), coupling wλ.
+
+    Level 0 and the extra far levels are uncoupled from the pair, so levels 1, 2 are an exact 2 x 2
+    problem.  ``n_extra`` adds far levels (sparse storage) so that the iterative solver runs.
+    """
+    n = 3 + n_extra
+    e0 = np.concatenate([[0.0, 1.0, 1.2], 6.0 + 0.5 * np.arange(n_extra)])
+    v = sp.lil_matrix((n, n))
+    v[1, 1], v[2, 2] = 0.5, -0.5
+    v[1, 2] = v[2, 1] = w
+    v[0, 0] = 0.1
+    for i in range(3, n - 1):
+        v[i, i + 1] = v[i + 1, i] = 0.1
+    return Model(sp.diags(e0).tocsr(), v.tocsr(), name="anticrossing")
+
+
+def pair_branches(w: float, lam: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Closed form of the two-level eigenvalues (Cohen-Tannoudji et al., Complement B_IV) for the pair:
+    H = [[1 + λ/2, wλ], [wλ, 1.2 − λ/2]] → E± = 1.1 ± √(((λ − 0.2)/2)² + w²λ²); weight of e_1 in the
+    lower eigenvector (b, E₋ − a) with a = 1 + λ/2, b = wλ."""
+    r = np.sqrt(((lam - 0.2) / 2) ** 2 + (w * lam) ** 2)
+    lower, upper = 1.1 - r, 1.1 + r
+    a, b = 1 + lam / 2, w * lam
+    with np.errstate(invalid="ignore"):
+        weight1 = np.where(b == 0, 1.0, b**2 / (b**2 + (lower - a) ** 2))
+    return lower, upper, weight1
+
+
+@pytest.mark.parametrize("backend,n_extra", [("dense", 0), ("qutip", 0), ("sparse", 200)])
+def test_tracking_stays_on_the_adiabatic_branch_and_reports_the_anticrossing(backend, n_extra):
+    w = 0.01
+    m = crossing_model(w, n_extra)
+    lam = np.linspace(0.0, 0.6, 13)  # step 0.05: the crossing region (width ~ 2wλ = 0.004) is between samples
+    sw = track(m, [1, 2], lam, backend=backend)
+    lower, upper, weight1 = pair_branches(w, lam)
+    # level 1 is continuously connected to the lower branch (it starts as e_1, the lower of the pair)
+    assert_allclose(sw.energy(1), lower, atol=1e-9)
+    assert_allclose(sw.energy(2), upper, atol=1e-9)
+    assert_allclose(np.abs(sw.state(1)[:, 1]) ** 2, weight1, atol=1e-7)
+    # minimum of the gap 2√(((λ − 0.2)/2)² + w²λ²): λ* = 0.2/(1 + 4w²), gap* = 0.4 w/√(1 + 4w²)
+    # (derivative of the closed form above set to zero); at the diabatic crossing the gap is 2|λ w| = 0.004
+    lam_star = 0.2 / (1 + 4 * w**2)
+    gap_star = 0.4 * w / np.sqrt(1 + 4 * w**2)
+    assert gap_star == pytest.approx(2 * 0.2 * w, rel=1e-3)
+    assert len(sw.avoided_crossings) == 1  # found from both tracked levels, reported once
+    ac = sw.avoided_crossings[0]
+    assert set(ac.levels) == {1, 2}
+    assert ac.coupling == pytest.approx(lam_star, abs=2e-4)
+    assert ac.min_gap == pytest.approx(gap_star, rel=1e-4)
+    assert not sw.notes
+
+
+def test_untracked_partner_is_identified():
+    m = crossing_model(0.01)
+    sw = track(m, [1], np.linspace(0.0, 0.6, 13))
+    (ac,) = sw.avoided_crossings
+    assert ac.levels == (1, 2)
+    assert ac.labels == ("n=1", "n=2")
+
+
+def test_unresolvable_crossing_warns_and_is_noted():
+    # a gap of ~2e-7 with a depth cap of 2 halvings cannot be resolved: followed diabatically
+    m = crossing_model(1e-6)
+    solver = ExactSolver(m, backend="dense", max_depth=2)
+    with pytest.warns(TrackingWarning, match="narrower than resolvable"):
+        sw = solver.track([1], np.linspace(0.0, 0.6, 6))  # grid avoids λ = 0.2 itself
+    assert any("narrower than resolvable" in n for n in sw.notes)
+    # diabatic: after the crossing level 1 keeps the character of e_1 (the upper branch)
+    assert abs(sw.state(1)[-1, 1]) ** 2 > 0.99
+    lower, upper, _ = pair_branches(1e-6, sw.couplings)
+    assert_allclose(sw.energy(1)[-1], upper[-1], atol=1e-9)
+
+
+# ----------------------------------------------------------------------------- symmetry-protected crossings
+def two_sector_model(n: int, sparse: bool, seed: int = 5) -> tuple[Model, np.ndarray]:
+    """V couples only states of the same sector (even / odd work index): eigenstates never mix sectors,
+    so levels of different sectors cross exactly (von Neumann & Wigner, Phys. Z. 30, 467 (1929))."""
+    rng = np.random.default_rng(seed)
+    e0 = np.sort(rng.uniform(0.0, 4.0, n))
+    sector = np.arange(n) % 2
+    a = rng.standard_normal((n, n)) * (rng.uniform(size=(n, n)) < (0.05 if sparse else 1.0))
+    a = (a + a.T) / 2
+    a[sector[:, None] != sector[None, :]] = 0.0
+    # opposite slopes per sector make inter-sector crossings among the low levels
+    a[np.diag_indices(n)] = np.where(sector == 0, 1.0, -1.0) * (1.0 + 0.2 * rng.uniform(size=n))
+    v = sp.csr_matrix(a) if sparse else a
+    return Model(sp.diags(e0).tocsr() if sparse else np.diag(e0), v, name="two sectors"), sector
+
+
+@pytest.mark.parametrize("backend,n,sparse", [("dense", 12, False), ("qutip", 12, False), ("sparse", 240, True)])
+def test_symmetry_protected_crossings_are_followed_diabatically(backend, n, sparse):
+    m, sector = two_sector_model(n, sparse)
+    levels = [0, 1, 2, 3]
+    lam = np.linspace(0.0, 0.8, 33)
+    sw = track(m, levels, lam, backend=backend)  # filterwarnings=error: no TrackingWarning allowed
+    # test set-up: the energy order of the tracked levels does change (there are crossings to follow)
+    order_changes = np.any(np.diff(np.argsort(sw.energies, axis=0), axis=1) != 0)
+    assert order_changes
+    for i, lev in enumerate(levels):
+        own = sector == sector[lev]
+        weight = np.sum(np.abs(sw.states[i][:, own]) ** 2, axis=1)
+        assert_allclose(weight, 1.0, atol=1e-8)  # the state never leaves its sector
+    for ac in sw.avoided_crossings:
+        assert sector[ac.levels[0]] == sector[ac.levels[1]], ac  # never between sectors
+    assert not sw.notes
+    assert residuals(m, sw).max() < 1e-6
+
+
+# ----------------------------------------------------------------------------- level_at and caching
+def test_level_at_agrees_with_track_and_reuses_the_cache():
+    m = crossing_model(0.01, 200)
+    solver = ExactSolver(m, backend="sparse")
+    lam = np.linspace(-0.6, 0.6, 25)
+    sw = solver.track([1, 2], lam)
+    before = solver.solves
+    for c in (0.35, -0.2, 0.6):
+        e, psi = solver.level_at(1, c)
+        j = int(np.argmin(np.abs(lam - c)))
+        assert e == pytest.approx(sw.energy(1)[j], abs=1e-12)
+        assert_allclose(psi, sw.state(1)[j], atol=1e-10)  # same state and same phase convention
+    assert solver.solves == before  # points of the sweep come from the cache
+
+
+def test_bisection_probes_are_cheap_and_consistent():
+    m = crossing_model(0.01, 200)
+    lower, _, _ = pair_branches(0.01, np.array([0.1, 0.45, 0.3, 0.27, 0.29, 0.28]))
+    solver = ExactSolver(m, backend="sparse")
+    counts = []
+    got = []
+    for c in (0.1, 0.45, 0.3, 0.27, 0.29, 0.28):  # bisection-like order
+        got.append(solver.level_at(1, c)[0])
+        counts.append(solver.solves)
+    assert_allclose(got, lower, atol=1e-9)  # closed form of the pair (pair_branches)
+    cost = np.diff([0] + counts)
+    # 0.1 -> 0.45 crosses the anticrossing at 0.2 and refines there; the later probes start from the
+    # nearest cached point below them and need one or two solves each
+    assert cost[0] <= 2 and cost[1] > cost[0]
+    assert cost[2:].max() <= 2
+    again = solver.solves
+    assert solver.level_at(1, 0.28)[0] == got[-1]
+    assert solver.solves == again  # repeated probe: no solve at all
+
+
+def test_coupling_zero_needs_no_solve():
+    m = crossing_model(0.01)
+    sw = track(m, [0, 2], [0.0, 0.0])
+    assert sw.solves == 0
+    assert_allclose(sw.energies, [[0.0, 0.0], [1.2, 1.2]])
+    assert_allclose(sw.state(2)[0], np.eye(3)[2])
+    e, psi = ExactSolver(m).level_at(2, 0.0)
+    assert e == 1.2 and psi[2] == 1.0
+
+
+def test_phase_convention_component_real_nonnegative():
+    m = random_model(40, complex_=True, sparse=False, seed=2)
+    sw = track(m, [0, 5], np.linspace(-0.2, 0.2, 5))
+    for i, lev in enumerate(sw.levels):
+        comp = sw.state(lev)[:, lev]
+        assert np.all(np.abs(comp.imag) < 1e-12) and np.all(comp.real > 0)
+        assert_allclose(np.linalg.norm(sw.state(lev), axis=1), 1.0, atol=1e-12)
+
+
+# ----------------------------------------------------------------------------- result objects
+def test_sweep_result_is_read_only_and_serialisable():
+    m = crossing_model(0.01)
+    sw = track(m, [1, 2], np.linspace(0.0, 0.6, 13))
+    assert sw.energies.flags.writeable is False and sw.states.flags.writeable is False
+    assert sw.couplings.flags.writeable is False
+    d = json.loads(json.dumps(sw.to_dict()))
+    assert d["levels"] == [1, 2] and len(d["energies"]) == 2 and d["has_states"] is True
+    assert d["avoided_crossings"][0]["levels"] == [1, 2]
+    assert "ExactSweep(" in repr(sw) and len(repr(sw)) < 200
+    page = sw._repr_html_()
+    assert "<table>" in page and "n=1 ~ n=2" in page
+    assert_allclose(sw.energy("n=1"), sw.energy(1))
+    with pytest.raises(ValueError, match="was not tracked"):
+        sw.energy(0)
+    ac = sw.avoided_crossings[0]
+    assert isinstance(ac, AvoidedCrossing) and json.dumps(ac.to_dict())
+    no_states = track(m, [1], [0.1, 0.2], keep_states=False, find_crossings=False)
+    assert no_states.states is None and no_states.avoided_crossings == ()
+    with pytest.raises(ValueError, match="keep_states=False"):
+        no_states.state(1)
+
+
+def test_auto_rule():
+    small = crossing_model(0.01)
+    assert auto_backend(small) == "dense"
+    assert auto_backend(crossing_model(0.01, 300)) == "sparse"
+    dense_v = random_model(250, complex_=False, sparse=False, seed=1)
+    assert auto_backend(dense_v) == "dense"
+    assert ExactSolver(small).backend == "dense"
+    assert BACKENDS == ("auto", "dense", "sparse", "qutip")
+
+
+# ----------------------------------------------------------------------------- bad input
+def test_unknown_backend_lists_the_names():
+    m = crossing_model(0.01)
+    with pytest.raises(ValueError, match="'auto', 'dense', 'sparse', 'qutip'; got 'lapack'"):
+        ExactSolver(m, backend="lapack")
+    with pytest.raises(ValueError, match="backend must be one of"):
+        track(m, [0], [0.1], backend="eigen")
+
+
+def test_dense_methods_refuse_a_huge_basis():
+    n = DENSE_LIMIT + 1
+    m = Model(sp.diags(np.arange(n, dtype=float)).tocsr(), sp.csr_matrix((n, n)), name="huge diagonal")
+    with pytest.raises(BasisTooLargeError, match=f"N = {n} > DENSE_LIMIT"):
+        ExactSolver(m, backend="dense")
+    with pytest.raises(BasisTooLargeError, match="DENSE_LIMIT"):
+        eigenpairs(m, 0.1, backend="sparse")  # all N eigenpairs need a dense solve
+    assert ExactSolver(m).backend == "sparse"
+
+
+def test_bad_couplings_levels_and_k():
+    m = crossing_model(0.01)
+    with pytest.raises(ValueError, match=r"couplings must be finite; couplings\[1\] = nan"):
+        track(m, [1], [0.1, np.nan])
+    with pytest.raises(ValueError, match="level must be in 0..2; got 7"):
+        track(m, [7], [0.1])
+    with pytest.raises(ValueError, match="levels must be distinct"):
+        track(m, [1, 1], [0.1])
+    with pytest.raises(ValueError, match="levels is empty"):
+        track(m, [], [0.1])
+    with pytest.raises(ValueError, match="coupling must be finite"):
+        ExactSolver(m).level_at(1, float("inf"))
+    with pytest.raises(ValueError, match="k must be an int <= 3; got 4"):
+        eigenpairs(m, 0.1, k=4)
+    with pytest.raises(TypeError, match="model must be a ptcheck.Model"):
+        track(np.eye(3), [0], [0.1])
