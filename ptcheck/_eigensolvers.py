@@ -349,16 +349,18 @@ class SparseBackend:
 
     # ---------------------------------------------------------------- Chebyshev
     #: recent solves kept for extrapolating the start block
-    HISTORY = 4
+    HISTORY = 5
+    #: points of the extrapolation polynomial (order EXTRAPOLATION_POINTS - 1)
+    EXTRAPOLATION_POINTS = 4
 
     def _extrapolated(self, coupling: float, k: int, start_coupling: float | None) -> np.ndarray | None:
         """Start block from recent solves: polynomial extrapolation of aligned subspaces.
 
-        The blocks of up to three recent solves near ``coupling`` (the one at
-        ``start_coupling`` first, others no farther than 3.5x its distance) are
+        The blocks of up to four recent solves near ``coupling`` (the one at
+        ``start_coupling`` first, others no farther than 4.5x its distance) are
         rotated onto the first one (orthogonal Procrustes) and combined with
-        Lagrange weights: the start error drops from O(δλ) to O(δλ³), which saves
-        a third to a half of the filter degree along a sweep.
+        Lagrange weights: the start error drops from O(δλ) to O(δλ⁴), which
+        saves about half of the filter degree along a sweep.
         """
         if start_coupling is None:
             return None
@@ -368,14 +370,14 @@ class SparseBackend:
             return None
         d0 = abs(coupling - anchor[0])
         others = sorted(
-            ((c, x) for c, x in hist if c != anchor[0] and abs(coupling - c) <= 3.5 * d0),
+            ((c, x) for c, x in hist if c != anchor[0] and abs(coupling - c) <= (self.EXTRAPOLATION_POINTS + 0.5) * d0),
             key=lambda t: abs(coupling - t[0]),
         )
         pts = [anchor]
         for c, x in others:
             if all(c != q[0] for q in pts):
                 pts.append((c, x))
-            if len(pts) == 3:
+            if len(pts) == self.EXTRAPOLATION_POINTS:
                 break
         if len(pts) < 2:
             return None
