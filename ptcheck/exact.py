@@ -23,7 +23,10 @@ Tracking rules (all thresholds are class attributes of :class:`ExactSolver`):
   ``EXACT_CROSSING_DEPTH`` = 1 halving and is then followed diabatically;
 * if the depth cap is reached, the level is continued diabatically (largest
   overlap), a note is recorded in the result and a
-  :class:`~ptcheck.errors.TrackingWarning` is emitted;
+  :class:`~ptcheck.errors.TrackingWarning` is emitted.  Whether two states are
+  coupled is judged against their measured residuals, so with the iterative
+  backend an anticrossing whose gap is below ~20 x the eigenvector residual
+  (``rtol`` x spectral scale) counts as an exact crossing;
 * the window of eigenpairs holds the tracked levels plus ``pad`` neighbours
   on each side; it is widened when a tracked level is lost (its weight in the
   window drops below ``LOST_WEIGHT`` = 0.9) or sits on the window edge.
@@ -100,13 +103,12 @@ def _readonly(a: np.ndarray) -> np.ndarray:
     return a
 
 
-def auto_backend(model: Model, n_levels: int | None = None) -> str:
+def auto_backend(model: Model) -> str:
     """The backend ``'auto'`` resolves to for ``model``.
 
     Rule: ``'dense'`` if N <= 200 (LAPACK is fast and exact there); else
     ``'sparse'`` if ``model.v`` is stored sparse with density <= 10 %;
-    else ``'dense'`` if N <= DENSE_LIMIT; else ``'sparse'``.  ``n_levels`` is
-    accepted for future use and does not change the rule.
+    else ``'dense'`` if N <= DENSE_LIMIT; else ``'sparse'``.
     """
     n = model.n
     if n <= AUTO_DENSE_MAX:
@@ -131,11 +133,11 @@ class AvoidedCrossing:
     min_gap : float
         Minimum distance between the two exact levels (energy units).
     levels : tuple of int
-        (tracked level, partner), work-basis indices of the unperturbed levels
-        the two exact states are connected to.  When the partner was not tracked
-        its identity is carried by overlap continuity inside the eigenpair
-        window; if it entered the window later, the index of its largest
-        work-basis component is given instead and its label ends in ``"?"``.
+        Work-basis indices of the unperturbed levels the two exact states are
+        connected to, lower index first.  A partner that was not tracked is
+        identified by overlap continuity inside the eigenpair window; if it
+        entered the window later, the pair is (tracked level, index of the
+        partner's largest work-basis component) and its label ends in ``"?"``.
     labels : tuple of str
         Printable names of the two levels.
     """
@@ -347,7 +349,7 @@ class ExactSolver:
         self._cache_budget = float(val.check_positive(cache_mb, "cache_mb")) * 2**20
         self.model = model
         self.n_levels_hint = n_levels_hint
-        self.backend = auto_backend(model, n_levels_hint) if backend == "auto" else backend
+        self.backend = auto_backend(model) if backend == "auto" else backend
         self._rng = np.random.default_rng(20240607)
         self._impl = make_backend(self.backend, model, rtol=self.rtol, rng=self._rng)
         self.solves = 0
@@ -900,6 +902,8 @@ class ExactSolver:
         lam_min, g2, _ = parabolic_minimum(gap2, xs, tuple(gaps), max_evals=4, xtol=xtol)
         partner, plabel = self._partner(gm.partner_id, p.vectors[:, cp], exclude=set(int(i) for i in p.ids if i >= 0))
         a, b = (gm.level, partner), (self.model.label(gm.level), plabel)
+        if gm.partner_id >= 0 and partner < gm.level:  # both identities known: lower index first
+            a, b = a[::-1], b[::-1]
         return AvoidedCrossing(coupling=float(lam_min), min_gap=float(np.sqrt(max(g2, 0.0))), levels=a, labels=b)
 
     def _partner(self, pid: int, vec: np.ndarray, exclude: set) -> tuple[int, str]:
@@ -914,22 +918,16 @@ class ExactSolver:
 
 
 def _dedupe(crossings: list[AvoidedCrossing]) -> list[AvoidedCrossing]:
-    """One entry per pair and position (a crossing of two tracked levels is found twice)."""
+    """One entry per pair and position (a crossing of two tracked levels is found from both)."""
     out: list[AvoidedCrossing] = []
     for a in crossings:
-        key = frozenset(a.levels)
-        dup = False
-        for i, b in enumerate(out):
-            if frozenset(b.levels) == key and abs(a.coupling - b.coupling) <= 1e-6 * max(1.0, abs(a.coupling)) + 1e-3 * abs(a.coupling):
-                dup = True
-                if a.min_gap < b.min_gap:
-                    out[i] = a
-                break
-        if not dup:
+        close = 1e-3 * abs(a.coupling) + 1e-9
+        same = next((i for i, b in enumerate(out) if set(b.levels) == set(a.levels) and abs(a.coupling - b.coupling) <= close), None)
+        if same is None:
             out.append(a)
-    return [AvoidedCrossing(a.coupling, a.min_gap, tuple(sorted(a.levels)) if a.labels[1][-1:] != "?" else a.levels,
-                            a.labels if a.labels[1][-1:] == "?" or a.levels[0] <= a.levels[1] else a.labels[::-1])
-            for a in out]
+        elif a.min_gap < out[same].min_gap:
+            out[same] = a
+    return out
 
 
 # ============================================================================ one-off functions
@@ -979,10 +977,8 @@ def track(
     if not isinstance(model, Model):
         raise TypeError(f"model must be a ptcheck.Model; got {type(model).__name__}")
     val.check_choice(backend, "backend", BACKENDS)
-    lv = val.as_sequence(levels)
-    hint = None
-    solver = ExactSolver(model, backend=backend, n_levels_hint=hint)
-    return solver._track(lv, couplings, keep_states=bool(keep_states), find_crossings=bool(find_crossings), stacklevel=3)
+    solver = ExactSolver(model, backend=backend)
+    return solver._track(levels, couplings, keep_states=bool(keep_states), find_crossings=bool(find_crossings), stacklevel=3)
 
 
 def eigenpairs(
