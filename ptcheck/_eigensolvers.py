@@ -482,13 +482,19 @@ class QutipBackend:
 
         return qutip.Qobj(self.model.hamiltonian(coupling))
 
-    def _convert(self, evals: Any, kets: Any) -> tuple[np.ndarray, np.ndarray]:
+    def _convert(self, evals: Any, kets: Any, coupling: float) -> tuple[np.ndarray, np.ndarray]:
         w = np.real(np.asarray(evals, dtype=complex))
         x = np.column_stack([np.asarray(k.full()).ravel() for k in kets])
         order = np.argsort(w, kind="stable")
         w, x = w[order], x[:, order]
         if self._real:
             x = _realify_columns(w, x, self._cluster_tol)
+            # Rayleigh–Ritz on the real block: inside a merged cluster the realified
+            # columns are a basis of the eigenspace, not yet eigenvectors
+            h = self.model.hamiltonian(coupling)
+            t = inner(x, h @ x)
+            w, u = np.linalg.eigh((t + t.T) * 0.5)
+            x = combine(x, u)
         return w, x
 
     def lowest(self, coupling: float, k: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
@@ -497,7 +503,7 @@ class QutipBackend:
         if not use_sparse:
             _check_dense_size(self.model, "backend 'qutip' (dense path)")
         evals, kets = self._qobj(coupling).eigenstates(sparse=use_sparse, eigvals=k if k < n else 0, sort="low")
-        w, x = self._convert(evals, kets)
+        w, x = self._convert(evals, kets, coupling)
         return w[:k], x[:, :k]
 
     def window(self, coupling: float, lo: int, hi: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
@@ -507,7 +513,7 @@ class QutipBackend:
     def nearest(self, coupling: float, sigma: float, k: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
         _check_dense_size(self.model, "backend 'qutip' with an energy target")
         evals, kets = self._qobj(coupling).eigenstates(sparse=False, sort="low")
-        w, x = self._convert(evals, kets)
+        w, x = self._convert(evals, kets, coupling)
         lo = _nearest_block(w, sigma, k)
         return w[lo : lo + k], x[:, lo : lo + k]
 

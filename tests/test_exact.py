@@ -100,7 +100,7 @@ def test_backends_agree_with_each_other_and_with_qutip(complex_, sparse):
     n = 400 if sparse else 60
     m = random_model(n, complex_=complex_, sparse=sparse, seed=3 + 2 * sparse + complex_)
     lam = 0.37
-    # reference straight from QuTiP (outside our code) and from numpy
+    # references straight from QuTiP and numpy, outside our code (common practice, no source)
     h = m.hamiltonian(lam)
     want_q = np.sort(qutip.Qobj(h).eigenenergies())[:6]
     want_np = np.linalg.eigvalsh(h.toarray() if sp.issparse(h) else h)[:6]
@@ -129,6 +129,35 @@ def test_tracked_sweeps_agree_across_backends_on_a_random_sparse_model():
         ov = np.abs(np.einsum("lcn,lcn->lc", sweeps[b].states.conj(), sweeps["dense"].states))
         assert ov.min() > 1 - 1e-7, b
     assert residuals(m, sweeps["sparse"]).max() < 1e-6
+
+
+def test_levels_high_in_a_sparse_spectrum_agree_with_dense():
+    # levels 100, 101 of N = 300: the sparse backend uses shift-invert windows there (cross-check of two
+    # independent solvers: common practice, no source)
+    m = random_model(300, complex_=False, sparse=True, seed=4)
+    lam = np.linspace(0.0, 0.02, 5)
+    ref = track(m, [100, 101], lam, backend="dense")
+    got = track(m, [100, 101], lam, backend="sparse")
+    assert_allclose(got.energies, ref.energies, atol=1e-9)
+    assert residuals(m, got).max() < 1e-6  # common practice, no source
+
+
+def test_degenerate_group_branches_agree_across_backends():
+    # a threefold degenerate unperturbed level: branches are labelled by the block convention
+    # (first-order shift along the ray, ties in ascending energy) with every backend
+    n = 200
+    e0 = np.concatenate([[0.0, 1.0, 1.0, 1.0], 3 + 0.05 * np.arange(n - 4)])
+    rng = np.random.default_rng(0)
+    a = sp.random(n, n, density=0.03, random_state=1, data_rvs=rng.standard_normal)
+    m = Model(sp.diags(e0).tocsr(), ((a + a.T) / 2).tocsr())
+    assert m.degenerate_groups == ((1, 2, 3),)
+    lam = [-0.05, 0.01, 0.05]
+    ref = track(m, [1, 2, 3], lam, backend="dense")
+    for backend in ("sparse", "qutip"):
+        assert_allclose(track(m, [1, 2, 3], lam, backend=backend).energies, ref.energies, atol=1e-9)
+    # each exact state lies in the degenerate group's subspace to leading order
+    weight = np.sum(np.abs(ref.states[:, 1, 1:4]) ** 2, axis=-1)
+    assert np.all(weight > 0.99)
 
 
 # ----------------------------------------------------------------------------- avoided crossing
