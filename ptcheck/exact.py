@@ -428,7 +428,7 @@ class ExactSolver:
             certified=frozenset(range(n)),
         )
 
-    def _seed(self, origin: PathPoint, ray: int, tracked: frozenset, first: float, notes: list) -> PathPoint | None:
+    def _start_point(self, origin: PathPoint, ray: int, tracked: frozenset, first: float, notes: list) -> PathPoint | None:
         """Exact states of degenerate groups at a tiny coupling, by the block convention.
 
         Inside an exactly degenerate group of H0 the λ → 0 limit of a branch is
@@ -478,7 +478,7 @@ class ExactSolver:
         fix_phase(x, ids, None, None)
         for t, partner, kind in check.problems:
             if model.degenerate_group_of(t) is None and kind != "lost":
-                msg = f"level {model.label(t)}: ambiguous already at the seed coupling λ={lam:.3g}"
+                msg = f"level {model.label(t)}: ambiguous already at the starting coupling λ={lam:.3g}"
                 if msg not in notes:
                     notes.append(msg)
         return b
@@ -765,10 +765,10 @@ class ExactSolver:
         pts = []
         if start is None:
             start = self._origin(tracked)
-            seed = self._seed(start, ray, tracked, abs(lam), notes)
-            if seed is not None:
-                pts.append(seed)
-                start = seed
+            start_pt = self._start_point(start, ray, tracked, abs(lam), notes)
+            if start_pt is not None:
+                pts.append(start_pt)
+                start = start_pt
         pts += self._advance(start, lam, tracked, notes)
         self._cache_add(ray, pts)
         self._warn(notes)
@@ -815,9 +815,9 @@ class ExactSolver:
             mags = np.abs(lam[sel])
             uniq, inv = np.unique(mags, return_inverse=True)
             path = [origin]
-            seed = self._seed(origin, ray, tracked, float(uniq[0]), notes)
-            if seed is not None:
-                path.append(seed)
+            start_pt = self._start_point(origin, ray, tracked, float(uniq[0]), notes)
+            if start_pt is not None:
+                path.append(start_pt)
             where = np.empty(uniq.size, dtype=int)
             cur = path[-1]
             for u_i, mag in enumerate(uniq):

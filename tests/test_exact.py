@@ -51,13 +51,13 @@ def residuals(model: Model, sweep: ExactSweep) -> np.ndarray:
     return np.array(out)
 
 
-def random_model(n: int, *, complex_: bool, sparse: bool, seed: int) -> Model:
-    rng = np.random.default_rng(seed)
+def random_model(n: int, *, complex_: bool, sparse: bool, key: int) -> Model:
+    rng = np.random.default_rng(key)
     e0 = np.sort(rng.uniform(0.0, 10.0, n))
     if sparse:
-        a = sp.random(n, n, density=0.02, random_state=seed, data_rvs=rng.standard_normal)
+        a = sp.random(n, n, density=0.02, random_state=key, data_rvs=rng.standard_normal)
         if complex_:
-            b = sp.random(n, n, density=0.02, random_state=seed + 1, data_rvs=rng.standard_normal)
+            b = sp.random(n, n, density=0.02, random_state=key + 1, data_rvs=rng.standard_normal)
             a = a + 1j * b
         v = ((a + a.conj().T) * 0.5).tocsr()
         return Model(sp.diags(e0).tocsr(), v, name="random sparse")
@@ -98,7 +98,7 @@ def test_two_level_closed_form_inside_a_larger_sparse_model(backend):
 @pytest.mark.parametrize("sparse", [False, True])
 def test_backends_agree_with_each_other_and_with_qutip(complex_, sparse):
     n = 400 if sparse else 60
-    m = random_model(n, complex_=complex_, sparse=sparse, seed=3 + 2 * sparse + complex_)
+    m = random_model(n, complex_=complex_, sparse=sparse, key=3 + 2 * sparse + complex_)
     lam = 0.37
     # references straight from QuTiP and numpy, outside our code (common practice, no source)
     h = m.hamiltonian(lam)
@@ -121,7 +121,7 @@ def test_backends_agree_with_each_other_and_with_qutip(complex_, sparse):
 
 
 def test_tracked_sweeps_agree_across_backends_on_a_random_sparse_model():
-    m = random_model(400, complex_=True, sparse=True, seed=11)
+    m = random_model(400, complex_=True, sparse=True, key=11)
     lam = np.linspace(-0.04, 0.04, 5)  # below the first anticrossings of this random model
     sweeps = {b: track(m, [0, 1, 2], lam, backend=b, find_crossings=False) for b in SOLVERS}
     for b in ("sparse", "qutip"):
@@ -134,7 +134,7 @@ def test_tracked_sweeps_agree_across_backends_on_a_random_sparse_model():
 def test_levels_high_in_a_sparse_spectrum_agree_with_dense():
     # levels 100, 101 of N = 300: the sparse backend uses shift-invert windows there (cross-check of two
     # independent solvers: common practice, no source)
-    m = random_model(300, complex_=False, sparse=True, seed=4)
+    m = random_model(300, complex_=False, sparse=True, key=4)
     lam = np.linspace(0.0, 0.02, 5)
     ref = track(m, [100, 101], lam, backend="dense")
     got = track(m, [100, 101], lam, backend="sparse")
@@ -236,10 +236,10 @@ def test_unresolvable_crossing_warns_and_is_noted():
 
 
 # ----------------------------------------------------------------------------- symmetry-protected crossings
-def two_sector_model(n: int, sparse: bool, seed: int = 5) -> tuple[Model, np.ndarray]:
+def two_sector_model(n: int, sparse: bool, key: int = 5) -> tuple[Model, np.ndarray]:
     """V couples only states of the same sector (even / odd work index): eigenstates never mix sectors,
     so levels of different sectors cross exactly (von Neumann & Wigner, Phys. Z. 30, 467 (1929))."""
-    rng = np.random.default_rng(seed)
+    rng = np.random.default_rng(key)
     e0 = np.sort(rng.uniform(0.0, 4.0, n))
     sector = np.arange(n) % 2
     a = rng.standard_normal((n, n)) * (rng.uniform(size=(n, n)) < (0.05 if sparse else 1.0))
@@ -316,7 +316,7 @@ def test_coupling_zero_needs_no_solve():
 
 
 def test_phase_convention_component_real_nonnegative():
-    m = random_model(40, complex_=True, sparse=False, seed=2)
+    m = random_model(40, complex_=True, sparse=False, key=2)
     sw = track(m, [0, 5], np.linspace(-0.2, 0.2, 5))
     for i, lev in enumerate(sw.levels):
         comp = sw.state(lev)[:, lev]
@@ -351,7 +351,7 @@ def test_auto_rule():
     small = crossing_model(0.01)
     assert auto_backend(small) == "dense"
     assert auto_backend(crossing_model(0.01, 300)) == "sparse"
-    dense_v = random_model(250, complex_=False, sparse=False, seed=1)
+    dense_v = random_model(250, complex_=False, sparse=False, key=1)
     assert auto_backend(dense_v) == "dense"
     assert ExactSolver(small).backend == "dense"
     assert BACKENDS == ("auto", "dense", "sparse", "qutip")
