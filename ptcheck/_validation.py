@@ -154,7 +154,10 @@ def check_choice(x: Any, name: str, allowed: Iterable[str]) -> str:
     return str(x)
 
 
-def as_coupling(x: Any, name: str = "coupling") -> float:
+def as_real(x: Any, name: str) -> float:
+    """A finite real number (ints accepted; bool, complex and strings refused)."""
+    if isinstance(x, (bool, np.bool_, complex, np.complexfloating)):
+        raise TypeError(f"{name} must be a real number; got {x!r}")
     try:
         f = float(x)
     except (TypeError, ValueError):
@@ -162,6 +165,11 @@ def as_coupling(x: Any, name: str = "coupling") -> float:
     if not np.isfinite(f):
         raise ValueError(f"{name} must be finite; got {x!r}")
     return f
+
+
+def as_coupling(x: Any, name: str = "coupling") -> float:
+    """A finite real coupling λ."""
+    return as_real(x, name)
 
 
 def as_couplings(x: Any, name: str = "couplings") -> np.ndarray:

@@ -349,8 +349,8 @@ def test_spin_chain_fourteen_spins_sparse():
 # --------------------------------------------------------------------------- Hubbard dimer
 @pytest.mark.parametrize("t, u", [(1.0, 8.0), (0.5, 1.0), (1.0, 0.3)])
 def test_hubbard_dimer_spectrum(t, u):
-    # closed form of the two-site Hubbard model at half filling (e.g. Fazekas, Lecture Notes on
-    # Electron Correlation and Magnetism, 1999, from memory): singlets (U ∓ √(U² + 16t²))/2 and U,
+    # closed form of the two-site Hubbard model at half filling (the 2x2 singlet block [[0, -2t], [-2t, U]]
+    # of the covalent and ionic singlets; standard derivation, from memory): singlets (U ∓ √(U² + 16t²))/2 and U,
     # triplet 0 (one S_z = 0 state in the sz0 sector, three in the full sector).
     r = np.sqrt(u**2 + 16 * t**2)
     m = hubbard_dimer(t=t, u=u)

@@ -222,8 +222,8 @@ def test_zz_of_kerr_ladders_matches_second_order_formula_and_exact_numerics(a1, 
 # below are what decides whether the branches were followed correctly.
 def test_hubbard_exchange_is_4t2_over_u_and_matches_the_dimer_closed_form():
     # Anderson superexchange J = 4t²/U (P. W. Anderson, Phys. Rev. 115, 2 (1959)); exact two-site Hubbard at
-    # half filling: singlet (U − √(U² + 16t²))/2, triplet 0 (e.g. Fazekas, Lecture Notes on Electron Correlation
-    # and Magnetism (1999), ch. 5), so J(λ) = (√(U² + 16t²λ²) − U)/2 = (U/2) Σ_{j≥1} binom(1/2, j)(16t²λ²/U²)^j.
+    # half filling: singlet (U − √(U² + 16t²))/2, triplet 0 (the 2x2 singlet block [[0, -2t], [-2t, U]] of the
+    # covalent and ionic singlets; standard derivation, from memory), so J(λ) = (√(U² + 16t²λ²) − U)/2 = (U/2) Σ_{j≥1} binom(1/2, j)(16t²λ²/U²)^j.
     t, u = 1.0, 8.0
     m = hubbard_dimer(t=t, u=u)
     j = exchange(1, 0)  # S_z = 0 sector: the singlet is the lower branch of the degenerate pair (rank 0)

@@ -20,15 +20,7 @@ SPARSE_AUTO_SIZE = 512
 
 def real(x: Any, name: str) -> float:
     """A finite real number (ints accepted; bool, complex and strings refused)."""
-    if isinstance(x, (bool, np.bool_)) or isinstance(x, (complex, np.complexfloating)):
-        raise TypeError(f"{name} must be a real number; got {x!r}")
-    try:
-        f = float(x)
-    except (TypeError, ValueError):
-        raise TypeError(f"{name} must be a real number; got {x!r}") from None
-    if not np.isfinite(f):
-        raise ValueError(f"{name} must be finite; got {x!r}")
-    return f
+    return val.as_real(x, name)
 
 
 def positive(x: Any, name: str) -> float:
