@@ -393,7 +393,7 @@ def run_check(
     boundaries = []
     for t, name in zip(targets, names):
         for s in specs:
-            boundaries.append(_boundary(model, t, name, s, direction, threshold, tolkw, treatment, backend))
+            boundaries.append(_boundary(model, t, name, s, direction, threshold, tolkw, treatment, backend, lam0))
             tick()
 
     # 2. comparison on a grid reaching past the coupling and the boundaries found
@@ -518,7 +518,7 @@ def run_check(
     )
 
 
-def _boundary(model, target, name, spec, direction, threshold, tolkw, treatment, backend) -> ValidityBoundary:
+def _boundary(model, target, name, spec, direction, threshold, tolkw, treatment, backend, lam0) -> ValidityBoundary:
     """validity_boundary, robust to a failure of the search itself (reported, not raised).
 
     Inputs were validated before; a ValueError here is a numerical outcome (e.g.
@@ -526,7 +526,9 @@ def _boundary(model, target, name, spec, direction, threshold, tolkw, treatment,
     "auto" the non-degenerate search is tried instead; if that fails too, a
     boundary with status ``"error"`` and the message in ``notes`` is returned.
     """
-    kw = dict(direction=direction, threshold=threshold, backend=backend, **tolkw)
+    # the coupling of interest makes "auto" choose each level's treatment as the comparison does,
+    # so the boundary and the error curves of the report describe the same approximation
+    kw = dict(direction=direction, threshold=threshold, backend=backend, coupling=lam0 if lam0 != 0 else None, **tolkw)
     try:
         return validity_boundary(model, target, spec, treatment=treatment, **kw)
     except (ValueError, ArithmeticError) as exc:
