@@ -36,13 +36,15 @@ from types import MappingProxyType
 from typing import Any
 
 import numpy as np
+import scipy.sparse as sp
 
 from . import _validation as val
 from .approximants import Pade, parse_order
 from .compare import TRUNCATION_NOTE, ValidityBoundary, compare, validity_boundary
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, mixing_ratios
 from .model import Model
-from .quantities import CANCELLATION_RTOL, Quantity, _nonzero_mask, quantity_series
+from .quantities import CANCELLATION_RTOL, Quantity
+from .series import rs_series
 from .treatment import TREATMENTS, expansions
 
 __all__ = [
@@ -69,9 +71,8 @@ MAX_FRACTION_SIZE = 10**8
 #: Significant digits of coefficients that are not fractions, in ``latex``.
 LATEX_DIGITS = 6
 
-#: Relative size (to the natural size of an order-k matrix entry) below which an
-#: effective-Hamiltonian entry is rounding noise (the same floor the quantity
-#: series uses for its cancellation test).
+#: Relative size (to the sum of the magnitudes of the terms that make a coefficient)
+#: below which a coefficient is rounding noise, i.e. zero.
 _NOISE_RTOL = 1e-12
 
 #: Coupling names that sympy reads as something other than a symbol (or that Python reserves).
@@ -640,18 +641,13 @@ def formula(
 
     # ---------------------------------------------------------------- coefficients
     if is_quantity:
-        qs = quantity_series(model, target, spec, treatment="nondegenerate")
-        coefficients = np.asarray(qs.coefficients, dtype=float)
-        zero = ~_nonzero_mask(model, list(qs.levels), list(qs.weights), np.asarray(qs.level_coefficients), coefficients, CANCELLATION_RTOL)
+        weights = np.array([target.resolve(model)[n] for n in levels])
+        coefficients, zero = _series_coefficients(model, levels, weights, exps, spec)
         kind, name, lhs = "series", target.name, _tex_symbol(target.name)
-        out_levels, out_labels = tuple(qs.levels), tuple(qs.labels)
+        out_levels, out_labels = tuple(levels), tuple(model.label(n) for n in levels)
         function_name = target.name if target.name.isascii() and target.name.isidentifier() and not keyword.iskeyword(target.name) else "quantity"
-        notes.extend(n for n in qs.notes)
     elif block is None:
-        e = exps[0]
-        c = e.energy_coefficients if e.energy_coefficients is not None else np.real(e.block.coefficients[:, 0, 0])
-        coefficients = np.asarray(c, dtype=float)
-        zero = ~_nonzero_mask(model, levels, [1.0], coefficients[None, :], coefficients, CANCELLATION_RTOL)
+        coefficients, zero = _series_coefficients(model, levels, np.ones(1), exps, spec)
         kind, name = "series", model.label(levels[0])
         lhs = f"E_{{{_tex_text(name)}}}"
         out_levels, out_labels = (levels[0],), (name,)
@@ -765,15 +761,46 @@ def formula(
 
 
 # ====================================================================== helpers
+def _series_coefficients(model: Model, levels: list[int], weights: np.ndarray, exps: list, order: int) -> tuple[np.ndarray, np.ndarray]:
+    """Coefficients ``Σ_i w_i E_i^(k)`` (order + 1,) and which of them are zero to rounding.
+
+    ``E_i^(k) = ⟨i|V|ψ_i^(k−1)⟩`` is computed from terms of total size
+    ``a_ik = Σ_m (|V_im| + max_m' |V_im'|) |ψ_i^(k−1)_m|`` (the second part
+    covers the rounding of V's own entries, e.g. after rotating into the
+    eigenbasis of H0), ``a_i0`` = the H0 scale; a coefficient is zero when
+    ``|Q^(k)| <= CANCELLATION_RTOL Σ_i |w_i E_i^(k)| + 1e-12 Σ_i |w_i| a_ik``
+    (rounding of the terms, and cancellation between the levels).
+    """
+    h0_scale = float(max(np.max(np.abs(model.e0)), np.ptp(model.e0)))
+    rows, floors = [], []
+    for n, e in zip(levels, exps):
+        s = e if e.energy_coefficients is not None else rs_series(model, n, order)  # a block of one: the same series
+        c = np.asarray(e.energy_coefficients if e.energy_coefficients is not None else np.real(e.block.coefficients[:, 0, 0]), dtype=float)
+        v_row = model.v[[n]].toarray()[0] if sp.issparse(model.v) else np.asarray(model.v[n])
+        a = np.full(order + 1, h0_scale)
+        a[1:] = np.abs(np.asarray(s.state_coefficients)[:-1]) @ (np.abs(v_row) + np.max(np.abs(v_row)))
+        rows.append(c)
+        floors.append(a)
+    level_c = np.array(rows)
+    w = np.abs(weights)
+    coefficients = weights @ level_c
+    zero = np.abs(coefficients) <= CANCELLATION_RTOL * (w @ np.abs(level_c)) + _NOISE_RTOL * (w @ np.array(floors))
+    return coefficients, zero
+
+
 def _matrix_floor(model: Model, block: Any) -> np.ndarray:
-    """(order + 1, 1, 1): size below which an effective-Hamiltonian entry (or its real or
-    imaginary part) is rounding noise: ``1e-12 s_k``, ``s_k = ‖V‖ (‖V‖/gap)^(k−1)`` (``s_0``: H0 scale)."""
+    """(order + 1, 1, 1): size below which an effective-Hamiltonian entry (or its real or imaginary
+    part) is rounding noise: ``1e-12 s_k`` with ``s_k = v (v/gap)^(k−1)``, ``v`` the largest norm of a
+    column of V on the block and ``gap`` the block's distance to the other levels (``s_0``: the
+    H0 scale)."""
     k = np.arange(np.asarray(block.coefficients).shape[0])
-    e0 = model.e0
-    nv = model.norm_v
-    gap = block.gap if np.isfinite(block.gap) and block.gap > 0 else max(nv, np.finfo(float).tiny)
+    idx = np.asarray(block.levels)
+    cols = model.v[:, idx]
+    cols = cols.toarray() if sp.issparse(cols) else np.asarray(cols)
+    v = float(np.max(np.linalg.norm(cols, axis=0)))
+    gap = block.gap if np.isfinite(block.gap) and block.gap > 0 else max(v, np.finfo(float).tiny)
     with np.errstate(over="ignore"):
-        s = np.where(k == 0, max(np.max(np.abs(e0)), np.ptp(e0), np.finfo(float).tiny), nv * (nv / gap) ** (k - 1.0))
+        s = np.where(k == 0, max(np.max(np.abs(model.e0)), np.ptp(model.e0)), v * (v / gap) ** (k - 1.0))
     s[~np.isfinite(s)] = 0.0
     return (_NOISE_RTOL * s)[:, None, None]
 
