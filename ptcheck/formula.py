@@ -50,6 +50,7 @@ from .treatment import TREATMENTS, expansions
 __all__ = [
     "DEFAULT_RTOLS",
     "FRACTION_RTOL",
+    "MAX_DENOMINATOR",
     "MAX_FRACTION_SIZE",
     "Formula",
     "ValidityRange",
@@ -62,11 +63,13 @@ DEFAULT_RTOLS = (0.01, 0.05)
 
 #: A fraction p/q is claimed for a coefficient c only if ``|c - p/q| <= FRACTION_RTOL |c|`` ...
 FRACTION_RTOL = 1e-12
-#: ... and ``|p| q <= MAX_FRACTION_SIZE``.  For a coefficient that is not a fraction,
+#: ... and ``q <= MAX_DENOMINATOR`` and ``|p| q <= MAX_FRACTION_SIZE``.  For a coefficient that is not a fraction,
 #: the chance that some p/q this small lies that close is about
 #: ``FRACTION_RTOL x MAX_FRACTION_SIZE`` = 1e-4 (the fractions with q <= Q near c
 #: are ~1/(c Q²) apart).
 MAX_FRACTION_SIZE = 10**8
+#: Largest denominator of a claimed fraction.
+MAX_DENOMINATOR = 10**6
 
 #: Significant digits of coefficients that are not fractions, in ``latex``.
 LATEX_DIGITS = 6
@@ -105,9 +108,10 @@ def simple_fraction(x: float) -> Fraction | None:
     The candidates are the convergents of the continued fraction of ``x`` (the
     best rational approximations, in order of growing denominator).  The first
     convergent ``p/q`` with ``|x - p/q| <= FRACTION_RTOL |x|`` is returned,
-    provided ``|p| q <= MAX_FRACTION_SIZE``; otherwise ``None``.  Any fraction
-    that close with ``|p| q <= MAX_FRACTION_SIZE`` is a convergent (Legendre's
-    theorem: ``|x - p/q| < 1/(2 q²)``), so none is missed.
+    provided ``q <= MAX_DENOMINATOR`` and ``|p| q <= MAX_FRACTION_SIZE``;
+    otherwise ``None``.  Any fraction that close with ``|p| q <=
+    MAX_FRACTION_SIZE`` is a convergent (Legendre's theorem: ``|x - p/q| <
+    1/(2 q²)``), so none is missed.
 
     Parameters
     ----------
@@ -137,7 +141,7 @@ def simple_fraction(x: float) -> Fraction | None:
     k_prev, k = 0, 1
     rest = rest - int(rest)
     while True:
-        if h * k > MAX_FRACTION_SIZE:
+        if h * k > MAX_FRACTION_SIZE or k > MAX_DENOMINATOR:
             return None
         if abs(abs(exact) - Fraction(h, k)) <= tol:
             return Fraction(h if x > 0 else -h, k)
@@ -200,8 +204,14 @@ def _tex_float(x: float, digits: int) -> str:
     return s
 
 
-def _tex_fraction(f: Fraction) -> str:
-    return str(f.numerator) if f.denominator == 1 else f"\\frac{{{f.numerator}}}{{{f.denominator}}}"
+def _tex_fraction(f: Fraction, digits: int) -> str:
+    """A fraction in LaTeX; one over a power of ten is written as the decimal it is (0.01, not 1/100)."""
+    q = f.denominator
+    if q == 1:
+        return str(f.numerator)
+    if 10 ** (len(str(q)) - 1) == q:
+        return _tex_float(float(f), digits)
+    return f"\\frac{{{f.numerator}}}{{{q}}}"
 
 
 def _py_fraction(f: Fraction) -> str:
@@ -231,7 +241,7 @@ def _poly(coefs: Sequence[_Coef], var_tex: str, var_py: str, digits: int) -> tup
             x = float(c.value.real) if c.fraction is None else float(c.fraction)
             neg = x < 0
             if c.fraction is not None:
-                m_tex, m_py = _tex_fraction(abs(c.fraction)), _py_fraction(abs(c.fraction))
+                m_tex, m_py = _tex_fraction(abs(c.fraction), digits), _py_fraction(abs(c.fraction))
             else:
                 m_tex, m_py = _tex_float(abs(x), digits), repr(abs(x))
         else:
@@ -686,7 +696,7 @@ def formula(
                 notes.extend(n for n in b.notes if n != TRUNCATION_NOTE)
             ranges.append(_make_range(found, t if not is_rel else None, t if is_rel else None, dirs, var_tex, scale, unit))
     if used == "nondegenerate":
-        notes.extend(_mixing_notes(model, levels, ranges, threshold, spec))
+        notes.extend(_mixing_notes(model, levels, ranges, threshold))
 
     # ---------------------------------------------------------------- text
     if kind == "series":
@@ -893,7 +903,7 @@ def _range_words(by_dir: dict, var_tex: str, scale: float | None, unit: str | No
     )
 
 
-def _mixing_notes(model: Model, levels: list[int], ranges: list[ValidityRange], threshold: float, order: int) -> list[str]:
+def _mixing_notes(model: Model, levels: list[int], ranges: list[ValidityRange], threshold: float) -> list[str]:
     """Name a near-degenerate partner that mixes strongly at a boundary (the block alternative)."""
     out = []
     for r in ranges:

@@ -159,11 +159,10 @@ def _plain_symbol(variable: str) -> str:
 
 def _fit_width(fig: Any, text: Any, size: float, minimum: float) -> None:
     """Reduce the font of ``text`` (unbroken lines) until it ends within 97 % of the figure width."""
-    renderer = fig.canvas.get_renderer()
     if fig.get_layout_engine() is not None:
         fig.get_layout_engine().execute(fig)  # place the axes first: the title starts at their left edge
     while size > minimum:
-        box = text.get_window_extent(renderer)
+        box = text.get_window_extent()  # with the figure's own renderer
         avail = 0.97 * fig.bbox.width - box.x0
         if box.width <= avail:
             return
