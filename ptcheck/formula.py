@@ -40,7 +40,7 @@ import scipy.sparse as sp
 
 from . import _validation as val
 from .approximants import Pade, parse_order
-from .compare import TRUNCATION_NOTE, ValidityBoundary, compare, validity_boundary
+from .compare import TRUNCATION_NOTE, compare, validity_boundary
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, mixing_ratios
 from .model import Model
 from .quantities import CANCELLATION_RTOL, Quantity
@@ -91,8 +91,9 @@ _UNICODE_TEX = {
     "Δ": r"\Delta", "α": r"\alpha", "ζ": r"\zeta", "λ": r"\lambda", "ε": r"\epsilon", "θ": r"\theta",
     "φ": r"\phi", "ψ": r"\psi", "σ": r"\sigma", "Ω": r"\Omega", "↑": r"\uparrow", "↓": r"\downarrow",
 }
-_TEX_SPECIAL = {"\\": r"\backslash ", "{": r"\{", "}": r"\}", "_": r"\_", "#": r"\#", "%": r"\%", "&": r"\&", "$": r"\$",
-                "^": r"\^{}", "~": r"\sim "}
+# (mathtext has no \& and no \$: '&' is spelled out, '$' dropped)
+_TEX_SPECIAL = {"\\": r"\backslash ", "{": r"\{", "}": r"\}", "_": r"\_", "#": r"\#", "%": r"\%", "&": r"\,\mathrm{and}\,",
+                "$": "", "^": r"\^{}", "~": r"\sim "}
 
 
 def _ro(a: Any) -> np.ndarray:
@@ -155,6 +156,11 @@ def simple_fraction(x: float) -> Fraction | None:
 
 
 # ====================================================================== text pieces
+def _usable_name(name: Any) -> bool:
+    """An ASCII Python identifier that is not a keyword."""
+    return isinstance(name, str) and name.isascii() and name.isidentifier() and not keyword.iskeyword(name)
+
+
 def _check_variable(name: Any) -> str:
     if not isinstance(name, str) or not name.isascii() or not name.isidentifier():
         raise ValueError(f"variable must be an ASCII Python identifier (e.g. 'lam', 'g', 'eps'); got {name!r}")
@@ -624,7 +630,7 @@ def formula(
     threshold = float(val.check_positive(threshold, "threshold"))
     if variable is None:
         name = getattr(model, "coupling_name", None)
-        variable = name if isinstance(name, str) and name.isascii() and name.isidentifier() and not keyword.iskeyword(name) and name not in _RESERVED else "lam"
+        variable = name if _usable_name(name) and name not in _RESERVED else "lam"
     variable = _check_variable(variable)
     grid = None if couplings is None else val.as_couplings(couplings)
     if params is None:
@@ -646,92 +652,31 @@ def formula(
     used = "block" if exps[0].treatment == "block" else "nondegenerate"
     bcoupling = (coupling or 0.0) if used == "block" else None
     var_tex = _tex_symbol(variable)
-    digits = LATEX_DIGITS
     notes: list[str] = [TRUNCATION_NOTE]
 
     # ---------------------------------------------------------------- coefficients
-    if is_quantity:
-        weights = np.array([target.resolve(model)[n] for n in levels])
-        coefficients, zero = _series_coefficients(model, levels, weights, exps, spec)
-        kind, name, lhs = "series", target.name, _tex_symbol(target.name)
-        out_levels, out_labels = tuple(levels), tuple(model.label(n) for n in levels)
-        function_name = target.name if target.name.isascii() and target.name.isidentifier() and not keyword.iskeyword(target.name) else "quantity"
-    elif block is None:
-        coefficients, zero = _series_coefficients(model, levels, np.ones(1), exps, spec)
-        kind, name = "series", model.label(levels[0])
-        lhs = f"E_{{{_tex_text(name)}}}"
-        out_levels, out_labels = (levels[0],), (name,)
-        function_name = "energy"
-    else:
-        coefficients = np.asarray(block.coefficients)
-        if np.iscomplexobj(coefficients) and not np.any(np.imag(coefficients)):
-            coefficients = np.real(coefficients)
-        zero = _matrix_floor(model, block)
-        kind, name = "effective_hamiltonian", model.label(levels[0])
-        out_levels, out_labels = tuple(block.levels), tuple(block.labels)
-        function_name = "effective_hamiltonian"
-        notes.append(
-            f"Level {name} is treated with the block {list(block.labels)} (Schrieffer–Wolff): its energy is the "
-            f"eigenvalue of H_eff(λ) on the branch that starts at E = {model.e0[levels[0]]:.6g} at λ = 0. "
-            "The ranges are for this level; ask for the block's other levels separately."
-        )
-        notes.extend(block.notes)
-    fractions, coefs = _recognise(coefficients, zero)
+    part = _exported_part(model, target, levels, exps, block, spec)
+    notes.extend(part.notes)
+    fractions, coefs = _recognise(part.coefficients, part.zero)
 
     # ---------------------------------------------------------------- ranges
     scale, unit = _physical(model)
-    ranges: list[ValidityRange] = []
-    solves = 0
-    for is_rel, values in ((True, rtols), (False, tols)):
-        for t in values:
-            found = []
-            for d in dirs:
-                b = validity_boundary(
-                    model, target, spec, tol=None if is_rel else t, rtol=t if is_rel else None, direction=d,
-                    treatment=used, backend=backend, max_coupling=max_coupling, xrtol=xrtol, threshold=threshold,
-                    coupling=bcoupling,
-                )
-                solves += b.exact_solves
-                found.append(b)
-                notes.extend(n for n in b.notes if n != TRUNCATION_NOTE)
-            ranges.append(_make_range(found, t if not is_rel else None, t if is_rel else None, dirs, var_tex, scale, unit))
+    search = {"treatment": used, "backend": backend, "max_coupling": max_coupling, "xrtol": xrtol,
+              "threshold": threshold, "coupling": bcoupling}
+    ranges = [
+        _find_range(model, target, spec, dirs, search, var_tex, scale, unit, **tkw)
+        for tkw in [{"rtol": t} for t in rtols] + [{"tol": t} for t in tols]
+    ]
+    solves = sum(b.exact_solves for r in ranges for b in r.boundaries)
+    notes.extend(n for r in ranges for b in r.boundaries for n in b.notes if n != TRUNCATION_NOTE)
     if used == "nondegenerate":
         notes.extend(_mixing_notes(model, levels, ranges, threshold))
 
     # ---------------------------------------------------------------- text
-    if kind == "series":
-        poly_tex, poly_py = _poly(coefs, var_tex, variable, digits)
-        equations = (f"${lhs}({var_tex}) = {poly_tex}$",)
-        expression = poly_py
-    else:
-        p = block.size
-        sep = "," if p >= 10 else ""
-        eq, rows = [], []
-        for i in range(p):
-            row = []
-            for j in range(p):
-                t_tex, t_py = _poly([c[i][j] for c in coefs], var_tex, variable, digits)
-                row.append(t_py)
-                if j >= i:
-                    eq.append(f"$H_{{{i + 1}{sep}{j + 1}}}({var_tex}) = {t_tex}$")
-            rows.append("[" + ", ".join(row) + "]")
-        equations = tuple(eq)
-        expression = "[" + ", ".join(rows) + "]"
-    # "valid to 1 % for ..., to 5 % for ..."
-    range_tex = ", ".join(r.latex if i == 0 else r.latex.removeprefix("valid ") for i, r in enumerate(ranges))
-    if kind == "series":
-        latex = equations[0] + (f", {range_tex}" if range_tex else "")
-    else:
-        basis = r",\ ".join(_tex_text(lab) for lab in out_labels)
-        latex = "\n".join(equations) + (
-            f"\n$H$: effective Hamiltonian (Schrieffer-Wolff, order {spec}) in the basis $({basis})$; "
-            f"level ${_tex_text(name)}$ {range_tex}"
-        )
-    python = _python_source(
-        function_name, variable, expression, kind=kind, target=name, model=model, params=params, order=spec,
-        ranges=ranges, labels=out_labels, quantity=target if is_quantity else None, scale=scale,
-        unit=unit, version=__version__,
-    )
+    equations, expression = _equations(part, coefs, var_tex, variable)
+    latex = _latex(part, equations, ranges, spec)
+    python = _python_source(part, variable, expression, model=model, params=params, order=spec, ranges=ranges,
+                            quantity=target if is_quantity else None, scale=scale, unit=unit, version=__version__)
 
     # ---------------------------------------------------------------- error curve
     if grid is None:
@@ -744,21 +689,21 @@ def formula(
     return Formula(
         model_name=model.name,
         params=None if params is None else MappingProxyType(dict(params)),
-        target=name,
-        kind=kind,
+        target=part.name,
+        kind=part.kind,
         order=int(spec),
         treatment=used,
-        levels=out_levels,
-        labels=out_labels,
+        levels=part.levels,
+        labels=part.labels,
         variable=variable,
-        coefficients=_ro(coefficients),
+        coefficients=_ro(part.coefficients),
         fractions=fractions,
         ranges=tuple(ranges),
         equations=equations,
         latex=latex,
         expression=expression,
         python=python,
-        function_name=function_name,
+        function_name=part.function_name,
         couplings=_ro(cmp.couplings),
         abs_error=_ro(cmp.abs_error[0, 0]),
         rel_error=_ro(cmp.rel_error[0, 0]),
@@ -771,7 +716,79 @@ def formula(
 
 
 # ====================================================================== helpers
-def _series_coefficients(model: Model, levels: list[int], weights: np.ndarray, exps: list, order: int) -> tuple[np.ndarray, np.ndarray]:
+@dataclass(frozen=True)
+class _Part:
+    """What is exported: a scalar series or a block's effective Hamiltonian, with its names."""
+
+    kind: str  # "series" | "effective_hamiltonian"
+    name: str  # target name (level label or quantity name)
+    lhs: str  # LaTeX of the left-hand side
+    levels: tuple
+    labels: tuple
+    function_name: str
+    coefficients: np.ndarray  # (order + 1,) or (order + 1, p, p)
+    zero: np.ndarray  # series: bool per coefficient; matrix: noise floor per order
+    notes: tuple
+
+
+def _exported_part(model: Model, target: Any, levels: list[int], exps: list, block: Any, order: int) -> _Part:
+    if isinstance(target, Quantity):
+        weights = np.array([target.resolve(model)[n] for n in levels])
+        c, zero = _series_coefficients(model, levels, weights, exps, order)
+        fname = target.name if _usable_name(target.name) else "quantity"
+        return _Part("series", target.name, _tex_symbol(target.name), tuple(levels), tuple(model.label(n) for n in levels),
+                     fname, c, zero, ())
+    name = model.label(levels[0])
+    if block is None:
+        c, zero = _series_coefficients(model, levels, np.ones(1), exps, order)
+        return _Part("series", name, f"E_{{{_tex_text(name)}}}", (levels[0],), (name,), "energy", c, zero, ())
+    c = np.asarray(block.coefficients)
+    if np.iscomplexobj(c) and not np.any(np.imag(c)):
+        c = np.real(c)
+    note = (
+        f"Level {name} is treated with the block {list(block.labels)} (Schrieffer–Wolff): its energy is the "
+        f"eigenvalue of H_eff(λ) on the branch that starts at E = {model.e0[levels[0]]:.6g} at λ = 0. "
+        "The ranges are for this level; ask for the block's other levels separately."
+    )
+    return _Part("effective_hamiltonian", name, "H", tuple(block.levels), tuple(block.labels), "effective_hamiltonian",
+                 c, _matrix_floor(model, block), (note, *block.notes))
+
+
+def _equations(part: _Part, coefs: list, var_tex: str, variable: str) -> tuple[tuple[str, ...], str]:
+    """(LaTeX equations, one line each; Python/sympy expression)."""
+    if part.kind == "series":
+        poly_tex, poly_py = _poly(coefs, var_tex, variable, LATEX_DIGITS)
+        arg = "" if "(" in part.name else f"({var_tex})"  # a name like ω(|1,0⟩→|0,0⟩) carries its own parentheses
+        return (f"${part.lhs}{arg} = {poly_tex}$",), poly_py
+    p = len(part.levels)
+    sep = "," if p >= 10 else ""
+    eq, rows = [], []
+    for i in range(p):
+        row = []
+        for j in range(p):
+            t_tex, t_py = _poly([c[i][j] for c in coefs], var_tex, variable, LATEX_DIGITS)
+            row.append(t_py)
+            if j >= i:  # Hermitian: the upper triangle says it all
+                eq.append(f"$H_{{{i + 1}{sep}{j + 1}}}({var_tex}) = {t_tex}$")
+        rows.append("[" + ", ".join(row) + "]")
+    return tuple(eq), "[" + ", ".join(rows) + "]"
+
+
+def _latex(part: _Part, equations: tuple[str, ...], ranges: list[ValidityRange], order: int) -> str:
+    """Equation(s) and ranges: "..., valid to 1 % for |λ| < 0.798, to 5 % for |λ| < 2.11"."""
+    range_tex = ", ".join(r.latex if i == 0 else r.latex.removeprefix("valid ") for i, r in enumerate(ranges))
+    if part.kind == "series":
+        return equations[0] + (f", {range_tex}" if range_tex else "")
+    basis = r",\ ".join(_tex_text(lab) for lab in part.labels)
+    return "\n".join(equations) + (
+        f"\n$H$: effective Hamiltonian (Schrieffer-Wolff, order {order}) in the basis $({basis})$; "
+        f"level ${_tex_text(part.name)}$ {range_tex}"
+    )
+
+
+def _series_coefficients(
+    model: Model, levels: list[int], weights: np.ndarray, exps: list, order: int
+) -> tuple[np.ndarray, np.ndarray]:
     """Coefficients ``Σ_i w_i E_i^(k)`` (order + 1,) and which of them are zero to rounding.
 
     ``E_i^(k) = ⟨i|V|ψ_i^(k−1)⟩`` is computed from terms of total size
@@ -785,11 +802,11 @@ def _series_coefficients(model: Model, levels: list[int], weights: np.ndarray, e
     rows, floors = [], []
     for n, e in zip(levels, exps):
         s = e if e.energy_coefficients is not None else rs_series(model, n, order)  # a block of one: the same series
-        c = np.asarray(e.energy_coefficients if e.energy_coefficients is not None else np.real(e.block.coefficients[:, 0, 0]), dtype=float)
+        c = e.energy_coefficients if e.energy_coefficients is not None else np.real(e.block.coefficients[:, 0, 0])
         v_row = model.v[[n]].toarray()[0] if sp.issparse(model.v) else np.asarray(model.v[n])
         a = np.full(order + 1, h0_scale)
         a[1:] = np.abs(np.asarray(s.state_coefficients)[:-1]) @ (np.abs(v_row) + np.max(np.abs(v_row)))
-        rows.append(c)
+        rows.append(np.asarray(c, dtype=float))
         floors.append(a)
     level_c = np.array(rows)
     w = np.abs(weights)
@@ -846,18 +863,21 @@ def _tol_words(tol: float | None, rtol: float | None) -> tuple[str, str]:
     if rtol is not None:
         pct = f"{100 * rtol:.3g}"
         return f"{pct} %", f"${pct}\\,\\%$"
-    return f"{tol:.3g}", f"${_tex_float(tol, 3)}$"
+    return f"within {tol:.3g}", f"within ${_tex_float(tol, 3)}$"
 
 
-def _make_range(found: list[ValidityBoundary], tol, rtol, dirs, var_tex: str, scale, unit) -> ValidityRange:
+def _find_range(model: Model, target: Any, order: int, dirs: tuple[int, ...], search: dict, var_tex: str,
+                scale: float | None, unit: str | None, *, tol: float | None = None, rtol: float | None = None) -> ValidityRange:
+    """The validity range for one tolerance: one validity_boundary per direction."""
+    found = [validity_boundary(model, target, order, tol=tol, rtol=rtol, direction=d, **search) for d in dirs]
     by_dir = {b.direction: b for b in found}
-    lower = by_dir[-1].coupling if -1 in by_dir else 0.0
-    upper = by_dir[1].coupling if 1 in by_dir else 0.0
     words, words_tex = _tol_words(tol, rtol)
     text, tex = _range_words(by_dir, var_tex, scale, unit)
     return ValidityRange(
-        tol=tol, rtol=rtol, lower=float(lower), upper=float(upper), boundaries=tuple(found),
-        text=f"valid to {words} {text}", latex=f"valid to {words_tex} {tex}",
+        tol=tol, rtol=rtol,
+        lower=float(by_dir[-1].coupling) if -1 in by_dir else 0.0,
+        upper=float(by_dir[1].coupling) if 1 in by_dir else 0.0,
+        boundaries=tuple(found), text=f"valid to {words} {text}", latex=f"valid to {words_tex} {tex}",
     )
 
 
@@ -938,8 +958,9 @@ def _doc_text(s: str) -> str:
     return str(s).replace("\\", "\\\\").replace('"""', '\\"\\"\\"')
 
 
-def _python_source(function_name, variable, expression, *, kind, target, model, params, order, ranges,
-                   labels, quantity, scale, unit, version) -> str:
+def _python_source(part: _Part, variable, expression, *, model, params, order, ranges, quantity, scale, unit,
+                   version) -> str:
+    kind, target, labels, function_name = part.kind, part.name, part.labels, part.function_name
     if kind == "effective_hamiltonian":
         what = (f"Effective Hamiltonian H_eff({variable}) of the block {', '.join(labels)} (Schrieffer–Wolff, order "
                 f"{order}), a {len(labels)} x {len(labels)} matrix (list of rows) in that basis; the energy of level "
