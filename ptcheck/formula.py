@@ -18,7 +18,7 @@ three significant digits rounded toward λ = 0, so the printed range never
 reaches beyond the computed one.
 
 Coefficients that are simple fractions to machine precision are shown as such
-(``-21/8``); see :func:`simple_fraction` for the test every claimed fraction
+(``-21/8``); see :func:`simple_rational` for the test every claimed fraction
 passes.
 """
 
@@ -55,7 +55,7 @@ __all__ = [
     "Formula",
     "ValidityRange",
     "formula",
-    "simple_fraction",
+    "simple_rational",
 ]
 
 #: Relative tolerances used when neither ``tol`` nor ``rtol`` is given (1 % and 5 %).
@@ -103,7 +103,7 @@ def _ro(a: Any) -> np.ndarray:
 
 
 # ====================================================================== fractions
-def simple_fraction(x: float) -> Fraction | None:
+def simple_rational(x: float) -> Fraction | None:
     """The simplest fraction equal to ``x`` to machine precision, or ``None``.
 
     The candidates are the convergents of the continued fraction of ``x`` (the
@@ -124,9 +124,9 @@ def simple_fraction(x: float) -> Fraction | None:
 
     Examples
     --------
-    >>> simple_fraction(-2.624999999999999)
+    >>> simple_rational(-2.624999999999999)
     Fraction(-21, 8)
-    >>> simple_fraction(3.141592653589793) is None
+    >>> simple_rational(3.141592653589793) is None
     True
     """
     x = float(x)
@@ -359,10 +359,10 @@ class Formula:
     coefficients : (order + 1,) or (order + 1, p, p) ndarray, read-only
         The computed coefficients (energy units): ``E^(k)``, ``Q^(k)`` or
         ``H_eff^(k)``.
-    fractions : tuple
+    rationals : tuple
         Same nesting as :attr:`coefficients`: the coefficient as an exact
         :class:`~fractions.Fraction` where it is one to machine precision
-        (:func:`simple_fraction`; ``Fraction(0)`` for a coefficient that is
+        (:func:`simple_rational`; ``Fraction(0)`` for a coefficient that is
         zero to rounding), else ``None``.
     ranges : tuple of ValidityRange
         One per tolerance asked for (relative tolerances first).
@@ -404,7 +404,7 @@ class Formula:
     labels: tuple
     variable: str
     coefficients: np.ndarray
-    fractions: tuple
+    rationals: tuple
     ranges: tuple
     equations: tuple
     latex: str
@@ -440,7 +440,7 @@ class Formula:
             "labels": list(self.labels),
             "variable": self.variable,
             "coefficients": coefficients,
-            "fractions": _fractions_json(self.fractions),
+            "rationals": _fractions_json(self.rationals),
             "ranges": [r.to_dict() for r in self.ranges],
             "equations": list(self.equations),
             "latex": self.latex,
@@ -657,7 +657,7 @@ def formula(
     # ---------------------------------------------------------------- coefficients
     part = _exported_part(model, target, levels, exps, block, spec)
     notes.extend(part.notes)
-    fractions, coefs = _recognise(part.coefficients, part.zero)
+    rationals, coefs = _recognise(part.coefficients, part.zero)
 
     # ---------------------------------------------------------------- ranges
     scale, unit = _physical(model)
@@ -697,7 +697,7 @@ def formula(
         labels=part.labels,
         variable=variable,
         coefficients=_ro(part.coefficients),
-        fractions=fractions,
+        rationals=rationals,
         ranges=tuple(ranges),
         equations=equations,
         latex=latex,
@@ -845,7 +845,7 @@ def _recognise(c: np.ndarray, zero: np.ndarray) -> tuple[tuple, list]:
             z = x == 0
         if z:
             return Fraction(0), _Coef(x, Fraction(0))
-        f = simple_fraction(x.real) if x.imag == 0.0 else None
+        f = simple_rational(x.real) if x.imag == 0.0 else None
         return f, _Coef(x, f)
 
     if c.ndim == 1:

@@ -1,4 +1,4 @@
-"""Exported formulas: coefficients, fractions, text forms and ranges against outside references.
+"""Exported formulas: coefficients, rationals, text forms and ranges against outside references.
 
 References: published series coefficients, sympy (exact rational arithmetic), matplotlib's
 mathtext parser, numpy's dense eigensolver (brute-force boundaries on fine grids), and
@@ -23,7 +23,7 @@ from scipy.optimize import brentq
 import ptcheck
 from ptcheck import Formula, Model, dispersive_shift, formula, validity_boundary
 from ptcheck.blocks import block_series
-from ptcheck.formula import _check_variable, simple_fraction
+from ptcheck.formula import _check_variable, simple_rational
 from ptcheck.models import anharmonic_oscillator, jaynes_cummings
 from ptcheck.plots import plot_formula
 
@@ -72,32 +72,32 @@ def chi_formula():
     return formula(jaynes_cummings(n_photons=4), dispersive_shift(), 4)
 
 
-# ---------------------------------------------------------------- fractions
+# ---------------------------------------------------------------- rationals
 def test_quartic_ground_state_fractions(quartic_formula):
-    # E_0(λ) = 1/2 + 3/4 λ − 21/8 λ² + 333/16 λ³ − 30885/128 λ⁴ + … for H = p²/2 + x²/2 + λx⁴
-    # (Bender & Wu, Phys. Rev. 184, 1231 (1969); their coefficients in this normalisation)
+    # E_0(λ) = 1/2 + 3/4 λ − 21/8 λ² + 333/16 λ³ − 30885/128 λ⁴ + … (Bender & Wu, Phys. Rev. 184, 1231
+    # (1969), for H = p² + x²/4 + λx⁴/4, which is p²/2 + x²/2 + λx⁴ after x → √2 x: the same series)
     expected = (Fraction(1, 2), Fraction(3, 4), Fraction(-21, 8), Fraction(333, 16), Fraction(-30885, 128))
-    assert quartic_formula.fractions == expected
+    assert quartic_formula.rationals == expected
     assert quartic_formula.expression == "1/2 + 3/4*lam - 21/8*lam**2 + 333/16*lam**3 - 30885/128*lam**4"
     assert r"\frac{21}{8}\lambda^{2}" in quartic_formula.latex
     assert_allclose(quartic_formula.coefficients, [float(f) for f in expected], rtol=1e-13)
 
 
 def test_cubic_oscillator_odd_orders_are_exact_zeros():
-    # V = x³ is odd under parity, so every odd order of a parity eigenstate vanishes
-    # (common practice, no source); E_2 = −11/8 (second-order sum over ⟨0|x³|1⟩, ⟨0|x³|3⟩, from memory)
+    # V = x³ is odd under parity, so every odd order of a parity eigenstate vanishes (common practice,
+    # no source); E_2 = −⟨0|x³|1⟩²/1 − ⟨0|x³|3⟩²/3 = −9/8 − 1/4 = −11/8 (hand calculation, x = (a + a†)/√2)
     f = formula(anharmonic_oscillator(kind="cubic", n_basis=30), 0, 4, directions=(1,), max_coupling=0.1)
-    assert f.fractions[1] == 0 and f.fractions[3] == 0
-    assert f.fractions[2] == Fraction(-11, 8)
+    assert f.rationals[1] == 0 and f.rationals[3] == 0
+    assert f.rationals[2] == Fraction(-11, 8)
     assert "lam**3" not in f.expression and "lam**1" not in f.expression
 
 
-def test_simple_fraction_accepts_exact_fractions_and_refuses_the_rest():
-    # common practice, no source: exact fractions come back, irrational numbers and near misses do not
+def test_simple_rational_accepts_exact_fractions_and_refuses_the_rest():
+    # common practice, no source: exact rationals come back, irrational numbers and near misses do not
     for p, q in [(1, 3), (-21, 8), (333, 16), (1, 1000), (7, 1), (-30885, 128)]:
-        assert simple_fraction(p / q) == Fraction(p, q)
+        assert simple_rational(p / q) == Fraction(p, q)
     for x in [math.pi, math.sqrt(2), math.e, 0.75 * (1 + 1e-10), -2.625 * (1 - 3e-11), 1 / 12345678, 123456789.5]:
-        assert simple_fraction(x) is None, x
+        assert simple_rational(x) is None, x
 
 
 @settings(max_examples=200, deadline=None)
@@ -105,7 +105,7 @@ def test_simple_fraction_accepts_exact_fractions_and_refuses_the_rest():
 def test_a_nudged_fraction_is_never_shown_as_one(p, q, nudge):
     # common practice, no source: a number 1e-10..1e-6 (relative) away from p/q must not be shown as p/q
     x = p / q * (1 + nudge) if p else nudge
-    f = simple_fraction(x)
+    f = simple_rational(x)
     assert f is None or abs(float(f) - x) <= 1e-12 * abs(x)
     assert f != Fraction(p, q)
 
@@ -115,7 +115,7 @@ def test_random_model_coefficients_are_not_shown_as_fractions(rng):
     h0 = np.diag(np.sort(rng.normal(size=8)) * 3.0)
     m = Model(h0, random_hermitian(rng, 8), name="random")
     f = formula(m, 0, 5, tol=1e-3)
-    assert all(x is None for x in f.fractions), f.fractions
+    assert all(x is None for x in f.rationals), f.rationals
     assert "/" not in f.expression
 
 
@@ -145,10 +145,11 @@ def test_python_source_needs_nothing_from_ptcheck(quartic_formula):
 
 
 def test_quantity_expression_equals_its_series(chi_formula):
-    # χ = g²/Δ at order 2 (Blais et al., Phys. Rev. A 69, 062320 (2004), Eq. (3.7)); here g = 0.1, Δ = 5 − 6 = −1
+    # χ = g²/Δ at order 2 (Blais et al., Phys. Rev. A 69, 062320 (2004), dispersive limit; sign convention
+    # of ptcheck.quantities); here g = 0.1, Δ = ω_q − ω_r = 5 − 6 = −1
     m = jaynes_cummings(n_photons=4)
     qs = ptcheck.quantity_series(m, dispersive_shift(), 4, treatment="nondegenerate")
-    assert chi_formula.fractions[:3] == (0, 0, Fraction(-1, 100))
+    assert chi_formula.rationals[:3] == (0, 0, Fraction(-1, 100))
     fn = run_python(chi_formula.python, "chi")
     expr = sympy.sympify(chi_formula.expression)
     for lam in (-0.8, 0.3, 1.1):
@@ -159,11 +160,11 @@ def test_quantity_expression_equals_its_series(chi_formula):
 
 def test_block_formula_is_the_effective_hamiltonian(three_level, block_formula):
     # second order: H_ab = Σ_m V_am V_mb / (E0 − E_m) over the outside level at 5 (Löwdin partitioning;
-    # Winkler, Spin–Orbit Coupling Effects in 2D Electron and Hole Systems (2003), App. B, Eq. (B.15))
+    # e.g. Winkler, Spin–Orbit Coupling Effects in 2D Electron and Hole Systems (2003), App. B; from memory)
     # in the good-state basis (|0⟩ ∓ |1⟩)/√2 with V_{a2} = ±1/√2: entries ±(1/2)/(−5) = ±1/10
     assert block_formula.kind == "effective_hamiltonian"
-    assert block_formula.fractions[1] == ((-1, 0), (0, 1))
-    assert {abs(x) for row in block_formula.fractions[2] for x in row} == {Fraction(1, 10)}
+    assert block_formula.rationals[1] == ((-1, 0), (0, 1))
+    assert {abs(x) for row in block_formula.rationals[2] for x in row} == {Fraction(1, 10)}
     bs = block_series(three_level, [0, 1], 3)
     fn = run_python(block_formula.python, "effective_hamiltonian")
     expr = sympy.sympify(block_formula.expression)
@@ -279,7 +280,7 @@ def test_to_dict_is_json_with_model_params_and_version(quartic_formula):
     assert d["model"] == "quartic oscillator (λ x⁴)"
     assert d["params"] == {"kind": "quartic", "n_basis": 40}
     assert d["ptcheck_version"] == ptcheck.__version__
-    assert d["fractions"][2] == "-21/8"
+    assert d["rationals"][2] == "-21/8"
     assert d["ranges"][0]["boundaries"][0]["status"] == "found"
     assert isinstance(quartic_formula, Formula)
     assert not quartic_formula.coefficients.flags.writeable
