@@ -274,6 +274,18 @@ def test_near_degenerate_boundary_names_the_block_alternative():
     assert any("treatment='block'" in n for n in f.notes)
 
 
+def test_flipping_v_mirrors_the_formula(rng):
+    # invariance (common practice, no source): V → −V is λ → −λ, so E^(k) → (−1)^k E^(k) and the
+    # range is mirrored; an invented random model with an absolute tolerance
+    h0 = np.diag([0.0, 1.0, 2.5, 4.0])
+    v = random_hermitian(rng, 4)
+    f = formula(Model(h0, v), 0, 3, tol=1e-3)
+    g = formula(Model(h0, -v), 0, 3, tol=1e-3)
+    assert_allclose(g.coefficients, f.coefficients * (-1.0) ** np.arange(4), rtol=1e-12, atol=1e-15)
+    assert g.ranges[0].lower == pytest.approx(-f.ranges[0].upper, rel=2e-3)
+    assert g.ranges[0].upper == pytest.approx(-f.ranges[0].lower, rel=2e-3)
+
+
 # ---------------------------------------------------------------- result object
 def test_to_dict_is_json_with_model_params_and_version(quartic_formula):
     d = json.loads(json.dumps(quartic_formula.to_dict()))
