@@ -22,6 +22,7 @@ from .errors import (
     TruncationWarning,
 )
 from .exact import AvoidedCrossing, ExactSolver, ExactSweep, track
+from .formula import Formula, ValidityRange, formula
 from .model import Model
 from .products import product_model
 from .quantities import (
@@ -55,6 +56,7 @@ __all__ = [
     "DivergenceMap",
     "ExactSolver",
     "ExactSweep",
+    "Formula",
     "Model",
     "NearDegeneratePair",
     "NearDegenerateWarning",
@@ -66,6 +68,7 @@ __all__ = [
     "TrackingWarning",
     "TruncationWarning",
     "ValidityBoundary",
+    "ValidityRange",
     "anharmonicity",
     "block_series",
     "combination",
@@ -76,6 +79,7 @@ __all__ = [
     "divergence_map",
     "exchange",
     "find_blocks",
+    "formula",
     "models",
     "near_degenerate_pairs",
     "parse_order",
