@@ -618,7 +618,7 @@ def _make_suggestion(model, target, n, partner, ratio, lam, threshold, blk, exac
         text += "; it meets the same tolerance over the whole range searched"
     elif status not in ("not computed", "exact_in_sector"):
         text += f"; its validity boundary search ended with status {status!r}"
-    text += ". This is a suggestion beside the answer: the verdict above judges the treatment asked for."
+    text += ". A suggestion beside the answer: the answer itself judges the treatment asked for."
     return Suggestion(
         target=target, level=n, label=model.label(n), partner=partner, partner_label=model.label(partner),
         mixing_ratio=float(ratio), coupling=float(lam), threshold=float(threshold), threshold_coupling=float(lam_thr),
