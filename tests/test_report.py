@@ -184,10 +184,12 @@ def test_failed_boundary_search_is_reported_not_raised(monkeypatch):
 
     monkeypatch.setattr(rp, "validity_boundary", auto_fails)
     r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5)
-    (b,) = r.boundaries
+    (b,) = r.boundaries  # the default treatment is not 'auto': unaffected
     assert b.status == "found" and b.treatment == "nondegenerate"
     assert b.coupling == pytest.approx(closed_form_boundary(2, 1e-5), rel=2e-3)  # closed form, as above
-    assert any("auto treatment failed" in c for c in r.cautions)
+    # asked for 'auto', a failing search is reported as such, never swapped for another treatment
+    r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="auto")
+    assert r.boundaries[0].status == "error" and any("search failed" in c for c in r.cautions)
 
     def always_fails(*a, **k):
         raise ValueError("no luck")
