@@ -586,13 +586,15 @@ def _suggestions(model: Model, targets: list[_Target], exps: dict, s: CheckSetti
         return []
     out = []
     for t in targets:
+        seen: set[frozenset] = set()
         for n in t.weights:
             e = exps[n]
             if e.treatment == NEAR_DEGENERATE:
                 continue
             lim = limiting_partner(model, n, e.group, lam, s.threshold)
-            if lim is None:
+            if lim is None or frozenset((n, lim[0])) in seen:
                 continue
+            seen.add(frozenset((n, lim[0])))
             partner, ratio = lim
             blk = _smallest_block(model, n, lam, s.threshold)
             if blk is None:
@@ -983,23 +985,29 @@ def _boundary_suggestions(model, target, spec, s, tol, direction, solver, s_max,
         at = abs(result.coupling)
     out = []
     exps = expansion_map(model, list(target.weights), required_order(spec), settings=s)
+    seen: set[frozenset] = set()
+    block_result: dict[str, tuple] = {}
     for n in target.weights:
         e = exps[n]
         lim = limiting_partner(model, n, e.group, at, s.threshold)
-        if lim is None:
+        if lim is None or frozenset((n, lim[0])) in seen:
             continue
+        seen.add(frozenset((n, lim[0])))
         blk = _smallest_block(model, n, at, s.threshold)
         if blk is None:
             continue
         exact = whole_sector(model, blk)
         if exact:
             b_coupling, status = math.nan, "exact_in_sector"
+        elif "block" in block_result:  # the target's boundary with the block treatment: one search serves all
+            b_coupling, status = block_result["block"]
         else:
             try:
                 b = _boundary_search(model, target, spec, s.replace(treatment="block", coupling=at), tol, direction, solver, s_max, s_nat)
                 b_coupling, status = b.coupling, b.status
             except (ValueError, ArithmeticError) as exc:
                 b_coupling, status = math.nan, f"error: {exc}"
+            block_result["block"] = (b_coupling, status)
         out.append(_make_suggestion(model, target.name, n, lim[0], lim[1], at, s.threshold, blk, exact, b_coupling, status))
     return out
 
