@@ -311,7 +311,7 @@ def _confirm_factorial(jj: np.ndarray, dd: np.ndarray, b: float) -> bool:
 
 #: A root-test radius (in the pattern variable) that drops below this fraction of its
 #: value from the first half of the coefficients, monotonically, is "shrinking".
-SHRINK_RATIO = 0.7
+SHRINK_RATIO = 0.8
 
 
 def _shrinking_radius(jj: np.ndarray, dd: np.ndarray) -> tuple[float, float] | None:
