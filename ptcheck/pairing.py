@@ -267,12 +267,17 @@ def at(solver: ExactSolver, exps: Mapping[int, Any], levels: Sequence[int], coup
         base = float(np.mean(model.e0[list(g)]))
         if uses_window(exps[g[0]]):
             cand_e, cand_v = _window(solver, exps, g, lam)
+            cand_s = cand_e - base
         else:
             pairs = [solver.level_at(n, lam) for n in g]
             cand_e = np.array([p[0] for p in pairs], dtype=float)
             cand_v = np.stack([p[1] for p in pairs])
+            if shift_at is not None:
+                cand_s = np.array([float(shift_at(n, lam)) for n in g]) + (model.e0[list(g)] - base)
+            else:
+                cand_s = cand_e - base
         idx, a, _ = assign(pert, cand_v, cand_e, _energy_tol(solver, lam))
         for i, n in enumerate(g):
-            shifts[n] = float(cand_e[int(idx[i])] - base) + (base - float(model.e0[n]))
+            shifts[n] = float(cand_s[int(idx[i])]) + (base - float(model.e0[n]))
             amb[n] = bool(a[i])
     return {n: shifts[n] for n in levels}, {n: amb[n] for n in levels}

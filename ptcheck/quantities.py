@@ -844,6 +844,8 @@ class QuantitySeries:
         Value at λ = 0, ``Σ_i w_i E_i^(0)`` (energy units).
     notes : tuple of str
         Plain-language remarks (block levels, cancellations, sources).
+    reasons : tuple of str
+        Why each level got its treatment (:mod:`ptcheck.treatment`).
 
     Notes
     -----
@@ -872,6 +874,7 @@ class QuantitySeries:
     notes: tuple[str, ...]
     quantity: Quantity = field(repr=False)
     _expansions: tuple = field(repr=False)
+    reasons: tuple[str, ...] = ()
 
     # ------------------------------------------------------------------ values
     def energy(self, couplings: Any, order: OrderSpec | None = None) -> np.ndarray:
@@ -952,6 +955,7 @@ class QuantitySeries:
             "labels": list(self.labels),
             "weights": list(self.weights),
             "treatments": list(self.treatments),
+            "reasons": list(self.reasons),
             "coefficients": None if self.coefficients is None else self.coefficients.tolist(),
             "level_coefficients": [[num(x) for x in row] for row in self.level_coefficients],
             "first_nonzero_order": self.first_nonzero_order,
@@ -1144,6 +1148,7 @@ def quantity_series(
         notes=tuple(dict.fromkeys(notes)),
         quantity=quantity,
         _expansions=tuple(exps),
+        reasons=tuple(e.reason for e in exps),
     )
 
 

@@ -330,3 +330,22 @@ def test_the_treatment_choice_is_recorded_with_its_reason():
     assert b.treatment == "near-degenerate block" and "near-degenerate block" in b.reason
     qs = quantity_series(m, stark_shift(2, 0), 4)
     assert qs.treatments == ("nondegenerate", "degenerate")
+
+
+def test_pairing_flags_a_pairing_without_a_clear_winner_and_never_guesses():
+    # overlap assignment (common practice, no source): a 45° rotation gives equal overlaps 1/2
+    from ptcheck.pairing import assign
+
+    pert = np.eye(3)[:2]
+    c, s_ = np.cos(np.pi / 4), np.sin(np.pi / 4)
+    exact = np.array([[c, s_, 0.0], [-s_, c, 0.0], [0.0, 0.0, 1.0]])
+    idx, amb, ov = assign(pert, exact, np.array([0.0, 1.0, 5.0]), 1e-12)
+    assert amb.all() and np.allclose(ov, 0.5)
+    # the same rotation between states of equal energy is harmless: any choice gives the same number
+    idx, amb, _ = assign(pert, exact, np.array([1.0, 1.0, 5.0]), 1e-12)
+    assert not amb.any()
+    # a clear winner: small rotation
+    t = 0.2
+    exact = np.array([[np.cos(t), np.sin(t), 0.0], [-np.sin(t), np.cos(t), 0.0], [0.0, 0.0, 1.0]])
+    idx, amb, ov = assign(pert, exact[::-1], np.array([5.0, 1.0, 0.0]), 1e-12)
+    assert list(idx) == [2, 1] and not amb.any() and np.allclose(ov, np.cos(t) ** 2)
