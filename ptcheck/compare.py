@@ -19,10 +19,11 @@ they do not change when a constant is added to ``H0``.
 
 from __future__ import annotations
 
+import contextlib
 import html
 import math
 import warnings
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -147,19 +148,13 @@ def _check_coupling_range(model: Model, largest: float, name: str = "coupling") 
         )
 
 
-def _solver_guard(what: str):
+@contextlib.contextmanager
+def _solver_guard(what: str) -> Iterator[None]:
     """Turn an eigensolver failure into a clear ValueError."""
-
-    class _Guard:
-        def __enter__(self):
-            return self
-
-        def __exit__(self, kind, exc, tb):
-            if kind is not None and issubclass(kind, (np.linalg.LinAlgError, ArpackError, ArpackNoConvergence, FloatingPointError)):
-                raise ValueError(f"the exact eigensolver failed {what}: {exc}") from None
-            return False
-
-    return _Guard()
+    try:
+        yield
+    except (np.linalg.LinAlgError, ArpackError, ArpackNoConvergence) as exc:
+        raise ValueError(f"the exact eigensolver failed {what}: {exc}") from None
 
 
 def _combined_treatment(exps: dict, t: _Target) -> str:
@@ -946,6 +941,8 @@ def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, 
     """The boundary of the treatment asked for, with suggestions beside it."""
     s_nat = _search_scale(model, target)
     s_max = s.max_coupling if s.max_coupling is not None else (100.0 * s_nat if np.isfinite(s_nat) else 1e6)
+    if s.max_coupling is None and s.coupling is not None:
+        s_max = max(s_max, 1.5 * s.coupling)  # the search always reaches past the coupling of interest
     s_max = min(s_max, _largest_coupling(model))
     scale = float(max(np.ptp(model.e0), np.max(np.abs(model.e0)) if not hasattr(solver, "shift_at") else 0.0, 1e-300))
     if not tol.relative and tol.value < 1e-12 * scale:
