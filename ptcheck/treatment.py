@@ -769,6 +769,12 @@ def _degenerate(model: Model, n: int, grp: tuple[int, ...], order: int, s: Check
         f"effective Hamiltonian of that group only; {how}; branches attached to the group's levels in ascending "
         "energy at small positive λ)"
     )
+    guess = np.abs(np.asarray(g.guess))
+    if not np.all(np.max(guess, axis=0) > 1 - 1e-9):
+        reason += (
+            "; the good states are superpositions of the group's unperturbed states, so the labels of the group "
+            "name a branch by this convention, not an unperturbed state"
+        )
     if s.treatment in ("block", "auto"):
         reason = f"treatment={s.treatment!r}: no near-degenerate partner beyond its exact degenerate group at |λ| = {lam:g}; " + reason
     exact = whole_sector(model, grp)
