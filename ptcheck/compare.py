@@ -34,7 +34,6 @@ from scipy.sparse.linalg import ArpackError, ArpackNoConvergence
 from . import _validation as val
 from . import pairing
 from .approximants import OrderSpec, Pade, order_name, parse_order, parse_orders, required_order
-from .blocks import find_blocks
 from .degeneracy import DEFAULT_MIXING_THRESHOLD
 from .errors import AccuracyWarning
 from .exact import ExactSolver
@@ -52,6 +51,7 @@ from .treatment import (
     expansion_map,
     limiting_partner,
     require_model,
+    smallest_block,
     whole_sector,
 )
 
@@ -566,14 +566,6 @@ def _treatment_notes(model: Model, exps: dict, needed: list[int], targets: list[
     return notes
 
 
-def _smallest_block(model: Model, n: int, lam: float, threshold: float) -> tuple[int, ...] | None:
-    try:
-        (blk,) = find_blocks(model, lam, threshold, levels=[n])
-    except ValueError:
-        return None
-    return tuple(blk.levels)
-
-
 def _suggestions(model: Model, targets: list[_Target], exps: dict, s: CheckSettings, *, at: float | None = None) -> list[Suggestion]:
     """A near-degenerate block beside each standard-treated level whose partner limits it at the coupling of interest."""
     lam = s.coupling if at is None else at
@@ -591,7 +583,7 @@ def _suggestions(model: Model, targets: list[_Target], exps: dict, s: CheckSetti
                 continue
             seen.add(frozenset((n, lim[0])))
             partner, ratio = lim
-            blk = _smallest_block(model, n, lam, s.threshold)
+            blk = smallest_block(model, n, lam, s.threshold)
             if blk is None:
                 continue
             exact = whole_sector(model, blk)
@@ -990,7 +982,7 @@ def _boundary_suggestions(model, target, spec, s, tol, direction, solver, s_max,
         if lim is None or frozenset((n, lim[0])) in seen:
             continue
         seen.add(frozenset((n, lim[0])))
-        blk = _smallest_block(model, n, at, s.threshold)
+        blk = smallest_block(model, n, at, s.threshold)
         if blk is None:
             continue
         exact = whole_sector(model, blk)

@@ -73,6 +73,7 @@ __all__ = [
     "expansions",
     "expansion_map",
     "limiting_partner",
+    "smallest_block",
     "whole_sector",
     "require_model",
 ]
@@ -279,6 +280,15 @@ def limiting_partner(model: Model, level: int, group: Sequence[int], coupling: f
         return None
     k = int(np.argmax(ratios))
     return int(partners[k]), float(ratios[k])
+
+
+def smallest_block(model: Model, level: int, coupling: float, threshold: float) -> tuple[int, ...] | None:
+    """The smallest near-degenerate block containing ``level`` at ``coupling`` (None if it grows too large)."""
+    try:
+        (blk,) = find_blocks(model, coupling, threshold, levels=[level])
+    except ValueError:
+        return None
+    return tuple(blk.levels)
 
 
 # ====================================================================== expansions
