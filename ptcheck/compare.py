@@ -47,7 +47,6 @@ from .treatment import (
     CheckSettings,
     PadeUnavailableError,
     Suggestion,
-    TreatmentChoice,
     expansion_map,
     limiting_partner,
     require_model,
