@@ -39,6 +39,7 @@ from .quantities import (
     zz_coupling,
 )
 from .series import SeriesResult, rs_series
+from .treatment import CheckSettings, Suggestion, TreatmentChoice
 
 __version__ = "0.1.0"
 
@@ -49,6 +50,7 @@ __all__ = [
     "BasisTooLargeError",
     "Block",
     "BlockSeries",
+    "CheckSettings",
     "ComparisonResult",
     "ConvergenceResult",
     "DEFAULT_MIXING_THRESHOLD",
@@ -65,7 +67,9 @@ __all__ = [
     "Quantity",
     "QuantitySeries",
     "SeriesResult",
+    "Suggestion",
     "TrackingWarning",
+    "TreatmentChoice",
     "TruncationWarning",
     "ValidityBoundary",
     "ValidityRange",

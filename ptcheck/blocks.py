@@ -167,6 +167,13 @@ class Block:
         )
 
 
+def _require_model(model: Any, caller: str) -> None:
+    if not isinstance(model, Model):
+        shown = repr(model)
+        shown = shown if len(shown) <= 60 else shown[:57] + "..."
+        raise TypeError(f"{caller} needs a ptcheck Model as its first argument; got {type(model).__name__}: {shown}")
+
+
 def _resolve_levels(model: Model, levels: Any, name: str = "levels") -> list[int]:
     """Work indices of a list of level keys (ints or labels).
 
@@ -271,6 +278,7 @@ def find_blocks(
     >>> [b.levels for b in find_blocks(m, 0.5)]
     [(1, 2)]
     """
+    _require_model(model, "find_blocks")
     lam = val.as_coupling(coupling)
     threshold = float(val.check_positive(threshold, "threshold"))
     max_size = val.check_int(max_size, "max_size", minimum=1)
@@ -817,6 +825,7 @@ def block_series(
     array([[-1.,  0.],
            [ 0.,  1.]])
     """
+    _require_model(model, "block_series")
     block = sorted(_resolve_levels(model, levels))
     order = val.check_int(order, "order", minimum=0)
     method = val.check_choice(method, "method", METHODS)

@@ -31,6 +31,8 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+from .treatment import DEFAULT_TREATMENT, TREATMENTS
+
 __all__ = ["main", "build_parser", "DEMO_PARAMS"]
 
 EXIT_VALID, EXIT_NOT_VALID, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
@@ -80,7 +82,7 @@ model file (TOML; see also `python -c "import ptcheck.modelfile as m; help(m)"`)
   orders = [2, 4]                        # every order listed is judged
   coupling = 1.0
   rtol = 0.01                            # or tol = 1e-4 (absolute, energy units)
-  treatment = "auto"
+  treatment = "standard"
   backend = "auto"
 
   [[quantity]]                           # derived quantities, any number
@@ -152,8 +154,9 @@ def build_parser() -> argparse.ArgumentParser:
     tg.add_argument("--tol", type=float, metavar="X", help="absolute tolerance (energy units of H0)")
     tg.add_argument("--rtol", type=float, metavar="X", help="relative tolerance (default 0.01: 1 %% of the exact shift)")
     c.add_argument("--coupling", type=float, metavar="λ", help="the coupling you use (dimensionless); required here or in MODEL")
-    c.add_argument("--treatment", choices=("auto", "nondegenerate", "block"),
-                   help="perturbative treatment (default: auto = block for near-degenerate levels)")
+    c.add_argument("--treatment", choices=TREATMENTS,
+                   help="perturbation theory judged (default: standard = the textbook series; degenerate perturbation "
+                        "theory inside exactly degenerate groups); block/auto ask for near-degenerate blocks")
     c.add_argument("--backend", metavar="NAME", help="exact solver: auto, dense, sparse, qutip (default: auto)")
     c.add_argument("--out", metavar="DIR", help="output directory (default: <MODEL name>-report)")
     c.add_argument("--format", nargs="+", choices=("json", "md", "csv"), metavar="FMT",
@@ -240,7 +243,7 @@ def _cmd_check(a: argparse.Namespace) -> int:
         tol, rtol = a.tol, a.rtol
     else:
         tol, rtol = mf.tol, mf.rtol
-    treatment = a.treatment or mf.treatment or "auto"
+    treatment = a.treatment or mf.treatment or DEFAULT_TREATMENT
     backend = a.backend or mf.backend or "auto"
     out = Path(a.out) if a.out else Path(f"{Path(a.model).stem}-report")
     source = {"model_file": str(a.model), "kind": mf.kind}

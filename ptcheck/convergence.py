@@ -64,7 +64,7 @@ from __future__ import annotations
 import contextlib
 import html
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -75,7 +75,7 @@ from ._radius import CoefficientAnalysis, analyse
 from .model import Model
 from .degeneracy import DEFAULT_MIXING_THRESHOLD
 from .quantities import Quantity
-from .treatment import TREATMENTS, expansions
+from .treatment import DEFAULT_TREATMENT, DEGENERATE, NONDEGENERATE, CheckSettings, expansions, require_model
 
 __all__ = [
     "ConvergenceResult",
@@ -219,7 +219,20 @@ class ConvergenceResult:
     notes : tuple of str
         Numerical remarks.
     energy_coefficients : (order + 1,) ndarray, read-only
-        The coefficients analysed (energy units).
+        The coefficients analysed (energy units); empty when the norms of a
+        block's effective-Hamiltonian coefficients were analysed instead.
+    treatment : str
+        Treatment whose series was analysed (``"nondegenerate"``,
+        ``"degenerate"``, ``"near-degenerate block"``, or ``"mixed"`` for a
+        quantity).
+    target : str
+        Quantity name (or the level label).
+    limiting_level : int or None
+        For a quantity: the level whose radius limits it.
+    level_radii : tuple of (str, float)
+        For a quantity: each level's radius.
+    reason : str
+        Why that treatment (:mod:`ptcheck.treatment`).
     """
 
     level: int
@@ -246,6 +259,7 @@ class ConvergenceResult:
     target: str = ""
     limiting_level: int | None = None
     level_radii: tuple = ()
+    reason: str = ""
 
     def __repr__(self) -> str:
         ep = f", nearest EP {self.exceptional_points[0]:.4g}" if self.exceptional_points.size else ""
@@ -277,6 +291,7 @@ class ConvergenceResult:
             "notes": list(self.notes),
             "energy_coefficients": [float(c) for c in self.energy_coefficients],
             "treatment": self.treatment,
+            "reason": self.reason,
             "target": self.target or self.label,
             "limiting_level": self.limiting_level,
             "level_radii": [[lab, _jf(r)] for lab, r in self.level_radii],
@@ -583,7 +598,7 @@ def convergence(
     *,
     coupling: float | None = None,
     ep_search: str = "auto",
-    treatment: str = "auto",
+    treatment: str = DEFAULT_TREATMENT,
     threshold: float = DEFAULT_MIXING_THRESHOLD,
 ) -> ConvergenceResult:
     """Radius of convergence, exceptional points and growth class of a level's series.
@@ -601,10 +616,14 @@ def convergence(
         are reported (and placed relative to the radius in ``summary``).
     ep_search : {'auto', 'always', 'never'}
         Exceptional-point search: 'auto' runs it for N <= :data:`EP_DENSE_LIMIT`.
-    treatment : {'auto', 'nondegenerate', 'block'}
-        'auto' analyses the block effective Hamiltonian (root test on
-        ‖H_eff^(k)‖, Kato's bound for the block) for exactly degenerate levels
-        and for levels in a near-degenerate cluster at ``coupling``.
+    treatment : {'standard', 'nondegenerate', 'block', 'auto'}, default 'standard'
+        Which series is analysed (:mod:`ptcheck.treatment`): by default the
+        Rayleigh–Schrödinger series of a non-degenerate level, and for a level
+        in an exactly degenerate group the Taylor series of its branch of the
+        group's effective Hamiltonian (good states at the splitting order).
+        'block'/'auto' analyse a near-degenerate block's effective Hamiltonian
+        (root test on ‖H_eff^(k)‖, Kato's bound for the block) for a level in
+        a near-degenerate cluster at ``coupling``.
     threshold : float
         Mixing-ratio threshold for clusters (:mod:`ptcheck.degeneracy`).
 
@@ -630,93 +649,99 @@ def convergence(
     >>> np.round(r.exceptional_points.imag, 6)       # closed form: λ = ±iΔ/(2|v|)
     array([ 2., -2.])
     """
-    if not isinstance(m, Model):
-        raise TypeError(f"m must be a ptcheck Model; got {type(m).__name__}")
+    require_model(m, "convergence")
     order = val.check_int(order, "order", minimum=2)
     if coupling is not None:
         coupling = val.as_coupling(coupling)
     ep_search = val.check_choice(ep_search, "ep_search", EP_SEARCH)
-    treatment = val.check_choice(treatment, "treatment", TREATMENTS)
-    threshold = float(val.check_positive(threshold, "threshold"))
+    settings = CheckSettings(treatment=treatment, threshold=threshold, coupling=coupling)
     if isinstance(level, Quantity):
-        return _analyse_quantity(m, level, order, coupling, ep_search, treatment, threshold)
+        return _analyse_quantity(m, level, order, coupling, ep_search, settings.treatment, settings.threshold)
     n = m.level_index(level)
-    if _uses_block(m, n, coupling, treatment, threshold):
-        return _analyse_block(m, n, order, coupling, threshold)
-    return _analyse_level(m, n, order, coupling, ep_search, None, [])
+    if settings.treatment == "nondegenerate":
+        return _analyse_level(m, n, order, coupling, ep_search, None, [])  # DegenerateLevelError for a degenerate level
+    (e,) = expansions(m, [n], order, settings=settings)
+    if e.treatment == NONDEGENERATE:
+        return replace(_analyse_level(m, n, order, coupling, ep_search, None, []), reason=e.reason)
+    return _analyse_effective(m, n, order, coupling, e)
 
 
-def _uses_block(m: Model, n: int, coupling: float | None, treatment: str, threshold: float) -> bool:
-    if treatment == "block":
-        return True
-    if treatment == "nondegenerate":
-        return False  # an exactly degenerate level raises in the series
-    if m.degenerate_group_of(n) is not None:
-        return True
-    if coupling is None:
-        return False
-    (e,) = expansions(m, [n], 1, treatment="auto", coupling=coupling, threshold=threshold)
-    return e.treatment == "block"
+def _analyse_effective(m: Model, n: int, order: int, coupling: float | None, e: Any) -> ConvergenceResult:
+    """A level treated with an effective Hamiltonian (degenerate group or near-degenerate block).
 
-
-def _analyse_block(m: Model, n: int, order: int, coupling: float | None, threshold: float) -> ConvergenceResult:
-    """Radius of the block effective-Hamiltonian series: root test on ‖H_eff^(k)‖, Kato's bound for the block."""
-    from .blocks import block_series, find_blocks
-
-    (blk,) = find_blocks(m, 0.0 if coupling is None else abs(coupling), threshold, levels=[n])
-    levels = list(blk.levels)
-    bs = block_series(m, levels, order)
-    norms = np.array([np.linalg.norm(h, 2) for h in bs.coefficients])
+    Degenerate group with a resolved branch: the coefficient tests on the
+    branch's Taylor series.  Otherwise: the root test on ‖H_eff^(k)‖.  Kato's
+    bound is that of the group/block as a whole (its total projection), not
+    of one branch inside it.
+    """
+    levels = list(e.group)
     inside = np.isin(np.arange(m.n), levels)
     e_in, e_out = m.e0[inside], m.e0[~inside]
     d = float(np.min(np.abs(e_out[:, None] - e_in[None, :]))) if e_out.size else math.inf
     kato = _kato(d, m.norm_v)
-    ca = analyse(norms, d if np.isfinite(d) else 1.0)
     label = m.label(n)
+    names = ", ".join(m.label(i) for i in levels)
+    branch = e.treatment == DEGENERATE and e.energy_coefficients is not None
+    if branch:
+        c = np.asarray(e.energy_coefficients, dtype=float)
+        ca = analyse(c, d if np.isfinite(d) else 1.0)
+        what = f"the Taylor series of its branch of the degenerate group ({names})"
+    else:
+        c = np.array([np.linalg.norm(e.term(1.0, k)) for k in range(order + 1)])
+        ca = analyse(c, d if np.isfinite(d) else 1.0)
+        what = f"the effective Hamiltonian of the {e.treatment} ({names}) (root test on ‖H_eff^(k)‖)"
+    ests = np.array([ca.root, ca.domb_sykes] + ([ca.pade] if branch else []))
     if ca.kind == "terminating":
         radius = math.inf
+    elif ca.kind == "asymptotic":
+        radius = 0.0
     else:
-        radius = _median_finite(np.array([ca.root, ca.domb_sykes]))
-    spread = float(np.nanmax(np.abs(np.array([ca.root, ca.domb_sykes]) - radius))) if np.isfinite(radius) else 0.0
-    k = np.arange(order + 1)
-    smallest, opt = math.nan, None
-    if coupling is not None and ca.kind == "asymptotic":
-        terms = norms[1:] * abs(coupling) ** k[1:]
-        j = int(np.argmin(terms))
-        opt, smallest = j + 1, float(terms[j])
-    names = ", ".join(m.label(i) for i in levels)
-    where = (
-        "" if coupling is None or not np.isfinite(radius)
-        else f" λ = {coupling:g} lies {'inside' if abs(coupling) < radius else 'outside'} that disc."
-    )
+        radius = _median_finite(ests)
+    fin = ests[np.isfinite(ests)]
+    spread = 0.5 * float(np.ptp(fin)) if fin.size >= 2 and ca.kind == "convergent" else math.nan
+    opt, smallest = None, math.nan
+    note = None
+    if coupling is not None:
+        if branch:
+            opt, smallest, note = _optimal_truncation(c, coupling, ca)
+        elif ca.kind == "asymptotic":
+            k = np.arange(order + 1)
+            terms = c[1:] * abs(coupling) ** k[1:]
+            j = int(np.argmin(terms))
+            opt, smallest = j + 1, float(terms[j])
     if ca.kind == "asymptotic":
-        body = (f"The block effective Hamiltonian of ({names}) grows factorially with the order: an asymptotic "
-                "series; adding orders helps only up to the optimal order.")
+        body = (f"Level {label}: {what} grows factorially with the order: an asymptotic series (radius 0); adding "
+                "orders helps only up to the optimal order.")
+        if opt is not None:
+            body += f" At λ = {coupling:g} the smallest term is at order {opt} (size {smallest:.3g})."
     elif ca.kind == "terminating":
-        body = f"The block effective Hamiltonian of ({names}) terminates: no radius limit."
+        body = f"Level {label}: {what} terminates: no radius limit."
+    elif np.isfinite(radius):
+        body = f"Level {label}: {what} gives a radius ≈ {radius:.4g}."
+        if coupling is not None:
+            body += f" λ = {coupling:g} lies {'inside' if abs(coupling) < radius else 'outside'} that disc."
     else:
-        body = (f"Level {label} is treated in the block ({names}); the root test on ‖H_eff^(k)‖ gives a radius "
-                f"≈ {radius:.4g}.{where}")
+        body = f"Level {label}: no radius could be estimated from {what} at order {order}."
     summary = (
-        body + f" Kato's rigorous bound for the block (gap {d:.3g} to the other levels) guarantees convergence "
-        f"for |λ| < {kato:.4g}. The exceptional-point search runs for non-degenerate levels only. These are "
-        "numerical estimates: confirm them with your own convergence checks (more orders, a larger basis)."
+        body + f" Kato's rigorous bound for the group/block as a whole (gap {d:.3g} to the other levels) guarantees "
+        f"convergence of its effective Hamiltonian for |λ| < {kato:.4g}. The exceptional-point search runs for "
+        "non-degenerate levels only. These are numerical estimates: confirm them with your own convergence checks "
+        "(more orders, a larger basis)."
     )
-    est = RadiusEstimates(ratio=ca.ratio, root=ca.root, domb_sykes=ca.domb_sykes)
+    est = RadiusEstimates(ratio=ca.ratio, root=ca.root, domb_sykes=ca.domb_sykes, pade=ca.pade if branch else math.nan)
+    notes = tuple(ca.notes) + ((note,) if note else ())
     return ConvergenceResult(
         level=n, label=label, order=order, kind=ca.kind, radius=float(radius), radius_uncertainty=spread,
         estimates=est, exceptional_points=_ro(np.zeros(0, complex)), partners=_ro(np.zeros(0, int)),
         ep_energies=_ro(np.zeros(0, complex)), kato_bound=float(kato), isolation=float(d), period=int(ca.period),
         coupling=coupling, optimal_order=opt, smallest_term=smallest, agreement="unavailable", summary=summary,
-        notes=tuple(ca.notes), energy_coefficients=_ro(np.zeros(0)), treatment="block",
+        notes=notes, energy_coefficients=_ro(c if branch else np.zeros(0)), treatment=e.treatment, reason=e.reason,
     )
 
 
 def _analyse_quantity(m: Model, q: Quantity, order: int, coupling: float | None, ep_search: str,
                       treatment: str, threshold: float) -> ConvergenceResult:
     """A derived quantity converges where all its levels do: radius = the smallest of theirs."""
-    from dataclasses import replace
-
     levels = list(q.resolve(m))
     if not levels:
         raise ValueError(f"quantity {q.name!r} has no level with a nonzero weight")

@@ -33,7 +33,7 @@ what to check (all optional here; flags can give or override each entry)::
     orders = [2, 4, "pade2/2"]     # every order listed is judged
     coupling = 1.0                 # the coupling λ you use (dimensionless)
     rtol = 0.01                    # or tol = 1e-3 (absolute, energy units); not both
-    treatment = "auto"             # "auto" | "nondegenerate" | "block"
+    treatment = "standard"         # "standard" (default) | "nondegenerate" | "block" | "auto"
     backend = "auto"               # exact solver
 
 derived quantities, any number of them (linear combinations of levels)::
@@ -42,13 +42,14 @@ derived quantities, any number of them (linear combinations of levels)::
     name = "chi"
     expr = "0.5*(1,1) - 0.5*(1,0) - 0.5*(0,1) + 0.5*(0,0)"
     # or: levels = [[1, 1], [1, 0], [0, 1], [0, 0]]  and  weights = [0.5, -0.5, -0.5, 0.5]
-    relative_to = "value"          # or "shift": denominator of the relative error
-    units = "GHz"
+    relative_to = "value"          # or "shift": the quantity is presented as its shift E(λ) − E(0)
+    units = "GHz"                  #   and its relative error is taken against that shift
 
     [[quantity]]                   # or a ready-made one from ptcheck.quantities:
     kind = "transition_frequency"  # transition_frequency, stark_shift, dispersive_shift,
     upper = [1, 0]                 # zz_coupling, cross_kerr, anharmonicity, exchange;
     lower = [0, 0]                 # the other keys are that constructor's arguments
+    relative_to = "shift"          # accepted with every kind
 
 Level syntax (in files and on the command line): ``3`` is the energy rank 3
 (0 = lowest unperturbed level), ``(1,0)`` or ``|1,0⟩`` the label ``(1, 0)`` of
@@ -492,15 +493,27 @@ def _quantity_of_kind(q: dict, where: str) -> Quantity:
     fn = getattr(quantities, kind)
     names = [n for n in inspect.signature(fn).parameters if n not in ("closed_form", "closed_form_order")]
     args = {k: v for k, v in q.items() if k != "kind"}
+    # relative_to is accepted with every kind (stark_shift has it fixed to "shift"; asking for it is harmless)
+    rel = args.pop("relative_to", None) if "relative_to" not in names else None
     unknown = sorted(set(args) - set(names))
     if unknown:
-        raise ValueError(f"{where}: {kind} has no argument(s) {', '.join(map(repr, unknown))}; its arguments are {', '.join(names)}")
+        raise ValueError(
+            f"{where}: {kind} has no argument(s) {', '.join(map(repr, unknown))}; its arguments are "
+            f"{', '.join(names + ([] if 'relative_to' in names else ['relative_to']))}"
+        )
     for k in _LEVEL_ARGS:
         if k in args:
             args[k] = parse_level(args[k])
     if isinstance(args.get("axes"), list):
         args["axes"] = tuple(args["axes"])
-    return fn(**args)
+    out = fn(**args)
+    if rel is not None and rel != out.relative_to:
+        from dataclasses import replace as _replace
+
+        if not isinstance(rel, str):
+            raise TypeError(f"{where}: relative_to must be \"value\" or \"shift\"; got {rel!r}")
+        out = _replace(out, relative_to=rel)
+    return out
 
 
 def _load_matrix(path: Path, name: str, source: Path) -> tuple[Any, str]:

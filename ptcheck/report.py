@@ -29,7 +29,7 @@ import json
 import math
 import platform
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -40,6 +40,7 @@ from ._atomic import ReportExistsError, write_all
 from ._progress import ProgressCallback, report_progress
 from .approximants import Pade, order_name, parse_orders
 from .compare import TRUNCATION_NOTE, ComparisonResult, ValidityBoundary, compare, validity_boundary
+from .treatment import DEFAULT_TREATMENT, EXACT_IN_SECTOR, NEAR_DEGENERATE, CheckSettings, require_model
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, NearDegeneratePair, near_degenerate_pairs
 from .model import Model
 from .modelfile import SIZE_PARAMS
@@ -48,6 +49,7 @@ from .quantities import Quantity
 __all__ = [
     "CheckReport",
     "Verdict",
+    "VERDICT_STATUSES",
     "Figure",
     "FORMATS",
     "ReportExistsError",
@@ -78,9 +80,17 @@ def _version() -> str:
 
 
 # ---------------------------------------------------------------------- result types
+#: Verdict statuses: what a verdict can say about one order of one target.
+VERDICT_STATUSES = ("valid", "not valid", "exact within its sector", "undefined")
+
+
 @dataclass(frozen=True)
 class Verdict:
     """Is one order of one target within tolerance at the coupling asked about?
+
+    The verdict is gated by the validity boundary of the same treatment: valid
+    exactly when |λ| lies below the first coupling at which the error exceeds
+    the tolerance (so it never changes back and forth with λ).
 
     Attributes
     ----------
@@ -96,14 +106,24 @@ class Verdict:
     relative : bool
         Whether ``tolerance`` and ``error`` are relative.
     valid : bool
-        ``error <= tolerance`` (False when ``error`` is NaN).
+        ``status == "valid"``.
     boundary : float
         Signed validity boundary λ* of this order (``inf`` if not reached, NaN
-        if ill defined).
+        if ill defined or exact within its sector).
     boundary_status : str
         ``ValidityBoundary.status``.
     text : str
         The verdict in one plain sentence.
+    status : str
+        One of :data:`VERDICT_STATUSES`: ``"valid"`` (|λ| below the first
+        boundary), ``"not valid"``, ``"exact within its sector"`` (the treatment
+        is exact diagonalisation of a whole invariant sector: no order is
+        judged, never a "valid" verdict), ``"undefined"`` (the error cannot be
+        judged, e.g. a relative error whose reference vanishes).
+    treatment : str
+        Treatment used (:mod:`ptcheck.treatment`).
+    reason : str
+        Why that treatment.
     """
 
     target: str
@@ -116,6 +136,9 @@ class Verdict:
     boundary: float
     boundary_status: str
     text: str
+    status: str = "valid"
+    treatment: str = "nondegenerate"
+    reason: str = ""
 
     def to_dict(self) -> dict:
         return {
@@ -126,6 +149,9 @@ class Verdict:
             "tolerance": self.tolerance,
             "relative": self.relative,
             "valid": self.valid,
+            "status": self.status,
+            "treatment": self.treatment,
+            "reason": self.reason,
             "boundary": _finite_or_str(self.boundary),
             "boundary_status": self.boundary_status,
             "text": self.text,
@@ -177,6 +203,10 @@ class CheckReport:
         Optional additions, e.g. a validity map (``{"validity_map": ValidityMap}``).
     source_model : Model
         The model checked (not serialised; used by figure makers).
+    suggestions : tuple of Suggestion
+        Near-degenerate blocks that would fix a partner limiting a target's
+        series, each with its own validity boundary: beside the verdict, never
+        in its place (the verdict and the exit status judge what was asked).
     """
 
     title: str
@@ -196,6 +226,7 @@ class CheckReport:
     notes: tuple
     extras: dict = field(default_factory=dict)
     source_model: Any = field(default=None, repr=False)
+    suggestions: tuple = ()
 
     @property
     def exit_status(self) -> int:
@@ -231,6 +262,7 @@ class CheckReport:
                 "lowest_valid_order": {k: (None if v is None else order_name(v)) for k, v in self.lowest_valid_order.items()},
             },
             "cautions": list(self.cautions),
+            "suggestions": [g.to_dict() for g in self.suggestions],
             "boundaries": [b.to_dict() for b in self.boundaries],
             "convergence": [None if c is None else c.to_dict() for c in self.convergence],
             "near_degenerate_pairs": [p.to_dict() for p in self.pairs],
@@ -245,7 +277,7 @@ class CheckReport:
     def _repr_html_(self) -> str:
         rows = "".join(
             f"<tr><td>{html.escape(v.target)}</td><td>{html.escape(order_name(v.order))}</td>"
-            f"<td>{_fmt_err(v.error, v.relative)}</td><td>{'✔' if v.valid else '✘'}</td>"
+            f"<td>{_fmt_err(v.error, v.relative)}</td><td>{'✔' if v.valid else ('exact' if v.status == 'exact within its sector' else '✘')}</td>"
             f"<td>{_fmt_lam(v.boundary)}</td></tr>"
             for v in self.verdicts
         )
@@ -289,7 +321,7 @@ def run_check(
     coupling: float,
     tol: float | None = None,
     rtol: float | None = None,
-    treatment: str = "auto",
+    treatment: str = DEFAULT_TREATMENT,
     backend: str = "auto",
     threshold: float = DEFAULT_MIXING_THRESHOLD,
     builder: str | None = None,
@@ -317,11 +349,15 @@ def run_check(
         Absolute tolerance (energy units) or relative tolerance (relative to
         the exact shift of a level / the reference a quantity names).  At most
         one; default ``rtol = 0.01``.
-    treatment : {"auto", "nondegenerate", "block"}
+    treatment : {"standard", "nondegenerate", "block", "auto"}, default "standard"
+        The perturbation theory judged (:mod:`ptcheck.treatment`): by default
+        the textbook series (degenerate perturbation theory inside exactly
+        degenerate groups).  Near-degenerate blocks are suggested beside the
+        verdict, not substituted for what was asked.
     backend : str
         Exact solver backend.
     threshold : float
-        Mixing-ratio threshold for near-degenerate pairs and the "auto" treatment.
+        Mixing-ratio threshold for near-degenerate pairs, blocks and suggestions.
     builder, params : optional
         Name and keyword arguments of the built-in builder that made ``model``
         (enables the truncation check and is recorded in the report).
@@ -340,9 +376,16 @@ def run_check(
     Returns
     -------
     CheckReport
+
+    Notes
+    -----
+    Each verdict is gated by its validity boundary (same treatment, searched
+    with λ as the coupling of interest): an order is valid at λ exactly when
+    |λ| lies below the first coupling where its error exceeds the tolerance.
+    An error that comes back within tolerance beyond that boundary is an
+    accident, reported as NOT valid with a caution.
     """
-    if not isinstance(model, Model):
-        raise TypeError(f"model must be a ptcheck Model; got {type(model).__name__}")
+    require_model(model, "run_check")
     lam0 = val.as_coupling(coupling)
     if tol is not None and rtol is not None:
         raise ValueError(f"give tol or rtol, not both; got tol={tol!r}, rtol={rtol!r}")
@@ -352,6 +395,7 @@ def run_check(
     thr = float(val.check_positive(rtol if relative else tol, "rtol" if relative else "tol"))
     n_points = val.check_int(n_points, "n_points", minimum=3)
     convergence_order = val.check_int(convergence_order, "convergence_order", minimum=2)
+    settings = CheckSettings(treatment=treatment, backend=backend, threshold=threshold, coupling=lam0 if lam0 != 0 else None)
     targets = list(val.as_sequence(levels)) if levels is not None else [0]
     if not targets:
         targets = [0]
@@ -370,7 +414,7 @@ def run_check(
             level_sets.append([n])
     if len(set(names)) != len(names):
         raise ValueError(f"targets must be distinct; got {names}")
-    needed = list(dict.fromkeys(n for s in level_sets for n in s))
+    needed = list(dict.fromkeys(n for s_ in level_sets for n in s_))
 
     do_trunc = builder is not None and any(p in (params or {}) or _has_param(builder, p) for p in SIZE_PARAMS)
     total = 2 + len(targets) * len(specs) + len(needed) + (1 if do_trunc else 0)
@@ -381,19 +425,14 @@ def run_check(
         step += 1
         report_progress(progress, step, total)
 
-    opts = {"treatment": treatment, "backend": backend}
     tolkw = {"rtol": thr} if relative else {"tol": thr}
 
-    # 1. validity boundaries of every order asked for
-    from .exact import BACKENDS
-    from .treatment import TREATMENTS
-
-    val.check_choice(treatment, "treatment", TREATMENTS)
-    val.check_choice(backend, "backend", BACKENDS)
+    # 1. validity boundaries of every order asked for (λ is the coupling of interest: the first
+    #    crossing below it is always found, so the verdict and the boundary agree)
     boundaries = []
     for t, name in zip(targets, names):
-        for s in specs:
-            boundaries.append(_boundary(model, t, name, s, direction, threshold, tolkw, treatment, backend, lam0))
+        for sp_ in specs:
+            boundaries.append(_boundary(model, t, name, sp_, direction, tolkw, settings, lam0))
             tick()
 
     # 2. comparison on a grid reaching past the coupling and the boundaries found
@@ -405,44 +444,49 @@ def run_check(
         reach = min(finite_b) if finite_b else 1.0
     grid = direction * np.linspace(reach / (n_points - 1), reach, n_points - 1)
     grid = np.unique(np.append(grid, lam0)) if lam0 != 0 else np.unique(np.append(grid, 0.0))
-    int_orders = [s for s in specs if not isinstance(s, Pade)]
+    int_orders = [s_ for s_ in specs if not isinstance(s_, Pade)]
     kmax = max(int_orders, default=2)
     context = list(range(1, min(kmax + 2, 40) + 1))
     all_orders = list(dict.fromkeys(list(specs) + context))
-    comp = compare(model, targets, all_orders, grid, coupling=lam0 if lam0 != 0 else None, threshold=threshold, **opts)
+    comp = compare(model, targets, all_orders, grid, coupling=lam0 if lam0 != 0 else None, threshold=threshold,
+                   treatment=settings.treatment, backend=settings.backend)
     tick()
     ci = int(np.argmin(np.abs(comp.couplings - lam0)))
     errs = comp.rel_error if relative else comp.abs_error
 
-    # 3. verdicts
+    # 3. verdicts, gated by the boundaries
     verdicts = []
     bi = 0
     for ti, name in enumerate(comp.targets):
-        for s in specs:
-            oi = comp.orders.index(s)
+        for sp_ in specs:
+            oi = comp.orders.index(sp_)
             e = float(errs[ti, oi, ci])
             b = boundaries[bi]
             bi += 1
-            ok = bool(np.isfinite(e) and e <= thr)
-            text = _verdict_sentence(name, s, lam0, e, thr, relative, ok, b, comp.treatments[ti])
-            verdicts.append(Verdict(name, s, lam0, e, thr, relative, ok, float(b.coupling), b.status, text))
+            status = _verdict_status(b, lam0, e, thr)
+            text = _verdict_sentence(name, sp_, lam0, e, thr, relative, status, b, comp.treatments[ti])
+            verdicts.append(Verdict(name, sp_, lam0, e, thr, relative, status == "valid", float(b.coupling), b.status, text,
+                                    status, comp.treatments[ti], comp.reasons[ti] if comp.reasons else ""))
     lowest: dict[str, Any] = {}
     for ti, name in enumerate(comp.targets):
         lowest[name] = None
+        if comp.exact_in_sector and comp.exact_in_sector[ti]:
+            continue
         for k in sorted(o for o in comp.orders if not isinstance(o, Pade)):
             e = float(errs[ti, comp.orders.index(k), ci])
             if np.isfinite(e) and e <= thr:
                 lowest[name] = k
                 break
 
-    # 4. convergence of each level's series
+    # 4. convergence of each level's series (the same treatment)
     from .convergence import convergence as _convergence  # lazy: heavier module
 
     conv = []
     conv_notes = []
     for n in needed:
         try:
-            conv.append(_convergence(model, n, convergence_order, coupling=lam0))
+            conv.append(_convergence(model, n, convergence_order, coupling=lam0, treatment=settings.treatment,
+                                     threshold=threshold))
         except (ValueError, FloatingPointError) as exc:
             conv.append(None)
             conv_notes.append(f"No convergence diagnosis for level {model.label(n)}: {exc}")
@@ -460,7 +504,9 @@ def run_check(
         trunc, trunc_notes = _truncation_checks(model, builder, dict(params or {}), needed, lam0)
         tick()
 
-    cautions = _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam0, builder, source)
+    suggestions = _report_suggestions(boundaries, comp)
+    cautions = _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam0, builder, source,
+                         suggestions)
     notes = list(comp.notes)
     for b in boundaries:
         notes.extend(b.notes)
@@ -481,16 +527,17 @@ def run_check(
         "source": _json_safe(dict(source)) if source is not None else None,
         "unperturbed_energies": {model.label(n): float(model.e0[n]) for n in needed},
     }
-    settings = {
+    settings_info = {
         "targets": list(comp.targets),
         "levels": [_key_json(t) for t in targets],
-        "orders": [order_name(s) for s in specs],
-        "context_orders": [order_name(s) for s in comp.orders],
+        "orders": [order_name(s_) for s_ in specs],
+        "context_orders": [order_name(s_) for s_ in comp.orders],
         "coupling": lam0,
         "tol": None if relative else thr,
         "rtol": thr if relative else None,
-        "treatment": treatment,
-        "backend": backend,
+        "treatment": settings.treatment,
+        "treatments_used": dict(zip(comp.targets, comp.treatments)),
+        "backend": settings.backend,
         "threshold": threshold,
         "direction": direction,
         "comparison_couplings": [float(x) for x in comp.couplings],
@@ -503,7 +550,7 @@ def run_check(
         description=description,
         invented=bool(invented),
         model=model_info,
-        settings=settings,
+        settings=settings_info,
         valid=all(v.valid for v in verdicts),
         verdicts=tuple(verdicts),
         comparison=comp,
@@ -515,36 +562,52 @@ def run_check(
         cautions=tuple(dict.fromkeys(cautions)),
         notes=tuple(dict.fromkeys(notes)),
         source_model=model,
+        suggestions=suggestions,
     )
 
 
-def _boundary(model, target, name, spec, direction, threshold, tolkw, treatment, backend, lam0) -> ValidityBoundary:
+def _verdict_status(b: ValidityBoundary, lam0: float, error: float, thr: float) -> str:
+    """The verdict of one order at λ0, gated by its validity boundary (one place for that rule)."""
+    if b.status == "exact_in_sector":
+        return "exact within its sector"
+    if b.status == "ill_defined":
+        return "undefined"
+    if b.status == "error":  # no boundary: judge the error at λ0 alone
+        if not np.isfinite(error):
+            return "undefined"
+        return "valid" if error <= thr else "not valid"
+    return "valid" if b.valid_at(lam0) else "not valid"
+
+
+def _report_suggestions(boundaries: Sequence[ValidityBoundary], comp: ComparisonResult) -> tuple:
+    """Suggestions of the boundaries (with the block's boundary), then those only the comparison made."""
+    out: dict[tuple, Any] = {}
+    for b in boundaries:
+        for g in b.suggestions:
+            out.setdefault((g.target, g.level, g.partner), g)
+    for g in comp.suggestions:
+        out.setdefault((g.target, g.level, g.partner), g)
+    return tuple(out.values())
+
+
+def _boundary(model, target, name, spec, direction, tolkw, settings: CheckSettings, lam0) -> ValidityBoundary:
     """validity_boundary, robust to a failure of the search itself (reported, not raised).
 
     Inputs were validated before; a ValueError here is a numerical outcome (e.g.
-    the "auto" treatment meeting a cluster too large for a block).  With
-    "auto" the non-degenerate search is tried instead; if that fails too, a
+    a block treatment meeting a cluster too large for a block, or a Padé
+    approximant asked for a level treated with an effective Hamiltonian).  A
     boundary with status ``"error"`` and the message in ``notes`` is returned.
     """
-    # the coupling of interest makes "auto" choose each level's treatment as the comparison does,
-    # so the boundary and the error curves of the report describe the same approximation
-    kw = dict(direction=direction, threshold=threshold, backend=backend, coupling=lam0 if lam0 != 0 else None, **tolkw)
+    kw = dict(direction=direction, threshold=settings.threshold, backend=settings.backend,
+              coupling=lam0 if lam0 != 0 else None, treatment=settings.treatment, **tolkw)
     try:
-        return validity_boundary(model, target, spec, treatment=treatment, **kw)
+        return validity_boundary(model, target, spec, **kw)
     except (ValueError, ArithmeticError) as exc:
         first = f"{type(exc).__name__}: {exc}"
-    if treatment == "auto":
-        try:
-            b = validity_boundary(model, target, spec, treatment="nondegenerate", **kw)
-            note = (f"auto treatment failed ({first}); the boundary of the non-degenerate series is reported "
-                    "instead.")
-            return replace(b, notes=b.notes + (note,))
-        except (ValueError, ArithmeticError) as exc:
-            first += f"; non-degenerate: {type(exc).__name__}: {exc}"
     rel = "rtol" in tolkw
     thr = tolkw.get("rtol", tolkw.get("tol"))
     return ValidityBoundary(
-        target=name, order=spec, treatment=treatment, tol=None if rel else thr, rtol=thr if rel else None,
+        target=name, order=spec, treatment=settings.treatment, tol=None if rel else thr, rtol=thr if rel else None,
         direction=direction, coupling=math.nan, status="error", exact_solves=0, bracket=(math.nan, math.nan),
         error_at_boundary=math.nan, max_coupling=math.nan, notes=(f"The validity boundary search failed: {first}",),
     )
@@ -585,29 +648,32 @@ def _truncation_checks(model: Model, builder: str, params: dict, needed: list[in
     return out, notes
 
 
-def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam, builder, source):
+def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam, builder, source, suggestions=()):
     out = []
-    # accidental agreement: within tolerance at λ although the error crossed it on the way
-    treat = dict(zip(comp.targets, comp.treatments))
     for v, b in zip(verdicts, boundaries):
-        same = b.treatment == treat.get(v.target)
-        inside = v.boundary_status == "found" and abs(v.boundary) < abs(v.coupling)
-        if v.valid and inside and same:
+        # accidental agreement: within tolerance at λ although the error crossed it on the way
+        if v.status == "not valid" and b.status == "found" and np.isfinite(v.error) and v.error <= v.tolerance:
             out.append(
                 f"{v.target}, {order_name(v.order)}: the error is within tolerance at λ = {v.coupling:g} only by "
-                f"accident — it already exceeds the tolerance at |λ| = {abs(v.boundary):.4g} and comes back; "
-                "do not rely on it."
+                f"accident — it already exceeds the tolerance at |λ| = {abs(b.coupling):.4g} and comes back; "
+                "the verdict is NOT valid, do not rely on it."
             )
-        elif not same and (v.valid == inside or (not v.valid and v.boundary_status == "not_reached")):
+        elif v.status == "valid" and np.isfinite(v.error) and v.error > v.tolerance:
             out.append(
-                f"{v.target}, {order_name(v.order)}: the error at λ = {v.coupling:g} uses the {treat.get(v.target)} "
-                f"treatment chosen there, while the validity boundary λ* = {abs(v.boundary):.4g} was found with the "
-                f"{b.treatment} treatment; the two describe different perturbative formulas."
+                f"{v.target}, {order_name(v.order)}: the comparison grid gives an error {_fmt_err(v.error, v.relative)} "
+                f"at λ = {v.coupling:g}, just above the tolerance, while the boundary search finds λ* = "
+                f"{_fmt_lam(abs(b.coupling))}; the order sits at the edge of the tolerance there."
             )
-        if not np.isfinite(v.error):
+        if v.status == "exact within its sector":
+            out.append(
+                f"{v.target}, {order_name(v.order)}: {EXACT_IN_SECTOR} — the {v.treatment} treatment is exact "
+                "diagonalisation of a whole invariant sector, not perturbation theory; no order is judged "
+                "(not counted as valid)."
+            )
+        if not np.isfinite(v.error) and v.status != "exact within its sector":
             out.append(
                 f"{v.target}, {order_name(v.order)}: the relative error is undefined at λ = {v.coupling:g} (the exact "
-                "reference is ~0); judge it with an absolute tolerance (--tol)."
+                "reference is ~0 or the pairing of states is ambiguous); judge it with an absolute tolerance (--tol)."
             )
     # basis truncation
     bad = [t for t in trunc if not t.converged]
@@ -639,7 +705,7 @@ def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes
             out.append(
                 f"Level {lab}: λ = {lam:g} is beyond the radius of convergence ≈ {c.radius:.3g} of its series "
                 "(nearest exceptional point): low orders may still be accurate, but the series diverges — more "
-                "orders will not help; a Padé approximant or the block treatment might."
+                "orders will not help; a Padé approximant or a near-degenerate block might (see suggestions)."
             )
     # near-degenerate levels
     if pairs:
@@ -650,16 +716,19 @@ def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes
             f"λ = {lam:g}; the largest is {worst.labels[0]}–{worst.labels[1]} (ratio {ratio}). Non-degenerate "
             "formulas are unreliable for these levels."
         )
-    # treatment used
-    blocks = [t for t, tr in zip(comp.targets, comp.treatments) if tr in ("block", "mixed")]
-    if blocks:
-        out.append(
-            f"Block treatment used for {', '.join(blocks)}: the perturbative values come from an effective "
-            "Hamiltonian of a near-degenerate cluster (Schrieffer–Wolff), not from the plain Rayleigh–Schrödinger "
-            "formula; a textbook non-degenerate formula for these would be less accurate."
-        )
+    # treatment used (said plainly when it is not the plain series)
+    for t, tr, why in zip(comp.targets, comp.treatments, comp.reasons or ("",) * len(comp.targets)):
+        if tr == NEAR_DEGENERATE or tr == "mixed" and NEAR_DEGENERATE in why:
+            out.append(
+                f"{t}: {NEAR_DEGENERATE} treatment used, as asked — the perturbative values come from the effective "
+                "Hamiltonian of a near-degenerate cluster, not from the plain Rayleigh–Schrödinger formula."
+            )
+        elif tr in ("degenerate", "mixed"):
+            out.append(f"{t}: degenerate perturbation theory — {why}.")
+    for g in suggestions:
+        out.append("Suggestion: " + g.text)
     for b in boundaries:
-        if b.status == "error" or any(n.startswith("auto treatment failed") for n in b.notes):
+        if b.status == "error":
             out.append(f"{b.target}, {order_name(b.order)}: " + b.notes[-1])
         if b.status == "ill_defined":
             out.append(f"{b.target}, {order_name(b.order)}: validity boundary ill defined — " + (b.notes[-1] if b.notes else ""))
@@ -682,21 +751,26 @@ def _fmt_lam(x: float) -> str:
     return f"{x:.4g}"
 
 
-def _verdict_sentence(name, spec, lam, e, thr, relative, ok, b: ValidityBoundary, treatment_here: str) -> str:
+def _verdict_sentence(name, spec, lam, e, thr, relative, status, b: ValidityBoundary, treatment_here: str) -> str:
     tol = _fmt_err(thr, relative)
     how = "" if treatment_here == "nondegenerate" else f" ({treatment_here} treatment)"
-    what = f"{name}, {order_name(spec)}{how}: error {_fmt_err(e, relative)}"
-    if ok:
+    what = f"{name}, {order_name(spec)}{how}"
+    if status == "exact within its sector":
+        return (f"{what}: {EXACT_IN_SECTOR} — the treatment is exact diagonalisation of a whole invariant sector, "
+                "not a perturbative approximation; no verdict on an order.")
+    what += f": error {_fmt_err(e, relative)}"
+    if status == "valid":
         s = f"{what} ≤ {tol} at λ = {lam:g} — valid."
-    elif np.isfinite(e):
-        s = f"{what} > {tol} at λ = {lam:g} — NOT valid."
-    else:
+    elif status == "undefined":
         s = f"{what} at λ = {lam:g} — cannot be judged with a relative tolerance."
-    other = f" with the {b.treatment} treatment" if b.treatment != treatment_here else ""
+    elif np.isfinite(e) and e <= thr:
+        s = f"{what} ≤ {tol} at λ = {lam:g}, but only by accident (it exceeds the tolerance at smaller |λ|) — NOT valid."
+    else:
+        s = f"{what} > {tol} at λ = {lam:g} — NOT valid."
     if b.status == "found":
-        s += f" It meets the tolerance up to |λ| ≈ {abs(b.coupling):.4g}{other}."
+        s += f" It meets the tolerance up to |λ| ≈ {abs(b.coupling):.4g}."
     elif b.status == "not_reached":
-        s += f" It meets the tolerance over the whole range searched (|λ| ≤ {b.max_coupling:.4g}){other}."
+        s += f" It meets the tolerance over the whole range searched (|λ| ≤ {b.max_coupling:.4g})."
     elif b.status == "fails_at_zero":
         s += " It does not meet the tolerance at any nonzero coupling."
     elif b.status == "error":
@@ -715,11 +789,23 @@ def _verdict_paragraph(r: CheckReport) -> str:
             f"tolerance {tol} for every target checked ({', '.join(r.settings['targets'])})."
         )
     else:
-        bad = [v for v in r.verdicts if not v.valid]
-        which = "; ".join(f"{v.target} at {order_name(v.order)}" for v in bad)
-        head = f"at λ = {lam:g}, the {kind} tolerance {tol} is not met for {which}."
+        bad = [v for v in r.verdicts if not v.valid and v.status == "not valid"]
+        exact = [v for v in r.verdicts if v.status == "exact within its sector"]
+        undef = [v for v in r.verdicts if v.status == "undefined"]
+        parts = []
+        if bad:
+            parts.append(f"the {kind} tolerance {tol} is not met for " + "; ".join(f"{v.target} at {order_name(v.order)}" for v in bad))
+        if exact:
+            parts.append("no order is judged for " + "; ".join(sorted({v.target for v in exact}))
+                         + f" ({EXACT_IN_SECTOR}: its treatment is exact diagonalisation, not perturbation theory)")
+        if undef:
+            parts.append("the error cannot be judged for " + "; ".join(f"{v.target} at {order_name(v.order)}" for v in undef))
+        head = f"at λ = {lam:g}, " + "; ".join(parts) + "."
+    exact_targets = {v.target for v in r.verdicts if v.status == "exact within its sector"}
     low = []
     for t, k in r.lowest_valid_order.items():
+        if t in exact_targets:
+            continue
         if k is None:
             low.append(f"{t}: no truncation order up to {max(o for o in r.comparison.orders if not isinstance(o, Pade))} meets it")
         else:
@@ -800,8 +886,15 @@ def _csv_value(x: Any) -> Any:
 
 
 def comparison_csv(report: CheckReport) -> str:
-    """One row per target × order × coupling (exact, perturbative, errors, infidelity)."""
-    cols = ["target", "order", "treatment", "coupling", "exact", "perturbative", "abs_error", "rel_error", "infidelity"]
+    """One row per target × order × coupling.
+
+    ``presents`` says whether ``exact_presented``/``perturbative_presented``
+    are the shift ``E(λ) − E(0)`` (quantities with ``relative_to="shift"``) or
+    the value; ``unperturbed`` is the value at λ = 0 beside them; ``exact`` and
+    ``perturbative`` are always the values.
+    """
+    cols = ["target", "order", "treatment", "coupling", "presents", "unperturbed", "exact_presented",
+            "perturbative_presented", "exact", "perturbative", "abs_error", "rel_error", "infidelity", "ambiguous"]
     return _csv(report.comparison.to_rows(), cols)
 
 
@@ -812,11 +905,11 @@ def boundaries_csv(report: CheckReport) -> str:
         rows.append({
             "target": v.target, "order": order_name(v.order), "treatment": b.treatment,
             "coupling": v.coupling, "error_at_coupling": v.error, "tolerance": v.tolerance,
-            "tolerance_kind": "relative" if v.relative else "absolute", "valid": v.valid,
+            "tolerance_kind": "relative" if v.relative else "absolute", "valid": v.valid, "verdict": v.status,
             "boundary": b.coupling, "boundary_status": b.status, "exact_solves": b.exact_solves,
         })
     cols = ["target", "order", "treatment", "coupling", "error_at_coupling", "tolerance", "tolerance_kind", "valid",
-            "boundary", "boundary_status", "exact_solves"]
+            "verdict", "boundary", "boundary_status", "exact_solves"]
     return _csv(rows, cols)
 
 
@@ -845,8 +938,16 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
         out += [r.description, ""]
     out += ["## Verdict", "", f"**{'VALID' if r.valid else 'NOT VALID'}:** {_verdict_paragraph(r)}", ""]
     out += [f"- {v.text}" for v in r.verdicts]
+    comp0 = r.comparison
+    out += ["", "## Treatment", "", "The perturbation theory judged for each target, and why.", "",
+            _md_table(["target", "treatment", "reason"], [
+                [t, tr, why] for t, tr, why in zip(comp0.targets, comp0.treatments, comp0.reasons or ("",) * len(comp0.targets))])]
+    if r.suggestions:
+        out += ["", "## Suggestions", "",
+                "Beside the verdict, not in its place: the verdict and the exit status judge the treatment asked for.", ""]
+        out += [f"- {g.text}" for g in r.suggestions]
     out += ["", "## Cautions", ""]
-    out += [f"- {c}" for c in r.cautions] or ["- none"]
+    out += [f"- {c}" for c in r.cautions if not c.startswith("Suggestion: ")] or ["- none"]
     m = r.model
     src = f"built-in `{m['builder']}`" if m.get("builder") else (
         ", ".join(f"{k} = `{v}`" for k, v in (m.get("source") or {}).items()) or "matrices given in Python")
@@ -864,8 +965,8 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
     ])]
     out += ["", "## Validity boundaries", "",
             "λ* is the smallest |λ| at which the order stops meeting the tolerance (searched towards the sign of λ).", "",
-            _md_table(["target", "order", "treatment", f"error at λ = {s['coupling']:g}", "valid", "λ*", "status", "exact solves"], [
-                [v.target, order_name(v.order), b.treatment, _fmt_err(v.error, v.relative), "yes" if v.valid else "no",
+            _md_table(["target", "order", "treatment", f"error at λ = {s['coupling']:g}", "verdict", "λ*", "status", "exact solves"], [
+                [v.target, order_name(v.order), b.treatment, _fmt_err(v.error, v.relative), v.status,
                  _fmt_lam(abs(b.coupling)) if math.isfinite(b.coupling) else _fmt_lam(b.coupling), b.status, b.exact_solves]
                 for v, b in zip(r.verdicts, r.boundaries)])]
     comp = r.comparison
@@ -873,10 +974,14 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
     errs = comp.rel_error if s["rtol"] is not None else comp.abs_error
     rel = s["rtol"] is not None
     cols = sorted(range(len(comp.orders)), key=lambda i: _order_sort_key(comp.orders[i]))
+    pres = comp.presents or ("value",) * len(comp.targets)
+    shown = comp.exact_presented if comp.exact_presented is not None else comp.exact
     out += ["", f"## Error at λ = {s['coupling']:g}, order by order", "",
-            "Orders next to the ones judged are shown for context.", "",
-            _md_table(["target", "exact value"] + [comp.order_names[i] for i in cols], [
-                [t, f"{comp.exact[ti, ci]:.10g}"] + [_fmt_err(float(errs[ti, oi, ci]), rel) for oi in cols]
+            "Orders next to the ones judged are shown for context. A quantity that measures a shift shows its "
+            "shift E(λ) − E(0), with its unperturbed value beside it.", "",
+            _md_table(["target", "exact (shown)", "unperturbed"] + [comp.order_names[i] for i in cols], [
+                [t, f"{shown[ti, ci]:.10g} ({'shift' if pres[ti] == 'shift' else 'value'})", f"{comp.unperturbed[ti]:.10g}"]
+                + [_fmt_err(float(errs[ti, oi, ci]), rel) for oi in cols]
                 for ti, t in enumerate(comp.targets)])]
     convs = [c for c in r.convergence if c is not None]
     if convs:

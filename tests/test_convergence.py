@@ -223,7 +223,7 @@ def test_degenerate_level_raises():
     m = Model(np.diag([0.0, 0.0, 1.0]), np.array([[0, 0, 0.1], [0, 0.2, 0.1], [0.1, 0.1, 0]]))
     with pytest.raises(DegenerateLevelError):
         convergence(m, 0, 10, treatment="nondegenerate")
-    assert convergence(m, 0, 10).treatment == "block"  # 'auto' analyses its block instead
+    assert convergence(m, 0, 10).treatment == "degenerate"  # the default analyses its degenerate group instead
 
 
 @pytest.mark.parametrize(

@@ -184,10 +184,12 @@ def test_failed_boundary_search_is_reported_not_raised(monkeypatch):
 
     monkeypatch.setattr(rp, "validity_boundary", auto_fails)
     r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5)
-    (b,) = r.boundaries
+    (b,) = r.boundaries  # the default treatment is not 'auto': unaffected
     assert b.status == "found" and b.treatment == "nondegenerate"
     assert b.coupling == pytest.approx(closed_form_boundary(2, 1e-5), rel=2e-3)  # closed form, as above
-    assert any("auto treatment failed" in c for c in r.cautions)
+    # asked for 'auto', a failing search is reported as such, never swapped for another treatment
+    r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="auto")
+    assert r.boundaries[0].status == "error" and any("search failed" in c for c in r.cautions)
 
     def always_fails(*a, **k):
         raise ValueError("no luck")
@@ -198,3 +200,35 @@ def test_failed_boundary_search_is_reported_not_raised(monkeypatch):
     assert r.verdicts[0].valid  # the error at λ is still judged from the comparison
     assert any("search failed" in c for c in r.cautions)
     json.loads(to_json(r), parse_constant=lambda c: pytest.fail(c))
+
+
+def test_suggestions_sit_beside_a_verdict_on_what_was_asked():
+    # two-level system at λ = 0.9 (mixing ratio λv/Δ = 0.18 > 0.1): the order-2 series fails (closed form above),
+    # the block of both levels would be exact; the verdict and exit status still judge the order-2 series
+    r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.9, tol=1e-5, convergence_order=10, n_points=9)
+    assert r.verdicts[0].treatment == "nondegenerate" and not r.valid and r.exit_status == 1
+    (g,) = r.suggestions
+    assert g.partner == 1 and g.exact_in_sector and g.mixing_ratio == pytest.approx(0.9 * V / DELTA)
+    md = rp.to_markdown(r)
+    assert "## Suggestions" in md and "## Treatment" in md
+    d = json.loads(to_json(r))
+    assert d["suggestions"][0]["partner"] == 1 and d["verdict"]["per_target"][0]["status"] == "not valid"
+
+
+def test_shift_quantity_is_presented_as_a_shift_in_every_report_file():
+    from ptcheck import Model
+    from ptcheck.quantities import stark_shift
+
+    m = Model(np.diag([0.0, 1.0, 2.3]), [[0, 0.1, 0.05], [0.1, 0, 0.2], [0.05, 0.2, 0]])
+    q = stark_shift(1, 0, name="Lamb")
+    r = run_check(m, [q], [2], coupling=0.5, rtol=0.05, convergence_order=10, n_points=9)
+    # brute force: eigvalsh difference minus the unperturbed transition (1.0)
+    ev = np.linalg.eigvalsh(m.hamiltonian(0.5))
+    shift = ev[1] - ev[0] - 1.0
+    rows = list(csv.DictReader(io.StringIO(rp.comparison_csv(r))))
+    at = [row for row in rows if float(row["coupling"]) == 0.5 and row["order"] == "order 2"]
+    assert at[0]["presents"] == "shift" and float(at[0]["exact_presented"]) == pytest.approx(shift, abs=1e-12)
+    assert float(at[0]["unperturbed"]) == pytest.approx(1.0)
+    assert f"{shift:.10g} (shift)" in rp.to_markdown(r)
+    d = json.loads(to_json(r))
+    assert d["comparison"]["presents"] == ["shift"]
