@@ -1,8 +1,11 @@
 """Take the formula away: a perturbative expression with its checked validity range.
 
-:func:`formula` turns the perturbative series of one level, of a derived
-quantity, or -- for a level that needs the block treatment -- the block's
-Schrieffer–Wolff effective Hamiltonian into text people paste elsewhere:
+:func:`formula` turns the expansion :mod:`ptcheck.treatment` gives a level (or a
+derived quantity) into text people paste elsewhere: the Rayleigh–Schrödinger
+series of a non-degenerate level; for a level of an exactly degenerate group,
+the series of its branch (when that series is exactly the branch's eigenvalue)
+or the group's Schrieffer–Wolff effective Hamiltonian; the effective
+Hamiltonian of a near-degenerate block when that treatment is asked for:
 
 - ``latex``: the equation and where it holds ("valid to 1 % for |λ| < 0.0346"),
   readable both by LaTeX and by matplotlib's mathtext;
@@ -41,11 +44,12 @@ import scipy.sparse as sp
 from . import _validation as val
 from .approximants import Pade, parse_order
 from .compare import TRUNCATION_NOTE, compare, validity_boundary
-from .degeneracy import DEFAULT_MIXING_THRESHOLD, mixing_ratios
+from ._good_states import natural_scales
+from .degeneracy import DEFAULT_MIXING_THRESHOLD
 from .model import Model
 from .quantities import CANCELLATION_RTOL, Quantity
 from .series import rs_series
-from .treatment import TREATMENTS, expansions
+from .treatment import DEFAULT_TREATMENT, DEGENERATE, EXACT_IN_SECTOR, NEAR_DEGENERATE, NONDEGENERATE, TREATMENTS, expansions
 
 __all__ = [
     "DEFAULT_RTOLS",
@@ -348,12 +352,22 @@ class Formula:
     order : int
         Truncation order: terms up to λ^order.
     treatment : str
-        ``"nondegenerate"`` (Rayleigh–Schrödinger) or ``"block"``
-        (Schrieffer–Wolff effective Hamiltonian).
+        Treatment used (decided by :mod:`ptcheck.treatment`):
+        ``"nondegenerate"`` (Rayleigh–Schrödinger series), ``"degenerate"``
+        (degenerate perturbation theory of an exactly degenerate group: the
+        branch's series, or the group's Schrieffer–Wolff effective
+        Hamiltonian), ``"near-degenerate block"`` (Schrieffer–Wolff effective
+        Hamiltonian of the block, on request); ``"mixed"`` for a quantity whose
+        levels are treated differently.
+    reason : str
+        Why, in plain words (per level for a quantity).
+    exact_in_sector : bool
+        The exported group/block is a whole invariant sector: its expansion is
+        exact diagonalisation, not perturbation theory (no tolerance judged).
     levels, labels : tuple
-        Work-basis indices and names of the levels involved: the block's
-        levels for an effective Hamiltonian (its basis, in this order), the
-        level or the quantity's levels for a series.
+        Work-basis indices and names of the levels involved: the group's or
+        block's levels for an effective Hamiltonian (its basis, in this
+        order), the level or the quantity's levels for a series.
     variable : str
         Name of the coupling in :attr:`expression` and :attr:`python`.
     coefficients : (order + 1,) or (order + 1, p, p) ndarray, read-only
@@ -418,6 +432,8 @@ class Formula:
     coupling_unit: str | None
     version: str
     exact_solves: int
+    reason: str = ""
+    exact_in_sector: bool = False
     notes: tuple = ()
 
     def __repr__(self) -> str:
@@ -436,6 +452,8 @@ class Formula:
             "kind": self.kind,
             "order": self.order,
             "treatment": self.treatment,
+            "reason": self.reason,
+            "exact_in_sector": self.exact_in_sector,
             "levels": list(self.levels),
             "labels": list(self.labels),
             "variable": self.variable,
@@ -522,7 +540,7 @@ def formula(
     tol: float | Sequence[float] | None = None,
     rtol: float | Sequence[float] | None = None,
     directions: Sequence[int] = (-1, 1),
-    treatment: str = "auto",
+    treatment: str = DEFAULT_TREATMENT,
     coupling: float | None = None,
     threshold: float = DEFAULT_MIXING_THRESHOLD,
     backend: str = "auto",
@@ -551,14 +569,21 @@ def formula(
     directions : sequence of {+1, -1}, default (-1, +1)
         Signs of the coupling searched.  Give ``(1,)`` when only λ > 0 makes
         sense (e.g. an x⁴ anharmonicity).
-    treatment : {"auto", "nondegenerate", "block"}
-        ``"auto"``: the choice of :mod:`ptcheck.treatment` at ``coupling`` --
-        the effective Hamiltonian of its block for a level in an exactly
-        degenerate group (or, with ``coupling`` given, in a near-degenerate
-        cluster there), the Rayleigh–Schrödinger series otherwise.
+    treatment : {"standard", "nondegenerate", "block", "auto"}, default "standard"
+        As everywhere in ptcheck (:mod:`ptcheck.treatment` decides, the
+        formula exports what it decided): ``"standard"`` is the
+        Rayleigh–Schrödinger series of a level that is not degenerate in its
+        sector, and degenerate perturbation theory for a level of an exactly
+        degenerate group -- the scalar series of its branch when the group's
+        effective Hamiltonian is diagonal in its good states at every order
+        exported (then that series *is* the branch's eigenvalue), else the
+        group's effective Hamiltonian.  ``"block"``/``"auto"`` export the
+        near-degenerate block of the level at ``coupling`` (its effective
+        Hamiltonian).
     coupling : float, optional
-        Coupling of interest at which near-degeneracy is judged (default:
-        exact degeneracy only).
+        Coupling of interest |λ|: where ``"block"``/``"auto"`` judge
+        near-degeneracy (required for them), and where the boundary search
+        makes sure the first crossing below it is found.
     threshold : float
         Mixing-ratio threshold (see :mod:`ptcheck.degeneracy`).
     backend : str
@@ -587,18 +612,18 @@ def formula(
     Raises
     ------
     ValueError, TypeError
-        Bad input; a Padé order; a quantity whose levels need the block
-        treatment (export the levels' effective Hamiltonian instead).
+        Bad input; a Padé order; ``treatment="block"``/``"auto"`` without
+        ``coupling``; a quantity with a level whose energy is an eigenvalue of
+        an effective Hamiltonian (no single polynomial: export that level's
+        effective Hamiltonian instead).
 
     Notes
     -----
     The ranges come from :func:`~ptcheck.compare.validity_boundary` called
-    with ``treatment="nondegenerate"`` for a series and ``treatment="block",
-    coupling=<coupling of interest, 0 by default>`` for an effective
-    Hamiltonian -- the expansion exported, not a better one.  Where a
-    near-degenerate partner mixes strongly at a boundary, ``notes`` says so and
-    names the block alternative.  The error curve is :func:`compare` of the
-    same expansion.
+    with the same ``treatment``, ``coupling`` and ``threshold`` -- the
+    expansion exported, not a better one.  Where a near-degenerate partner
+    limits it, the boundary's suggestion (the block alternative) is in
+    ``notes``.  The error curve is :func:`compare` of the same expansion.
 
     Examples
     --------
@@ -627,6 +652,11 @@ def formula(
     treatment = val.check_choice(treatment, "treatment", TREATMENTS)
     if coupling is not None:
         coupling = abs(val.as_coupling(coupling))
+    elif treatment in ("block", "auto"):
+        raise ValueError(
+            f"treatment={treatment!r} judges near-degenerate blocks at a coupling of interest: give coupling= "
+            "(e.g. the coupling of a suggestion); got coupling=None"
+        )
     threshold = float(val.check_positive(threshold, "threshold"))
     if variable is None:
         name = getattr(model, "coupling_name", None)
@@ -641,36 +671,24 @@ def formula(
     is_quantity = isinstance(target, Quantity)
     levels = list(target.resolve(model)) if is_quantity else [model.level_index(target)]
     exps = expansions(model, levels, spec, treatment=treatment, coupling=coupling, threshold=threshold)
-    block = next((e.block for e in exps if e.treatment == "block" and e.block.size > 1), None)
-    if is_quantity and any(e.treatment == "block" for e in exps):
-        names = [model.label(n) for n, e in zip(levels, exps) if e.treatment == "block"]
-        raise ValueError(
-            f"quantity {target.name!r}: level(s) {names} need the block treatment here, so the quantity has no "
-            f"single polynomial formula; export each level's effective Hamiltonian instead "
-            f"(formula(model, level, {spec}, ...))"
-        )
-    used = "block" if exps[0].treatment == "block" else "nondegenerate"
-    bcoupling = (coupling or 0.0) if used == "block" else None
     var_tex = _tex_symbol(variable)
     notes: list[str] = [TRUNCATION_NOTE]
 
     # ---------------------------------------------------------------- coefficients
-    part = _exported_part(model, target, levels, exps, block, spec)
+    part = _exported_part(model, target, levels, exps, spec)
     notes.extend(part.notes)
     rationals, coefs = _recognise(part.coefficients, part.zero)
 
     # ---------------------------------------------------------------- ranges
     scale, unit = _physical(model)
-    search = {"treatment": used, "backend": backend, "max_coupling": max_coupling, "xrtol": xrtol,
-              "threshold": threshold, "coupling": bcoupling}
+    search = {"treatment": treatment, "backend": backend, "max_coupling": max_coupling, "xrtol": xrtol,
+              "threshold": threshold, "coupling": coupling}
     ranges = [
         _find_range(model, target, spec, dirs, search, var_tex, scale, unit, **tkw)
         for tkw in [{"rtol": t} for t in rtols] + [{"tol": t} for t in tols]
     ]
     solves = sum(b.exact_solves for r in ranges for b in r.boundaries)
     notes.extend(n for r in ranges for b in r.boundaries for n in b.notes if n != TRUNCATION_NOTE)
-    if used == "nondegenerate":
-        notes.extend(_mixing_notes(model, levels, ranges, threshold))
 
     # ---------------------------------------------------------------- text
     equations, expression = _equations(part, coefs, var_tex, variable)
@@ -681,8 +699,9 @@ def formula(
     # ---------------------------------------------------------------- error curve
     if grid is None:
         grid = _curve_grid(ranges, dirs)
-    cmp = compare(model, [target], [spec], grid, treatment=used, backend=backend, threshold=threshold,
-                  coupling=bcoupling if bcoupling is not None else 0.0)
+    # (coupling 0 unless given: the same expansions, and no near-degeneracy judged at the curve's far end)
+    cmp = compare(model, [target], [spec], grid, treatment=treatment, backend=backend, threshold=threshold,
+                  coupling=coupling if coupling is not None else 0.0)
     solves += cmp.exact_solves
     notes.extend(n for n in cmp.notes if n != TRUNCATION_NOTE and not n.startswith(("Level ", "Relative errors are undefined")))
 
@@ -692,7 +711,7 @@ def formula(
         target=part.name,
         kind=part.kind,
         order=int(spec),
-        treatment=used,
+        treatment=part.treatment,
         levels=part.levels,
         labels=part.labels,
         variable=variable,
@@ -711,6 +730,8 @@ def formula(
         coupling_unit=unit,
         version=__version__,
         exact_solves=int(solves),
+        reason=part.reason,
+        exact_in_sector=part.exact_in_sector,
         notes=tuple(dict.fromkeys(notes)),
     )
 
@@ -718,7 +739,7 @@ def formula(
 # ====================================================================== helpers
 @dataclass(frozen=True)
 class _Part:
-    """What is exported: a scalar series or a block's effective Hamiltonian, with its names."""
+    """What is exported: a scalar series or an effective Hamiltonian, with its names and treatment."""
 
     kind: str  # "series" | "effective_hamiltonian"
     name: str  # target name (level label or quantity name)
@@ -729,29 +750,214 @@ class _Part:
     coefficients: np.ndarray  # (order + 1,) or (order + 1, p, p)
     zero: np.ndarray  # series: bool per coefficient; matrix: noise floor per order
     notes: tuple
+    treatment: str  # treatment used (one of ptcheck.treatment.USED; "mixed" for a quantity of several)
+    reason: str
+    exact_in_sector: bool
+    what: str  # the expansion in words (docstring of the Python function)
 
 
-def _exported_part(model: Model, target: Any, levels: list[int], exps: list, block: Any, order: int) -> _Part:
+#: Off-diagonal part of a degenerate group's H_eff^(k) in its good states, relative to the natural size of
+#: order k, below which the group is diagonal there (its branch eigenvalues are then its scalar series).
+_DIAGONAL_RTOL = 1e-10
+
+
+def _h0_scale(model: Model) -> float:
+    return float(max(np.max(np.abs(model.e0)), np.ptp(model.e0)))
+
+
+def _gap(model: Model, levels: Sequence[int]) -> float:
+    inside = np.zeros(model.n, dtype=bool)
+    inside[list(levels)] = True
+    if inside.all():
+        return math.inf
+    return float(np.min(np.abs(model.e0[~inside][:, None] - model.e0[inside][None, :])))
+
+
+def _group_sizes(model: Model, levels: Sequence[int], order: int) -> np.ndarray:
+    """(order + 1,) natural size of an order-k coefficient of a group/block (k = 0: the H0 scale)."""
+    return np.concatenate([[_h0_scale(model)], natural_scales(model.norm_v, _gap(model, levels), order)])
+
+
+def _branch_is_series(model: Model, e: Any) -> bool:
+    """A degenerate level whose branch eigenvalue is exactly its scalar series.
+
+    True when the treatment gives the branch's Taylor coefficients and the
+    group's ``H_eff^(k)`` (k <= order) are diagonal in its good states (to
+    rounding): then every eigenvalue branch of the truncated ``H_eff(λ)`` is a
+    diagonal entry, i.e. that polynomial -- what the boundaries judge.
+    """
+    if e.energy_coefficients is None:
+        return False
+    w = np.asarray(e.good_states)
+    q = np.einsum("ji,kjl,lm->kim", w.conj(), np.asarray(e.effective_hamiltonian), w)
+    sizes = _group_sizes(model, e.group, e.order)
+    off = q - np.einsum("kii->ki", q)[:, :, None] * np.eye(w.shape[0])[None]
+    if np.any(np.max(np.abs(off), axis=(1, 2)) > _DIAGONAL_RTOL * sizes):
+        return False
+    i = e.group.index(e.level)
+    diag = np.real(q[1:, i, i])
+    return bool(np.all(np.abs(diag - np.asarray(e.energy_coefficients)[1:]) <= _DIAGONAL_RTOL * sizes[1:]))
+
+
+def _scalar_series(model: Model, e: Any, order: int) -> tuple[np.ndarray, np.ndarray] | None:
+    """(coefficients E^(k) (order + 1,), size of the terms that make each one) of a level, or None.
+
+    None when the level's energy is an eigenvalue of an effective Hamiltonian
+    that no scalar series equals.  Sizes: for a Rayleigh–Schrödinger series
+    ``E^(k) = ⟨n|V|ψ^(k−1)⟩`` is made of terms of total size
+    ``Σ_m (|V_nm| + max_m' |V_nm'|) |ψ^(k−1)_m|`` (the second part covers the
+    rounding of V's own entries, e.g. after rotating into the eigenbasis of
+    H0); for a degenerate branch, the natural size ``‖V‖ (‖V‖/gap)^(k−1)``;
+    order 0: the H0 scale.
+    """
+    n = e.level
+    if e.treatment == DEGENERATE:
+        if not _branch_is_series(model, e):
+            return None
+        return np.asarray(e.energy_coefficients, dtype=float), _group_sizes(model, e.group, order)
+    if e.treatment == NEAR_DEGENERATE:
+        if len(e.group) > 1:
+            return None
+        c = np.real(np.asarray(e.block.coefficients)[:, 0, 0])  # a block of one level: the RS series
+        s = rs_series(model, n, order)
+    else:
+        c, s = np.asarray(e.energy_coefficients, dtype=float), e.series
+    v_row = model.v[[n]].toarray()[0] if sp.issparse(model.v) else np.asarray(model.v[n])
+    a = np.full(order + 1, _h0_scale(model))
+    a[1:] = np.abs(np.asarray(s.state_coefficients)[:-1]) @ (np.abs(v_row) + np.max(np.abs(v_row)))
+    return np.asarray(c, dtype=float), a
+
+
+def _vector_text(coeffs: np.ndarray, names: Sequence[str]) -> str:
+    """A state as text, e.g. '0.7071 |a⟩ − 0.7071 |b⟩' (a global phase makes the largest entry positive)."""
+    c = np.asarray(coeffs, dtype=complex)
+    big = c[int(np.argmax(np.abs(c)))]
+    c = c * (abs(big) / big)
+    terms = []
+    for x, name in zip(c, names):
+        if abs(x) < 1e-10:
+            continue
+        if abs(x.imag) < 1e-12:
+            mag, neg = f"{abs(x.real):.4g}", x.real < 0
+        else:
+            mag, neg = f"({x.real:.4g}{x.imag:+.4g}i)", False
+        ket = name if name.startswith("|") else f"|{name}⟩"
+        terms.append((" − " if neg else " + ") + f"{mag} {ket}")
+    text = "".join(terms)
+    return text[3:] if text.startswith(" + ") else "−" + text[3:]
+
+
+def _basis_note(model: Model, levels: Sequence[int]) -> str | None:
+    """Where the work basis of ``levels`` is not the model's input basis, write its states in that basis."""
+    eye = np.zeros((len(levels), model.n))
+    eye[np.arange(len(levels)), list(levels)] = 1.0
+    u = model.to_user_basis(eye)
+    if np.all(np.sum(np.abs(u) > 1e-10, axis=1) == 1):
+        return None
+    parts = []
+    for n, row in zip(levels, u):
+        nz = np.flatnonzero(np.abs(row) > 1e-10)
+        parts.append(f"{model.label(n)} = {_vector_text(row[nz], [f'e{j}' for j in nz])}")
+    return (
+        "The basis states are ptcheck's work basis (eigenbasis of H0, rotated inside an exactly degenerate group "
+        "to the eigenvectors of V there); in the model's input basis e0, e1, ...: " + "; ".join(parts) + "."
+    )
+
+
+def _exported_part(model: Model, target: Any, levels: list[int], exps: list, order: int) -> _Part:
     if isinstance(target, Quantity):
-        weights = np.array([target.resolve(model)[n] for n in levels])
-        c, zero = _series_coefficients(model, levels, weights, exps, order)
-        fname = target.name if _usable_name(target.name) else "quantity"
-        return _Part("series", target.name, _tex_symbol(target.name), tuple(levels), tuple(model.label(n) for n in levels),
-                     fname, c, zero, ())
-    name = model.label(levels[0])
-    if block is None:
-        c, zero = _series_coefficients(model, levels, np.ones(1), exps, order)
-        return _Part("series", name, f"E_{{{_tex_text(name)}}}", (levels[0],), (name,), "energy", c, zero, ())
-    c = np.asarray(block.coefficients)
+        return _quantity_part(model, target, levels, exps, order)
+    (e,) = exps
+    name = model.label(e.level)
+    found = _scalar_series(model, e, order)
+    if found is not None:
+        c, a = found
+        zero = np.abs(c) <= _NOISE_RTOL * a
+        notes: tuple = ()
+        if e.treatment == DEGENERATE:
+            others = ", ".join(model.label(m) for m in e.group)
+            w = np.asarray(e.good_states)[:, e.group.index(e.level)]
+            what = (f"Energy of level {name} (degenerate perturbation theory: branch of the exactly degenerate group "
+                    f"({others}) with good state {_vector_text(w, [model.label(m) for m in e.group])}; order {order}).")
+            notes = (
+                f"Level {name}: {e.reason}. The group's effective Hamiltonian is diagonal in its good states at every "
+                f"order exported, so this series is exactly the eigenvalue of its branch (good state "
+                f"{_vector_text(w, [model.label(m) for m in e.group])}).",
+            )
+            note = _basis_note(model, e.group)
+            notes += (note,) if note else ()
+        elif e.treatment == NEAR_DEGENERATE:
+            what = f"Energy of level {name} (a near-degenerate block of one level: the Rayleigh–Schrödinger series, order {order})."
+        else:
+            what = f"Energy of level {name} (Rayleigh–Schrödinger series, order {order})."
+        return _Part("series", name, f"E_{{{_tex_text(name)}}}", (e.level,), (name,), "energy", c, zero, notes,
+                     e.treatment, e.reason, e.exact_in_sector, what)
+    # an effective Hamiltonian: the degenerate group's, or the near-degenerate block's
+    group = tuple(e.group)
+    labels = tuple(model.label(m) for m in group)
+    if e.treatment == DEGENERATE:
+        c = np.asarray(e.effective_hamiltonian)
+        which = "degenerate group"
+        i = group.index(e.level)
+        branch = (
+            f"branch {i + 1} of the group counted in ascending energy at small λ > 0 (good state "
+            f"{_vector_text(np.asarray(e.good_states)[:, i], labels)})"
+        )
+        why = ("its effective Hamiltonian is not diagonal in its good states at every order exported, so no scalar "
+               "series equals that eigenvalue" if e.energy_coefficients is not None
+               else "its good states are not resolved within the orders exported")
+        block_notes: tuple = ()
+    else:
+        c = np.asarray(e.block.coefficients)
+        which = NEAR_DEGENERATE
+        branch = f"the branch that starts at E = {model.e0[e.level]:.6g} at λ = 0"
+        why = "the levels of the block are treated together"
+        block_notes = tuple(e.block.notes)
     if np.iscomplexobj(c) and not np.any(np.imag(c)):
         c = np.real(c)
     note = (
-        f"Level {name} is treated with the block {list(block.labels)} (Schrieffer–Wolff): its energy is the "
-        f"eigenvalue of H_eff(λ) on the branch that starts at E = {model.e0[levels[0]]:.6g} at λ = 0. "
-        "The ranges are for this level; ask for the block's other levels separately."
+        f"Level {name}: {e.reason}. Exported: the effective Hamiltonian of the {which} ({', '.join(labels)}; "
+        f"Schrieffer–Wolff); the level's energy is its eigenvalue on {branch}; {why}. The ranges are for this level; "
+        "ask for the other levels separately."
     )
-    return _Part("effective_hamiltonian", name, "H", tuple(block.levels), tuple(block.labels), "effective_hamiltonian",
-                 c, _matrix_floor(model, block), (note, *block.notes))
+    basis = _basis_note(model, group)
+    what = (f"Effective Hamiltonian H_eff of the {which} {', '.join(labels)} (Schrieffer–Wolff, order {order}), a "
+            f"{len(group)} x {len(group)} matrix (list of rows) in that basis; the energy of level {name} is its "
+            f"eigenvalue on {branch}.")
+    floor = (_NOISE_RTOL * _group_sizes(model, group, c.shape[0] - 1))[:, None, None]
+    return _Part("effective_hamiltonian", name, "H", group, labels, "effective_hamiltonian", c, floor,
+                 (note, *((basis,) if basis else ()), *block_notes), e.treatment, e.reason, e.exact_in_sector,
+                 what)
+
+
+def _quantity_part(model: Model, target: Quantity, levels: list[int], exps: list, order: int) -> _Part:
+    """Q^(k) = Σ_i w_i E_i^(k); zero to rounding when ``|Q^(k)| <= CANCELLATION_RTOL Σ_i |w_i E_i^(k)| +
+    1e-12 Σ_i |w_i| a_ik`` (``a_ik``: size of the terms that make E_i^(k); rounding, and cancellation
+    between the levels)."""
+    found = [_scalar_series(model, e, order) for e in exps]
+    bad = [(model.label(n), e.treatment) for n, e, f in zip(levels, exps, found) if f is None]
+    if bad:
+        names = ", ".join(f"{lab} ({t})" for lab, t in bad)
+        raise ValueError(
+            f"quantity {target.name!r}: the energy of level(s) {names} is an eigenvalue of an effective Hamiltonian "
+            "that no scalar series equals here, so the quantity has no single polynomial formula; export each "
+            f"level's effective Hamiltonian instead (formula(model, level, {order}, ...))"
+        )
+    weights = np.array([target.resolve(model)[n] for n in levels])
+    level_c = np.array([f[0] for f in found])
+    floors = np.array([f[1] for f in found])
+    w = np.abs(weights)
+    c = weights @ level_c
+    zero = np.abs(c) <= CANCELLATION_RTOL * (w @ np.abs(level_c)) + _NOISE_RTOL * (w @ floors)
+    kinds = list(dict.fromkeys(e.treatment for e in exps))
+    used = kinds[0] if len(kinds) == 1 else "mixed"
+    how = "; ".join(f"{model.label(n)}: {e.treatment}" for n, e in zip(levels, exps))
+    notes = tuple(f"Level {model.label(n)}: {e.reason}." for n, e in zip(levels, exps) if e.treatment != NONDEGENERATE)
+    fname = target.name if _usable_name(target.name) else "quantity"
+    return _Part("series", target.name, _tex_symbol(target.name), tuple(levels), tuple(model.label(n) for n in levels),
+                 fname, c, zero, notes, used, "; ".join(f"{model.label(n)}: {e.reason}" for n, e in zip(levels, exps)),
+                 all(e.exact_in_sector for e in exps),
+                 f"{target.name} = {target.expression()} (perturbation series of each level, order {order}; {how}).")
 
 
 def _equations(part: _Part, coefs: list, var_tex: str, variable: str) -> tuple[tuple[str, ...], str]:
@@ -776,60 +982,15 @@ def _equations(part: _Part, coefs: list, var_tex: str, variable: str) -> tuple[t
 
 def _latex(part: _Part, equations: tuple[str, ...], ranges: list[ValidityRange], order: int) -> str:
     """Equation(s) and ranges: "..., valid to 1 % for |λ| < 0.798, to 5 % for |λ| < 2.11"."""
-    range_tex = ", ".join(r.latex if i == 0 else r.latex.removeprefix("valid ") for i, r in enumerate(ranges))
+    range_tex = ", ".join(dict.fromkeys(r.latex if i == 0 else r.latex.removeprefix("valid ") for i, r in enumerate(ranges)))
     if part.kind == "series":
         return equations[0] + (f", {range_tex}" if range_tex else "")
     basis = r",\ ".join(_tex_text(lab) for lab in part.labels)
+    which = "degenerate group" if part.treatment == DEGENERATE else NEAR_DEGENERATE
     return "\n".join(equations) + (
-        f"\n$H$: effective Hamiltonian (Schrieffer-Wolff, order {order}) in the basis $({basis})$; "
+        f"\n$H$: effective Hamiltonian of the {which} (Schrieffer-Wolff, order {order}) in the basis $({basis})$; "
         f"level ${_tex_text(part.name)}$ {range_tex}"
     )
-
-
-def _series_coefficients(
-    model: Model, levels: list[int], weights: np.ndarray, exps: list, order: int
-) -> tuple[np.ndarray, np.ndarray]:
-    """Coefficients ``Σ_i w_i E_i^(k)`` (order + 1,) and which of them are zero to rounding.
-
-    ``E_i^(k) = ⟨i|V|ψ_i^(k−1)⟩`` is computed from terms of total size
-    ``a_ik = Σ_m (|V_im| + max_m' |V_im'|) |ψ_i^(k−1)_m|`` (the second part
-    covers the rounding of V's own entries, e.g. after rotating into the
-    eigenbasis of H0), ``a_i0`` = the H0 scale; a coefficient is zero when
-    ``|Q^(k)| <= CANCELLATION_RTOL Σ_i |w_i E_i^(k)| + 1e-12 Σ_i |w_i| a_ik``
-    (rounding of the terms, and cancellation between the levels).
-    """
-    h0_scale = float(max(np.max(np.abs(model.e0)), np.ptp(model.e0)))
-    rows, floors = [], []
-    for n, e in zip(levels, exps):
-        s = e if e.energy_coefficients is not None else rs_series(model, n, order)  # a block of one: the same series
-        c = e.energy_coefficients if e.energy_coefficients is not None else np.real(e.block.coefficients[:, 0, 0])
-        v_row = model.v[[n]].toarray()[0] if sp.issparse(model.v) else np.asarray(model.v[n])
-        a = np.full(order + 1, h0_scale)
-        a[1:] = np.abs(np.asarray(s.state_coefficients)[:-1]) @ (np.abs(v_row) + np.max(np.abs(v_row)))
-        rows.append(np.asarray(c, dtype=float))
-        floors.append(a)
-    level_c = np.array(rows)
-    w = np.abs(weights)
-    coefficients = weights @ level_c
-    zero = np.abs(coefficients) <= CANCELLATION_RTOL * (w @ np.abs(level_c)) + _NOISE_RTOL * (w @ np.array(floors))
-    return coefficients, zero
-
-
-def _matrix_floor(model: Model, block: Any) -> np.ndarray:
-    """(order + 1, 1, 1): size below which an effective-Hamiltonian entry (or its real or imaginary
-    part) is rounding noise: ``1e-12 s_k`` with ``s_k = v (v/gap)^(k−1)``, ``v`` the largest norm of a
-    column of V on the block and ``gap`` the block's distance to the other levels (``s_0``: the
-    H0 scale)."""
-    k = np.arange(np.asarray(block.coefficients).shape[0])
-    idx = np.asarray(block.levels)
-    cols = model.v[:, idx]
-    cols = cols.toarray() if sp.issparse(cols) else np.asarray(cols)
-    v = float(np.max(np.linalg.norm(cols, axis=0)))
-    gap = block.gap if np.isfinite(block.gap) and block.gap > 0 else max(v, np.finfo(float).tiny)
-    with np.errstate(over="ignore"):
-        s = np.where(k == 0, max(np.max(np.abs(model.e0)), np.ptp(model.e0)), v * (v / gap) ** (k - 1.0))
-    s[~np.isfinite(s)] = 0.0
-    return (_NOISE_RTOL * s)[:, None, None]
 
 
 def _recognise(c: np.ndarray, zero: np.ndarray) -> tuple[tuple, list]:
@@ -873,11 +1034,17 @@ def _find_range(model: Model, target: Any, order: int, dirs: tuple[int, ...], se
     by_dir = {b.direction: b for b in found}
     words, words_tex = _tol_words(tol, rtol)
     text, tex = _range_words(by_dir, var_tex, scale, unit)
+    if all(b.status == "exact_in_sector" for b in found):
+        text = (f"{EXACT_IN_SECTOR} (exact diagonalisation of a whole invariant sector of H0 + λV, not perturbation "
+                "theory: no tolerance is judged)")
+        tex = f"{EXACT_IN_SECTOR} (a whole invariant sector: no tolerance is judged)"
+    else:
+        text, tex = f"valid to {words} {text}", f"valid to {words_tex} {tex}"
     return ValidityRange(
         tol=tol, rtol=rtol,
         lower=float(by_dir[-1].coupling) if -1 in by_dir else 0.0,
         upper=float(by_dir[1].coupling) if 1 in by_dir else 0.0,
-        boundaries=tuple(found), text=f"valid to {words} {text}", latex=f"valid to {words_tex} {tex}",
+        boundaries=tuple(found), text=text, latex=tex,
     )
 
 
@@ -923,26 +1090,6 @@ def _range_words(by_dir: dict, var_tex: str, scale: float | None, unit: str | No
     )
 
 
-def _mixing_notes(model: Model, levels: list[int], ranges: list[ValidityRange], threshold: float) -> list[str]:
-    """Name a near-degenerate partner that mixes strongly at a boundary (the block alternative)."""
-    out = []
-    for r in ranges:
-        for b in r.boundaries:
-            if b.status != "found":
-                continue
-            for n in levels:
-                partners, ratios = mixing_ratios(model, n, abs(b.coupling))
-                if partners.size and np.max(ratios) >= threshold:
-                    k = int(np.argmax(ratios))
-                    out.append(
-                        f"At |λ| = {abs(b.coupling):.3g} level {model.label(n)} mixes with {model.label(int(partners[k]))} "
-                        f"(mixing ratio {ratios[k]:.3g} >= {threshold:g}): the series fails there because of this "
-                        f"near-degeneracy; the block formula (treatment='block', coupling={abs(b.coupling):.3g}) may "
-                        "hold further."
-                    )
-    return out
-
-
 def _curve_grid(ranges: list[ValidityRange], dirs: tuple[int, ...]) -> np.ndarray:
     """201 couplings reaching 1.5 x the widest boundary found (else the search limit) on the sides searched."""
     bs = [b for r in ranges for b in r.boundaries]
@@ -960,15 +1107,7 @@ def _doc_text(s: str) -> str:
 
 def _python_source(part: _Part, variable, expression, *, model, params, order, ranges, quantity, scale, unit,
                    version) -> str:
-    kind, target, labels, function_name = part.kind, part.name, part.labels, part.function_name
-    if kind == "effective_hamiltonian":
-        what = (f"Effective Hamiltonian H_eff({variable}) of the block {', '.join(labels)} (Schrieffer–Wolff, order "
-                f"{order}), a {len(labels)} x {len(labels)} matrix (list of rows) in that basis; the energy of level "
-                f"{target} is its eigenvalue on the branch starting at that level at {variable} = 0.")
-    elif quantity is not None:
-        what = f"{target} = {quantity.expression()} (Rayleigh–Schrödinger series of each level, order {order})."
-    else:
-        what = f"Energy of level {target} (Rayleigh–Schrödinger series, order {order})."
+    kind, function_name, what = part.kind, part.function_name, part.what
     lines = [
         what,
         "",

@@ -515,6 +515,22 @@ class GroupExpansion:
         return self.choice.exact_in_sector
 
     @property
+    def effective_hamiltonian(self) -> np.ndarray:
+        """(order + 1, d, d) read-only: ``H_eff^(k)`` of the group (Schrieffer–Wolff, energy units) in the
+        work basis of :attr:`group`; the level's energy is the eigenvalue of ``Σ_k λ^k H_eff^(k)`` on its branch."""
+        h = np.array(self._group.sw.heff)
+        h.setflags(write=False)
+        return h
+
+    @property
+    def good_states(self) -> np.ndarray:
+        """(d, d) read-only: column i is the good state of branch i (λ → 0+ limit of its eigenvector) in the
+        work basis of :attr:`group`; branch i belongs to level ``group[i]``."""
+        g = np.array(self._group.guess)
+        g.setflags(write=False)
+        return g
+
+    @property
     def starts_on_good_states(self) -> bool:
         """The group's work-basis states are already its good states (so exact tracking can start from them)."""
         guess = np.abs(np.asarray(self._group.guess))

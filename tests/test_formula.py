@@ -58,13 +58,26 @@ def quartic_formula(quartic):
 
 @pytest.fixture(scope="module")
 def three_level():
-    # invented: a degenerate pair at 0 coupled to a level at 5
+    # invented: a degenerate pair at 0 coupled to a level at 5; no symmetry keeps its H_eff diagonal
     return Model(np.diag([0.0, 0.0, 5.0]), [[0, 1, 1], [1, 0, 0], [1, 0, 0]], name="invented three-level")
 
 
 @pytest.fixture(scope="module")
-def block_formula(three_level):
+def group_formula(three_level):
+    # default treatment: degenerate perturbation theory of the pair, exported as its effective Hamiltonian
     return formula(three_level, 0, 3)
+
+
+@pytest.fixture(scope="module")
+def hubbard():
+    # t = 1, U = 8 (the builder's defaults), S_z = 0 sector
+    return ptcheck.models.hubbard_dimer()
+
+
+@pytest.fixture(scope="module")
+def near_degenerate():
+    # invented: levels 1 and 2 are 0.05 apart and strongly coupled
+    return Model(np.diag([0.0, 1.0, 1.05]), [[0, 0.1, 0], [0.1, 0, 0.1], [0, 0.1, 0]], name="invented near-degenerate")
 
 
 @pytest.fixture(scope="module")
@@ -86,7 +99,8 @@ def test_quartic_ground_state_fractions(quartic_formula):
 def test_cubic_oscillator_odd_orders_are_exact_zeros():
     # V = x³ is odd under parity, so every odd order of a parity eigenstate vanishes (common practice,
     # no source); E_2 = −⟨0|x³|1⟩²/1 − ⟨0|x³|3⟩²/3 = −9/8 − 1/4 = −11/8 (hand calculation, x = (a + a†)/√2)
-    f = formula(anharmonic_oscillator(kind="cubic", n_basis=30), 0, 4, directions=(1,), max_coupling=0.1)
+    # (max_coupling 0.04: at λ ≈ 0.075 a state of the truncated basis dives through the ground state)
+    f = formula(anharmonic_oscillator(kind="cubic", n_basis=30), 0, 4, directions=(1,), max_coupling=0.04)
     assert f.rationals[1] == 0 and f.rationals[3] == 0
     assert f.rationals[2] == Fraction(-11, 8)
     assert "lam**3" not in f.expression and "lam**1" not in f.expression
@@ -158,16 +172,21 @@ def test_quantity_expression_equals_its_series(chi_formula):
         assert float(expr.subs("lam", lam)) == pytest.approx(ref, rel=1e-12)
 
 
-def test_block_formula_is_the_effective_hamiltonian(three_level, block_formula):
+def test_degenerate_group_exports_its_effective_hamiltonian(three_level, group_formula):
+    # the default treatment of an exactly degenerate level is degenerate perturbation theory; the pair's
+    # H_eff is not diagonal in its good states at order 2, so no scalar series is its eigenvalue.
     # second order: H_ab = Σ_m V_am V_mb / (E0 − E_m) over the outside level at 5 (Löwdin partitioning;
     # e.g. Winkler, Spin–Orbit Coupling Effects in 2D Electron and Hole Systems (2003), App. B; from memory)
     # in the good-state basis (|0⟩ ∓ |1⟩)/√2 with V_{a2} = ±1/√2: entries ±(1/2)/(−5) = ±1/10
-    assert block_formula.kind == "effective_hamiltonian"
-    assert block_formula.rationals[1] == ((-1, 0), (0, 1))
-    assert {abs(x) for row in block_formula.rationals[2] for x in row} == {Fraction(1, 10)}
+    assert group_formula.kind == "effective_hamiltonian"
+    assert group_formula.treatment == "degenerate" and group_formula.levels == (0, 1)
+    assert "effective Hamiltonian of the degenerate group" in group_formula.latex
+    assert any("e0" in n and "0.7071" in n for n in group_formula.notes)  # the rotated work basis, spelled out
+    assert group_formula.rationals[1] == ((-1, 0), (0, 1))
+    assert {abs(x) for row in group_formula.rationals[2] for x in row} == {Fraction(1, 10)}
     bs = block_series(three_level, [0, 1], 3)
-    fn = run_python(block_formula.python, "effective_hamiltonian")
-    expr = sympy.sympify(block_formula.expression)
+    fn = run_python(group_formula.python, "effective_hamiltonian")
+    expr = sympy.sympify(group_formula.expression)
     for lam in (-0.7, 0.2, 1.3):
         ref = bs.effective_hamiltonian(lam, 3)
         assert_allclose(np.array(fn(lam)), ref, rtol=1e-12, atol=1e-15)
@@ -178,10 +197,67 @@ def test_block_formula_is_the_effective_hamiltonian(three_level, block_formula):
     assert np.linalg.eigvalsh(np.array(fn(lam)))[0] == pytest.approx(exact, abs=10 * lam**4)
 
 
-def test_latex_parses_with_mathtext(quartic_formula, block_formula, chi_formula):
+def test_degenerate_branch_with_diagonal_heff_is_a_series(hubbard):
+    # Hubbard dimer (t = 1, U = 8): the singly occupied pair is exactly degenerate and splits at order 2;
+    # spin symmetry keeps its H_eff diagonal in the singlet/triplet good states, so the singlet branch is
+    # a scalar series. Exact singlet energy (U − √(U² + 16 t²λ²))/2 (two-site Hubbard model, from memory),
+    # expanded by sympy: −λ²/2 + λ⁴/32 − …
+    lam = sympy.Symbol("lam")
+    exact = (8 - sympy.sqrt(64 + 16 * lam**2)) / 2
+    taylor = sympy.Poly(sympy.series(exact, lam, 0, 5).removeO(), lam).all_coeffs()[::-1]
+    f = formula(hubbard, 0, 4)
+    assert f.treatment == "degenerate" and f.kind == "series"
+    assert f.rationals == tuple(Fraction(int(c.p), int(c.q)) for c in taylor)
+    assert f.expression == "-1/2*lam**2 + 1/32*lam**4"
+    assert any("0.7071 |↑,↓⟩ − 0.7071 |↓,↑⟩" in n for n in f.notes)  # the singlet good state
+    # the text is exactly the expansion the boundaries judge: the branch eigenvalue of the group's H_eff
+    (e,) = ptcheck.treatment.expansions(hubbard, [0], 4)
+    fn = run_python(f.python, "energy")
+    for x in (-1.3, -0.4, 0.25, 0.9, 2.0):
+        assert fn(x) == pytest.approx(float(e.energy(x)), rel=1e-12, abs=1e-15)
+    for r, rtol in zip(f.ranges, (0.01, 0.05)):
+        hi = validity_boundary(hubbard, 0, 4, rtol=rtol, direction=+1)
+        lo = validity_boundary(hubbard, 0, 4, rtol=rtol, direction=-1)
+        assert (r.lower, r.upper) == (lo.coupling, hi.coupling) and hi.treatment == "degenerate"
+
+
+def test_superexchange_formula_against_brute_force(hubbard):
+    # J = E_1 − E_0 (exchange(1, 0)): 4t²/U at second order (Anderson, Phys. Rev. 115, 2 (1959)), here
+    # λ²/2 − λ⁴/32 from the exact singlet energy (U − √(U² + 16λ²))/2 and the triplet at 0
+    f = formula(hubbard, ptcheck.exchange(1, 0), 4, rtol=0.01, directions=(1,))
+    assert f.rationals == (0, 0, Fraction(1, 2), 0, Fraction(-1, 32))
+    fn = run_python(f.python, "J")
+
+    # brute force: numpy eigvalsh of the 4x4 matrix on a fine grid, brentq on the first crossing of 1 %
+    def excess(lam):
+        e = np.linalg.eigvalsh(hubbard.hamiltonian(lam))
+        j = e[1] - e[0]
+        return abs(fn(lam) - j) / abs(j) - 0.01
+
+    grid = np.linspace(1e-3, 3.0, 600)
+    vals = np.array([excess(x) for x in grid])
+    i = int(np.argmax(vals > 0))
+    assert i > 0 and np.all(vals[:i] <= 0)
+    lam_bf = brentq(excess, grid[i - 1], grid[i], xtol=1e-10)
+    assert f.ranges[0].upper == pytest.approx(lam_bf, rel=2e-3)
+
+
+def test_whole_sector_group_is_exact_not_a_range():
+    # invented: a degenerate pair that V couples only to each other; E = ±λ exactly (eigenvalues of
+    # [[0, λ], [λ, 0]]), so the degenerate treatment is exact diagonalisation and no tolerance is judged
+    m = Model(np.diag([0.0, 0.0, 3.0]), [[0, 1, 0], [1, 0, 0], [0, 0, 0.5]], name="invented sector pair")
+    f = formula(m, 0, 2)
+    assert f.treatment == "degenerate" and f.exact_in_sector and f.expression == "-lam"
+    assert all(b.status == "exact_in_sector" for r in f.ranges for b in r.boundaries)
+    assert f.ranges[0].text.startswith("exact within its sector")
+    assert f.latex.count("exact within its sector") == 1
+    MathTextParser("agg").parse(f.latex, dpi=72)
+
+
+def test_latex_parses_with_mathtext(quartic_formula, group_formula, chi_formula):
     # reference: matplotlib's mathtext parser (the renderer of the slide figure)
     parser = MathTextParser("agg")
-    for f in (quartic_formula, block_formula, chi_formula):
+    for f in (quartic_formula, group_formula, chi_formula):
         for line in f.latex.split("\n"):
             parser.parse(line, dpi=72)
         for eq in f.equations:
@@ -194,10 +270,11 @@ def test_ranges_are_the_validity_boundaries(chi_formula):
     # the same numbers as validity_boundary called for the exported expansion
     m = jaynes_cummings(n_photons=4)
     texts = []
+    assert chi_formula.treatment == "nondegenerate"
     for r, rtol in zip(chi_formula.ranges, (0.01, 0.05)):
         assert r.rtol == rtol and r.tol is None
-        lo = validity_boundary(m, dispersive_shift(), 4, rtol=rtol, direction=-1, treatment="nondegenerate")
-        hi = validity_boundary(m, dispersive_shift(), 4, rtol=rtol, direction=+1, treatment="nondegenerate")
+        lo = validity_boundary(m, dispersive_shift(), 4, rtol=rtol, direction=-1)
+        hi = validity_boundary(m, dispersive_shift(), 4, rtol=rtol, direction=+1)
         assert (r.lower, r.upper) == (lo.coupling, hi.coupling)
         texts.append((sig3_down(lo.coupling), sig3_down(hi.coupling)))
     # symmetric to three digits here (χ is even in λ): written |λ| < x, as in the brief's wording
@@ -205,10 +282,10 @@ def test_ranges_are_the_validity_boundaries(chi_formula):
     assert f"valid to $1\\,\\%$ for $|\\lambda| < {texts[0][1]}$, to $5\\,\\%$ for $|\\lambda| < {texts[1][1]}$" in chi_formula.latex
 
 
-def test_asymmetric_range_names_both_ends(block_formula, three_level):
-    r = block_formula.ranges[0]
-    lo = validity_boundary(three_level, 0, 3, rtol=0.01, direction=-1, treatment="block", coupling=0.0)
-    hi = validity_boundary(three_level, 0, 3, rtol=0.01, direction=+1, treatment="block", coupling=0.0)
+def test_asymmetric_range_names_both_ends(group_formula, three_level):
+    r = group_formula.ranges[0]
+    lo = validity_boundary(three_level, 0, 3, rtol=0.01, direction=-1)
+    hi = validity_boundary(three_level, 0, 3, rtol=0.01, direction=+1)
     assert (r.lower, r.upper) == (lo.coupling, hi.coupling)
     assert sig3_down(lo.coupling) != sig3_down(hi.coupling)
     assert r.text == f"valid to 1 % for −{sig3_down(lo.coupling)} < λ < {sig3_down(hi.coupling)}"
@@ -235,11 +312,11 @@ def test_printed_range_against_brute_force(quartic, quartic_formula):
         assert lam_bf * (1 - 1.2e-2) <= float(printed) <= lam_bf * (1 + 2e-3)
 
 
-def test_block_range_against_brute_force(three_level, block_formula):
+def test_block_range_against_brute_force(three_level, group_formula):
     # brute force for λ > 0: level 0 is the lowest exact eigenvalue and the lowest eigenvalue of the
     # exported 2x2 matrix (no crossing for λ > 0); numpy eigvalsh, fine grid + brentq
-    fn = run_python(block_formula.python, "effective_hamiltonian")
-    r = block_formula.ranges[0]
+    fn = run_python(group_formula.python, "effective_hamiltonian")
+    r = group_formula.ranges[0]
 
     def excess(lam):
         e = np.linalg.eigvalsh(three_level.hamiltonian(lam))[0]
@@ -266,12 +343,29 @@ def test_physical_coupling_shown_in_both_units():
     assert art.physical_axis is not None
 
 
-def test_near_degenerate_boundary_names_the_block_alternative():
-    # invented: levels 1 and 2 are 0.05 apart and strongly coupled; the series of level 1 fails by mixing
-    m = Model(np.diag([0.0, 1.0, 1.05]), [[0, 0.1, 0], [0.1, 0, 0.1], [0, 0.1, 0]], name="invented near-degenerate")
-    f = formula(m, 1, 2, rtol=0.01, directions=(1,))
-    assert f.treatment == "nondegenerate"
+def test_near_degenerate_boundary_names_the_block_alternative(near_degenerate):
+    # the series of level 1 fails by mixing with level 2: the default still exports the series asked for,
+    # and the boundary's suggestion (the block) is among the notes
+    f = formula(near_degenerate, 1, 2, rtol=0.01, directions=(1,))
+    assert f.treatment == "nondegenerate" and f.kind == "series"
     assert any("treatment='block'" in n for n in f.notes)
+
+
+def test_near_degenerate_block_only_on_request(near_degenerate):
+    # treatment='block' at a coupling of interest: the effective Hamiltonian of the block (1, 2), the same
+    # matrices as blocks.block_series and the same ranges as validity_boundary with that treatment
+    f = formula(near_degenerate, 1, 2, rtol=0.01, directions=(1,), treatment="block", coupling=0.3)
+    assert f.treatment == "near-degenerate block" and f.kind == "effective_hamiltonian"
+    assert f.levels == (1, 2) and "near-degenerate block" in f.latex
+    assert_allclose(f.coefficients, block_series(near_degenerate, [1, 2], 2).coefficients, rtol=1e-13, atol=1e-15)
+    b = validity_boundary(near_degenerate, 1, 2, rtol=0.01, treatment="block", coupling=0.3)
+    assert f.ranges[0].upper == b.coupling and b.treatment == "near-degenerate block"
+    # H_eff^(2) of the block: Löwdin partitioning, Σ_m V_am V_mb / (E_a − E_m) over the outside level 0
+    # (Winkler (2003), App. B; from memory): V_10² / (1 − 0) = 0.01 on the (1, 1) entry, the rest zero
+    assert_allclose(np.real(f.coefficients[2]), [[0.01, 0.0], [0.0, 0.0]], atol=1e-15)
+    assert f.rationals[2][0][0] == Fraction(1, 100)
+    with pytest.raises(ValueError, match="give coupling="):
+        formula(near_degenerate, 1, 2, treatment="block")
 
 
 def test_flipping_v_mirrors_the_formula(rng):
@@ -341,12 +435,12 @@ def test_bad_input_is_refused_with_the_value(quartic, kwargs, exc, match):
         formula(quartic, level, order, **kw)
 
 
-def test_quantity_on_block_levels_is_refused():
-    # Hubbard dimer at half filling: the singly occupied states are exactly degenerate (block treatment);
-    # J = E_1 − E_0 by energy rank, as exchange() documents for this model
-    m = ptcheck.models.hubbard_dimer()
-    with pytest.raises(ValueError, match="block treatment"):
-        formula(m, ptcheck.exchange(1, 0), 2)
+def test_quantity_with_an_effective_hamiltonian_level_is_refused(three_level, near_degenerate):
+    # a level whose energy is an eigenvalue of a non-diagonal H_eff has no scalar series: no polynomial quantity
+    with pytest.raises(ValueError, match="no single polynomial formula"):
+        formula(three_level, ptcheck.exchange(1, 0), 2)
+    with pytest.raises(ValueError, match=r"near-degenerate block\)"):
+        formula(near_degenerate, ptcheck.exchange(2, 1), 2, treatment="block", coupling=0.3)
 
 
 # ---------------------------------------------------------------- slide figure
@@ -377,8 +471,8 @@ def test_long_formula_shrinks_instead_of_wrapping(quartic):
     plt.close(art.figure)
 
 
-def test_block_figure_writes_one_line_per_entry(block_formula):
+def test_block_figure_writes_one_line_per_entry(group_formula):
     fig = Figure(figsize=(9.6, 5.4), layout="constrained")
-    art = plot_formula(block_formula, ax=fig.add_subplot())
-    assert art.equation.get_text().split("\n") == list(block_formula.equations)
-    assert len(block_formula.equations) == 3  # H11, H12, H22 of a Hermitian 2x2 matrix
+    art = plot_formula(group_formula, ax=fig.add_subplot())
+    assert art.equation.get_text().split("\n") == list(group_formula.equations)
+    assert len(group_formula.equations) == 3  # H11, H12, H22 of a Hermitian 2x2 matrix
