@@ -1068,7 +1068,7 @@ def quantity_series(
     (2, 0.01)
     """
     _check_model_quantity(model, quantity)
-    order = val.check_int(order, "order", minimum=0)
+    order = val.check_order(order, n=model.n)
     treatment = val.check_choice(treatment, "treatment", TREATMENTS)
     if coupling is not None:
         coupling = val.as_coupling(coupling)
