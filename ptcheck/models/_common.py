@@ -52,7 +52,7 @@ def size(x: Any, name: str, minimum: int, maximum: int = MAX_STATES) -> int:
     """
     k = val.check_int(x, name, minimum=minimum)
     if k > maximum:
-        raise ValueError(f"{name} must be an int <= {maximum} (the size cap of the built-in models); got {k}")
+        raise ValueError(f"{name} must be an int <= {maximum}; got {k} (the size cap of this built-in model)")
     return k
 
 
