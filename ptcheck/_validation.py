@@ -23,6 +23,7 @@ __all__ = [
     "check_finite",
     "check_hermitian",
     "check_int",
+    "check_matrix_size",
     "check_order",
     "check_positive",
     "check_choice",
@@ -70,8 +71,12 @@ def _shape_of(x: Any) -> tuple | None:
         return None
 
 
-def _check_size(shape: tuple, name: str, *, dense: bool, max_dense: int | None, itemsize: int = 8) -> None:
-    """Refuse sizes ptcheck cannot hold, before any copy is made."""
+def check_matrix_size(shape: tuple, name: str, *, dense: bool, max_dense: int | None = None, itemsize: int = 8) -> None:
+    """Refuse a matrix shape ptcheck cannot hold (checked before any copy is made).
+
+    At most :data:`MAX_BASIS_SIZE` rows and columns; a dense matrix (``dense``)
+    at most ``max_dense``; ``itemsize`` (bytes per entry) is used in the message.
+    """
     if len(shape) != 2:
         return  # the caller reports the wrong number of dimensions
     n = max(shape)
@@ -83,8 +88,9 @@ def _check_size(shape: tuple, name: str, *, dense: bool, max_dense: int | None, 
     if dense and max_dense is not None and n > max_dense:
         raise ValueError(
             f"{name} is a dense {shape[0]} x {shape[1]} matrix ({_gb(float(itemsize) * shape[0] * shape[1])}): dense "
-            f"matrices are accepted up to N = {max_dense}. Pass it as a scipy.sparse matrix (e.g. "
-            "scipy.sparse.csr_array of its nonzero entries) or a sparse qutip.Qobj, with h0 diagonal"
+            f"matrices are accepted up to N = {max_dense}. Give it as a sparse matrix instead (scipy.sparse, e.g. "
+            "scipy.sparse.csr_array of its nonzero entries; a sparse qutip.Qobj; or a file written with "
+            "scipy.sparse.save_npz), with h0 diagonal"
         )
 
 
@@ -125,14 +131,14 @@ def as_operator(
             is_dense = True
         shape = _shape_of(x)
         if shape is not None:
-            _check_size(shape, name, dense=is_dense, max_dense=max_dense)
+            check_matrix_size(shape, name, dense=is_dense, max_dense=max_dense)
             if not is_dense and _qobj_nnz(x) > MAX_NONZEROS:
                 raise ValueError(f"{name} has more than {MAX_NONZEROS} stored entries; ptcheck cannot hold it")
         x = x.full() if is_dense else x.to("csr").data_as("csr_matrix")
     if sp.issparse(x):
         if x.ndim != 2:  # pragma: no cover - sparse is always 2-D
             raise ValueError(f"{name} must be a 2-D matrix; got {x.ndim}-D")
-        _check_size(tuple(x.shape), name, dense=False, max_dense=max_dense)
+        check_matrix_size(tuple(x.shape), name, dense=False, max_dense=max_dense)
         if x.nnz > MAX_NONZEROS:
             raise ValueError(
                 f"{name} has {x.nnz} stored entries (shape {x.shape}); ptcheck accepts at most {MAX_NONZEROS}"
@@ -145,7 +151,7 @@ def as_operator(
         return m, dims
     shape = _shape_of(x)
     if shape is not None:
-        _check_size(shape, name, dense=True, max_dense=max_dense, itemsize=_itemsize(x))
+        check_matrix_size(shape, name, dense=True, max_dense=max_dense, itemsize=_itemsize(x))
     try:
         a = np.asarray(x)
     except Exception as exc:  # ragged lists and the like
@@ -154,7 +160,7 @@ def as_operator(
         raise TypeError(f"{name} must hold numbers; got dtype {a.dtype}")
     if a.ndim != 2:
         raise ValueError(f"{name} must be a 2-D matrix; got shape {a.shape}")
-    _check_size(a.shape, name, dense=True, max_dense=max_dense, itemsize=a.dtype.itemsize)
+    check_matrix_size(a.shape, name, dense=True, max_dense=max_dense, itemsize=a.dtype.itemsize)
     a = a.astype(np.result_type(a.dtype, np.float64), copy=False)
     return a, dims
 
