@@ -13,9 +13,10 @@ report or the new one, complete.
   lock is an advisory ``flock`` on ``.<name>.ptcheck-lock`` beside the target,
   removed afterwards (a killed writer's lock is released by the system).
 - **Signals.** SIGINT and SIGTERM are held back while the folder is being
-  written (main thread, POSIX); one that arrives meanwhile stops the writing
-  between two files, the partial folder is removed, and the signal is then
-  delivered as usual.  One that arrives during the swap is delivered after it.
+  written (when called from the main thread): one that arrives meanwhile
+  stops the writing between two files, the partial folder is removed, and the
+  signal is then raised again for its own handler.  One that arrives during
+  the swap is raised after it.
 - **What may be replaced.** A folder is a report when it carries the marker
   file ``.ptcheck-report`` (its fingerprint and file list) or, for reports of
   earlier versions, when every entry looks like a report file.  A folder with
@@ -172,21 +173,36 @@ def _refuse_foreign(target: Path, state: FolderState) -> None:
 # ---------------------------------------------------------------------- signals
 @contextlib.contextmanager
 def _signals_held() -> Iterator[Callable[[], bool]]:
-    """Hold SIGINT and SIGTERM back (main thread, POSIX); yield a "did one arrive?" check.
+    """Hold SIGINT and SIGTERM back; yield a "did one arrive?" check.
 
-    When the block ends the mask is restored and a held signal is delivered
-    (its handler runs: KeyboardInterrupt for SIGINT, for instance).
+    While the block runs, their handlers are replaced by one that only notes
+    the signal (main thread only: elsewhere nothing is held).  When the block
+    ends the handlers are restored and each noted signal is raised again, so
+    its own handler runs then (KeyboardInterrupt for SIGINT, termination for a
+    default SIGTERM, ...).  Ignored signals stay ignored.
     """
-    sigs = {signal.SIGINT, signal.SIGTERM}
-    usable = hasattr(signal, "pthread_sigmask") and threading.current_thread() is threading.main_thread()
-    if not usable:
+    if threading.current_thread() is not threading.main_thread():
         yield lambda: False
         return
-    old = signal.pthread_sigmask(signal.SIG_BLOCK, sigs)
+    caught: list[int] = []
+
+    def note(signum: int, frame: object) -> None:
+        caught.append(signum)
+
+    previous = {}
+    for sig in (signal.SIGINT, signal.SIGTERM):
+        handler = signal.getsignal(sig)
+        if handler is None or handler is signal.SIG_IGN:
+            continue  # not handled from Python, or ignored: leave it as it is
+        previous[sig] = handler
+        signal.signal(sig, note)
     try:
-        yield lambda: bool(sigs & signal.sigpending())
+        yield lambda: bool(caught)
     finally:
-        signal.pthread_sigmask(signal.SIG_SETMASK, old)
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
+        for sig in dict.fromkeys(caught):
+            signal.raise_signal(sig)
 
 
 class _Stopped(Exception):

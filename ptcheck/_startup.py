@@ -5,8 +5,9 @@ the ptcheck command (``python -m ptcheck ...`` or the ``ptcheck`` script),
 Ctrl-C or SIGTERM during that moment ends the process with one line on stderr
 and the exit status 130 / 143, instead of a traceback; nothing has been
 written yet.  :func:`ptcheck.cli.main` takes signal handling over as soon as
-it starts.  In any other process (a notebook, a script or a test importing
-ptcheck) this module does nothing.
+it starts, and hands it back when it returns (the same one line then covers
+the last instants before the process exits).  In any other process (a
+notebook, a script or a test importing ptcheck) this module does nothing.
 """
 
 from __future__ import annotations
@@ -42,7 +43,7 @@ def _is_command_line() -> bool:
 def _quit(signum: int, frame: object) -> None:
     what = "terminated" if signum == signal.SIGTERM else "interrupted"
     try:
-        sys.stderr.write(f"ptcheck: error: {what} while starting; nothing was written\n")
+        sys.stderr.write(f"ptcheck: error: {what} while starting or finishing; no report was being written\n")
         sys.stderr.flush()
     finally:
         os._exit(128 + signum)

@@ -66,7 +66,8 @@ exit status:
   1    check: some order does not meet it
   2    bad input (flags, model file, model, matrices, output folder, existing different report)
   3    internal error (a bug in ptcheck, or out of memory): no verdict
-  130  interrupted (Ctrl-C); 143 terminated (SIGTERM)
+  130  interrupted (Ctrl-C)
+  143  terminated (SIGTERM)
 
 examples:
   ptcheck demo --out q17-report
