@@ -440,12 +440,22 @@ def _as_executor(executor: Any) -> Executor | str | None:
 
 
 def _worker_init() -> None:
-    """Workers of the default pool leave SIGINT to the caller, who stops them."""
+    """Workers of the default pool leave SIGINT to the caller, who stops them, and end quietly on SIGTERM.
+
+    A forked worker inherits the caller's Python signal handlers (the command
+    line turns SIGTERM into an exception): those are reset here.
+    """
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
 
 
 def _stop_pool(pool: ProcessPoolExecutor) -> None:
-    """Terminate the worker processes of a pool now (on an interrupt), then shut it down."""
+    """Terminate the worker processes of a pool now (on an interrupt), then let the pool wind down.
+
+    Its futures are not cancelled first: the pool marks them broken itself
+    once its workers are gone (cancelling them too trips the pool's own
+    bookkeeping on Python 3.11).
+    """
     kill = getattr(pool, "terminate_workers", None)  # Python >= 3.14
     if callable(kill):
         kill()
@@ -455,8 +465,11 @@ def _stop_pool(pool: ProcessPoolExecutor) -> None:
         if p.is_alive():
             p.terminate()
     for p in procs:
-        p.join(timeout=5)
-    pool.shutdown(wait=False, cancel_futures=True)
+        p.join(timeout=10)
+    pool.shutdown(wait=False)
+    manager = getattr(pool, "_executor_manager_thread", None)
+    if manager is not None:
+        manager.join(timeout=10)
 
 
 def _run(jobs: list[_Job], executor: Executor | str | None, progress: ProgressCallback | None) -> list[_Point]:
@@ -480,10 +493,11 @@ def _run(jobs: list[_Job], executor: Executor | str | None, progress: ProgressCa
             done += 1
             report_progress(progress, done, total)
     except BaseException:
-        for fut in futures:
-            fut.cancel()
         if own:
             _stop_pool(executor)
+        else:
+            for fut in futures:
+                fut.cancel()
         raise
     if own:
         executor.shutdown(wait=True)

@@ -198,16 +198,6 @@ def test_validity_map_refuses_before_running(kwargs, exc, words):
         validity_map(never_called, "delta", [1.0, 2.0], **opts)
 
 
-def test_validity_map_accepts_a_dask_client():
-    distributed = pytest.importorskip("distributed")
-    kw = dict(level=0, order=2, rtol=0.01, builder_kwargs={"v": 0.5}, treatment="nondegenerate")
-    ref = validity_map("two_level", "delta", [1.0, 2.0], executor="serial", **kw)
-    with distributed.Client(processes=False, n_workers=1, threads_per_worker=2, dashboard_address=None) as client:
-        on_client = validity_map("two_level", "delta", [1.0, 2.0], executor=client, **kw)
-    np.testing.assert_array_equal(on_client.boundary, ref.boundary)
-    assert on_client.status == ref.status
-
-
 # ---------------------------------------------------------------------- figure export
 @pytest.fixture
 def figure():
