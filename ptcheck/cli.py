@@ -258,6 +258,13 @@ class _Output:
         self.before: str | None = None
 
 
+class _Run:
+    """What one run of the command line has set up so far (for the message after an interrupt)."""
+
+    def __init__(self) -> None:
+        self.out: _Output | None = None
+
+
 def _out_dir(given: str | None, default: str) -> str:
     if given is not None and not given.strip():
         raise ValueError(f"--out is empty; give the report folder, e.g. --out {default}")
@@ -280,13 +287,13 @@ def _write(report: Any, out: _Output, **kw: Any) -> list[Path]:
     return write_report(report, out.target, **kw)
 
 
-def _cmd_check(a: argparse.Namespace, state: dict) -> int:
+def _cmd_check(a: argparse.Namespace, run: _Run) -> int:
     from .approximants import parse_orders
     from .modelfile import load_model_file, parse_level, parse_quantity
     from .report import run_check
 
     given = _out_dir(a.out, f"{Path(a.model).stem}-report")
-    out = state["out"] = _prepare_output(given)
+    out = run.out = _prepare_output(given)
     mf = load_model_file(a.model)
     model = mf.model
     levels: list[Any] = [parse_level(x) for x in a.levels] if a.levels else list(mf.levels)
@@ -317,7 +324,7 @@ def _cmd_check(a: argparse.Namespace, state: dict) -> int:
     return report.exit_status
 
 
-def _cmd_demo(a: argparse.Namespace, state: dict) -> int:
+def _cmd_demo(a: argparse.Namespace, run: _Run) -> int:
     import numpy as np
 
     from .models import kerr_qubit_resonator
@@ -325,7 +332,7 @@ def _cmd_demo(a: argparse.Namespace, state: dict) -> int:
     from .report import run_check
 
     given = _out_dir(a.out, "ptcheck-demo")
-    out = state["out"] = _prepare_output(given)
+    out = run.out = _prepare_output(given)
     model = kerr_qubit_resonator(**DEMO_PARAMS)
     model.name = "Q-17 qubit + readout resonator (invented)"
     lamb = stark_shift((1, 0), (0, 0), name="qubit Lamb shift", units="GHz")
@@ -364,12 +371,12 @@ def _cmd_demo(a: argparse.Namespace, state: dict) -> int:
 
 
 # ---------------------------------------------------------------------- entry point
-def _interrupted(exc: KeyboardInterrupt, state: dict) -> int:
+def _interrupted(exc: KeyboardInterrupt, run: _Run) -> int:
     """One truthful line about what the output folder holds after an interrupt."""
     from .report import read_fingerprint
 
     what = "terminated" if isinstance(exc, _Terminated) else "interrupted"
-    out: _Output | None = state.get("out")
+    out = run.out
     if out is None:
         _err(f"{what}; nothing was written")
     else:
@@ -414,18 +421,18 @@ def _bad_input_types() -> tuple[type[BaseException], ...]:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit status (see the module docstring)."""
-    state: dict = {}
+    run = _Run()
     try:
         with _signal_handlers():
             try:
-                return _main(argv, state)
+                return _main(argv, run)
             except KeyboardInterrupt as exc:
-                return _interrupted(exc, state)
-    except KeyboardInterrupt as exc:  # a second interrupt while the first one was reported
+                return _interrupted(exc, run)
+    except KeyboardInterrupt as exc:  # a second signal while the first one was being reported
         return EXIT_TERMINATED if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
 
 
-def _main(argv: Sequence[str] | None, state: dict) -> int:
+def _main(argv: Sequence[str] | None, run: _Run) -> int:
     parser = build_parser()
     try:
         a = parser.parse_args(argv)
@@ -440,15 +447,11 @@ def _main(argv: Sequence[str] | None, state: dict) -> int:
             if a.command == "models":
                 return _cmd_models()
             if a.command == "demo":
-                return _cmd_demo(a, state)
-            return _cmd_check(a, state)
+                return _cmd_demo(a, run)
+            return _cmd_check(a, run)
         except MemoryError as exc:
             _err(f"internal error: out of memory ({exc or 'no detail'}); no verdict. Ask for a smaller basis or "
                  "fewer orders")
-            return EXIT_INTERNAL_ERROR
-        except RecursionError as exc:
-            _err(f"internal error: RecursionError: {exc} (no verdict). This is a bug in ptcheck: please report it "
-                 "with the command that caused it")
             return EXIT_INTERNAL_ERROR
         except _bad_input_types() as exc:
             _err(exc)
