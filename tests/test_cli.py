@@ -320,6 +320,9 @@ def test_same_check_with_the_model_file_named_another_way_is_the_same_report(tmp
     for spelling in ("tl.toml", "./tl.toml", str(f.resolve())):
         assert main(["check", spelling, "--out", "rep", "--no-figures", "--format", "json"]) == 0, capsys.readouterr().err
     assert json.loads((tmp_path / "rep" / "report.json").read_text())["model"]["source"]["model_file"] == str(f.resolve())
+    # adding figures (and the Markdown summary) to the same check is not a different report either
+    assert main(["check", "tl.toml", "--out", "rep"]) == 0, capsys.readouterr().err
+    assert list((tmp_path / "rep").glob("*.png"))
 
 
 def test_force_without_figures_removes_the_old_figures(tmp_path, capsys):
