@@ -5,6 +5,7 @@ figures live in :mod:`ptcheck.plots`, notebook panels in :mod:`ptcheck.widgets`,
 the command line in :mod:`ptcheck.cli`.
 """
 
+from . import _startup  # noqa: F401  (first: a quiet Ctrl-C while the command line starts)
 from . import models
 from .approximants import Pade, parse_order
 from .blocks import Block, BlockSeries, block_series, find_blocks

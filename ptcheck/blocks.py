@@ -827,7 +827,7 @@ def block_series(
     """
     _require_model(model, "block_series")
     block = sorted(_resolve_levels(model, levels))
-    order = val.check_int(order, "order", minimum=0)
+    order = val.check_order(order, n=model.n)
     method = val.check_choice(method, "method", METHODS)
     rtol = float(val.check_positive(rtol, "rtol"))
     max_iter = val.check_int(max_iter, "max_iter", minimum=1)

@@ -650,7 +650,7 @@ def convergence(
     array([ 2., -2.])
     """
     require_model(m, "convergence")
-    order = val.check_int(order, "order", minimum=2)
+    order = val.check_order(order, n=m.n, minimum=2)
     if coupling is not None:
         coupling = val.as_coupling(coupling)
     ep_search = val.check_choice(ep_search, "ep_search", EP_SEARCH)
@@ -897,7 +897,7 @@ def divergence_map(
     idx = [m.level_index(k) for k in keys]
     if len(set(idx)) != len(idx):
         raise ValueError(f"levels contains duplicates: {list(keys)!r}")
-    order = val.check_int(order, "order", minimum=2)
+    order = val.check_order(order, n=m.n, minimum=2)
     ep_search = val.check_choice(ep_search, "ep_search", EP_SEARCH)
     specs: tuple = ()
     if orders is not None:

@@ -52,7 +52,9 @@ class Model:
         ``labels`` is not given, states are labelled by their quantum numbers,
         e.g. ``(1, 0)``.  Taken from a ``Qobj``'s dims when not given.
     hermitian_rtol : float, default 1e-10
-        Largest allowed ``|A - A^H|`` entry relative to ``max|A|``.
+        Largest allowed ``|A[i,j] - conj(A[j,i])|`` relative to the larger of
+        ``|A[i,j]|`` and ``|A[j,i]|`` (each pair on its own scale), beyond
+        rounding noise (see :func:`ptcheck._validation.check_hermitian`).
     degeneracy_tol : float, optional
         Unperturbed levels closer than this (energy units) count as exactly
         degenerate.  Default: ``1e-9 x`` the spectral scale of ``H0``
@@ -91,13 +93,13 @@ class Model:
         hermitian_rtol: float = 1e-10,
         degeneracy_tol: float | None = None,
     ) -> None:
-        h0m, h0dims = val.as_operator(h0, "h0")
-        vm, vdims = val.as_operator(v, "v")
+        h0m, h0dims = val.as_operator(h0, "h0", max_dense=DENSE_LIMIT)
+        vm, vdims = val.as_operator(v, "v", max_dense=DENSE_LIMIT)
         n = val.check_square_pair(h0m, vm)
         hermitian_rtol = float(val.check_positive(hermitian_rtol, "hermitian_rtol"))
         for nm, m in (("h0", h0m), ("v", vm)):
             val.check_finite(m, nm)
-            val.check_hermitian(m, nm, hermitian_rtol)
+            val.check_hermitian(m, nm, hermitian_rtol, scale=max(val.max_abs(h0m), val.max_abs(vm)))
         if dims is None:
             dims = h0dims if (h0dims is not None and len(h0dims) > 1) else None
         if dims is not None:

@@ -1078,7 +1078,7 @@ def quantity_series(
     (2, 0.01)
     """
     _check_model_quantity(model, quantity)
-    order = val.check_int(order, "order", minimum=0)
+    order = val.check_order(order, n=model.n)
     settings = CheckSettings(treatment=treatment, threshold=threshold, method=method, coupling=coupling)
     cancellation_rtol = float(val.check_positive(cancellation_rtol, "cancellation_rtol"))
 

@@ -16,8 +16,9 @@ parameter, checks the truncation.  The result is a :class:`CheckReport`.
 - ``report.md``: the verdict in plain words, the cautions, tables, and the
   figures (PNG files beside it).
 
-Every file is written atomically (temporary file + ``os.replace``); a
-different existing report is never overwritten unless ``force=True``.
+The folder is written as a whole (a fresh sibling folder swapped in at the
+end: never a mix of old and new files), one writer at a time; a different
+existing report is never replaced unless ``force=True``.
 """
 
 from __future__ import annotations
@@ -36,7 +37,14 @@ from typing import Any
 import numpy as np
 
 from . import _validation as val
-from ._atomic import ReportExistsError, write_all
+from ._atomic import (
+    ReportBusyError,
+    ReportExistsError,
+    ReportFolderError,
+    check_target,
+    folder_state,
+    write_folder,
+)
 from ._progress import ProgressCallback, report_progress
 from .approximants import Pade, order_name, parse_orders
 from .compare import TRUNCATION_NOTE, ComparisonResult, ValidityBoundary, compare, validity_boundary
@@ -52,7 +60,12 @@ __all__ = [
     "VERDICT_STATUSES",
     "Figure",
     "FORMATS",
+    "ReportBusyError",
     "ReportExistsError",
+    "ReportFolderError",
+    "check_out_dir",
+    "read_fingerprint",
+    "report_fingerprint",
     "run_check",
     "write_report",
     "default_figures",
@@ -1150,6 +1163,88 @@ def _fallback_error_figure(report: CheckReport) -> Figure:
 
 
 # ---------------------------------------------------------------------- writing
+#: Files a report folder of an earlier ptcheck version can hold (no marker file).
+_LEGACY_FILES = ("report.json", "report.md", "comparison.csv", "boundaries.csv")
+
+
+def report_fingerprint(report: CheckReport | Mapping[str, Any]) -> str:
+    """Identity of a report: its settings and results, not how it was asked for.
+
+    The SHA-256 of the report's JSON content without the software versions,
+    the figure and file lists and the spelling of the model file's path (the
+    same check run on ``./g.toml`` or ``/home/me/g.toml`` is the same report).
+    Two reports with the same fingerprint say the same thing.
+
+    Parameters
+    ----------
+    report : CheckReport or dict
+        A report, or the content of its ``report.json``.
+
+    Returns
+    -------
+    str
+        64 hexadecimal digits.
+    """
+    import hashlib
+
+    d = report.to_dict() if isinstance(report, CheckReport) else report
+    d = json.loads(json.dumps(d, allow_nan=False))  # a deep copy in JSON form, as report.json holds it
+    for k in ("ptcheck_version", "versions", "figures", "files"):
+        d.pop(k, None)
+    if isinstance(d.get("settings"), dict):
+        d["settings"].pop("ptcheck_version", None)
+    src = (d.get("model") or {}).get("source")
+    if isinstance(src, dict):
+        src.pop("model_file", None)
+    text = json.dumps(d, sort_keys=True, ensure_ascii=True, separators=(",", ":"))
+    return hashlib.sha256(text.encode("ascii")).hexdigest()
+
+
+def _legacy_fingerprint(folder: Path) -> str | None:
+    """Fingerprint of a report written by an earlier version (from its report.json), or None."""
+    try:
+        d = json.loads((folder / "report.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    return report_fingerprint(d) if isinstance(d, dict) else None
+
+
+def _is_report_file(name: str) -> bool:
+    return name in _LEGACY_FILES or (name.endswith(".png") and not name.startswith("."))
+
+
+def read_fingerprint(out_dir: str | Path) -> str | None:
+    """Fingerprint of the report now in ``out_dir`` (None if there is none)."""
+    try:
+        target = check_target(out_dir)
+        st = folder_state(target, report_file=_is_report_file, legacy_fingerprint=_legacy_fingerprint)
+    except (OSError, ValueError):
+        return None
+    return st.fingerprint if st.kind == "report" else None
+
+
+def check_out_dir(out_dir: str | Path) -> Path:
+    """The absolute report folder, or a clear error before any work is done.
+
+    Refused: an empty name, a file, the current folder (or one containing
+    it), and a folder holding entries that are not part of a ptcheck report
+    (the report folder is replaced as a whole).
+
+    Returns
+    -------
+    Path
+    """
+    target = check_target(out_dir)
+    st = folder_state(target, report_file=_is_report_file, legacy_fingerprint=None)
+    if st.kind == "foreign":
+        names = ", ".join(repr(n) for n in st.foreign[:5]) + (" and more" if len(st.foreign) > 5 else "")
+        raise ReportFolderError(
+            f"the output folder {str(out_dir)!r} holds entries that are not part of a ptcheck report ({names}); "
+            "the report folder is replaced as a whole, so choose another folder or move them away"
+        )
+    return target
+
+
 def write_report(
     report: CheckReport,
     out_dir: str | Path,
@@ -1158,13 +1253,22 @@ def write_report(
     figures: FigureMaker | bool = True,
     force: bool = False,
 ) -> list[Path]:
-    """Write a report directory atomically.
+    """Write a report folder as a whole.
+
+    Every file is written into a fresh folder beside ``out_dir``, which then
+    replaces ``out_dir`` in one step: at any moment ``out_dir`` holds the
+    previous report or the new one, complete (an interrupt, a signal or a
+    failed write leaves the previous one).  Files of the previous report that
+    the new one does not have (figures, after ``figures=False``) are gone.  A
+    second writer into the same folder at the same moment gets
+    :class:`ReportBusyError`.  Folders and files follow the umask.
 
     Parameters
     ----------
     report : CheckReport
     out_dir : str or Path
-        Created if missing.
+        The report folder (created with its parents if missing).  Not the
+        current folder, and not a folder with other files in it.
     formats : sequence of {"json", "md", "csv"}
         Default: all three.
     figures : bool or callable
@@ -1172,38 +1276,45 @@ def write_report(
         ``report -> [Figure, ...]`` to make your own.  Figures are written
         with the Markdown summary (which embeds them).
     force : bool
-        Replace a *different* existing report.  Without it,
-        :class:`ReportExistsError` is raised and nothing is written.
+        Replace a *different* existing report (another fingerprint: other
+        settings or results, see :func:`report_fingerprint`).  Without it,
+        :class:`ReportExistsError` is raised and nothing is written.  The same
+        report (e.g. with figures added, or the model file named another way)
+        is replaced without ``force``; an identical one is left untouched.
 
     Returns
     -------
     list of Path
-        Files of the report (written or already identical), the JSON last.
+        Files of the report, the JSON last.
+
+    Raises
+    ------
+    ReportExistsError, ReportBusyError, ReportFolderError
     """
     formats = tuple(dict.fromkeys(formats))
     if not formats:
         raise ValueError("formats is empty; give at least one of json, md, csv")
     for f in formats:
         val.check_choice(f, "format", FORMATS)
-    out = Path(out_dir)
-    if out.exists() and not out.is_dir():
-        raise NotADirectoryError(f"output directory {str(out)!r} is a file")
+    out = check_out_dir(out_dir)
     figs: list[Figure] = []
     if "md" in formats and figures:
         maker = default_figures if figures is True else figures
         if not callable(maker):
             raise TypeError(f"figures must be True, False or a callable report -> figures; got {figures!r}")
         figs = list(maker(report))
-    files: dict[Path, str | bytes] = {}
+    files: dict[str, str | bytes] = {}
     for f in figs:
-        files[out / f.filename] = f.png
+        files[f.filename] = f.png
     if "csv" in formats:
-        files[out / "comparison.csv"] = comparison_csv(report)
-        files[out / "boundaries.csv"] = boundaries_csv(report)
-    names = [p.name for p in files] + (["report.md"] if "md" in formats else []) + (["report.json"] if "json" in formats else [])
+        files["comparison.csv"] = comparison_csv(report)
+        files["boundaries.csv"] = boundaries_csv(report)
+    names = list(files) + (["report.md"] if "md" in formats else []) + (["report.json"] if "json" in formats else [])
     if "md" in formats:
-        files[out / "report.md"] = to_markdown(report, figures=figs, files=names)
+        files["report.md"] = to_markdown(report, figures=figs, files=names)
     if "json" in formats:
-        files[out / "report.json"] = to_json(report, figures=figs, files=names)
-    out.mkdir(parents=True, exist_ok=True)
-    return write_all(files, force=force)
+        files["report.json"] = to_json(report, figures=figs, files=names)
+    return write_folder(
+        out, files, fingerprint=report_fingerprint(report), force=force, report_file=_is_report_file,
+        legacy_fingerprint=_legacy_fingerprint,
+    )

@@ -236,7 +236,7 @@ def rs_series(
     array([-0.5,  0. , -1. ,  0. ,  1. ])
     """
     n = model.level_index(level)
-    order = val.check_int(order, "order", minimum=0)
+    order = val.check_order(order, n=model.n)
     if coupling is not None:
         coupling = val.as_coupling(coupling)
     threshold = float(val.check_positive(threshold, "threshold"))

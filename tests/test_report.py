@@ -136,20 +136,180 @@ def test_overwrite_rules(report, tmp_path):
     assert json.loads((out / "report.json").read_text())["settings"]["coupling"] == 0.25
 
 
-def test_interrupted_write_leaves_no_partial_file(report, tmp_path, monkeypatch):
+def snapshot(folder):
+    """Every entry of a folder and its bytes."""
+    return {p.name: p.read_bytes() for p in sorted(folder.iterdir())}
+
+
+def strays(parent):
+    """Temporary folders, lock files or set-aside reports left beside the report."""
+    return sorted(p.name for p in parent.iterdir() if ".ptcheck-" in p.name)
+
+
+def signal_at_file(monkeypatch, k):
+    """Send SIGINT to this process while the k-th report file is being written (counting from 1)."""
+    import signal
+
+    real = os.fsync
+    calls = {"n": 0}
+
+    def fsync(fd):
+        calls["n"] += 1
+        if calls["n"] == k:
+            os.kill(os.getpid(), signal.SIGINT)
+        return real(fd)
+
+    monkeypatch.setattr("ptcheck._atomic.os.fsync", fsync)
+    return calls
+
+
+@pytest.mark.parametrize("k", [1, 3])
+def test_interrupt_while_writing_leaves_the_previous_report(report, tmp_path, monkeypatch, k):
     out = tmp_path / "r"
-    real_replace = os.replace
-
-    def interrupted(src, dst):
-        if str(dst).endswith("report.json"):
-            raise KeyboardInterrupt  # interrupted just before the final rename
-        real_replace(src, dst)
-
-    monkeypatch.setattr("ptcheck._atomic.os.replace", interrupted)
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    write_report(other, out, formats=["json", "csv", "md"], figures=False)
+    before = snapshot(out)
+    signal_at_file(monkeypatch, k)
     with pytest.raises(KeyboardInterrupt):
-        write_report(report, out, formats=["json", "csv"])
-    assert not (out / "report.json").exists()
-    assert not [p for p in out.iterdir() if p.name.startswith(".")]  # temp files removed
+        write_report(report, out, formats=["json", "csv", "md"], figures=False, force=True)
+    assert snapshot(out) == before  # the previous report, complete and untouched
+    assert strays(tmp_path) == []
+
+
+def test_interrupt_during_the_swap_is_delivered_after_it(report, tmp_path, monkeypatch):
+    out = tmp_path / "r"
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    write_report(other, out, formats=["json", "csv"], figures=False)
+    import signal
+
+    from ptcheck import _atomic
+
+    real_swap = _atomic._swap_in
+
+    def swap(new, target):  # the signal arrives in the middle of the swap
+        os.kill(os.getpid(), signal.SIGINT)
+        return real_swap(new, target)
+
+    monkeypatch.setattr(_atomic, "_swap_in", swap)
+    with pytest.raises(KeyboardInterrupt):
+        write_report(report, out, formats=["json", "csv"], figures=False, force=True)
+    d = json.loads((out / "report.json").read_text())
+    assert d["settings"]["coupling"] == 0.45  # the new report, complete
+    assert sorted(p.name for p in out.iterdir()) == [".ptcheck-report", "boundaries.csv", "comparison.csv", "report.json"]
+    assert rp.read_fingerprint(out) == rp.report_fingerprint(report)
+    assert strays(tmp_path) == []
+
+
+def test_a_failing_file_leaves_the_previous_report(report, tmp_path, monkeypatch):
+    out = tmp_path / "r"
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    write_report(other, out, formats=["json", "csv"], figures=False)
+    before = snapshot(out)
+    real = os.fsync
+    calls = {"n": 0}
+
+    def disk_full(fd):
+        calls["n"] += 1
+        if calls["n"] == 2:
+            raise OSError(28, "No space left on device")
+        return real(fd)
+
+    monkeypatch.setattr("ptcheck._atomic.os.fsync", disk_full)
+    with pytest.raises(OSError, match="No space left"):
+        write_report(report, out, formats=["json", "csv"], figures=False, force=True)
+    assert snapshot(out) == before and strays(tmp_path) == []
+
+
+def test_force_replaces_the_whole_folder(report, tmp_path):
+    out = tmp_path / "r"
+    write_report(report, out, figures=lambda r: [Figure("old.png", "old figure", b"png")])
+    assert (out / "old.png").exists()
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    write_report(other, out, figures=False, force=True)
+    assert not (out / "old.png").exists()  # nothing of the previous report stays behind
+    assert json.loads((out / "report.json").read_text())["settings"]["coupling"] == 0.25
+
+
+def test_same_report_with_figures_added_needs_no_force(report, tmp_path):
+    out = tmp_path / "r"
+    write_report(report, out, figures=False)
+    write_report(report, out, figures=lambda r: [Figure("x.png", "mine", b"png!")])  # same settings and results
+    assert (out / "x.png").read_bytes() == b"png!"
+
+
+def test_fingerprint_is_content_not_spelling(report):
+    d = report.to_dict()
+    d["model"]["source"] = {"model_file": "./g.toml", "kind": "builtin"}
+    e = json.loads(json.dumps(d))
+    e["model"]["source"]["model_file"] = "/somewhere/else/g.toml"
+    e["versions"]["numpy"] = "0.0"
+    assert rp.report_fingerprint(d) == rp.report_fingerprint(e)
+    e["settings"]["coupling"] = 0.5
+    assert rp.report_fingerprint(d) != rp.report_fingerprint(e)
+
+
+def test_files_follow_the_umask(report, tmp_path):
+    old = os.umask(0o027)
+    try:
+        write_report(report, tmp_path / "r", formats=["json"])
+    finally:
+        os.umask(old)
+    assert (tmp_path / "r").stat().st_mode & 0o777 == 0o750
+    assert (tmp_path / "r" / "report.json").stat().st_mode & 0o777 == 0o640
+
+
+@pytest.mark.parametrize("bad", ["", "   "])
+def test_empty_output_folder_is_refused(report, bad):
+    with pytest.raises(ValueError, match="output folder name is empty"):
+        write_report(report, bad)
+
+
+def test_unusable_output_folders_are_refused(report, tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    with pytest.raises(ValueError, match="is the current folder or contains it"):
+        write_report(report, ".")
+    with pytest.raises(ValueError, match="is the current folder or contains it"):
+        write_report(report, tmp_path.parent)
+    (tmp_path / "f").write_text("x")
+    with pytest.raises(ValueError, match="is a file"):
+        write_report(report, tmp_path / "f")
+    mine = tmp_path / "mine"
+    mine.mkdir()
+    (mine / "notes.txt").write_text("keep me")
+    with pytest.raises(ValueError, match=r"not part of a ptcheck report \('notes.txt'\)"):
+        write_report(report, mine, force=True)
+    assert (mine / "notes.txt").read_text() == "keep me"
+
+
+def test_report_of_an_earlier_version_is_recognised(report, tmp_path):
+    out = tmp_path / "r"
+    write_report(report, out, formats=["json", "csv"])
+    (out / ".ptcheck-report").unlink()  # as written by an earlier version: no marker
+    write_report(report, out, formats=["json", "csv"])  # same content: recognised from report.json, no force
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    (out / ".ptcheck-report").unlink()
+    with pytest.raises(ReportExistsError, match="force"):
+        write_report(other, out, formats=["json"])
+
+
+def test_a_second_writer_fails_cleanly_while_the_first_holds_the_folder(report, tmp_path, monkeypatch):
+    from ptcheck import _atomic
+
+    out = tmp_path / "r"
+    real = os.fsync
+    seen = {}
+
+    def nested(fd):  # while the first writer writes, a second one tries the same folder
+        if not seen:
+            with pytest.raises(rp.ReportBusyError, match="another ptcheck process is writing"):
+                seen["busy"] = True
+                _atomic.write_folder(out, {"a.txt": "x"}, fingerprint="other")
+        return real(fd)
+
+    monkeypatch.setattr("ptcheck._atomic.os.fsync", nested)
+    write_report(report, out, formats=["json"])
+    assert seen == {"busy": True}
+    assert json.loads((out / "report.json").read_text())["settings"]["coupling"] == 0.45
 
 
 def test_serializer_failure_writes_nothing(report, tmp_path, monkeypatch):
