@@ -35,7 +35,7 @@ given (for a truncated basis: the truncated model).
 
 Limits
 ------
-* The EP search is dense (one N x N eigenvalue problem per step); with
+* The EP search is dense (one N x N LU factorisation per step); with
   ``ep_search="auto"`` it runs for N <= :data:`EP_DENSE_LIMIT` and is skipped
   with a note above that (and for asymptotic series, whose truncated-basis
   singularities only describe the truncation).
@@ -70,7 +70,7 @@ from typing import Any
 import numpy as np
 
 from . import _validation as val
-from ._exceptional import EPCandidate, ExceptionalPointSearch
+from ._exceptional import EPCandidate, ExceptionalPointSearch, branch_point_guesses
 from ._radius import CoefficientAnalysis, analyse
 from .model import Model
 from .degeneracy import DEFAULT_MIXING_THRESHOLD
@@ -87,11 +87,13 @@ __all__ = [
     "AGREEMENT_RTOL",
 ]
 
-#: Largest basis for which ``ep_search="auto"`` runs the (dense, O(N³) per
-#: step) exceptional-point search.  Larger models skip it with a note; force
-#: it with ``ep_search="always"``.  Rough cost on an idle 2-core machine with
-#: one BLAS thread: N = 50: 0.5 s, N = 100: 4 s, N = 200: 25 s per level.
-EP_DENSE_LIMIT = 120
+#: Largest basis for which ``ep_search="auto"`` runs the dense exceptional-point
+#: search (one LU factorisation of an N x N complex matrix per continuation
+#: step).  Larger models skip it with a note; force it with
+#: ``ep_search="always"``.  Cost with one BLAS thread: about 1 s at N = 120 and
+#: 3-5 s at N = 400 per level, i.e. the time of 15-30 dense complex
+#: eigenvalue computations of the same matrix (``benchmarks/bench_exceptional.py``).
+EP_DENSE_LIMIT = 400
 
 #: Coefficient and singularity radii "agree" when they differ by at most this
 #: fraction of the singularity radius.  The coefficient radius is the median of
@@ -323,10 +325,12 @@ def _dense_v(model: Model) -> np.ndarray:
 
 
 def _ep_guesses(
-    search: ExceptionalPointSearch, level: int, ca: CoefficientAnalysis, reach: float, extra: list[tuple[complex, complex]]
+    search: ExceptionalPointSearch, level: int, ca: CoefficientAnalysis, reach: float, extra: list[tuple[complex, complex]],
+    coefficients: np.ndarray,
 ) -> list[tuple[complex, complex | None]]:
     guesses: list[tuple[complex, complex | None]] = []
     guesses += [(z, None) for z in ca.pade_poles]  # energy: found by continuing the branch
+    guesses += [(z, None) for z in branch_point_guesses(coefficients)]
     guesses += search.pair_guesses(level)
     guesses += search.crossing_guesses(level, reach, points=60 if search.n <= 50 else 25)
     guesses += extra
@@ -403,7 +407,7 @@ def _analyse_level(
         base = r_coef if np.isfinite(r_coef) else (4.0 * kato if np.isfinite(kato) else 1.0)
         reach = 2.5 * max(base, kato if np.isfinite(kato) else 0.0)
         with _one_blas_thread():  # many small dense eigenproblems: threads only add overhead
-            guesses = _ep_guesses(search, level, ca, reach, extra_guesses)
+            guesses = _ep_guesses(search, level, ca, reach, extra_guesses, c)
             eps, n_verified = search.search(level, guesses)
         unsure = [e for e in eps if e.connected is None]
         if unsure:
