@@ -40,13 +40,17 @@ Method
    continued eigenvalue is one of the coalescing pair near λ*.  The partner
    is found by continuing the other member of the pair back to λ = 0.
 
-Dense linear algebra throughout; callers restrict the basis size.
+Dense linear algebra (one LU factorisation of ``H(λ) - σ`` per step) in
+:class:`ExceptionalPointSearch`; :class:`ReducedExceptionalPointSearch` runs
+the same search on a reduced pencil and refines it with products of the sparse
+V only, for models too large to factorise.
 Hermitian symmetry ``H(λ̄) = H(λ)†`` means EPs come in conjugate pairs with
 the same branch structure; only Im λ > 0 is searched.
 """
 
 from __future__ import annotations
 
+import math
 import warnings
 from dataclasses import dataclass
 from typing import Any
@@ -55,7 +59,7 @@ import numpy as np
 import scipy.linalg as sla
 import scipy.sparse as sp
 
-__all__ = ["EPCandidate", "ExceptionalPointSearch", "branch_point_guesses"]
+__all__ = ["EPCandidate", "ExceptionalPointSearch", "ReducedExceptionalPointSearch", "branch_point_guesses"]
 
 
 @dataclass(frozen=True)
@@ -178,7 +182,14 @@ class ExceptionalPointSearch:
 
     # ------------------------------------------------------------------ eigenvalues near a target
     def local(
-        self, lam: complex, sigma: complex, start: np.ndarray | None = None, *, count: int | None = None, rtol: float = 1e-12
+        self,
+        lam: complex,
+        sigma: complex,
+        start: np.ndarray | None = None,
+        *,
+        count: int | None = None,
+        rtol: float = 1e-12,
+        offset: float | None = None,
     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """Eigenvalues of ``H(λ)`` nearest ``σ``, nearest first.
 
@@ -190,7 +201,11 @@ class ExceptionalPointSearch:
         eigenpairs of a full eigendecomposition.  Vectors have unit norm.
         The iteration stops when the sum and product of the two nearest Ritz
         values (smooth even where the two coalesce) change by less than
-        ``rtol`` x the spectral scale.
+        ``rtol`` x the spectral scale.  The factorised shift sits ``offset``
+        (default 1e-9 x scale) off ``σ``, which may be an eigenvalue; the
+        invariant subspace of a coalescing pair is resolved best with a larger
+        offset (e.g. 1e-3 x scale): the inverse of a Jordan block amplifies its
+        two directions by 1/offset² and 1/offset.
         """
         p = min(count or self.BLOCK, self.n)
         if self.solver == "full" or p >= self.n - 1:
@@ -199,7 +214,7 @@ class ExceptionalPointSearch:
             x = r[:, order] / np.linalg.norm(r[:, order], axis=0)
             return w[order], x, x
         escale = self._escale(lam)
-        shift = sigma + self._nudge(escale)
+        shift = sigma + self._nudge(escale if offset is None else offset / 1e-9)
         a, lu = self._shifted(lam, shift)  # a = H(λ) - shift
         q = self._start_block(start, p)
         prev = None
@@ -212,9 +227,13 @@ class ExceptionalPointSearch:
             order = np.argsort(np.abs(theta - sigma), kind="stable")
             theta, s = theta[order], s[:, order]
             key = np.array([theta[0] + theta[1], theta[0] * theta[1] / escale]) if p > 1 else theta[:1]
-            if prev is not None and np.all(np.abs(key - prev) <= rtol * escale):
+            if prev is not None and (
+                np.all(np.abs(key - prev[0]) <= rtol * escale)
+                # the nearest two as a set (their order may flip when the second and third are equidistant)
+                or all(np.min(np.abs(prev[1] - z)) <= rtol * escale for z in theta[:2])
+            ):
                 break
-            prev = key
+            prev = (key, theta)
         x = q @ s
         x /= np.linalg.norm(x, axis=0)
         return theta, x, q
@@ -298,6 +317,31 @@ class ExceptionalPointSearch:
                     lam = complex(lc, gmin / np.sqrt(cc))
                     e = complex(0.5 * (vals[i, j] + vals[i, j + 1]))
                     out.append((lam, e))
+        out.sort(key=lambda t: abs(t[0]))
+        return out
+
+    def ray_guesses(self, level: int, reach: float, *, rays: int = 12) -> list[tuple[complex, complex]]:
+        """EP estimates where the level's branch, followed from 0 along rays, meets a neighbour.
+
+        The branch is continued outwards along ``rays`` rays ``λ = t reach
+        e^{iθ}`` of the upper half plane; near a branch point another
+        eigenvalue comes close to it.  Each interior local minimum of that
+        distance along a ray (and the point where a ray is blocked) is a guess,
+        with the branch's value there.  Costs about ``rays`` x 30 shifted
+        solves: meant for small (reduced) pencils.
+        """
+        out = []
+        for k in range(rays):
+            ray = reach * complex(np.cos((k + 0.5) * np.pi / rays), np.sin((k + 0.5) * np.pi / rays))
+            record: list = []
+            e = self._continue(ray, 0.0, 1.0, complex(self.e0[level]), ray * complex(self.v[level, level]), max_steps=120,
+                               when_blocked="stop", record=record)
+            gaps = [p[2] for p in record]
+            for i in range(1, len(record) - 1):
+                if gaps[i] < gaps[i - 1] and gaps[i] <= gaps[i + 1]:
+                    out.append((complex(record[i][0] * ray), complex(record[i][1])))
+            if e is not None and record and record[-1][0] < 1.0:
+                out.append((complex(record[-1][0] * ray), complex(record[-1][1])))
         out.sort(key=lambda t: abs(t[0]))
         return out
 
@@ -399,6 +443,7 @@ class ExceptionalPointSearch:
         first_step: float | None = None,
         branch_point: float | None = None,
         when_blocked: str = "fail",
+        record: list | None = None,
     ) -> complex | None:
         """Follow one eigenvalue of H(t λ_end) from t0 to t1; None if it gets lost.
 
@@ -412,7 +457,8 @@ class ExceptionalPointSearch:
         then stay below 0.6 x the distance to it.  ``when_blocked='stop'``
         returns the last accepted value instead of None when the path is
         blocked (eight halvings in a row, or steps below 1e-3 of the span: the
-        branch met a coalescence).
+        branch met a coalescence).  ``record``: a list that receives the
+        accepted ``(t, value, distance to the nearest other eigenvalue)``.
         """
         t, e = t0, complex(e_start)
         hist: list[tuple[float, complex]] = []
@@ -437,6 +483,8 @@ class ExceptionalPointSearch:
             if d.size < 2 or d[0] <= 0.25 * d[1]:
                 hist = (hist + [(t, e)])[-2:]
                 t, e, q = tn, complex(w[0]), qn
+                if record is not None:
+                    record.append((t, e, float(np.min(np.abs(w[1:] - w[0]))) if w.size > 1 else math.inf))
                 dt *= 2.0 if d.size < 2 or d[0] <= 0.02 * d[1] else 1.5
                 rejected = 0
             else:
@@ -463,11 +511,15 @@ class ExceptionalPointSearch:
             out += weight * ei
         return complex(out)
 
-    def connect(self, level: int, lam: complex, energy: complex, *, eta: float = 1e-3) -> tuple[bool | None, int]:
-        """Is the EP on the branch of ``level`` along the ray from 0?  And the partner."""
+    def connect(self, level: int, lam: complex, energy: complex, *, eta: float = 1e-3, record: list | None = None) -> tuple[bool | None, int]:
+        """Is the EP on the branch of ``level`` along the ray from 0?  And the partner.
+
+        ``record`` receives the accepted ``(t, value, gap)`` points of the
+        branch's continuation from 0 towards the EP.
+        """
         slope0 = lam * complex(self.v[level, level])
         t_end = 1.0 - eta
-        e_cont = self._continue(lam, 0.0, t_end, complex(self.e0[level]), slope0, branch_point=1.0)
+        e_cont = self._continue(lam, 0.0, t_end, complex(self.e0[level]), slope0, branch_point=1.0, record=record)
         if e_cont is None:
             return None, -1
         pair, _, _ = self.local(t_end * lam, energy, count=3)
@@ -493,6 +545,7 @@ class ExceptionalPointSearch:
         *,
         max_points: int = 4,
         reach_factor: float = 1.5,
+        seeds: np.ndarray | None = None,
     ) -> tuple[list[EPCandidate], int]:
         """Find, verify and connect EPs from the guesses (taken nearest first).
 
@@ -501,7 +554,8 @@ class ExceptionalPointSearch:
         cannot be expected to lead to a nearer one).
 
         Returns the connected (and not-disproved) EPs nearest first and the
-        number of verified EPs found in all.
+        number of verified EPs found in all.  ``seeds`` is accepted for the
+        interface of :class:`ReducedExceptionalPointSearch` and not used.
         """
         found: list[tuple[complex, complex]] = []
         out: list[EPCandidate] = []
@@ -546,3 +600,239 @@ class ExceptionalPointSearch:
                 best = min(best, abs(lam_ep))
         out.sort(key=lambda c: abs(c.coupling))
         return out, len(found)
+
+
+class ReducedExceptionalPointSearch:
+    """EP search for sparse models beyond dense sizes: a reduced basis refined by residuals.
+
+    The pencil ``(H0, V)`` is projected onto a subspace ``W`` (orthonormal
+    columns, Rayleigh–Ritz): ``W`` starts from the unperturbed state of the
+    level, those of its most strongly coupled partners and the
+    Rayleigh–Schrödinger corrections of the level (``seeds``: their span
+    reproduces the energy series to high order, Wigner's 2n + 1 rule).  The
+    dense search (:class:`ExceptionalPointSearch`) runs on the small reduced
+    pencil; each EP it finds is lifted to the full space, where the residual
+    ``‖H(λ*) Z - Z T‖`` of its two-dimensional invariant subspace ``Z`` is
+    measured.  Until it is below ``RTOL`` x the spectral scale the basis is
+    enriched with the residual divided by the diagonal of ``H(λ*) - E*`` (the
+    correction of Davidson's method) and two Krylov powers of it, and the EP is
+    polished again in the larger reduced pencil.  The level's branch is
+    followed from λ = 0 in the reduced pencil (where it starts exactly at
+    ``E_n^(0)``: the unperturbed state is a basis vector), and checked in the
+    full space at four points of the ray (residual of the lifted eigenvector
+    below ``PATH_RTOL`` x scale); a failed check enriches the basis there.  An
+    EP whose path cannot be certified is returned with ``connected=None``.
+
+    Only products with the sparse V are used (no factorisation), so the cost
+    grows linearly with N; memory holds the basis, at most ``MAX_BASIS``
+    complex N-vectors.
+
+    Parameters
+    ----------
+    e0 : (N,) ndarray
+        Unperturbed energies (work basis, ascending).
+    v : (N, N) sparse matrix
+        Perturbation (work basis).
+    """
+
+    MAX_ROUNDS = 40
+    RTOL = 1e-8
+    PATH_RTOL = 1e-6
+    PARTNERS = 6
+    SEED_ORDERS = 40
+
+    def __init__(self, e0: np.ndarray, v: Any) -> None:
+        self.e0 = np.asarray(e0, dtype=float)
+        self.v = sp.csr_matrix(v)
+        self.n = self.e0.size
+        self.scale = float(max(np.ptp(self.e0), np.max(np.abs(self.e0)), 1e-300))
+        self.vscale = float(max(np.max(np.abs(self.v.data)) if self.v.nnz else 0.0, 1e-300))
+        self.vdiag = np.real(self.v.diagonal())
+        self.max_basis = int(max(60, min(400, 2**28 // (32 * max(self.n, 1)))))
+        self.products = 0  # products of V with N-vectors
+        self._reach = math.nan
+
+    def _escale(self, lam: complex) -> float:
+        return self.scale + abs(lam) * self.vscale
+
+    # ------------------------------------------------------------------ guesses
+    def pair_guesses(self, level: int, count: int = 6) -> list[tuple[complex, complex]]:
+        """Two-level EP estimates (λ, E) with Im λ > 0, nearest first (see :class:`ExceptionalPointSearch`)."""
+        row = self.v.getrow(level)
+        out = []
+        vnn = float(self.vdiag[level])
+        for m, q in zip(row.indices, np.abs(row.data)):
+            if m == level or q == 0:
+                continue
+            dlt = self.e0[m] - self.e0[level]
+            dv = float(self.vdiag[m]) - vnn
+            for sgn in (1, -1):
+                lam = -dlt / (dv - sgn * 2j * q)
+                if lam.imag > 0:
+                    out.append((complex(lam), complex(self.e0[level] + lam * vnn + 0.5 * (dlt + lam * dv))))
+        out.sort(key=lambda t: abs(t[0]))
+        return out[:count]
+
+    def crossing_guesses(self, level: int, reach: float, **_: Any) -> list[tuple[complex, complex]]:
+        """Real-axis crossings are looked for in the reduced pencil; here only ``reach`` is kept."""
+        self._reach = float(reach)
+        return []
+
+    # ------------------------------------------------------------------ basis
+    def _start_basis(self, level: int, seeds: np.ndarray | None) -> np.ndarray:
+        row = self.v.getrow(level)
+        with np.errstate(divide="ignore"):
+            strength = np.abs(row.data) / np.maximum(np.abs(self.e0[row.indices] - self.e0[level]), 1e-300)
+        partners = [int(m) for m in row.indices[np.argsort(-strength)] if m != level][: self.PARTNERS]
+        nearest = [int(m) for m in np.argsort(np.abs(self.e0 - self.e0[level]), kind="stable")[: self.PARTNERS + 1]]
+        units = list(dict.fromkeys([level] + partners + nearest))  # the likely partners: coupled or close
+        w = np.zeros((self.n, len(units)), dtype=complex)
+        w[units, np.arange(len(units))] = 1.0
+        if seeds is not None and len(seeds) > 1:
+            extra = np.array(np.asarray(seeds)[1 : self.SEED_ORDERS + 1].T, dtype=complex)
+            w = self._extend(w, extra)
+        return w
+
+    def _extend(self, w: np.ndarray, c: np.ndarray) -> np.ndarray:
+        """``w`` with the columns of ``c`` orthonormalised against it (dependent directions dropped)."""
+        c = c / np.maximum(np.linalg.norm(c, axis=0), 1e-300)
+        for _ in range(2):
+            c = c - w @ (w.conj().T @ c)
+        g = c.conj().T @ c
+        s, u = np.linalg.eigh((g + g.conj().T) / 2)
+        keep = s > 1e-10  # the columns had unit norm before the projection: absolute threshold
+        c = c @ (u[:, keep] / np.sqrt(s[keep]))
+        room = self.max_basis - w.shape[1]
+        return np.hstack([w, c[:, : max(room, 0)]])
+
+    def _apply_h(self, lam: complex, z: np.ndarray) -> np.ndarray:
+        self.products += z.shape[1] if z.ndim == 2 else 1
+        return (self.e0[:, None] * z if z.ndim == 2 else self.e0 * z) + lam * (self.v @ z)
+
+    def _reduce(self, w: np.ndarray, vw: np.ndarray, level: int) -> tuple[ExceptionalPointSearch, np.ndarray, int]:
+        h0r = w.conj().T @ (self.e0[:, None] * w)
+        vr = w.conj().T @ vw
+        d, u = np.linalg.eigh((h0r + h0r.conj().T) / 2)
+        vv = u.conj().T @ ((vr + vr.conj().T) / 2) @ u
+        return ExceptionalPointSearch(d, vv), u, int(np.argmin(np.abs(d - self.e0[level])))
+
+    def _residual(self, red: ExceptionalPointSearch, w: np.ndarray, u: np.ndarray, lam: complex, energy: complex, count: int) -> tuple[float, np.ndarray, np.ndarray]:
+        """Relative residual of the lifted invariant subspace of the ``count`` reduced eigenvalues nearest ``energy``."""
+        _, _, q = red.local(lam, energy, count=count, offset=1e-3 * red._escale(lam))
+        z = w @ (u @ q)
+        hz = self._apply_h(lam, z)
+        r = hz - z @ (z.conj().T @ hz)
+        return float(np.linalg.norm(r) / self._escale(lam)), r, z
+
+    def _corrections(self, lam: complex, energy: complex, r: np.ndarray) -> np.ndarray:
+        d = self.e0 + lam * self.vdiag - energy
+        tiny = 1e-12 * self._escale(lam)
+        d = np.where(np.abs(d) < tiny, tiny, d)
+        p = r / d[:, None]
+        hp = self._apply_h(lam, p)
+        return np.hstack([p, hp, self._apply_h(lam, hp)])
+
+    # ------------------------------------------------------------------ driver
+    def search(
+        self,
+        level: int,
+        guesses: list[tuple[complex, complex | None]],
+        *,
+        max_points: int = 4,
+        reach_factor: float = 1.5,
+        seeds: np.ndarray | None = None,
+    ) -> tuple[list[EPCandidate], int]:
+        """Nearest EPs on the branch of ``level`` (see the class docstring); same return as the dense search."""
+        w = self._start_basis(level, seeds)
+        self.products += w.shape[1]
+        vw = self.v @ w
+        cands: list[tuple[complex, complex]] = []
+        certified: dict[int, bool] = {}
+        n_verified = 0
+        red = u = lr = None
+        for _ in range(self.MAX_ROUNDS):
+            red, u, lr = self._reduce(w, vw, level)
+            if not cands:
+                cands, n_verified = self._global(red, lr, guesses, max_points, reach_factor)
+                if not cands:
+                    return [], n_verified
+            else:
+                polished = [red.polish(lam, e) for lam, e in cands]
+                cands = [c for c in polished if c is not None]  # a spurious EP of a poorer basis may vanish
+                if not cands:
+                    cands, n_verified = self._global(red, lr, guesses, max_points, reach_factor)
+                    if not cands:
+                        return [], n_verified
+            new = []
+            for lam, e in cands:
+                res, r, _ = self._residual(red, w, u, lam, e, 2)
+                if res > self.RTOL:
+                    new.append(self._corrections(lam, e, r))
+            if not new:
+                more, n_verified = self._global(red, lr, guesses + [(lam, e) for lam, e in cands], max_points, reach_factor)
+                nearer = [c for c in more if abs(c[0]) < min(abs(z) for z, _ in cands) * (1 - 1e-6)
+                          and all(abs(c[0] - z) > 1e-6 * abs(z) for z, _ in cands)]
+                if nearer:
+                    cands = sorted(cands + nearer, key=lambda t: abs(t[0]))[:2]
+                    continue
+                new = self._check_paths(red, w, u, lr, cands, certified)
+                if not new:
+                    break
+            before = w.shape[1]
+            w = self._extend(w, np.hstack(new))
+            if w.shape[1] == before:
+                break  # no room or nothing new: stop with what is certified
+            self.products += w.shape[1] - before
+            vw = np.hstack([vw, self.v @ w[:, before:]])
+        if u.shape[0] != w.shape[1]:  # the rounds ran out after an enrichment: reduce once more
+            red, u, lr = self._reduce(w, vw, level)
+            cands = [red.polish(lam, e) or (lam, e) for lam, e in cands]
+        out = []
+        for i, (lam, e) in enumerate(cands):
+            res, _, _ = self._residual(red, w, u, lam, e, 2)
+            if res > 1e3 * self.RTOL:
+                continue  # never converged: not reported
+            ok, ov = red.coalescence(lam, e)
+            if not ok:
+                continue
+            conn, partner_r = red.connect(lr, lam, e)
+            if conn is False:
+                continue
+            if conn and not certified.get(i, False):
+                conn = None
+            partner = -1
+            if partner_r >= 0:  # the partner's reduced state at λ = 0, lifted: an unperturbed state?
+                z = w @ u[:, partner_r]
+                m = int(np.argmax(np.abs(z)))
+                if abs(z[m]) ** 2 > 0.5 and abs(red.e0[partner_r] - self.e0[m]) <= 1e-8 * self.scale:
+                    partner = m
+            out.append(EPCandidate(lam, e, conn, partner, ov))
+        out.sort(key=lambda c: abs(c.coupling))
+        return out, max(n_verified, len(out))
+
+    def _global(self, red: ExceptionalPointSearch, lr: int, guesses: list, max_points: int, reach_factor: float) -> tuple[list[tuple[complex, complex]], int]:
+        """Connected EPs of the reduced pencil from all guesses, nearest two first."""
+        reach = self._reach if np.isfinite(self._reach) else 2.0 * min((abs(g[0]) for g in guesses if g[0]), default=1.0)
+        g = list(guesses) + red.pair_guesses(lr) + red.crossing_guesses(lr, reach, points=25) + red.ray_guesses(lr, reach, rays=8)
+        g = sorted(g, key=lambda t: abs(t[0]))[:16]
+        eps, n_verified = red.search(lr, g, max_points=min(max_points, 2), reach_factor=reach_factor)
+        return [(c.coupling, c.energy) for c in eps if c.connected is not False][:2], n_verified
+
+    def _check_paths(self, red: ExceptionalPointSearch, w: np.ndarray, u: np.ndarray, lr: int, cands: list, certified: dict) -> list[np.ndarray]:
+        """Full-space residuals of the branch at four points of each ray; corrections where too large."""
+        new = []
+        for i, (lam, e) in enumerate(cands):
+            record: list = []
+            conn, _ = red.connect(lr, lam, e, record=record)
+            if conn is not True or not record:
+                certified[i] = False
+                continue
+            ok = True
+            for frac in (0.25, 0.5, 0.75, 0.95):
+                t, val, _ = min(record, key=lambda p: abs(p[0] - frac))
+                res, r, _ = self._residual(red, w, u, t * lam, val, 1)
+                if res > self.PATH_RTOL:
+                    ok = False
+                    new.append(self._corrections(t * lam, val, r))
+            certified[i] = ok
+        return new
