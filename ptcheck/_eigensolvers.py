@@ -550,7 +550,7 @@ class SparseBackend:
         it enters every later probe's search space at no product cost, since
         ``H(λ) Q = H0 Q + λ V Q``.
         """
-        rows = np.ascontiguousarray(svqb(np.asarray(vectors)).T)  # (b, N) orthonormal rows
+        rows = np.ascontiguousarray(svqb(svqb(np.asarray(vectors))).T)  # (b, N) orthonormal rows (twice: the corrections are far from orthogonal)
         h0_rows = rows * self.e0[None, :]
         v_rows = np.ascontiguousarray((self.v @ rows.T).T)
         return ProbeBasis(rows, h0_rows, v_rows, rows.conj() @ h0_rows.T, rows.conj() @ v_rows.T)

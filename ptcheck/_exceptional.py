@@ -138,26 +138,31 @@ class ExceptionalPointSearch:
         Unperturbed energies (work basis, ascending).
     v : (N, N) ndarray
         Perturbation (work basis, dense).
-    solver : {'inverse', 'full'}, default 'inverse'
+    solver : {'auto', 'inverse', 'full'}, default 'auto'
         How the eigenvalues near a target are computed at a complex coupling:
         ``'inverse'`` by block inverse iteration on ``H(λ) - σ`` (one LU
         factorisation, warm-started from the vectors of the previous step);
         ``'full'`` by a full dense eigendecomposition (``scipy.linalg.eig``),
-        the reference the inverse iteration is tested against.
+        the reference the inverse iteration is tested against; ``'auto'``:
+        ``'full'`` for N <= :attr:`FULL_MAX` (where one small ``eig`` costs less
+        than the Python overhead of the iteration), else ``'inverse'``.
     """
+
+    #: largest N for which solver='auto' takes full eigendecompositions
+    FULL_MAX = 48
 
     #: vectors in the inverse-iteration block (the pair, plus guards that place the next eigenvalue)
     BLOCK = 4
     #: largest number of inverse iterations per shift
     MAX_INVERSE_ITER = 40
 
-    def __init__(self, e0: np.ndarray, v: np.ndarray, *, solver: str = "inverse") -> None:
+    def __init__(self, e0: np.ndarray, v: np.ndarray, *, solver: str = "auto") -> None:
         self.e0 = np.asarray(e0, dtype=float)
         self.v = np.asarray(v.toarray() if sp.issparse(v) else v)
         self.n = self.e0.size
         self.scale = float(max(np.ptp(self.e0), np.max(np.abs(self.e0)), 1e-300))
         self.vscale = float(max(np.max(np.abs(self.v)), 1e-300))
-        self.solver = solver
+        self.solver = solver if solver != "auto" else ("full" if self.n <= self.FULL_MAX else "inverse")
         self.eig_calls = 0  # full dense eigendecompositions
         self.factorisations = 0  # LU factorisations of H(λ) - σ
         self._rng = np.random.default_rng(7)
@@ -212,7 +217,7 @@ class ExceptionalPointSearch:
             w, r = self.eig(lam)
             order = np.argsort(np.abs(w - sigma), kind="stable")[:p]
             x = r[:, order] / np.linalg.norm(r[:, order], axis=0)
-            return w[order], x, x
+            return w[order], x, np.linalg.qr(x)[0]  # (near a coalescence the span is poorly resolved)
         escale = self._escale(lam)
         shift = sigma + self._nudge(escale if offset is None else offset / 1e-9)
         a, lu = self._shifted(lam, shift)  # a = H(λ) - shift
@@ -714,7 +719,9 @@ class ReducedExceptionalPointSearch:
         vr = w.conj().T @ vw
         d, u = np.linalg.eigh((h0r + h0r.conj().T) / 2)
         vv = u.conj().T @ ((vr + vr.conj().T) / 2) @ u
-        return ExceptionalPointSearch(d, vv), u, int(np.argmin(np.abs(d - self.e0[level])))
+        # inverse iteration at any size: its block spans a coalescing pair's invariant subspace, which the
+        # (nearly parallel) eigenvectors of a full eigendecomposition do not resolve
+        return ExceptionalPointSearch(d, vv, solver="inverse"), u, int(np.argmin(np.abs(d - self.e0[level])))
 
     def _residual(self, red: ExceptionalPointSearch, w: np.ndarray, u: np.ndarray, lam: complex, energy: complex, count: int) -> tuple[float, np.ndarray, np.ndarray]:
         """Relative residual of the lifted invariant subspace of the ``count`` reduced eigenvalues nearest ``energy``."""
@@ -815,7 +822,7 @@ class ReducedExceptionalPointSearch:
         reach = self._reach if np.isfinite(self._reach) else 2.0 * min((abs(g[0]) for g in guesses if g[0]), default=1.0)
         g = list(guesses) + red.pair_guesses(lr) + red.crossing_guesses(lr, reach, points=25) + red.ray_guesses(lr, reach, rays=8)
         g = sorted(g, key=lambda t: abs(t[0]))[:16]
-        eps, n_verified = red.search(lr, g, max_points=min(max_points, 2), reach_factor=reach_factor)
+        eps, n_verified = red.search(lr, g, max_points=max_points, reach_factor=reach_factor)
         return [(c.coupling, c.energy) for c in eps if c.connected is not False][:2], n_verified
 
     def _check_paths(self, red: ExceptionalPointSearch, w: np.ndarray, u: np.ndarray, lr: int, cands: list, certified: dict) -> list[np.ndarray]:
