@@ -568,7 +568,11 @@ class SparseBackend:
         levels) are converged to ``rtol`` x the spectral scale, the others to
         :data:`PROBE_LOOSE_RTOL` x scale: they only place their energies below
         the tracked ones.  The caller falls back to a tracked step when None is
-        returned.
+        returned.  No random vector is added: "lowest" means lowest in the
+        space the start and its Davidson corrections reach (a state of another
+        symmetry sector with no weight in the start never enters), so the
+        caller must confirm the tracked column's identity (e.g. by its overlap
+        with the perturbative state).
         """
         n = self.model.n
         if self._small() or k >= n - 1:
