@@ -35,10 +35,12 @@ given (for a truncated basis: the truncated model).
 
 Limits
 ------
-* The EP search is dense (one N x N eigenvalue problem per step); with
+* The EP search is dense (one N x N LU factorisation per step); with
   ``ep_search="auto"`` it runs for N <= :data:`EP_DENSE_LIMIT` and is skipped
   with a note above that (and for asymptotic series, whose truncated-basis
-  singularities only describe the truncation).
+  singularities only describe the truncation).  ``ep_search="always"`` runs
+  it above the limit too: for a sparse V as a search in a reduced basis
+  refined until each EP's full-space residual is small.
 * The search starts from guesses (two-level estimates, real-axis avoided
   crossings, Padé poles); it can miss an EP.  A miss shows up as
   ``agreement == 'disagree'`` and the smaller radius is reported.
@@ -70,7 +72,7 @@ from typing import Any
 import numpy as np
 
 from . import _validation as val
-from ._exceptional import EPCandidate, ExceptionalPointSearch
+from ._exceptional import EPCandidate, ExceptionalPointSearch, ReducedExceptionalPointSearch, branch_point_guesses
 from ._radius import CoefficientAnalysis, analyse
 from .model import Model
 from .degeneracy import DEFAULT_MIXING_THRESHOLD
@@ -87,11 +89,13 @@ __all__ = [
     "AGREEMENT_RTOL",
 ]
 
-#: Largest basis for which ``ep_search="auto"`` runs the (dense, O(N³) per
-#: step) exceptional-point search.  Larger models skip it with a note; force
-#: it with ``ep_search="always"``.  Rough cost on an idle 2-core machine with
-#: one BLAS thread: N = 50: 0.5 s, N = 100: 4 s, N = 200: 25 s per level.
-EP_DENSE_LIMIT = 120
+#: Largest basis for which ``ep_search="auto"`` runs the dense exceptional-point
+#: search (one LU factorisation of an N x N complex matrix per continuation
+#: step).  Larger models skip it with a note; force it with
+#: ``ep_search="always"``.  Cost with one BLAS thread: about 1 s at N = 120 and
+#: 3-5 s at N = 400 per level, i.e. the time of 15-30 dense complex
+#: eigenvalue computations of the same matrix (``benchmarks/bench_exceptional.py``).
+EP_DENSE_LIMIT = 400
 
 #: Coefficient and singularity radii "agree" when they differ by at most this
 #: fraction of the singularity radius.  The coefficient radius is the median of
@@ -337,11 +341,20 @@ def _dense_v(model: Model) -> np.ndarray:
     return v.toarray() if hasattr(v, "toarray") else np.asarray(v)
 
 
+def _ep_search(model: Model) -> ExceptionalPointSearch | ReducedExceptionalPointSearch:
+    """The EP search for this model: dense up to EP_DENSE_LIMIT (or for dense V), reduced-basis above for sparse V."""
+    if model.n > EP_DENSE_LIMIT and model.is_sparse:
+        return ReducedExceptionalPointSearch(model.e0, model.v)
+    return ExceptionalPointSearch(model.e0, _dense_v(model))
+
+
 def _ep_guesses(
-    search: ExceptionalPointSearch, level: int, ca: CoefficientAnalysis, reach: float, extra: list[tuple[complex, complex]]
+    search: ExceptionalPointSearch, level: int, ca: CoefficientAnalysis, reach: float, extra: list[tuple[complex, complex]],
+    coefficients: np.ndarray,
 ) -> list[tuple[complex, complex | None]]:
     guesses: list[tuple[complex, complex | None]] = []
     guesses += [(z, None) for z in ca.pade_poles]  # energy: found by continuing the branch
+    guesses += [(z, None) for z in branch_point_guesses(coefficients)]
     guesses += search.pair_guesses(level)
     guesses += search.crossing_guesses(level, reach, points=60 if search.n <= 50 else 25)
     guesses += extra
@@ -408,18 +421,24 @@ def _analyse_level(
     elif model.n >= 2 and not run_ep:
         notes.append(
             f"exceptional-point search skipped (N = {model.n} > {EP_DENSE_LIMIT} for ep_search='auto'; "
-            "pass ep_search='always' to force the dense search)"
+            "pass ep_search='always' to run it: a reduced-basis search for a sparse V, the dense search otherwise)"
             if ep_search == "auto"
             else "exceptional-point search skipped (ep_search='never')"
         )
     if run_ep:
         if search is None:
-            search = ExceptionalPointSearch(model.e0, _dense_v(model))
+            search = _ep_search(model)
         base = r_coef if np.isfinite(r_coef) else (4.0 * kato if np.isfinite(kato) else 1.0)
         reach = 2.5 * max(base, kato if np.isfinite(kato) else 0.0)
         with _one_blas_thread():  # many small dense eigenproblems: threads only add overhead
-            guesses = _ep_guesses(search, level, ca, reach, extra_guesses)
-            eps, n_verified = search.search(level, guesses)
+            guesses = _ep_guesses(search, level, ca, reach, extra_guesses, c)
+            eps, n_verified = search.search(level, guesses, seeds=series.state_coefficients)
+        if isinstance(search, ReducedExceptionalPointSearch):
+            notes.append(
+                f"exceptional points searched in a reduced basis (N = {model.n} with sparse V): each one is verified by "
+                "its full-space residual and the path from λ = 0 is checked at four points; a nearer exceptional point "
+                "that the reduced basis never represented can be missed"
+            )
         unsure = [e for e in eps if e.connected is None]
         if unsure:
             notes.append(
@@ -615,7 +634,10 @@ def convergence(
         Coupling λ at which the optimal truncation order and smallest term
         are reported (and placed relative to the radius in ``summary``).
     ep_search : {'auto', 'always', 'never'}
-        Exceptional-point search: 'auto' runs it for N <= :data:`EP_DENSE_LIMIT`.
+        Exceptional-point search: 'auto' runs it for N <= :data:`EP_DENSE_LIMIT`
+        (dense); 'always' also above, as a reduced-basis search when V is
+        stored sparse (only products with V; tens of seconds for a
+        2^14-state chain) and densely otherwise.
     treatment : {'standard', 'nondegenerate', 'block', 'auto'}, default 'standard'
         Which series is analysed (:mod:`ptcheck.treatment`): by default the
         Rayleigh–Schrödinger series of a non-degenerate level, and for a level
@@ -913,7 +935,7 @@ def divergence_map(
     grid = None if couplings is None else val.as_couplings(couplings)
 
     run_ep = m.n >= 2 and (ep_search == "always" or (ep_search == "auto" and m.n <= EP_DENSE_LIMIT))
-    search = ExceptionalPointSearch(m.e0, _dense_v(m)) if run_ep else None
+    search = _ep_search(m) if run_ep else None
     results: list[ConvergenceResult] = []
     known: list[tuple[complex, complex]] = []
     for n in idx:
