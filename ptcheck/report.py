@@ -1170,7 +1170,10 @@ def write_report(
     figures : bool or callable
         ``True``: :func:`default_figures`; ``False``: no figures; a callable
         ``report -> [Figure, ...]`` to make your own.  Figures are written
-        with the Markdown summary (which embeds them).
+        with the Markdown summary (which embeds them).  A report whose
+        ``extras["formulas"]`` holds :class:`~ptcheck.formula_report.ReportFormulas`
+        also gets ``formula.tex``, ``formula.py`` and (unless ``figures`` is
+        False) the formula figures.
     force : bool
         Replace a *different* existing report.  Without it,
         :class:`ReportExistsError` is raised and nothing is written.
@@ -1194,12 +1197,17 @@ def write_report(
         if not callable(maker):
             raise TypeError(f"figures must be True, False or a callable report -> figures; got {figures!r}")
         figs = list(maker(report))
+    formulas = report.extras.get("formulas")  # ReportFormulas (ptcheck check --formula)
+    if formulas is not None and figures is not False:
+        figs += [Figure(name, caption, png) for name, caption, png in formulas.figures()]
     files: dict[Path, str | bytes] = {}
     for f in figs:
         files[out / f.filename] = f.png
     if "csv" in formats:
         files[out / "comparison.csv"] = comparison_csv(report)
         files[out / "boundaries.csv"] = boundaries_csv(report)
+    if formulas is not None:
+        files.update({out / name: text for name, text in formulas.files().items()})
     names = [p.name for p in files] + (["report.md"] if "md" in formats else []) + (["report.json"] if "json" in formats else [])
     if "md" in formats:
         files[out / "report.md"] = to_markdown(report, figures=figs, files=names)
