@@ -9,10 +9,11 @@ the files :func:`ptcheck.report.write_report` adds to the report directory:
 
 - ``formula.tex``: the equations with their validity ranges (LaTeX text);
 - ``formula.py``: one self-contained Python function per formula;
-- ``formula.png`` (one formula) or ``formula-<target>-order<k>.png``: the
+- ``formula.png`` (one formula) or ``formula-<i>-<target>-order<k>.png``: the
   slide figure of each formula (:func:`ptcheck.plots.plot_formula`).
 
-Used by ``ptcheck check ... --formula``.
+Used by ``ptcheck check ... --formula`` and by the panels' "export formula"
+button (:func:`collect` gathers any formulas for the same files).
 """
 
 from __future__ import annotations
@@ -20,7 +21,7 @@ from __future__ import annotations
 import html
 import keyword
 import tempfile
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -29,7 +30,7 @@ from ._progress import ProgressCallback, report_progress
 from .approximants import Pade, order_name
 from .formula import Formula, formula
 
-__all__ = ["ReportFormulas", "report_formulas"]
+__all__ = ["ReportFormulas", "collect", "report_formulas"]
 
 
 @dataclass(frozen=True, repr=False, eq=False)
@@ -137,9 +138,9 @@ def _one_line(text: str, limit: int = 160) -> str:
 def _header(r: ReportFormulas) -> list[str]:
     version = r.formulas[0].version if r.formulas else ""
     return [
-        f"Formulas exported by ptcheck {version}".rstrip() + f" from the check of {r.title}.",
+        f"Formulas exported by ptcheck {version}".rstrip() + f" from {r.title}.",
         "Each is followed by the range of couplings where it meets the tolerance, checked against exact",
-        "diagonalisation of the model (see report.md / report.json of the same directory).",
+        "diagonalisation of the model.",
     ]
 
 
@@ -169,6 +170,24 @@ def _figure_names(formulas: list[Formula]) -> list[str]:
     if len(formulas) == 1:
         return ["formula.png"]
     return [f"formula-{i + 1}-{_slug(f.target).replace('_', '-') or 'target'}-order{f.order}.png" for i, f in enumerate(formulas)]
+
+
+def collect(formulas: Sequence[Formula], *, title: str, skipped: Sequence[str] = ()) -> ReportFormulas:
+    """Formulas gathered for files: unique function names in ``formula.py`` and figure file names.
+
+    Parameters
+    ----------
+    formulas : sequence of Formula
+    title : str
+        What they come from (model, coupling, tolerance), for the file headers.
+    skipped : sequence of str
+        Targets without a formula, and why.
+    """
+    formulas = list(formulas)
+    return ReportFormulas(
+        formulas=tuple(formulas), function_names=tuple(_unique_names(formulas)),
+        figure_names=tuple(_figure_names(formulas)), skipped=tuple(skipped), title=str(title),
+    )
 
 
 def report_formulas(report: Any, *, progress: ProgressCallback | None = None) -> ReportFormulas:
@@ -221,8 +240,6 @@ def report_formulas(report: Any, *, progress: ProgressCallback | None = None) ->
                 skipped.append(f"{target}, order {order_name(spec)}: {exc}")
         report_progress(progress, i + 1, len(jobs))
     tol = f"relative tolerance {s['rtol']:g}" if s["rtol"] is not None else f"absolute tolerance {s['tol']:g}"
-    title = f"{report.model['name']} at λ = {lam0:g} ({tol}, treatment {s['treatment']!r})"
-    return ReportFormulas(
-        formulas=tuple(formulas), function_names=tuple(_unique_names(formulas)),
-        figure_names=tuple(_figure_names(formulas)), skipped=tuple(skipped), title=title,
-    )
+    title = (f"the check of {report.model['name']} at λ = {lam0:g} ({tol}, treatment {s['treatment']!r}; "
+             "see report.md / report.json beside this file)")
+    return collect(formulas, title=title, skipped=skipped)
