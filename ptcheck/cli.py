@@ -114,7 +114,8 @@ orders: 2, 4, pade2/2, pade2/2@2 (Padé in λ²).
 Give MODEL before the options that take several values (--levels, --orders, --format).
 
 output (in --out, default <MODEL name>-report): report.md (verdict, cautions, tables,
-figures), report.json (everything), comparison.csv, boundaries.csv, figures (*.png).
+figures), report.json (everything), comparison.csv, boundaries.csv, figures (*.png);
+with --formula also formula.tex, formula.py and formula*.png.
 The folder is replaced as a whole (never a mix of old and new files); a
 different existing report is not replaced without --force.
 
@@ -182,6 +183,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="report formats among json, md, csv (default: all three)")
     c.add_argument("--force", action="store_true", help="replace a different report already in DIR")
     c.add_argument("--no-figures", action="store_true", help="write no figures")
+    c.add_argument("--formula", action="store_true",
+                   help="also write formula.tex, formula.py and the formula figure: each target's formula at each "
+                        "order judged, with the range where it meets the tolerance")
 
     sub.add_parser("models", help="list the built-in models and their parameters",
                    description="List the built-in models (for `builtin = ...` in a model file) and their parameters.")
@@ -322,6 +326,13 @@ def _cmd_check(a: argparse.Namespace, run: _Run) -> int:
             backend=backend, builder=mf.builder, params=dict(mf.params) if mf.builder else None, source=source,
             title=mf.title, progress=bar,
         )
+    if a.formula:
+        from dataclasses import replace
+
+        from .formula_report import report_formulas
+
+        with _progress_bar("formulas") as bar:
+            report = replace(report, extras={**report.extras, "formulas": report_formulas(report, progress=bar)})
     files = _write(report, out, formats=a.format or ("json", "md", "csv"), figures=not a.no_figures, force=a.force)
     _print_summary(report, files, Path(given))
     return report.exit_status

@@ -1035,9 +1035,8 @@ def _find_range(model: Model, target: Any, order: int, dirs: tuple[int, ...], se
     words, words_tex = _tol_words(tol, rtol)
     text, tex = _range_words(by_dir, var_tex, scale, unit)
     if all(b.status == "exact_in_sector" for b in found):
-        text = (f"{EXACT_IN_SECTOR} (exact diagonalisation of a whole invariant sector of H0 + λV, not perturbation "
-                "theory: no tolerance is judged)")
-        tex = f"{EXACT_IN_SECTOR} (a whole invariant sector: no tolerance is judged)"
+        # (why: the treatment's reason, in notes)
+        text = tex = f"{EXACT_IN_SECTOR}: no tolerance is judged"
     else:
         text, tex = f"valid to {words} {text}", f"valid to {words_tex} {tex}"
     return ValidityRange(

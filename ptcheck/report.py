@@ -1165,6 +1165,8 @@ def _fallback_error_figure(report: CheckReport) -> Figure:
 # ---------------------------------------------------------------------- writing
 #: Files a report folder of an earlier ptcheck version can hold (no marker file).
 _LEGACY_FILES = ("report.json", "report.md", "comparison.csv", "boundaries.csv")
+#: Files a report holds besides those: written with ``--formula``.
+_FORMULA_FILES = ("formula.tex", "formula.py")
 
 
 def report_fingerprint(report: CheckReport | Mapping[str, Any]) -> str:
@@ -1210,7 +1212,7 @@ def _legacy_fingerprint(folder: Path) -> str | None:
 
 
 def _is_report_file(name: str) -> bool:
-    return name in _LEGACY_FILES or (name.endswith(".png") and not name.startswith("."))
+    return name in _LEGACY_FILES or name in _FORMULA_FILES or (name.endswith(".png") and not name.startswith("."))
 
 
 def read_fingerprint(out_dir: str | Path) -> str | None:
@@ -1274,7 +1276,10 @@ def write_report(
     figures : bool or callable
         ``True``: :func:`default_figures`; ``False``: no figures; a callable
         ``report -> [Figure, ...]`` to make your own.  Figures are written
-        with the Markdown summary (which embeds them).
+        with the Markdown summary (which embeds them).  A report whose
+        ``extras["formulas"]`` holds :class:`~ptcheck.formula_report.ReportFormulas`
+        also gets ``formula.tex``, ``formula.py`` and (unless ``figures`` is
+        False) the formula figures.
     force : bool
         Replace a *different* existing report (another fingerprint: other
         settings or results, see :func:`report_fingerprint`).  Without it,
@@ -1303,12 +1308,17 @@ def write_report(
         if not callable(maker):
             raise TypeError(f"figures must be True, False or a callable report -> figures; got {figures!r}")
         figs = list(maker(report))
+    formulas = report.extras.get("formulas")  # ReportFormulas (ptcheck check --formula)
+    if formulas is not None and figures is not False:
+        figs += [Figure(name, caption, png) for name, caption, png in formulas.figures()]
     files: dict[str, str | bytes] = {}
     for f in figs:
         files[f.filename] = f.png
     if "csv" in formats:
         files["comparison.csv"] = comparison_csv(report)
         files["boundaries.csv"] = boundaries_csv(report)
+    if formulas is not None:
+        files.update(dict(formulas.files()))
     names = list(files) + (["report.md"] if "md" in formats else []) + (["report.json"] if "json" in formats else [])
     if "md" in formats:
         files["report.md"] = to_markdown(report, figures=figs, files=names)
