@@ -134,7 +134,7 @@ def test_no_figures_keeps_tex_and_py(tmp_path):
     np.savez(tmp_path / "m.npz", h0=np.diag([-DELTA / 2, DELTA / 2]), v=np.array([[0.0, V], [V, 0.0]]))
     toml.write_text('[model]\nmatrices = "m.npz"\n[check]\ncoupling = 0.25\n', encoding="utf-8")
     assert main(["check", str(toml), "--formula", "--no-figures", "--format", "json", "--out", str(tmp_path / "r")]) == 0
-    assert sorted(p.name for p in (tmp_path / "r").iterdir()) == ["formula.py", "formula.tex", "report.json"]
+    assert sorted(p.name for p in (tmp_path / "r").iterdir() if not p.name.startswith(".")) == ["formula.py", "formula.tex", "report.json"]
 
 
 def test_skipped_targets_say_why_and_names_stay_unique():
