@@ -309,7 +309,7 @@ class Model:
         self._sectors: tuple[Sector, ...] | None = None
         self._symmetry_degeneracies: tuple | None = None
         self._restricted: dict[int, Model] = {}
-        self._offset_free_model: Model | None = None
+        self._offset_free_model: tuple[Model, float] | None = None
 
     @classmethod
     def _from_parts(cls, **parts: Any) -> Model:
@@ -543,18 +543,28 @@ class Model:
         )
         return sub
 
-    def _offset_free(self) -> Model:
-        """The same model with ``e0 = e0_relative`` (exact solvers work on it; private, cached)."""
-        if self.energy_offset == 0.0:
-            return self
+    def _offset_free(self) -> tuple[Model, float]:
+        """This model with its own energy centre removed (exact solvers work on it; private, cached).
+
+        Returns ``(model, c)``: a copy whose ``e0`` is ``e0_relative − c``,
+        with ``c`` the lower median of ``e0_relative`` (for a sub-model: of its
+        sector, so that a sector far from the whole model's offset keeps the
+        accuracy of its own energies).  Absolute energy = energy of the copy
+        + ``c`` + ``energy_offset``.
+        """
         if self._offset_free_model is None:
+            k = (self.n - 1) // 2
+            c = float(np.partition(self.e0_relative, k)[k]) if self.n else 0.0
+            e0 = np.ascontiguousarray(self.e0_relative - c)
+            e0.setflags(write=False)
             m = object.__new__(Model)
             m.__dict__.update(self.__dict__)
-            m.e0 = self.e0_relative
+            m.e0 = e0
+            m.e0_relative = e0
             m.energy_offset = 0.0
             m._restricted = {}
             m._offset_free_model = None
-            self._offset_free_model = m
+            self._offset_free_model = (m, c)
         return self._offset_free_model
 
     # ------------------------------------------------------------------ series

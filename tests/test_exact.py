@@ -368,12 +368,21 @@ def test_unknown_backend_lists_the_names():
 
 def test_dense_methods_refuse_a_huge_basis():
     n = DENSE_LIMIT + 1
-    m = Model(sp.diags(np.arange(n, dtype=float)).tocsr(), sp.csr_matrix((n, n)), name="huge diagonal")
+    chain = sp.diags([np.ones(n - 1), np.ones(n - 1)], [-1, 1], format="csr")  # one sector of N states
+    m = Model(sp.diags(np.arange(n, dtype=float)).tocsr(), chain, name="huge chain")
     with pytest.raises(BasisTooLargeError, match=f"N = {n} > DENSE_LIMIT"):
         ExactSolver(m, backend="dense")
     with pytest.raises(BasisTooLargeError, match="DENSE_LIMIT"):
         eigenpairs(m, 0.1, backend="sparse")  # all N eigenpairs need a dense solve
     assert ExactSolver(m).backend == "sparse"
+    # the dense backend works sector by sector: N uncoupled states are N sectors of one state
+    free = Model(sp.diags(np.arange(n, dtype=float)).tocsr(), sp.diags(np.full(n, 0.5)).tocsr(), name="huge diagonal")
+    sw = ExactSolver(free, backend="dense").track([0, 7], [0.2])
+    # E = E0 + λ V_nn for a diagonal V (common practice, no source); the shift carries no offset rounding
+    assert_allclose(sw.shifts[:, 0], [0.1, 0.1], rtol=1e-15)
+    assert_allclose(sw.energies[:, 0], [0.1, 7.1], atol=1e-12)
+    with pytest.raises(BasisTooLargeError, match="DENSE_LIMIT"):
+        eigenpairs(free, 0.1, backend="sparse")
 
 
 def test_bad_couplings_levels_and_k():
