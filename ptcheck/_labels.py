@@ -56,11 +56,12 @@ class LevelNames:
         The two user states of an involution pair (-1 elsewhere); ``pair_plus``
         (n,) bool: the ``+`` combination.  ``paired_level`` (n_user,): the
         work level made from user state u (-1 if u is not paired).
-    groups : dict or None
-        user index -> (kind, user members, work levels) for user states that
-        went into combinations: kind ``"mixed"`` (good states of a degenerate
-        group that V mixes) or ``"operator <name>"`` (eigenstates of a
-        declared operator).
+    groups : (group_of, group_list) or None
+        For user states that went into combinations: ``group_of`` (n_user,)
+        int array (-1: none) into ``group_list`` of ``(kind, user members,
+        work levels)``; kind ``"mixed"`` (good states of a degenerate group
+        that V mixes) or ``"operator <name>"`` (eigenstates of a declared
+        operator).
     pair_operator : str
         Name of the operator that pairs states (for messages).
     """
@@ -77,7 +78,7 @@ class LevelNames:
         pair_hi: np.ndarray | None = None,
         pair_plus: np.ndarray | None = None,
         paired_level: np.ndarray | None = None,
-        groups: dict | None = None,
+        groups: tuple | None = None,
         pair_operator: str = "",
         lookup: dict | None = None,
     ) -> None:
@@ -93,7 +94,7 @@ class LevelNames:
         self.pair_hi = pair_hi
         self.pair_plus = pair_plus
         self.paired_level = paired_level
-        self.groups = groups or {}
+        self.groups = groups
         self.pair_operator = pair_operator
         self._lookup = lookup
 
@@ -172,10 +173,12 @@ class LevelNames:
                     + " and ".join(parts)
                     + "; address those levels by energy rank or by their names"
                 )
-            if u in self.groups:
-                kind, members, levels = self.groups[u]
-                names = ", ".join(repr(self.user_label(m)) for m in members)
-                ranks = [int(self.ranks[x]) for x in levels]
+            g = int(self.groups[0][u]) if self.groups is not None else -1
+            if g >= 0:
+                kind, members, levels = self.groups[1][g]
+                shown = [repr(self.user_label(int(m))) for m in members[:8]]
+                names = ", ".join(shown) + (", …" if members.size > 8 else "")
+                ranks = [int(self.ranks[x]) for x in levels[:16]] + (["…"] if levels.size > 16 else [])
                 if kind == "mixed":
                     raise AmbiguousLevelError(
                         f"level {key!r} is ambiguous: it lies in an exactly degenerate group of H0 ({names}) that V "
@@ -209,11 +212,13 @@ class LevelNames:
             mine = np.where(own >= 0, loc[safe], -1)
             theirs = np.where(other >= 0, loc[np.maximum(other, 0)], -1)
             paired = np.where(mine >= 0, mine, theirs)
-        groups = {}
-        for u, (kind, members, lv) in self.groups.items():
-            sub = tuple(int(loc[x]) for x in lv if loc[x] >= 0)
-            if sub:
-                groups[u] = (kind, members, sub)
+        groups = None
+        if self.groups is not None:
+            group_of, group_list = self.groups
+            kept = [(kind, members, loc[lv][loc[lv] >= 0]) for kind, members, lv in group_list]
+            alive = np.array([k[2].size > 0 for k in kept] + [False])
+            group_of = np.where(alive[group_of], group_of, -1)
+            groups = (group_of, kept)
         return LevelNames(
             labels=self.labels,
             dims=self.dims,

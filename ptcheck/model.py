@@ -129,8 +129,9 @@ class Model:
     Notes
     -----
     Work-basis order: ascending E0; among levels with equal E0 (to
-    round-off), ascending first-order shift ⟨V⟩, then sector index, then the
-    order of the user's basis.
+    round-off), ascending sector index, then ascending first-order shift
+    ⟨V⟩, then the order of the user's basis (so each exactly degenerate group
+    of a sector is a run of consecutive indices).
 
     Examples
     --------
@@ -202,18 +203,19 @@ class Model:
         cons = sec.diagonalise_conserved(ops, t0, comp, cid) if ops else sec.ConservedBasis(values=np.zeros((n, 0)))
         sector_of, info = sec.sector_ids(comp, cons.values, e0_rel)
         names = sec.sector_names(info, [nm for nm, _ in ops])
-        vpre = _v_in_basis(vm, t0, cons)
-        vpre = _zero_between_sectors(vpre, sector_of)
-
-        # ---- good states inside (sector ∩ equal-energy run) --------------------------
-        vpre, rot3, mixed_groups, big_groups = _good_states(vpre, sector_of, cid, hermitian_rtol)
-        vdiag = np.real(np.asarray(vpre.diagonal() if sp.issparse(vpre) else np.diag(vpre)))
-        vscale = val.max_abs(vpre)
-        shift = np.round(vdiag / (1e-9 * vscale)) if vscale > 0 else np.zeros(n)
-        perm = np.lexsort((np.arange(n), sector_of, shift, e0_rel))
+        # ---- V in the sector basis, good states inside (sector ∩ equal-energy run), order ----
+        if sp.issparse(vm) and t0 is None and (cons.rotation is None or (cons.rep is not None and not cons.general)):
+            v_work, perm, rot3, mixed_groups, big_groups = _sparse_work_v(vm, cons, sector_of, e0_rel, cid, hermitian_rtol, bool(ops))
+        else:
+            vpre = _zero_between_sectors(_v_in_basis(vm, t0, cons), sector_of)
+            vpre, rot3, mixed_groups, big_groups = _good_states(vpre, sector_of, cid, hermitian_rtol)
+            vdiag = np.real(np.asarray(vpre.diagonal() if sp.issparse(vpre) else np.diag(vpre)))
+            vscale = val.max_abs(vpre)
+            shift = np.round(vdiag / (1e-9 * vscale)) if vscale > 0 else np.zeros(n)
+            perm = np.lexsort((np.arange(n), shift, sector_of, e0_rel))
+            v_work = _permute(vpre, perm)
         inv = np.empty(n, dtype=np.int64)
         inv[perm] = np.arange(n)
-        v_work = _permute(vpre, perm)
         v_work = _realify(v_work)
         if sp.issparse(v_work):
             v_work = sp.csr_matrix(v_work)
@@ -241,7 +243,7 @@ class Model:
             degeneracy_tol=degeneracy_tol,
             level_sectors=sector_of[perm],
             sector_info=tuple((q, nm) for (_, q), nm in zip(info, names)),
-            ambiguous=frozenset(int(i) for i in inv[np.flatnonzero(ambiguous_pos)]),
+            ambiguous=ambiguous_pos[perm],
             names=names_table,
             transform=transform,
             conserved_names=tuple(nm for nm, _ in ops),
@@ -266,7 +268,7 @@ class Model:
         degeneracy_tol: float,
         level_sectors: np.ndarray,
         sector_info: tuple,
-        ambiguous: frozenset,
+        ambiguous: np.ndarray,
         names: LevelNames,
         transform: Any,
         conserved_names: tuple,
@@ -296,16 +298,18 @@ class Model:
         level_sectors.setflags(write=False)
         self.level_sectors = level_sectors
         self._sector_info = sector_info
-        self.ambiguous_levels = ambiguous
+        self._ambiguous_mask = np.asarray(ambiguous, dtype=bool)
+        self._ambiguous: frozenset | None = None
         self._names = names
         self._transform = transform
         self.conserved_names = conserved_names
         self.coupling_scale = coupling_scale
         self.coupling_unit = coupling_unit
         self.parent_levels = parent_levels
-        self.degenerate_groups = _groups_in_sectors(self.e0_relative, self.level_sectors, self.degeneracy_tol)
+        self._group_id = _group_ids(self.e0_relative, self.level_sectors, self.degeneracy_tol)
+        self._groups: tuple | None = None
+        self._group_cache: dict[int, tuple[int, ...]] = {}
         self._norm_v: float | None = None
-        self._group_of: np.ndarray | None = None
         self._sectors: tuple[Sector, ...] | None = None
         self._symmetry_degeneracies: tuple | None = None
         self._restricted: dict[int, Model] = {}
@@ -449,15 +453,36 @@ class Model:
         """
         return self._names.text(level)
 
+    @property
+    def ambiguous_levels(self) -> frozenset:
+        """Levels whose user label cannot be attached to one perturbed level (see class docstring)."""
+        if self._ambiguous is None:
+            self._ambiguous = frozenset(int(i) for i in np.flatnonzero(self._ambiguous_mask))
+        return self._ambiguous
+
+    @property
+    def degenerate_groups(self) -> tuple[tuple[int, ...], ...]:
+        """Groups (size >= 2) of exactly degenerate levels inside one sector, sorted by first level."""
+        if self._groups is None:
+            gid = self._group_id
+            if not np.any(gid >= 0):
+                self._groups = ()
+            else:
+                order = np.argsort(gid, kind="stable")
+                order = order[gid[order] >= 0]
+                bounds = np.flatnonzero(np.diff(gid[order])) + 1
+                parts = np.split(order, bounds)
+                self._groups = tuple(tuple(int(x) for x in p) for p in sorted(parts, key=lambda p: p[0]))
+        return self._groups
+
     def degenerate_group_of(self, level: int) -> tuple[int, ...] | None:
         """The exactly degenerate group (inside the level's sector) containing ``level``, or ``None``."""
-        if self._group_of is None:
-            g = np.full(self.n, -1, dtype=np.int64)
-            for k, grp in enumerate(self.degenerate_groups):
-                g[list(grp)] = k
-            self._group_of = g
-        k = int(self._group_of[level])
-        return self.degenerate_groups[k] if k >= 0 else None
+        k = int(self._group_id[level])
+        if k < 0:
+            return None
+        if k not in self._group_cache:
+            self._group_cache[k] = tuple(int(x) for x in np.flatnonzero(self._group_id == k))
+        return self._group_cache[k]
 
     # ------------------------------------------------------------------ sectors
     @property
@@ -517,8 +542,6 @@ class Model:
         q, nm = self._sector_info[k]
         base = self.parent_levels
         parent = tuple(int(x) for x in levels) if base is None else tuple(base[int(x)] for x in levels)
-        local = np.full(self.n, -1, dtype=np.int64)
-        local[levels] = np.arange(levels.size)
         sub = Model._from_parts(
             name=f"{self.name} [{nm}]" if len(self._sector_info) > 1 else self.name,
             n=int(levels.size),
@@ -533,7 +556,7 @@ class Model:
             degeneracy_tol=self.degeneracy_tol,
             level_sectors=np.zeros(levels.size, dtype=np.int64),
             sector_info=((q, nm),),
-            ambiguous=frozenset(int(local[i]) for i in self.ambiguous_levels if local[i] >= 0),
+            ambiguous=self._ambiguous_mask[levels],
             names=self._names.restrict(levels),
             transform=t[:, levels] if not sp.issparse(t) else t.tocsc()[:, levels].tocsr(),
             conserved_names=self.conserved_names,
@@ -643,17 +666,13 @@ def _realify(m: Any) -> Any:
 
 
 def _v_in_basis(v: Any, t0: Any, cons: sec.ConservedBasis) -> Any:
-    """V in the unperturbed basis rotated by the conserved operators' eigenvectors."""
+    """V in the unperturbed basis rotated by the conserved operators' eigenvectors (general path)."""
     rot = cons.rotation
     if t0 is None and rot is None:
         return v.copy()
-    if t0 is None and cons.rep is not None and not cons.general:
+    if t0 is None and cons.rep is not None and not cons.general and not sp.issparse(v):
         # involution pairs: <a|V|b> = c_a <rep_a|V|b> within a sector (P commutes with V)
-        w = (v[cons.rep] @ rot) if sp.issparse(v) else v[cons.rep] @ rot.toarray()
-        if sp.issparse(w):
-            w = sp.csr_matrix(w)
-            w.data *= np.repeat(cons.rep_scale, np.diff(w.indptr))
-            return w
+        w = v[cons.rep] @ rot.toarray()
         return w * cons.rep_scale[:, None]
     if t0 is None:
         basis = rot
@@ -672,11 +691,13 @@ def _v_in_basis(v: Any, t0: Any, cons: sec.ConservedBasis) -> Any:
 def _zero_between_sectors(v: Any, sector_of: np.ndarray) -> Any:
     """Set V's elements between different sectors to exactly zero."""
     if sp.issparse(v):
-        c = sp.coo_matrix(v)
-        keep = sector_of[c.row] == sector_of[c.col]
+        v = sp.csr_matrix(v)
+        rows = np.repeat(np.arange(v.shape[0]), np.diff(v.indptr))
+        keep = sector_of[rows] == sector_of[v.indices]
         if np.all(keep):
-            return sp.csr_matrix(v)
-        return sp.csr_matrix((c.data[keep], (c.row[keep], c.col[keep])), shape=v.shape)
+            return v
+        indptr = np.concatenate([[0], np.cumsum(np.bincount(rows[keep], minlength=v.shape[0]))])
+        return sp.csr_matrix((v.data[keep], v.indices[keep], indptr), shape=v.shape)
     if np.all(sector_of == sector_of[0]):
         return v
     out = np.array(v, copy=True)
@@ -699,8 +720,11 @@ def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) ->
     vscale = val.max_abs(v)
     tol = rtol * max(vscale, 1e-300)
     if sp.issparse(v):
-        c = sp.coo_matrix(v)
-        r, cc, d = c.row, c.col, c.data
+        v = sp.csr_matrix(v)
+        r = np.repeat(np.arange(n), np.diff(v.indptr))
+        cc, d = v.indices, v.data
+        cand = counts[key[r]] >= 2
+        r, cc, d = r[cand], cc[cand], d[cand]
         sel = (r != cc) & (key[r] == key[cc]) & (np.abs(d) > tol)
         mixing = np.unique(key[r[sel]])
     else:
@@ -737,7 +761,16 @@ def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) ->
     dtype = np.result_type(*[x.dtype for x in data], np.float64)
     rot = sp.csr_matrix((np.concatenate(data).astype(dtype), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
     if sp.issparse(v):
-        v = (rot.conj().T @ v @ rot).tocsr()
+        # only rows and columns of rotated groups change: V' = V_rest + R^H V_touched R
+        rows = np.repeat(np.arange(n), np.diff(v.indptr))
+        hit = touched[rows] | touched[v.indices]
+        keep = sp.csr_matrix(
+            (v.data[~hit], v.indices[~hit], np.concatenate([[0], np.cumsum(np.bincount(rows[~hit], minlength=n))])), shape=v.shape
+        )
+        part = sp.csr_matrix(
+            (v.data[hit], v.indices[hit], np.concatenate([[0], np.cumsum(np.bincount(rows[hit], minlength=n))])), shape=v.shape
+        )
+        v = (keep + (rot.conj().T @ part @ rot)).tocsr()
     else:
         v = np.array(v, dtype=np.result_type(v.dtype, dtype))
         for idx in rotated:
@@ -745,6 +778,105 @@ def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) ->
             v[:, idx] = v[:, idx] @ u
             v[idx, :] = u.conj().T @ v[idx, :]
     return v, rot, rotated, too_big
+
+
+def _selector(cols: np.ndarray, n_rows: int, n_cols: int, data: np.ndarray | None = None) -> sp.csr_matrix:
+    """CSR with one entry per row: row k -> column ``cols[k]`` (rows with ``cols < 0`` empty)."""
+    ok = cols >= 0
+    indptr = np.concatenate([[0], np.cumsum(ok)])
+    vals = np.ones(int(ok.sum())) if data is None else data[ok]
+    return sp.csr_matrix((vals, cols[ok], indptr), shape=(n_rows, n_cols))
+
+
+def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: np.ndarray, cid: np.ndarray, rtol: float, declared: bool) -> tuple:
+    """Work-basis V for a diagonal H0 and sparse V, with compiled sparse kernels only.
+
+    Every step is a sparse product, row selection or sum (no per-element
+    Python or NumPy gathers over V's non-zeros), so a 2^18-state chain is
+    cheap.  Returns ``(V_work, perm, good-state rotation in positions,
+    rotated groups, groups too large to rotate)``.
+    """
+    n = v.shape[0]
+    v = sp.csr_matrix(v)
+    perm0 = np.lexsort((np.arange(n), sector_of, e0))
+    inv0 = np.empty(n, dtype=np.int64)
+    inv0[perm0] = np.arange(n)
+    sec_w = sector_of[perm0]
+    if cons.rep is None:
+        v0 = (v[perm0] @ _selector(inv0, n, n)).tocsr()  # V[perm0][:, perm0]
+        if declared:
+            v0 = _zero_between_sectors(v0, sec_w)
+    else:
+        # involution pairs: <a|V|b> = c_a <rep_a|V|b> for b in a's sector (P commutes with V); the
+        # columns of V fold onto the combination of each pair that lies in the row's half (+1 / -1 / none)
+        rot = sp.csr_matrix(cons.rotation)
+        rot.sort_indices()
+        half = np.sign(np.nan_to_num(cons.values[:, 0], nan=0.0)).astype(np.int64)  # per position
+        per_k = np.diff(rot.indptr)
+        parts, rows = [], []
+        for h in np.unique(half):
+            # column of user state k in half h: the position of its combination with that half
+            col = np.full(n, -1, dtype=np.int64)
+            coef = np.zeros(n, dtype=rot.dtype)
+            for j in range(2):
+                has = per_k > j
+                at = rot.indptr[:-1][has] + j
+                pos = rot.indices[at]
+                mine = half[pos] == h
+                k = np.flatnonzero(has)[mine]
+                col[k] = inv0[pos[mine]]
+                coef[k] = rot.data[at][mine]
+            w_rows = np.flatnonzero(half[perm0] == h)  # work rows of this half
+            src = cons.rep[perm0[w_rows]]
+            scale = sp.diags(cons.rep_scale[perm0[w_rows]], format="csr")
+            parts.append(scale @ v[src] @ _selector(col, n, n, coef))
+            rows.append(w_rows)
+        order = np.empty(n, dtype=np.int64)
+        order[np.concatenate(rows)] = np.arange(n)
+        v0 = sp.vstack(parts, format="csr")[order]
+    v0.sum_duplicates()
+
+    # good states: groups (sector, equal-energy run) that V mixes, found with an indicator product
+    key = cid[perm0] * (int(sec_w.max()) + 1 if n else 1) + sec_w  # ascends along perm0: groups are contiguous
+    _, key = np.unique(key, return_inverse=True)
+    n_groups = int(key.max()) + 1 if n else 0
+    counts = np.bincount(key, minlength=n_groups)
+    rot3_pos, rotated, too_big = None, [], []
+    vscale = float(abs(v0).max()) if v0.nnz else 0.0
+    if np.any(counts >= 2) and v0.nnz:
+        g = _selector(key, n, n_groups)
+        g_t = sp.csr_matrix((np.ones(n), np.arange(n), np.concatenate([[0], np.cumsum(counts)])), shape=(n_groups, n))
+        inside = (g_t @ (abs(v0) @ g)).diagonal() - np.bincount(key, weights=np.abs(v0.diagonal()), minlength=n_groups)
+        mixing = np.flatnonzero(inside > rtol * max(vscale, 1e-300))
+        if mixing.size:
+            starts = np.searchsorted(key, mixing)  # groups are contiguous in this order
+            rows_, cols_, data_ = [], [], []
+            for grp, a in zip(mixing, starts):
+                idx = np.arange(a, a + counts[grp])
+                if idx.size > MAX_GROUP_ROTATION:
+                    too_big.append(perm0[idx])
+                    continue
+                block = v0[idx][:, idx].toarray()
+                _, u = np.linalg.eigh(0.5 * (block + block.conj().T))
+                rotated.append(idx)
+                rows_.append(np.repeat(idx, idx.size))
+                cols_.append(np.tile(idx, idx.size))
+                data_.append((u - np.eye(idx.size)).ravel())
+            if rotated:
+                e = sp.csr_matrix((np.concatenate(data_), (np.concatenate(rows_), np.concatenate(cols_))), shape=(n, n))
+                y = v0 @ e  # columns of rotated groups only; (V E)^H = E^H V
+                yh = y.conj().T.tocsr()
+                v0 = (v0 + (y + yh + yh @ e)).tocsr()  # R^H V R with R = 1 + E
+                r3 = e + sp.identity(n, format="csr")
+                c3 = sp.coo_matrix(r3)
+                rot3_pos = sp.csr_matrix((c3.data, (perm0[c3.row], perm0[c3.col])), shape=(n, n))
+                rotated = [perm0[idx] for idx in rotated]
+    vdiag = np.real(v0.diagonal())
+    shift = np.round(vdiag / (1e-9 * vscale)) if vscale > 0 else np.zeros(n)
+    perm1 = np.lexsort((np.arange(n), shift, sec_w, e0[perm0]))
+    if np.any(perm1 != np.arange(n)):
+        v0 = _permute(v0, perm1)
+    return v0, perm0[perm1], rot3_pos, rotated, too_big
 
 
 def _compose(t0: Any, rot: Any, rot3: Any, perm: np.ndarray, n: int) -> Any:
@@ -762,7 +894,10 @@ def _compose(t0: Any, rot: Any, rot3: Any, perm: np.ndarray, n: int) -> Any:
     if t is None:
         return sp.csr_matrix((np.ones(n), (perm, np.arange(n))), shape=(n, n))
     if sp.issparse(t):
-        return t.tocsc()[:, perm].tocsr()
+        t = sp.csr_matrix(t)
+        inv = np.empty(n, dtype=np.int64)
+        inv[perm] = np.arange(n)
+        return sp.csr_matrix((t.data, inv[t.indices], t.indptr), shape=t.shape)
     return t[:, perm]
 
 
@@ -804,7 +939,6 @@ def _level_names(
     else:
         pos_src = np.full(n, -1, dtype=np.int64)
     before = pos_src.copy()
-    groups: dict = {}
     if cons.mixed is not None:
         pos_src[cons.mixed] = -1
     pair_lo = pair_hi = pair_plus = paired_level = None
@@ -816,18 +950,26 @@ def _level_names(
         hi[ambiguous_pos] = -1
         pair_lo, pair_hi, pair_plus = lo[perm], hi[perm], (sign > 0)[perm]
         paired_level = np.where(paired, inv, -1)
+    group_of = np.full(n, -1, dtype=np.int64)
+    group_list: list = []
     for idx in mixed_groups + big_groups:
-        members = tuple(int(u) for u in before[idx] if u >= 0 and (cons.pair_lo is None or cons.pair_lo[u] < 0))
-        levels = tuple(sorted(int(inv[i]) for i in idx))
-        for u in members:
-            groups[u] = ("mixed", members, levels)
+        users = before[idx]
+        ok = users >= 0
+        if cons.pair_lo is not None:
+            ok &= cons.pair_lo[np.maximum(users, 0)] < 0
+        members = users[ok]
+        if members.size:
+            group_of[members] = len(group_list)
+            group_list.append(("mixed", members, np.sort(inv[idx])))
     if cons.mixed is not None and op_names:
         kind = "operator " + ", ".join(repr(x) for x in op_names)
-        mixed_pos = np.flatnonzero(cons.mixed)
-        for p in mixed_pos:
-            u = int(before[p])
-            if u >= 0 and u not in groups:
-                groups[u] = (kind, (u,), (int(inv[p]),))
+        pos = np.flatnonzero(cons.mixed & (before >= 0))
+        users = before[pos]
+        free = group_of[users] < 0
+        for p, u in zip(pos[free], users[free]):
+            group_of[u] = len(group_list)
+            group_list.append((kind, np.array([u]), np.array([inv[p]])))
+    groups = (group_of, group_list) if group_list else None
     pos_src[ambiguous_pos] = -1
     return LevelNames(
         labels=labels,
@@ -853,25 +995,20 @@ def _runs(e0: np.ndarray, tol: float) -> list[np.ndarray]:
     return [np.arange(a, b) for a, b in zip(bounds[:-1], bounds[1:]) if b - a > 1]
 
 
-def _groups_in_sectors(e0: np.ndarray, level_sectors: np.ndarray, tol: float) -> tuple[tuple[int, ...], ...]:
-    """Degenerate groups (size >= 2) within each sector, sorted by their first level."""
+def _group_ids(e0: np.ndarray, level_sectors: np.ndarray, tol: float) -> np.ndarray:
+    """Degenerate-group id of every level (-1: not degenerate), groups formed inside each sector."""
     n = e0.size
+    out = np.full(n, -1, dtype=np.int64)
     if n < 2:
-        return ()
+        return out
     order = np.lexsort((np.arange(n), level_sectors))  # by sector, ascending level (= ascending energy)
     s, e = level_sectors[order], e0[order]
     brk = np.concatenate([[True], (s[1:] != s[:-1]) | (np.diff(e) > tol)])
     ids = np.cumsum(brk) - 1
     counts = np.bincount(ids)
-    if np.all(counts < 2):
-        return ()
-    starts = np.flatnonzero(brk)
-    out = []
-    for a, c in zip(starts, counts):
-        if c >= 2:
-            out.append(tuple(int(x) for x in order[a : a + c]))
-    out.sort(key=lambda g: g[0])
-    return tuple(out)
+    multi = counts[ids] >= 2
+    out[order[multi]] = ids[multi]
+    return out
 
 
 def _spectral_norm(v: Any) -> float:
