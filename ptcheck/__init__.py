@@ -37,6 +37,7 @@ from .quantities import (
     transition_frequency,
     zz_coupling,
 )
+from .sectors import Sector
 from .series import SeriesResult, rs_series
 
 __version__ = "0.1.0"
@@ -62,6 +63,7 @@ __all__ = [
     "PtcheckWarning",
     "Quantity",
     "QuantitySeries",
+    "Sector",
     "SeriesResult",
     "TrackingWarning",
     "TruncationWarning",

@@ -302,6 +302,11 @@ def unperturbed_basis(h0: Any, offset: float, comp: np.ndarray, h0_diagonal: boo
     single = np.flatnonzero(~np.isin(comp, need))
     rows, cols, vals = [single], [single], [np.ones(single.size)]
     dtype = np.result_type(h0.dtype, np.float64)
+    sizes = np.bincount(comp)[need]
+    dense = float(np.sum(sizes.astype(float) ** 2)) > 0.25 * float(n) * n
+    out = np.zeros((n, n), dtype=dtype) if dense else None
+    if dense:
+        out[single, single] = 1.0
     for c in need:
         idx = np.flatnonzero(comp == c)
         if idx.size > dense_limit:
@@ -315,13 +320,15 @@ def unperturbed_basis(h0: Any, offset: float, comp: np.ndarray, h0_diagonal: boo
         block[np.diag_indices_from(block)] -= offset
         w, u = sla.eigh(block)
         e0[idx] = w
+        if dense:
+            out[np.ix_(idx, idx)] = u
+            continue
         rows.append(np.repeat(idx, idx.size))
         cols.append(np.tile(idx, idx.size))
         vals.append(u.ravel())
-    t = sp.csr_matrix((np.concatenate(vals).astype(dtype), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
-    if t.nnz > 0.25 * float(n) * n:
-        return e0, t.toarray()
-    return e0, t
+    if dense:
+        return e0, out
+    return e0, sp.csr_matrix((np.concatenate(vals).astype(dtype), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
 
 
 def roundoff_clusters(e0: np.ndarray, tol: float) -> np.ndarray:

@@ -55,9 +55,16 @@ def ising_user_matrices(n: int, j: float = 1.0) -> tuple[np.ndarray, np.ndarray,
 
 
 def parity_basis(parity: np.ndarray, sign: int) -> np.ndarray:
-    """Orthonormal basis (columns) of the parity = sign eigenspace, from eigh of the projector (1 + sign P)/2."""
-    w, u = np.linalg.eigh((np.eye(len(parity)) + sign * parity) / 2)
-    return u[:, w > 0.5]
+    """Orthonormal basis (columns) of the parity = sign eigenspace: (|s⟩ + sign |s̄⟩)/√2 for s < s̄ (s̄: all
+    spins flipped), checked against the parity matrix itself."""
+    dim = len(parity)
+    s = np.arange(dim)
+    lo = s[s < (s ^ (dim - 1))]
+    q = np.zeros((dim, lo.size))
+    q[lo, np.arange(lo.size)] = 1 / np.sqrt(2)
+    q[lo ^ (dim - 1), np.arange(lo.size)] = sign / np.sqrt(2)
+    assert np.allclose(parity @ q, sign * q)  # test set-up: eigenvectors of Π σx with eigenvalue sign
+    return q
 
 
 def parity_sector_spectrum(h: np.ndarray, basis: np.ndarray) -> np.ndarray:
