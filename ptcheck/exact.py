@@ -409,17 +409,24 @@ class _SectorSolver:
         lies in a degenerate group.
         """
         model = self.model
+        # runs of exactly equal E0 inside the tracked levels' degenerate groups (a wide user
+        # degeneracy_tol may group levels with a real splitting: those keep their own states)
         groups = []
         for g in model.degenerate_groups:
-            if any(t in g for t in tracked) and g not in groups:
-                groups.append(g)
+            if not any(t in g for t in tracked):
+                continue
+            e = model.e0[list(g)]
+            for val_ in np.unique(e):
+                run = tuple(int(x) for x, ee in zip(g, e) if ee == val_)
+                if len(run) > 1 and any(t in run for t in tracked) and run not in groups:
+                    groups.append(run)
         if not groups or model.norm_v == 0.0:
             return None
         factor = 1e-2 if self._impl.iterative else 1e-4
         eps = np.inf
         for g in groups:
             d = np.abs(model.e0 - model.e0[g[0]])
-            d = d[d > model.degeneracy_tol]
+            d = d[d > 0]
             eps = min(eps, factor * (d.min() if d.size else 1.0) / model.norm_v)
         eps = float(min(eps, 0.5 * first))
         lam = ray * eps

@@ -301,6 +301,7 @@ class Model:
         self._ambiguous_mask = np.asarray(ambiguous, dtype=bool)
         self._ambiguous: frozenset | None = None
         self._names = names
+        self._labels_tuple: tuple | None = None
         self._transform = transform
         self.conserved_names = conserved_names
         self.coupling_scale = coupling_scale
@@ -384,8 +385,10 @@ class Model:
 
     @property
     def labels(self) -> tuple:
-        """Label of each level in work order (``None`` where no label is known)."""
-        return self._names.all_raw()
+        """Label of each level in work order (``None`` where no label is known); built on first use."""
+        if self._labels_tuple is None:
+            self._labels_tuple = self._names.all_raw()
+        return self._labels_tuple
 
     @property
     def norm_v(self) -> float:
@@ -828,13 +831,18 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
                 coef[k] = rot.data[at][mine]
             w_rows = np.flatnonzero(half[perm0] == h)  # work rows of this half
             src = cons.rep[perm0[w_rows]]
-            scale = sp.diags(cons.rep_scale[perm0[w_rows]], format="csr")
-            parts.append(scale @ v[src] @ _selector(col, n, n, coef))
+            scale = cons.rep_scale[perm0[w_rows]]
+            part = v[src] @ _selector(col, n, n, coef)
+            if scale.size and np.all(scale == scale[0]):
+                part.data *= scale[0]  # e.g. every state paired: one factor √2
+            else:
+                part = sp.diags(scale, format="csr") @ part
+            parts.append(part)
             rows.append(w_rows)
         order = np.empty(n, dtype=np.int64)
         order[np.concatenate(rows)] = np.arange(n)
         v0 = sp.vstack(parts, format="csr")[order]
-    v0.sum_duplicates()
+    # (sparse products accumulate each row: no duplicate entries to sum here)
 
     # good states: groups (sector, equal-energy run) that V mixes, found with an indicator product
     key = cid[perm0] * (int(sec_w.max()) + 1 if n else 1) + sec_w  # ascends along perm0: groups are contiguous

@@ -389,11 +389,13 @@ def _in_basis(p: Any, basis: Any) -> Any:
 
 
 def _entries(m: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Non-zero entries (row, col, value); a dense matrix drops entries below 1e-14 of its largest."""
     if sp.issparse(m):
         c = m.tocoo()
         keep = c.data != 0
         return c.row[keep], c.col[keep], c.data[keep]
-    r, c = np.nonzero(m)
+    a = np.abs(m)
+    r, c = np.nonzero(a > 1e-14 * float(a.max(initial=0.0)))
     return r, c, m[r, c]
 
 

@@ -340,7 +340,8 @@ def test_wide_user_tolerance_never_changes_the_exact_matrix():
         h = m.hamiltonian(lam)
         assert_allclose(np.linalg.eigvalsh(h), np.linalg.eigvalsh(h0 + lam * v), atol=1e-14)
         sw = track(m, [0, 1, 2], [lam])
-        assert_allclose(np.sort(sw.energies[:, 0]), np.linalg.eigvalsh(h0 + lam * v), atol=1e-12)
+        # a generic real 3x3 family has no crossings: level n is eigenvalue n (numpy) at every coupling
+        assert_allclose(sw.energies[:, 0], np.linalg.eigvalsh(h0 + lam * v), atol=1e-12)
 
 
 def test_huge_coupling_follows_the_lowest_level():
