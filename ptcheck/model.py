@@ -743,17 +743,18 @@ def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) ->
     ends = np.searchsorted(key[order], mixing, side="right")
     rotated, too_big = [], []
     rows, cols, data = [], [], []
-    for a, b in zip(starts, ends):
-        idx = np.sort(order[a:b])
-        if idx.size > MAX_GROUP_ROTATION:
-            too_big.append(idx)
-            continue
-        block = _submatrix(v, idx)
-        _, u = np.linalg.eigh(0.5 * (block + block.conj().T))
-        rotated.append(idx)
-        rows.append(np.repeat(idx, idx.size))
-        cols.append(np.tile(idx, idx.size))
-        data.append(u.ravel())
+    with sec.small_blas():
+        for a, b in zip(starts, ends):
+            idx = np.sort(order[a:b])
+            if idx.size > MAX_GROUP_ROTATION:
+                too_big.append(idx)
+                continue
+            block = _submatrix(v, idx)
+            _, u = np.linalg.eigh(0.5 * (block + block.conj().T))
+            rotated.append(idx)
+            rows.append(np.repeat(idx, idx.size))
+            cols.append(np.tile(idx, idx.size))
+            data.append(u.ravel())
     if not rotated:
         return v, None, [], too_big
     touched = np.zeros(n, dtype=bool)
@@ -859,22 +860,23 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
         if mixing.size:
             starts = np.searchsorted(key, mixing)  # groups are contiguous in this order
             rows_, cols_, data_ = [], [], []
-            for grp, a in zip(mixing, starts):
-                idx = np.arange(a, a + counts[grp])
-                if idx.size > MAX_GROUP_ROTATION:
-                    too_big.append(perm0[idx])
-                    continue
-                block = v0[idx][:, idx].toarray()
-                _, u = np.linalg.eigh(0.5 * (block + block.conj().T))
-                rotated.append(idx)
-                rows_.append(np.repeat(idx, idx.size))
-                cols_.append(np.tile(idx, idx.size))
-                data_.append((u - np.eye(idx.size)).ravel())
+            with sec.small_blas():
+                for grp, a in zip(mixing, starts):
+                    idx = np.arange(a, a + counts[grp])
+                    if idx.size > MAX_GROUP_ROTATION:
+                        too_big.append(perm0[idx])
+                        continue
+                    block = v0[idx][:, idx].toarray()
+                    _, u = np.linalg.eigh(0.5 * (block + block.conj().T))
+                    rotated.append(idx)
+                    rows_.append(np.repeat(idx, idx.size))
+                    cols_.append(np.tile(idx, idx.size))
+                    data_.append((u - np.eye(idx.size)).ravel())
             if rotated:
                 e = sp.csr_matrix((np.concatenate(data_), (np.concatenate(rows_), np.concatenate(cols_))), shape=(n, n))
                 y = v0 @ e  # columns of rotated groups only; (V E)^H = E^H V
                 yh = y.conj().T.tocsr()
-                v0 = (v0 + (y + yh + yh @ e)).tocsr()  # R^H V R with R = 1 + E
+                v0 = _add_on_rows(v0, (y + yh + yh @ e).tocsr())  # R^H V R with R = 1 + E
                 r3 = e + sp.identity(n, format="csr")
                 c3 = sp.coo_matrix(r3)
                 rot3_pos = sp.csr_matrix((c3.data, (perm0[c3.row], perm0[c3.col])), shape=(n, n))
@@ -885,6 +887,31 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
     if np.any(perm1 != np.arange(n)):
         v0 = _permute(v0, perm1)
     return v0, perm0[perm1], rot3_pos, rotated, too_big
+
+
+def _add_on_rows(a: sp.csr_matrix, delta: sp.csr_matrix) -> sp.csr_matrix:
+    """``a + delta`` for a ``delta`` with few non-empty rows: only those rows are added, the rest copied."""
+    rows = np.flatnonzero(np.diff(delta.indptr))
+    if rows.size == 0:
+        return a
+    sub = (a[rows] + delta[rows]).tocsr()
+    lengths = np.diff(a.indptr).copy()
+    lengths[rows] = np.diff(sub.indptr)
+    indptr = np.concatenate([[0], np.cumsum(lengths)])
+    dtype = np.result_type(a.dtype, sub.dtype)
+    data = np.empty(int(indptr[-1]), dtype=dtype)
+    indices = np.empty(int(indptr[-1]), dtype=np.result_type(a.indices.dtype, sub.indices.dtype))
+    prev = 0  # copy the untouched stretches of rows in one slice each
+    for k, r in enumerate(rows):
+        lo, hi = a.indptr[prev], a.indptr[r]
+        data[indptr[prev] : indptr[r]] = a.data[lo:hi]
+        indices[indptr[prev] : indptr[r]] = a.indices[lo:hi]
+        data[indptr[r] : indptr[r + 1]] = sub.data[sub.indptr[k] : sub.indptr[k + 1]]
+        indices[indptr[r] : indptr[r + 1]] = sub.indices[sub.indptr[k] : sub.indptr[k + 1]]
+        prev = r + 1
+    data[indptr[prev] :] = a.data[a.indptr[prev] :]
+    indices[indptr[prev] :] = a.indices[a.indptr[prev] :]
+    return sp.csr_matrix((data, indices, indptr), shape=a.shape)
 
 
 def _compose(t0: Any, rot: Any, rot3: Any, perm: np.ndarray, n: int) -> Any:

@@ -116,6 +116,22 @@ class Sector:
         return f"<b>Sector {self.index}</b>: {html.escape(self.name)}, {self.size} level(s)"
 
 
+def small_blas() -> Any:
+    """Context limiting BLAS to one thread for loops of small dense eigendecompositions.
+
+    Groups of degenerate states are small (<= a few hundred): on a busy machine
+    a multi-threaded BLAS was measured 15x slower on them than one thread.
+    No-op without threadpoolctl.
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover - threadpoolctl is a dependency
+        import contextlib
+
+        return contextlib.nullcontext()
+    return threadpool_limits(limits=1, user_api="blas")
+
+
 def format_quantum_number(q: float | None) -> str:
     """``+1``, ``-0.5``, ``0`` (None: ``"n/a"``)."""
     if q is None:
@@ -526,6 +542,31 @@ def _pair_states(res: ConservedBasis, k: int, r: np.ndarray, c: np.ndarray, d: n
     return rot
 
 
+def _group_eigh(
+    name: str, groups: np.ndarray, starts: np.ndarray, ends: np.ndarray, order: np.ndarray, group: np.ndarray,
+    r: np.ndarray, c: np.ndarray, d: np.ndarray, n: int, dtype: Any,
+) -> list:
+    """(indices, eigenvalues, eigenvectors) of the operator inside each group it mixes."""
+    out = []
+    for g, a, b in zip(groups, starts, ends):
+        idx = np.sort(order[a:b])
+        if idx.size > MAX_CONSERVED_GROUP:
+            raise ValueError(
+                f"conserved operator {name!r} mixes a group of {idx.size} exactly degenerate unperturbed states "
+                f"(more than {MAX_CONSERVED_GROUP}); ptcheck diagonalises a general operator densely inside such "
+                "groups. Declare it as a signed permutation (entries ±1, P² = 1) in a basis where h0 is diagonal, "
+                "or split the degeneracy."
+            )
+        pos = np.full(n, -1, dtype=np.int64)
+        pos[idx] = np.arange(idx.size)
+        mine = group[r] == g
+        block = np.zeros((idx.size, idx.size), dtype=dtype)
+        block[pos[r[mine]], pos[c[mine]]] = d[mine]
+        w, u = np.linalg.eigh(0.5 * (block + block.conj().T))
+        out.append((idx, w, u))
+    return out
+
+
 def _dense_groups(
     res: ConservedBasis, k: int, name: str, r: np.ndarray, c: np.ndarray, d: np.ndarray, closed: np.ndarray, group: np.ndarray, n: int
 ) -> Any:
@@ -546,21 +587,9 @@ def _dense_groups(
     ends = np.searchsorted(group[order], mixed_groups, side="right")
     sel = np.isin(group[r], mixed_groups)
     r2, c2, d2 = r[sel], c[sel], d[sel]
-    for g, a, b in zip(mixed_groups, starts, ends):
-        idx = np.sort(order[a:b])
-        if idx.size > MAX_CONSERVED_GROUP:
-            raise ValueError(
-                f"conserved operator {name!r} mixes a group of {idx.size} exactly degenerate unperturbed states "
-                f"(more than {MAX_CONSERVED_GROUP}); ptcheck diagonalises a general operator densely inside such "
-                "groups. Declare it as a signed permutation (entries ±1, P² = 1) in a basis where h0 is diagonal, "
-                "or split the degeneracy."
-            )
-        pos = np.full(n, -1, dtype=np.int64)
-        pos[idx] = np.arange(idx.size)
-        mine = group[r2] == g
-        block = np.zeros((idx.size, idx.size), dtype=d.dtype)
-        block[pos[r2[mine]], pos[c2[mine]]] = d2[mine]
-        w, u = np.linalg.eigh(0.5 * (block + block.conj().T))
+    with small_blas():
+        blocks = _group_eigh(name, mixed_groups, starts, ends, order, group, r2, c2, d2, n, d.dtype)
+    for idx, w, u in blocks:
         res.values[idx, k] = w
         rows.append(np.repeat(idx, idx.size))
         cols.append(np.tile(idx, idx.size))
