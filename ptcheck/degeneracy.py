@@ -142,6 +142,8 @@ def near_degenerate_pairs(
     >>> from ptcheck import Model
     >>> m = Model(np.diag([0.0, 1.0, 1.05]), [[0, .1, 0], [.1, 0, .1], [0, .1, 0]])
     >>> [(p.l, p.n) for p in near_degenerate_pairs(m, 0.5)]
+    [(1, 2)]
+    >>> [(p.l, p.n) for p in near_degenerate_pairs(m, 0.5, 0.04)]
     [(1, 2), (0, 1)]
     """
     lam = val.as_coupling(coupling)

@@ -24,7 +24,6 @@ import scipy.sparse as sp
 from . import _validation as val
 from . import sectors as sec
 from ._labels import LevelNames, hashable
-from .errors import BasisTooLargeError  # noqa: F401  (re-exported for callers of the old location)
 from .sectors import Sector
 
 __all__ = ["Model", "DENSE_LIMIT", "MAX_GROUP_ROTATION"]
@@ -69,9 +68,11 @@ class Model:
         Unperturbed levels *of one sector* closer than this (energy units)
         count as exactly degenerate for the **perturbative** side (they form
         one group: a block, good states).  Default: ``1e-9 x`` the span of the
-        unperturbed spectrum (max E0 − min E0; ``‖V‖`` if the span is zero),
-        and never less than 16 ulps of the largest ``|E0|``, so adding a
-        constant to ``H0`` changes nothing.  The tolerance never changes the
+        unperturbed spectrum (max E0 − min E0; ``max|V|`` if the span is
+        zero), and never less than the round-off of the unperturbed energies
+        (16 ulps of the largest ``|E0|``, plus 1000 ulps of the span when
+        ``h0`` had to be diagonalised), so adding a constant to ``H0``
+        changes nothing.  The tolerance never changes the
         matrices: levels inside a group keep their true energies and exact
         solves always use the true ``H0``; states are only rotated inside runs
         of levels that are equal to roundoff.
@@ -608,10 +609,6 @@ class Model:
 
 
 # ---------------------------------------------------------------------- helpers
-def _hashable(x: Any) -> Hashable:
-    return hashable(x)
-
-
 def _coupling_display(scale: Any, unit: Any) -> tuple[float | None, str | None]:
     if scale is not None:
         scale = val.as_real(scale, "coupling_scale")
