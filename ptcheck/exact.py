@@ -313,6 +313,9 @@ class _SectorSolver:
     #: eigenvectors turn slowly, but a single step from small λ would skip the whole
     #: region where H0 and λV compete (halving alone cannot bridge a ratio of 1e8).
     LADDER_START = 64.0
+    #: a step longer than GAP_LADDER x (distance of a tracked level to its nearest level) / ‖V‖
+    #: goes over a geometric ladder from that coupling scale (halving alone reaches only 2^-16 of it)
+    GAP_LADDER = 1024.0
 
     def __init__(self, model: Model, *, backend: str, rtol: float, max_depth: int, cache_bytes: float) -> None:
         self.rtol = rtol
@@ -618,14 +621,32 @@ class _SectorSolver:
             check = _StepCheck(ok=False, lost=True, problems=check.problems + [(t, None, "lost") for t in tracked])
         return b, check, raw
 
-    def _ladder(self, start: float, target: float) -> list[float]:
-        """Couplings from ``start`` to ``target`` (same ray): a geometric ladder where the step is huge."""
+    def _ladder(self, start: float, target: float, tracked: frozenset) -> list[float]:
+        """Couplings from ``start`` to ``target`` (same ray): a geometric ladder (ratio 2) where the step is huge.
+
+        Two scales: beyond ``LADDER_START x span(E0) / ‖V‖`` (V dominates, see
+        the class attribute), and beyond ``GAP_LADDER x δ / ‖V‖`` with δ the
+        distance of a tracked level to its nearest other unperturbed level
+        (a step that large would hide the level's own avoided crossings
+        below the reach of ``max_depth`` halvings).
+        """
+        model = self.model
+        nv = model.norm_v
         if self._ladder_scale is None:
-            span = float(np.ptp(self.model.e0)) if self.model.n else 0.0
-            nv = self.model.norm_v
+            span = float(np.ptp(model.e0)) if model.n else 0.0
             self._ladder_scale = self.LADDER_START * span / nv if (span > 0 and nv > 0) else np.inf
         a, b = abs(start), abs(target)
         lo = self._ladder_scale
+        if nv > 0 and model.n > 1:
+            e0 = model.e0
+            gaps = []
+            for t in tracked:
+                d = np.abs(e0 - e0[t])
+                d = d[d > 0]
+                if d.size:
+                    gaps.append(float(d.min()))
+            if gaps and b > self.GAP_LADDER * max(a, min(gaps) / nv):
+                lo = min(lo, min(gaps) / nv)
         if not np.isfinite(lo) or b <= 2.0 * max(a, lo):
             return [target]
         sign = 1.0 if target > 0 else -1.0
@@ -640,7 +661,7 @@ class _SectorSolver:
         """Path points from ``a`` to ``target`` (same ray), refining where ambiguous."""
         out: list[PathPoint] = []
         cur = a
-        for stop in self._ladder(a.coupling, target):
+        for stop in self._ladder(a.coupling, target, tracked):
             pts = self._advance_step(cur, stop, tracked, notes)
             out.extend(pts)
             cur = pts[-1]
