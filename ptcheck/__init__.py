@@ -39,6 +39,7 @@ from .quantities import (
     transition_frequency,
     zz_coupling,
 )
+from .sectors import Sector
 from .series import SeriesResult, rs_series
 from .treatment import CheckSettings, Suggestion, TreatmentChoice
 
@@ -67,6 +68,7 @@ __all__ = [
     "PtcheckWarning",
     "Quantity",
     "QuantitySeries",
+    "Sector",
     "SeriesResult",
     "Suggestion",
     "TrackingWarning",
