@@ -140,16 +140,29 @@ class LevelEngine:
             self._neighbours[k] = trial
         return self._neighbours[k]
 
+    def _worth(self, k: int, outer: int) -> bool:
+        """With gap "auto": build neighbour k's trial only if it can beat Weyl.
+
+        Its Kato–Temple interval needs Weyl's bound on the next level out
+        (``outer``); that is only useful when the next spacing out is at least
+        half the level's own spacing to k.
+        """
+        if self.settings.gap == "neighbours" or not 0 <= outer < self.model.n:
+            return True
+        e0 = self.model.e0
+        return abs(e0[outer] - e0[k]) >= 0.5 * abs(e0[k] - e0[self.n])
+
     def neighbour_gap(self, lam: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(α, β) from the neighbours' own Kato–Temple intervals, closed by Weyl one level further out."""
         alpha, beta = self.weyl_gap(lam)
-        up = self._neighbour(self.n + 1) if self.n + 1 < self.model.n else None
+        n = self.n
+        up = self._neighbour(n + 1) if n + 1 < self.model.n and self._worth(n + 1, n + 2) else None
         if up is not None:
             rho, r, d = up.evaluate(lam)
             beta_next = self.weyl_rank(lam, self.n + 2)[0]
             lo, _, ok = _temple(rho, r, d, np.full(lam.shape, -np.inf), beta_next)
             beta = np.where(ok, np.maximum(beta, lo), beta)
-        down = self._neighbour(self.n - 1) if self.n > 0 else None
+        down = self._neighbour(n - 1) if n > 0 and self._worth(n - 1, n - 2) else None
         if down is not None:
             rho, r, d = down.evaluate(lam)
             alpha_next = self.weyl_rank(lam, self.n - 2)[1]

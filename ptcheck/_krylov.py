@@ -35,9 +35,9 @@ def _orthonormalise(x: np.ndarray, q: np.ndarray, j: int, extra: np.ndarray | No
     """x minus its components along q[:j] (and ``extra``), twice; return (unit vector, norm)."""
     for _ in range(2):
         if extra is not None:
-            x = x - extra * np.vdot(extra, x)
+            x -= extra * np.vdot(extra, x)
         if j:
-            x = x - q[:j].T @ (q[:j].conj() @ x)
+            x -= (q[:j].conj() @ x) @ q[:j]
     nrm = float(np.linalg.norm(x))
     return (x / nrm if nrm > 0 else x), nrm
 

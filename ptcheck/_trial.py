@@ -70,7 +70,7 @@ class OperatorScales:
 
 
 #: Dense models up to this size get the exact extreme eigenvalues of V.
-_DENSE_EIG_LIMIT = 2000
+_DENSE_EIG_LIMIT = 512
 
 
 def operator_scales(model: Model) -> OperatorScales:
@@ -123,15 +123,14 @@ class SeriesTrial:
         k = int(trial_order)
         s = rs_series(model, level, k)
         psi = s.state_coefficients
-        vpsi = np.stack([model.v @ psi[i] for i in range(k + 1)])
-        w = vpsi[k]
+        w = model.v @ psi[k]
         e = np.zeros(k + 2)
         e[: k + 1] = s.energy_coefficients
         e[k + 1] = float(np.real(w[level]))
         self.model, self.level, self.order, self.scales = model, level, k, scales
         self.series = s
         self.energy_coefficients = e
-        self.mat_vecs = 2 * k + 1  # the series itself, then V ψ^(i) for i = 0..K
+        self.mat_vecs = k + 1  # the series, then V ψ^(K)
         # residual vectors R_{K+1..2K} (rows), formed explicitly: no cancellation in their norms
         coef = np.zeros((k, k + 1))
         for row, m in enumerate(range(k + 1, 2 * k + 1)):
@@ -139,19 +138,30 @@ class SeriesTrial:
                 coef[row, m - j] = -e[j]
         resid = coef @ psi
         resid[0] = resid[0] + w
-        self._g_pp = np.real(psi.conj() @ psi.T)
-        # Gram of X = [Ψ, E0 Ψ, V Ψ]: H x for x in span Ψ lies in span X (Ritz residuals without cancellation)
-        e0psi = model.e0[None, :] * psi
-        blocks = (psi, e0psi, vpsi)
+        # Gram of X = [Ψ, (H0 − E0_n) Ψ, V ψ^(K)]: by the RS equations V ψ^(i) (i < K) lies in span X up
+        # to rounding, so H x for x in span Ψ does too (Ritz residuals without cancellation; the shift by
+        # E0_n keeps a constant added to H0 out of the rounding)
+        h0psi = (model.e0 - model.e0[level])[None, :] * psi
+        blocks = (psi, h0psi, w[None, :])
         self._g_x = np.block([[np.real(a.conj() @ b.T) for b in blocks] for a in blocks])
+        del h0psi
         self._x_norms = np.sqrt(np.clip(np.diag(self._g_x), 0.0, None))
-        del e0psi, vpsi
+        self._g_pp = self._g_x[: k + 1, : k + 1]
         self._gamma_n = model.n * EPS / (1.0 - model.n * EPS)  # worst-case error of an N-term dot product
         self._g_pr = np.real(psi.conj() @ resid.T)
         self._g_rr = np.real(resid.conj() @ resid.T)
         self.psi_norms = np.sqrt(np.clip(np.diag(self._g_pp), 0.0, None))
         self.resid_norms = np.sqrt(np.clip(np.diag(self._g_rr), 0.0, None))
         self._eps_m = self._margins()
+        # V ψ^(i) in X-coordinates: −(H0 − E0_n) ψ^(i+1) + Σ_j E^(j) ψ^(i+1−j) for i < K, and V ψ^(K)
+        j = k + 1
+        vx = np.zeros((2 * j + 1, j))
+        for i in range(k):
+            vx[j + i + 1, i] -= 1.0
+            for jj in range(1, i + 2):
+                vx[i + 1 - jj, i] += e[jj]
+        vx[2 * j, k] = 1.0
+        self._v_in_x = vx
 
     # ------------------------------------------------------------ polynomials in s = |λ|
     @property
@@ -239,8 +249,9 @@ class SeriesTrial:
             Ritz values (ascending; the j-th is ≥ E_(j) by Cauchy interlacing),
             upper bounds on their residuals ‖(H − θ)x‖ (x normalised), and
             bounds on |θ − ⟨H⟩_x| from rounding (energy units).  Residuals are
-            evaluated in the Gram matrix of [Ψ, E0 Ψ, V Ψ], with the worst-case
-            rounding of N-term dot products added.
+            evaluated in the Gram matrix of X = [Ψ, H0 Ψ, V ψ^(K)], with the
+            worst-case rounding of N-term dot products and the rounding residuals
+            of the RS equations added.
         """
         lam = np.asarray(couplings, dtype=float)
         j = self.order + 1
@@ -249,21 +260,28 @@ class SeriesTrial:
         keep = sv > 1e-12 * sv[-1]
         t = u[:, keep] / np.sqrt(sv[keep])  # Ψ-coordinates of an orthonormal basis of span Ψ
         a0 = self._g_x[:j, j : 2 * j]
-        a1 = self._g_x[:j, 2 * j :]
+        a1 = self._g_x[:j] @ self._v_in_x
         a0, a1 = (a0 + a0.T) / 2, (a1 + a1.T) / 2
         h = (t.T @ a0 @ t)[None] + lam[:, None, None] * (t.T @ a1 @ t)[None]
-        ritz, y = np.linalg.eigh(h)
+        shifted, y = np.linalg.eigh(h)  # Ritz values of H − E0_n
+        e_ref = self.energy_coefficients[0]
+        ritz = shifted + e_ref
         a = np.einsum("ij,cjm->cmi", t, y)  # (C, M, K+1): Ψ-coordinates of the Ritz vectors
-        z = np.concatenate([-ritz[:, :, None] * a, a, lam[:, None, None] * a], axis=2)
+        # (H − θ) x in X-coordinates: (H0 − E0_n) part, λ V part (through V ψ^(i) in X), −(θ − E0_n) Ψ part
+        z = np.einsum("xi,cmi->cmx", self._v_in_x, a) * lam[:, None, None]
+        z[:, :, :j] -= shifted[:, :, None] * a
+        z[:, :, j : 2 * j] += a
         r2 = np.einsum("cmi,ij,cmj->cm", z, self._g_x, z)
         zabs = np.abs(z) @ self._x_norms
         gam = self._gamma_n + 4 * (3 * j) * EPS
         xn2 = np.einsum("cmi,ij,cmj->cm", a, b, a)
         aabs = np.abs(a) @ self.psi_norms
         xn2_lo = np.maximum(xn2 - gam * aabs**2, 1e-300)
-        r = np.sqrt(np.maximum(r2, 0.0) + gam * zabs**2) / np.sqrt(xn2_lo)
-        hs = self.scales.h_scale(lam)[:, None]
-        d_ritz = (gam * aabs**2 * hs + np.abs(ritz) * np.abs(xn2 - 1.0)) / xn2_lo + 16 * EPS * hs * j
+        rs_round = np.abs(lam)[:, None] * (np.abs(a[:, :, : j - 1]) @ self._eps_m[1:j])  # RS-equation rounding
+        r = (np.sqrt(np.maximum(r2, 0.0) + gam * zabs**2) + rs_round) / np.sqrt(xn2_lo)
+        hs = (self.scales.h_scale(lam) - self.scales.e_span + float(np.max(np.abs(self.model.e0 - e_ref))))[:, None]
+        d_ritz = (gam * aabs**2 * hs + aabs * rs_round + np.abs(shifted) * np.abs(xn2 - 1.0)) / xn2_lo
+        d_ritz = d_ritz + 16 * EPS * hs * j + 4 * EPS * np.abs(ritz)
         return ritz, r, d_ritz
 
     def polynomials(self, direction: int) -> dict[str, np.ndarray]:

@@ -818,7 +818,7 @@ def certified_boundary(
             "The relative error of this order does not go to zero with λ (the order-k value has none of the "
             "exact shift): it cannot meet a relative tolerance below 1 at any small coupling.",))
     s_guess = _first_root(guess, 1e-9 * min(s_nat, s_max), s_max)
-    extent = s_max if s_guess >= s_max else min(1.25 * s_guess, s_max)
+    extent = s_max if s_guess >= s_max else min(1.02 * s_guess, s_max)
     if settings.gap != "given":
         for eng in engines.values():
             eng.walk(direction, extent)
