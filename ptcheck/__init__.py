@@ -8,6 +8,7 @@ the command line in :mod:`ptcheck.cli`.
 from . import models
 from .approximants import Pade, parse_order
 from .blocks import Block, BlockSeries, block_series, find_blocks
+from .bounds import CertifiedBoundary, ErrorBounds, certified_boundary, error_bounds
 from .compare import ComparisonResult, ValidityBoundary, compare, validity_boundary
 from .convergence import ConvergenceResult, DivergenceMap, convergence, divergence_map
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, NearDegeneratePair, near_degenerate_pairs
@@ -48,11 +49,13 @@ __all__ = [
     "BasisTooLargeError",
     "Block",
     "BlockSeries",
+    "CertifiedBoundary",
     "ComparisonResult",
     "ConvergenceResult",
     "DEFAULT_MIXING_THRESHOLD",
     "DegenerateLevelError",
     "DivergenceMap",
+    "ErrorBounds",
     "ExactSolver",
     "ExactSweep",
     "Model",
@@ -68,12 +71,14 @@ __all__ = [
     "ValidityBoundary",
     "anharmonicity",
     "block_series",
+    "certified_boundary",
     "combination",
     "compare",
     "convergence",
     "cross_kerr",
     "dispersive_shift",
     "divergence_map",
+    "error_bounds",
     "exchange",
     "find_blocks",
     "models",

@@ -51,19 +51,19 @@ class Settings:
     gap_value: float | None
     trial_order: int
     krylov_steps: int
-    lanczos_steps: int
+    lanczos_steps: int | None  # None: 20 + 4 n for level n, at most N
     seed: int
     max_nodes: int = 20000
-    max_estimate_nodes: int = 200
+    max_estimate_nodes: int = 48
 
 
 @dataclass
 class _Node:
+    """A point of the identification walk: |λ|, the proven separation there, and its kind."""
+
     s: float
     sep: float
     rigorous: bool
-    alpha: float
-    beta: float
 
 
 @dataclass
@@ -77,6 +77,7 @@ class Walk:
     reach: float = 0.0
     stalled: bool = False
     phase: str = "rigorous"
+    estimate_nodes: int = 0
 
 
 def _temple(rho, r, d_rho, alpha, beta):
@@ -181,15 +182,17 @@ class LevelEngine:
 
     # ---------------------------------------------------------------- estimate (Lanczos)
     def estimate_at(self, coupling: float) -> tuple[float, float]:
-        """(α, β) at one coupling from a deflated Lanczos run; β is an estimate, α is rigorous."""
+        """Estimated (α, β) at one coupling from a deflated Lanczos run (Ritz values of H with the trial removed)."""
         key = float(coupling)
         if key in self._estimates:
             return self._estimates[key][:2]
-        psi = self.trial.vector(key)
+        psi = self.trial.best_vector(key)
         start = self._rng.standard_normal(self.model.n)
         if self._warm is not None:
             start = np.real(self._warm) + 0.1 * start / np.sqrt(self.model.n)
-        res = deflated_spectrum(self.model, key, psi, self.settings.lanczos_steps, start, keep=self.n)
+        steps = self.settings.lanczos_steps or min(20 + 4 * self.n, self.model.n)
+        h_norm = float(self.scales.h_scale(np.array(key)))
+        res = deflated_spectrum(self.model, key, psi, steps, start, keep=self.n, h_norm=h_norm)
         self.mat_vecs += res.mat_vecs
         self._warm = res.warm
         w, rr = res.ritz_values, res.residuals
@@ -289,7 +292,7 @@ class LevelEngine:
             rig = True
         lo, hi, _, _, ok = self.interval(lam, alpha.copy(), beta)
         sep = float(min(beta[0] - hi[0], lo[0] - alpha[0])) if ok[0] else -np.inf
-        return _Node(s, sep, rig, float(alpha[0]), float(beta[0]))
+        return _Node(s, sep, rig)
 
     def walk(self, direction: int, extent: float, threshold: float = 0.0) -> Walk:
         """Cover [0, extent] along ``direction`` with separation windows (see module notes).
@@ -304,7 +307,7 @@ class LevelEngine:
         w = self._walks.get(key)
         if w is None:
             w = Walk(direction, float(threshold))
-            w.nodes.append(_Node(0.0, self.sep0, True, np.nan, np.nan))
+            w.nodes.append(_Node(0.0, self.sep0, True))
             w.rigorous_reach = w.reach = self._window(self.sep0, threshold)
             w.phase = "estimate" if self.settings.gap == "estimate" else "rigorous"
             self._walks[key] = w
@@ -314,7 +317,13 @@ class LevelEngine:
             min_progress = 1e-6 * extent
             step = 0.95 * (w.reach - last)
             placed = False
+            tries = 0
             while step > min_progress:
+                if w.phase == "estimate":  # each try costs a Lanczos run: few halvings, bounded count
+                    tries += 1
+                    w.estimate_nodes += 1
+                    if tries > 4 or w.estimate_nodes > self.settings.max_estimate_nodes:
+                        break
                 s = min(last + step, extent)
                 node = self._node(s, direction, w.phase == "estimate")
                 win = self._window(node.sep, threshold)

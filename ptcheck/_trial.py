@@ -143,14 +143,15 @@ class SeriesTrial:
         # E0_n keeps a constant added to H0 out of the rounding)
         h0psi = (model.e0 - model.e0[level])[None, :] * psi
         blocks = (psi, h0psi, w[None, :])
-        self._g_x = np.block([[np.real(a.conj() @ b.T) for b in blocks] for a in blocks])
+        self._g_x = np.block([[a.conj() @ b.T for b in blocks] for a in blocks])  # complex for complex models
         del h0psi
-        self._x_norms = np.sqrt(np.clip(np.diag(self._g_x), 0.0, None))
+        self._x_norms = np.sqrt(np.clip(np.real(np.diag(self._g_x)), 0.0, None))
         self._g_pp = self._g_x[: k + 1, : k + 1]
+        self._g_pp_real = np.real(self._g_pp)  # enough for real coefficient vectors (powers of λ)
         self._gamma_n = model.n * EPS / (1.0 - model.n * EPS)  # worst-case error of an N-term dot product
         self._g_pr = np.real(psi.conj() @ resid.T)
         self._g_rr = np.real(resid.conj() @ resid.T)
-        self.psi_norms = np.sqrt(np.clip(np.diag(self._g_pp), 0.0, None))
+        self.psi_norms = np.sqrt(np.clip(np.diag(self._g_pp_real), 0.0, None))
         self.resid_norms = np.sqrt(np.clip(np.diag(self._g_rr), 0.0, None))
         self._eps_m = self._margins()
         # V ψ^(i) in X-coordinates: −(H0 − E0_n) ψ^(i+1) + Σ_j E^(j) ψ^(i+1−j) for i < K, and V ψ^(K)
@@ -221,7 +222,7 @@ class SeriesTrial:
         a = lam[:, None] ** np.arange(k + 1)[None, :]
         pw = self.resid_powers
         b = lam[:, None] ** pw[None, :]
-        phi2 = np.einsum("ci,ij,cj->c", a, self._g_pp, a)
+        phi2 = np.einsum("ci,ij,cj->c", a, self._g_pp_real, a)
         cross = np.einsum("ci,ij,cj->c", a, self._g_pr, b)
         p2 = np.einsum("ci,ij,cj->c", b, self._g_rr, b)
         s = np.abs(lam)
@@ -261,8 +262,9 @@ class SeriesTrial:
         t = u[:, keep] / np.sqrt(sv[keep])  # Ψ-coordinates of an orthonormal basis of span Ψ
         a0 = self._g_x[:j, j : 2 * j]
         a1 = self._g_x[:j] @ self._v_in_x
-        a0, a1 = (a0 + a0.T) / 2, (a1 + a1.T) / 2
-        h = (t.T @ a0 @ t)[None] + lam[:, None, None] * (t.T @ a1 @ t)[None]
+        a0, a1 = (a0 + a0.conj().T) / 2, (a1 + a1.conj().T) / 2
+        th = t.conj().T
+        h = (th @ a0 @ t)[None] + lam[:, None, None] * (th @ a1 @ t)[None]
         shifted, y = np.linalg.eigh(h)  # Ritz values of H − E0_n
         e_ref = self.energy_coefficients[0]
         ritz = shifted + e_ref
@@ -271,10 +273,10 @@ class SeriesTrial:
         z = np.einsum("xi,cmi->cmx", self._v_in_x, a) * lam[:, None, None]
         z[:, :, :j] -= shifted[:, :, None] * a
         z[:, :, j : 2 * j] += a
-        r2 = np.einsum("cmi,ij,cmj->cm", z, self._g_x, z)
+        r2 = np.real(np.einsum("cmi,ij,cmj->cm", z.conj(), self._g_x, z))
         zabs = np.abs(z) @ self._x_norms
         gam = self._gamma_n + 4 * (3 * j) * EPS
-        xn2 = np.einsum("cmi,ij,cmj->cm", a, b, a)
+        xn2 = np.real(np.einsum("cmi,ij,cmj->cm", a.conj(), b, a))
         aabs = np.abs(a) @ self.psi_norms
         xn2_lo = np.maximum(xn2 - gam * aabs**2, 1e-300)
         rs_round = np.abs(lam)[:, None] * (np.abs(a[:, :, : j - 1]) @ self._eps_m[1:j])  # RS-equation rounding
@@ -304,13 +306,37 @@ class SeriesTrial:
         u0 = np.zeros(2 * k + 1)
         u0[pw] = self.resid_norms
         return {
-            "D": quad(self._g_pp, ip, ip),
+            "D": quad(self._g_pp_real, ip, ip),
             "N1": quad(self._g_pr, ip, pw),
             "N2": quad(self._g_rr, pw, pw),
             "E": self.energy_coefficients[: k + 1] * d**ip,
             "U0": u0,
             "PHI": self.psi_norms.copy(),
         }
+
+    def best_vector(self, coupling: float) -> np.ndarray:
+        """Normalised Ritz vector of span{ψ^(0..K)} that stands for the level at one coupling, shape (N,).
+
+        The lowest Ritz vector for the ground level; otherwise the one overlapping the series state most.
+        """
+        lam = float(coupling)
+        b = self._g_pp
+        sv, u = np.linalg.eigh(b)
+        keep = sv > 1e-12 * sv[-1]
+        t = u[:, keep] / np.sqrt(sv[keep])
+        j = self.order + 1
+        a0 = self._g_x[:j, j : 2 * j]
+        a1 = self._g_x[:j] @ self._v_in_x
+        h = t.conj().T @ ((a0 + a0.conj().T) / 2 + lam * (a1 + a1.conj().T) / 2) @ t
+        _, y = np.linalg.eigh(h)
+        coords = t @ y  # (K+1, M)
+        if self.level == 0:
+            pick = 0
+        else:
+            p = lam ** np.arange(j)
+            pick = int(np.argmax(np.abs(coords.conj().T @ (b @ p))))
+        x = coords[:, pick] @ self.series.state_coefficients
+        return x / np.linalg.norm(x)
 
     def vector(self, coupling: float) -> np.ndarray:
         """Normalised trial state at one coupling, shape (N,)."""

@@ -355,7 +355,8 @@ def _settings(gap: Any, trial_order: Any, krylov_steps: Any, lanczos_steps: Any,
     krylov_steps = val.check_int(krylov_steps, "krylov_steps", minimum=0)
     if krylov_steps == 1:
         raise ValueError("krylov_steps must be 0 (no refinement) or >= 2; got 1")
-    lanczos_steps = val.check_int(lanczos_steps, "lanczos_steps", minimum=2)
+    if lanczos_steps is not None:
+        lanczos_steps = val.check_int(lanczos_steps, "lanczos_steps", minimum=2)
     seed = val.check_int(seed, "seed", minimum=0)
     return Settings(gap_mode, gap_value, trial_order, krylov_steps, lanczos_steps, seed)
 
@@ -476,7 +477,7 @@ def error_bounds(
     gap: str | float = "auto",
     trial_order: int | None = None,
     krylov_steps: int = 0,
-    lanczos_steps: int = 30,
+    lanczos_steps: int | None = None,
     seed: int = 0,
 ) -> ErrorBounds:
     """Bracket the exact level and the error of its order-k energy, without an exact solve.
@@ -498,8 +499,8 @@ def error_bounds(
         mat-vecs and 2K + 1 stored vectors per level.
     krylov_steps : int, default 0
         Rayleigh–Ritz steps from the trial state at each coupling (0 = none).
-    lanczos_steps : int, default 30
-        Lanczos steps of each gap estimate.
+    lanczos_steps : int, optional
+        Lanczos steps of each gap estimate; default 20 + 4 n for level n (at most N).
     seed : int, default 0
         Seed of the Lanczos start vectors.
 
@@ -728,7 +729,7 @@ def certified_boundary(
     gap: str | float = "auto",
     trial_order: int | None = None,
     krylov_steps: int = 0,
-    lanczos_steps: int = 30,
+    lanczos_steps: int | None = None,
     seed: int = 0,
     max_coupling: float | None = None,
     xrtol: float = 1e-3,
@@ -938,9 +939,10 @@ class _Target:
         err = el[0] / ref_max[0] if self.relative and ref_max[0] > 0 else (np.inf if self.relative else el[0])
         return bool(ident[0] and err > self.thr), bool(rig[0]), bool(useful[0] and ident[0])
 
-    def pert_slope(self, b: float) -> float:
+    def pert_slope(self, b: np.ndarray) -> np.ndarray:
+        """Bound on |dE_k/dλ| for |λ| ≤ b (shape of ``b``)."""
         j = np.arange(1, self.pert_coef.size)
-        return float(np.sum(j * np.abs(self.pert_coef[1:]) * b ** (j - 1))) if j.size else 0.0
+        return np.polynomial.polynomial.polyval(np.asarray(b, dtype=float), np.concatenate([j * np.abs(self.pert_coef[1:]), [0.0]]))
 
 
 def _find_fail(target: _Target, s_start: float, s_max: float, xrtol: float, krylov: bool) -> tuple[float, bool]:
@@ -984,37 +986,31 @@ def _extend(target: _Target, start: float, end: float, *, allow_estimate: bool, 
         if new.size:
             eh, _, rmin, _, ident, rig, _ = target.brackets(new, allow_estimate=allow_estimate)
             ok = ident & (rig if not allow_estimate else True)
-            for x, a, b, c in zip(new, eh, rmin, ok):
-                cache[float(x)] = (float(a), float(b), bool(c))
+            for x, e_, r_, c_ in zip(new, eh, rmin, ok):
+                cache[float(x)] = (float(e_), float(r_), float(c_))
 
     probe(pts)
     cert_to = start
     for _ in range(rounds):
-        pts = np.array(sorted(cache))
-        cert_to, split = start, []
-        for a, b in zip(pts[:-1], pts[1:]):
-            ea, ra, oka = cache[float(a)]
-            eb, rb, okb = cache[float(b)]
-            if not (oka and okb):
-                break
-            lip_e = target.pert_slope(b) + target.slope
-            worst_err = 0.5 * (ea + eb + (b - a) * lip_e)
-            if target.relative:
-                good = worst_err <= target.thr * 0.5 * (ra + rb - (b - a) * target.slope)
-                bad_a, bad_b = ea > target.thr * ra, eb > target.thr * rb
-            else:
-                good = worst_err <= target.thr
-                bad_a, bad_b = ea > target.thr, eb > target.thr
-            if good:
-                if not split:
-                    cert_to = b
-                continue
-            if bad_a or b - a < 1e-9 * end:
-                break  # nothing certifiable beyond a
-            split.append(0.5 * (a + b))
-            if bad_b or len(split) >= 64:
-                break
-        if not split:
+        xs = np.array(sorted(cache))
+        vals = np.array([cache[float(x)] for x in xs])
+        err, ref, ok = vals[:, 0], vals[:, 1], vals[:, 2].astype(bool)
+        a, b = xs[:-1], xs[1:]
+        worst = 0.5 * (err[:-1] + err[1:] + (b - a) * (target.pert_slope(b) + target.slope))
+        if target.relative:
+            good = worst <= target.thr * 0.5 * (ref[:-1] + ref[1:] - (b - a) * target.slope)
+            bad = err > target.thr * ref
+        else:
+            good = worst <= target.thr
+            bad = err > target.thr
+        good &= ok[:-1] & ok[1:]
+        hard = ~(ok[:-1] & ok[1:]) | (~good & (bad[:-1] | (b - a < 1e-9 * end)))
+        soft = ~good & bad[1:]  # worth one more split, nothing beyond it
+        limit = min(int(np.argmax(hard)) if hard.any() else good.size, int(np.argmax(soft)) + 1 if soft.any() else good.size)
+        run = int(np.argmin(good[:limit])) if not good[:limit].all() else limit
+        cert_to = float(b[run - 1]) if run > 0 else start
+        todo = np.flatnonzero(~good[:limit])[:64]
+        if todo.size == 0:
             return cert_to
-        probe(np.array(split))
+        probe(0.5 * (a[todo] + b[todo]))
     return cert_to

@@ -9,8 +9,7 @@ import scipy.sparse as sp
 from hypothesis import HealthCheck, given, settings, strategies as st
 from scipy.optimize import brentq
 
-from ptcheck import Model, Quantity
-from ptcheck.bounds import CertifiedBoundary, ErrorBounds, certified_boundary, error_bounds
+from ptcheck import CertifiedBoundary, ErrorBounds, Model, Quantity, certified_boundary, error_bounds
 from ptcheck.errors import DegenerateLevelError
 from ptcheck.models import spin_chain
 
@@ -152,11 +151,11 @@ def test_true_crossing_is_flagged_not_identified():
 
 
 # ---------------------------------------------------------------------- property tests
-def random_model(seed: int, n: int, scale: float) -> Model:
+def random_model(seed: int, n: int, scale: float, *, complex_: bool = False) -> Model:
     rng = np.random.default_rng(seed)
     e0 = np.cumsum(rng.uniform(0.3, 1.5, size=n))
-    a = rng.normal(size=(n, n))
-    v = scale * (a + a.T) / 2
+    a = rng.normal(size=(n, n)) + (1j * rng.normal(size=(n, n)) if complex_ else 0.0)
+    v = scale * (a + a.conj().T) / 2
     return Model(np.diag(e0), v)
 
 
@@ -167,11 +166,12 @@ def random_model(seed: int, n: int, scale: float) -> Model:
     scale=st.floats(0.05, 0.6),
     gap=st.sampled_from(["auto", "weyl", "neighbours", "estimate"]),
     order=st.integers(0, 4),
+    complex_=st.booleans(),
 )
-def test_random_models_exact_level_in_every_bracket(seed, n, scale, gap, order):
-    # invented random models; the referee is numpy's eigh (rank and tracked by overlap on a fine path).
-    # With N <= 8 the Lanczos estimate spans the whole space, so it is exact here.
-    m = random_model(seed, n, scale)
+def test_random_models_exact_level_in_every_bracket(seed, n, scale, gap, order, complex_):
+    # invented random (real or complex Hermitian) models; the referee is numpy's eigh (rank, and tracked by
+    # overlap on a fine path).  With N <= 8 the Lanczos estimate spans the whole space, so it is exact here.
+    m = random_model(seed, n, scale, complex_=complex_)
     level = seed % n
     lam = np.array([-0.5, -0.1, 0.05, 0.2, 0.6])
     b = error_bounds(m, level, order, lam, gap=gap, trial_order=order + 4)
