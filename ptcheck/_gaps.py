@@ -71,7 +71,6 @@ class Walk:
     """Identification along one ray: nodes and the reach of their windows."""
 
     direction: int
-    threshold: float
     nodes: list = field(default_factory=list)
     rigorous_reach: float = 0.0
     reach: float = 0.0
@@ -101,7 +100,7 @@ class LevelEngine:
         self.notes: list[str] = []
         self._neighbours: dict[int, SeriesTrial | None] = {}
         self._estimates: dict[float, tuple[float, float, float]] = {}
-        self._walks: dict[tuple[int, float], Walk] = {}
+        self._walks: dict[int, Walk] = {}
         self._warm: np.ndarray | None = None
         self._rng = np.random.default_rng(settings.seed)
         e0 = model.e0
@@ -111,7 +110,7 @@ class LevelEngine:
 
     # ---------------------------------------------------------------- Weyl
     def weyl_rank(self, lam: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
-        """Rigorous range of E_(k)(λ) (Weyl); (−inf, inf) outside 0..N−1."""
+        """Rigorous range of E_(k)(λ) (Weyl); by convention E_(−1) = −inf and E_(N) = +inf."""
         if k < 0:
             return np.full(lam.shape, -np.inf), np.full(lam.shape, -np.inf)
         if k >= self.model.n:
@@ -294,23 +293,20 @@ class LevelEngine:
         sep = float(min(beta[0] - hi[0], lo[0] - alpha[0])) if ok[0] else -np.inf
         return _Node(s, sep, rig)
 
-    def walk(self, direction: int, extent: float, threshold: float = 0.0) -> Walk:
+    def walk(self, direction: int, extent: float) -> Walk:
         """Cover [0, extent] along ``direction`` with separation windows (see module notes).
 
-        ``threshold``: the separation must exceed it inside every window (2 U
-        for the monotone bound of the certified boundary, 0 for identification).
         Rigorous gaps are used while they give windows; with gap ``"auto"`` or
         ``"estimate"`` the walk goes on with Lanczos estimates (conditional).
         Walks are kept and extended on later calls.
         """
-        key = (direction, float(threshold))
-        w = self._walks.get(key)
+        w = self._walks.get(direction)
         if w is None:
-            w = Walk(direction, float(threshold))
+            w = Walk(direction)
             w.nodes.append(_Node(0.0, self.sep0, True))
-            w.rigorous_reach = w.reach = self._window(self.sep0, threshold)
+            w.rigorous_reach = w.reach = self._window(self.sep0)
+            self._walks[direction] = w
             w.phase = "estimate" if self.settings.gap == "estimate" else "rigorous"
-            self._walks[key] = w
         allow_estimate = self.settings.gap in ("auto", "estimate")
         while w.reach < extent and not w.stalled:
             last = w.nodes[-1].s
@@ -326,7 +322,7 @@ class LevelEngine:
                         break
                 s = min(last + step, extent)
                 node = self._node(s, direction, w.phase == "estimate")
-                win = self._window(node.sep, threshold)
+                win = self._window(node.sep)
                 if s + win > w.reach + min_progress:
                     w.nodes.append(node)
                     w.reach = s + win
@@ -350,7 +346,7 @@ class LevelEngine:
         envelope of these tents is minimised exactly (falling and rising parts are
         single lines between consecutive nodes).  −inf if no walk covers [0, s].
         """
-        w = self._walks.get((direction, 0.0))
+        w = self._walks.get(direction)
         if w is None:
             return -np.inf
         reach = w.rigorous_reach if rigorous_only else w.reach
@@ -379,11 +375,12 @@ class LevelEngine:
                 vals.append(pre[i] - dv * b)
         return float(min(vals))
 
-    def _window(self, sep: float, threshold: float) -> float:
+    def _window(self, sep: float) -> float:
+        """Half-width in λ over which a proven separation ``sep`` persists (Weyl)."""
         if not np.isfinite(sep):
             return np.inf if sep > 0 else 0.0
-        if sep <= threshold:
+        if sep <= 0:
             return 0.0
         if self.dv <= 0:
             return np.inf
-        return (sep - threshold) / self.dv
+        return sep / self.dv

@@ -39,10 +39,18 @@ eigenvalues move (see :mod:`ptcheck._gaps`).  ``identified`` says where that
 argument holds; elsewhere the interval is about the exact level of the same
 energy rank.
 
-Cost per level: K + 1 mat-vecs with V (K = ``trial_order``) and one Gram matrix
-of 2K + 1 vectors, then O(K²) per coupling; Lanczos estimates and Krylov steps
-add O(steps · nnz) each.  Memory O(K · N).  Everything is computed in float64
-with explicit rounding margins; the bounds are for the matrices as given (a
+Trial states at each coupling: the series state itself and every Ritz vector of
+H(λ) in the span of the series vectors ψ^(0..K) (Rayleigh–Ritz, no extra
+mat-vec), optionally a few Krylov steps; each gives a Kato–Temple interval and
+the bracket is their intersection (with Weyl's range of the level of that
+rank).  The Weinstein interval |E − ρ| ≤ r is what identifies the level along
+the path; where the gap is known it is always wider than Kato–Temple's.
+
+Cost per level: K + 1 mat-vecs with V (K = ``trial_order``) and Gram matrices
+of about 3K vectors of length N (O(K² N)), then O(K³) scalar work per
+coupling; Lanczos estimates and Krylov steps add O(steps · nnz) each.  Memory
+O(K · N).  Everything is computed in float64 with explicit rounding margins
+(worst-case dot-product bounds); the bounds are for the matrices as given (a
 truncated basis is the user's to check).
 """
 
@@ -50,7 +58,7 @@ from __future__ import annotations
 
 import html
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -128,7 +136,7 @@ class ErrorBounds:
     rel_error_lower, rel_error_upper : (C,) ndarray
         Bracket of the error relative to the exact shift |E − E0| (levels) or to
         the reference the quantity names; ``inf`` upper where that reference's
-        bracket contains 0.
+        bracket contains 0, NaN where the reference is exactly 0 (λ = 0).
     rigorous : (C,) ndarray of bool
         True where the bracket uses rigorous gaps only and the level is
         identified rigorously; False where it is conditional on an estimated or
@@ -430,15 +438,15 @@ def _pointwise(eng: LevelEngine, lam: np.ndarray, *, krylov: bool, allow_estimat
     if st.gap == "given":
         alpha, beta = eng.given_gap(lam, st.gap_value)
         kind = np.full(lam.shape, "given", dtype=object)
-        lo, hi, rho, r, _ = eng.interval(lam, alpha.copy(), beta, krylov=krylov)
+        lo, hi, rho, r, _ = eng.interval(lam, alpha, beta, krylov=krylov)
         return _Pointwise(lo, hi, rho, r, alpha, beta, kind, np.zeros(lam.shape, dtype=bool), ident)
     if st.gap == "estimate":
         alpha, beta = eng.transported_estimate(lam)
         kind = np.full(lam.shape, "estimate", dtype=object)
-        lo, hi, rho, r, _ = eng.interval(lam, alpha.copy(), beta, krylov=krylov)
+        lo, hi, rho, r, _ = eng.interval(lam, alpha, beta, krylov=krylov)
         return _Pointwise(lo, hi, rho, r, alpha, beta, kind, np.zeros(lam.shape, dtype=bool), ident)
     alpha, beta, kind = eng.rigorous_gap(lam)
-    lo, hi, rho, r, ok = eng.interval(lam, alpha.copy(), beta, krylov=krylov)
+    lo, hi, rho, r, ok = eng.interval(lam, alpha, beta, krylov=krylov)
     rigorous = ident_rig.copy()
     if not allow_estimate:
         return _Pointwise(lo, hi, rho, r, alpha, beta, kind, rigorous, ident_rig)
@@ -447,7 +455,7 @@ def _pointwise(eng: LevelEngine, lam: np.ndarray, *, krylov: bool, allow_estimat
         if np.any(weak):
             idx = np.flatnonzero(weak)
             a2, b2 = eng.transported_estimate(lam[idx])
-            l2, h2, rho2, r2, _ = eng.interval(lam[idx], a2.copy(), b2, krylov=krylov)
+            l2, h2, rho2, r2, _ = eng.interval(lam[idx], a2, b2, krylov=krylov)
             lo[idx], hi[idx], rho[idx], r[idx] = l2, h2, rho2, r2
             alpha[idx], beta[idx] = a2, b2
             kind[idx] = "estimate"
@@ -462,8 +470,8 @@ def _error_brackets(lo, hi, pert, ref_lo, ref_hi):
     contains_zero = (ref_lo <= 0) & (ref_hi >= 0)
     ref_min = np.where(contains_zero, 0.0, np.minimum(np.abs(ref_lo), np.abs(ref_hi)))
     with np.errstate(divide="ignore", invalid="ignore"):
-        rel_lo = np.where(ref_max > 0, err_lo / ref_max, np.inf)
-        rel_hi = np.where(ref_min > 0, err_hi / ref_min, np.inf)
+        rel_lo = np.where(ref_max > 0, err_lo / ref_max, np.nan)  # 0/0 at λ = 0: undefined
+        rel_hi = np.where(ref_min > 0, err_hi / ref_min, np.where(ref_max > 0, np.inf, np.nan))
     return err_lo, err_hi, rel_lo, rel_hi
 
 
@@ -496,7 +504,7 @@ def error_bounds(
         Where the bounds on the neighbouring levels come from (module notes).
     trial_order : int, optional
         Order K of the trial state; default ``max(12, k + 10)``.  Costs K + 1
-        mat-vecs and 2K + 1 stored vectors per level.
+        mat-vecs and about 3K vectors of length N per level.
     krylov_steps : int, default 0
         Rayleigh–Ritz steps from the trial state at each coupling (0 = none).
     lanczos_steps : int, optional
@@ -512,6 +520,18 @@ def error_bounds(
     ------
     DegenerateLevelError
         A level is exactly degenerate in H0 (no Rayleigh–Schrödinger trial).
+
+    Notes
+    -----
+    What is guaranteed: the exact eigenvalue of the level's energy rank lies in
+    [``energy_lower``, ``energy_upper``] whenever the bounds on its neighbours
+    hold — always for rigorous gaps, and under the estimate (or the user's
+    statement) otherwise.  It is the level that carries the label where
+    ``identified`` is True: there the level's separation from both neighbours
+    has been shown on the whole path from λ = 0 (nodes with a proven
+    separation, each valid over a window of λ by Weyl's bound on how fast
+    eigenvalues move; for a given gap δ, the Weinstein radius stays below δ/2).
+    Where that argument fails the result says so in ``notes``.
 
     Examples
     --------
@@ -550,8 +570,6 @@ def error_bounds(
     level_parts = [level_result(*p) for p in parts]
     if not isinstance(level, Quantity):
         only = level_parts[0]
-        from dataclasses import replace
-
         return replace(only, notes=(BOUNDS_NOTE,) + only.notes)
     return _combine(model, name, weights, relative_to, spec, settings, lam, level_parts)
 
