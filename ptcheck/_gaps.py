@@ -188,7 +188,7 @@ class LevelEngine:
         psi = self.trial.best_vector(key)
         start = self._rng.standard_normal(self.model.n)
         if self._warm is not None:
-            start = np.real(self._warm) + 0.1 * start / np.sqrt(self.model.n)
+            start = self._warm + 0.1 * start / np.sqrt(self.model.n)
         steps = self.settings.lanczos_steps or min(20 + 4 * self.n, self.model.n)
         h_norm = float(self.scales.h_scale(np.array(key)))
         res = deflated_spectrum(self.model, key, psi, steps, start, keep=self.n, h_norm=h_norm)
@@ -257,7 +257,7 @@ class LevelEngine:
         ok = ok | np.any(ok2, axis=1)
         if krylov and self.settings.krylov_steps > 0:
             for i, x in enumerate(lam):
-                ref = refine(self.model, float(x), self.trial.vector(float(x)), self.settings.krylov_steps)
+                ref = refine(self.model, float(x), self.trial.best_vector(float(x)), self.settings.krylov_steps)
                 self.mat_vecs += ref.mat_vecs
                 if self.n > 0 and ref.ritz_values.size >= self.n:
                     alpha[i] = min(alpha[i], float(ref.ritz_values[self.n - 1]))
@@ -275,10 +275,16 @@ class LevelEngine:
         return lo, hi, rho, r, ok
 
     def given_gap(self, lam: np.ndarray, delta: float) -> tuple[np.ndarray, np.ndarray]:
-        """(α, β) from a user gap δ around the labelled level, via the Weinstein interval about E_K."""
+        """(α, β) from a user gap δ around the labelled level, via the Weinstein interval about E_K.
+
+        The labelled level lies in [E_K − U, E_K + U] while 2U < δ (continuity from λ = 0: no other
+        eigenvalue can enter an interval narrower than the gap); beyond that only Weyl's bounds remain.
+        """
         c = self.trial.centre(lam)
         u = self.trial.residual_bound(lam)
-        return c + u - delta, c - u + delta
+        aw, bw = self.weyl_gap(lam)
+        ok = 2.0 * u < delta
+        return np.where(ok, np.minimum(c + u - delta, aw), aw), np.where(ok, np.maximum(c - u + delta, bw), bw)
 
     # ---------------------------------------------------------------- identification walk
     def _node(self, s: float, direction: int, use_estimate: bool) -> _Node:
@@ -289,7 +295,7 @@ class LevelEngine:
         else:
             alpha, beta, _ = self.rigorous_gap(lam)
             rig = True
-        lo, hi, _, _, ok = self.interval(lam, alpha.copy(), beta)
+        lo, hi, _, _, ok = self.interval(lam, alpha, beta)  # lowers alpha by the Ritz values
         sep = float(min(beta[0] - hi[0], lo[0] - alpha[0])) if ok[0] else -np.inf
         return _Node(s, sep, rig)
 
