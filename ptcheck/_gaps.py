@@ -241,8 +241,12 @@ class LevelEngine:
         """
         rho, r, d = self.trial.evaluate(lam)
         ritz, rr, dr = self.trial.subspace(lam)
+        h_pad = 8 * EPS * self.scales.h_scale(lam)
         if self.n > 0 and ritz.shape[1] >= self.n:
-            np.minimum(alpha, ritz[:, self.n - 1], out=alpha)
+            # Poincaré: E_(n−1) ≤ the largest Rayleigh quotient on the span of the n lowest Ritz vectors,
+            # which exceeds the computed θ_(n−1) by at most the rounding of the n × n projection
+            pad = self.n * np.max(dr[:, : self.n], axis=1) + h_pad
+            np.minimum(alpha, ritz[:, self.n - 1] + pad, out=alpha)
         lo, hi, ok = _temple(rho, r, d, alpha, beta)
         l2, h2, ok2 = _temple(ritz, rr, dr, alpha[:, None], beta[:, None])
         width = np.where(ok, hi - lo, np.inf)
@@ -259,9 +263,9 @@ class LevelEngine:
             for i, x in enumerate(lam):
                 ref = refine(self.model, float(x), self.trial.best_vector(float(x)), self.settings.krylov_steps)
                 self.mat_vecs += ref.mat_vecs
-                if self.n > 0 and ref.ritz_values.size >= self.n:
-                    alpha[i] = min(alpha[i], float(ref.ritz_values[self.n - 1]))
                 dk = 8 * EPS * float(self.scales.h_scale(np.array(x)))
+                if self.n > 0 and ref.ritz_values.size >= self.n:
+                    alpha[i] = min(alpha[i], float(ref.ritz_values[self.n - 1]) + ref.ritz_values.size * dk)
                 l3, h3, ok3 = _temple(np.array(ref.value), np.array(ref.residual + dk), np.array(dk), np.array(alpha[i]), np.array(beta[i]))
                 if ok3:
                     if float(h3 - l3) < hi[i] - lo[i]:
@@ -269,9 +273,8 @@ class LevelEngine:
                     lo[i], hi[i] = max(lo[i], float(l3)), min(hi[i], float(h3))
                     ok[i] = True
         wl, wh = self.weyl_rank(lam, self.n)
-        pad = 8 * EPS * self.scales.h_scale(lam)
-        lo = np.maximum(lo, wl) - pad
-        hi = np.minimum(hi, wh) + pad
+        lo = np.maximum(lo, wl) - h_pad
+        hi = np.minimum(hi, wh) + h_pad
         return lo, hi, rho, r, ok
 
     def given_gap(self, lam: np.ndarray, delta: float) -> tuple[np.ndarray, np.ndarray]:
