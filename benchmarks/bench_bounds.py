@@ -99,7 +99,7 @@ def part_a() -> list[dict]:
                        f"{t_ours:.2f} s, 0 exact solves",
             "ratio": ratio,
             "target": "certified/true in [0.9, 1]",
-            "check": "ok" if ok else "MISSED",
+            "check": f"{'ok' if ok else 'MISSED'} (certified/true = {ratio:.5f})",
         })
     return rows
 
@@ -108,29 +108,32 @@ def part_b(repeats: int) -> list[dict]:
     t = time.perf_counter()
     model = chain(20)
     t_build = time.perf_counter() - t
-    rows = []
-    base_times = []
-    for _ in range(repeats):
+    base_times: list[float] = []
+    ours: dict[int, list[float]] = {2: [], 3: []}
+    results = {}
+    for _ in range(repeats):  # interleaved, so that load changes hit baseline and ptcheck alike
         t = time.perf_counter()
         for _ in range(3):
             ground_energy(model, 0.5)
         base_times.append(time.perf_counter() - t)
-    for order in (2, 3):
-        times, result = [], None
-        for _ in range(repeats):
+        for order in ours:
             t = time.perf_counter()
-            result = certified_boundary(model, 0, order, rtol=1e-2)
-            times.append(time.perf_counter() - t)
+            results[order] = certified_boundary(model, 0, order, rtol=1e-2)
+            ours[order].append(time.perf_counter() - t)
+    rows = []
+    for order, times in ours.items():
+        result = results[order]
         ratio = min(base_times) / min(times)
         rows.append({
             "benchmark": f"(b) L=20 chain (N=2^20), order {order}, rtol 1e-2",
             "baseline": f"3 eigsh ground solves: min {min(base_times):.1f} s, median {statistics.median(base_times):.1f} s",
-            "ptcheck": f"certified {result.coupling:.5g} ({'rigorous' if result.rigorous else 'conditional'}), fails at "
-                       f"{result.fail_coupling:.5g}, {result.mat_vecs} mat-vecs: min {min(times):.1f} s, median "
-                       f"{statistics.median(times):.1f} s (model built once in {t_build:.0f} s, not counted)",
+            "ptcheck": f"certified {result.coupling:.5g} ({'rigorous' if result.rigorous else 'conditional'}; rigorous "
+                       f"gaps alone {result.rigorous_coupling:.4g}), fails at {result.fail_coupling:.5g}, "
+                       f"{result.mat_vecs} mat-vecs: min {min(times):.1f} s, median {statistics.median(times):.1f} s "
+                       f"(model built once in {t_build:.0f} s, not counted)",
             "ratio": ratio,
             "target": "> 1 (faster than 3 solves)",
-            "check": "ok" if ratio > 1 else "SLOWER",
+            "check": f"{'ok' if ratio > 1 else 'SLOWER'} ({ratio:.2f}x)",
         })
     return rows
 

@@ -268,15 +268,15 @@ class SeriesTrial:
         shifted, y = np.linalg.eigh(h)  # Ritz values of H − E0_n
         e_ref = self.energy_coefficients[0]
         ritz = shifted + e_ref
-        a = np.einsum("ij,cjm->cmi", t, y)  # (C, M, K+1): Ψ-coordinates of the Ritz vectors
+        a = np.swapaxes(t @ y, 1, 2)  # (C, M, K+1): Ψ-coordinates of the Ritz vectors
         # (H − θ) x in X-coordinates: (H0 − E0_n) part, λ V part (through V ψ^(i) in X), −(θ − E0_n) Ψ part
-        z = np.einsum("xi,cmi->cmx", self._v_in_x, a) * lam[:, None, None]
+        z = (a @ self._v_in_x.T) * lam[:, None, None]
         z[:, :, :j] -= shifted[:, :, None] * a
         z[:, :, j : 2 * j] += a
-        r2 = np.real(np.einsum("cmi,ij,cmj->cm", z.conj(), self._g_x, z))
+        r2 = np.real(np.sum(z.conj() * (z @ self._g_x.T), axis=2))
         zabs = np.abs(z) @ self._x_norms
         gam = self._gamma_n + 4 * (3 * j) * EPS
-        xn2 = np.real(np.einsum("cmi,ij,cmj->cm", a.conj(), b, a))
+        xn2 = np.real(np.sum(a.conj() * (a @ b.T), axis=2))
         aabs = np.abs(a) @ self.psi_norms
         xn2_lo = np.maximum(xn2 - gam * aabs**2, 1e-300)
         rs_round = np.abs(lam)[:, None] * (np.abs(a[:, :, : j - 1]) @ self._eps_m[1:j])  # RS-equation rounding
