@@ -83,7 +83,7 @@ def test_two_level_brackets_contain_closed_form(gap):
     m, exact = two_level()
     lam = np.array([-0.9, -0.4, -0.05, 1e-3, 0.02, 0.1, 0.3, 0.45, 0.8, 1.5])
     for level, sign in ((0, -1.0), (1, +1.0)):
-        for order in (1, 2, 4):
+        for order in (1, 2, 4, "pade1/1"):
             b = error_bounds(m, level, order, lam, gap=gap)
             e = exact(lam, sign)
             slack = 1e-14  # eigenvalue rounding of the closed form itself
@@ -277,6 +277,15 @@ def test_two_level_certified_boundary_below_closed_form_boundary(order, rtol):
     assert c.coupling > 0.999 * true  # certified within 0.1 % here (smooth, well-separated levels)
     assert c.fail_coupling >= true
     assert c.status == "bracketed" and c.rigorous and c.exact_solves == 0
+
+
+def test_certified_boundary_of_a_transition():
+    # E_1 − E_0 = 2 sqrt(1/4 + λ²) for the two-level model above (closed form); its order-2 value is 1 + 2λ²
+    m, exact = two_level()
+    q = Quantity("transition", {1: 1.0, 0: -1.0}, relative_to="shift")
+    true = brute_boundary(lambda s: 2 * exact(s, 1.0), lambda s: 1 + 2 * s**2, 1e-3, 0.45, relative=True, e0=1.0)
+    c = certified_boundary(m, q, 2, rtol=1e-3)
+    assert 0.99 * true <= c.coupling <= true <= abs(c.fail_coupling)
 
 
 @settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
