@@ -329,6 +329,23 @@ def test_chain_certified_boundary_against_brute_force():
         assert c.exact_solves == 0
 
 
+def test_neighbour_gap_beats_weyl_when_the_next_level_is_far():
+    # invented three-level model E0 = (0, 1, 10): the neighbour's own Kato–Temple bracket (closed by Weyl at the
+    # far level) bounds E_1 far better than Weyl's inequality does, so the rigorous certificate reaches further.
+    v = np.array([[0.0, 0.3, 0.2], [0.3, 0.1, 0.4], [0.2, 0.4, -0.2]])
+    m = Model(np.diag([0.0, 1.0, 10.0]), v)
+    weyl = certified_boundary(m, 0, 2, rtol=1e-3, gap="weyl")
+    nb = certified_boundary(m, 0, 2, rtol=1e-3, gap="neighbours")
+    assert weyl.rigorous and nb.rigorous
+    assert nb.coupling >= weyl.coupling
+    lam = np.linspace(0.05, 1.2, 6)
+    bw = error_bounds(m, 0, 2, lam, gap="weyl")
+    bn = error_bounds(m, 0, 2, lam, gap="neighbours")
+    assert np.all(bn.neighbour_above >= bw.neighbour_above) and np.any(bn.neighbour_above > bw.neighbour_above + 0.1)
+    exact = ranked_levels(m, 1, lam)  # numpy eigvalsh: the bound on the neighbour stays below it
+    assert np.all(bn.neighbour_above <= exact + 1e-12)
+
+
 def test_rigorous_coupling_and_status_fields():
     m, _ = two_level()
     c = certified_boundary(m, 0, 2, tol=1e-4, gap="estimate")
