@@ -40,8 +40,6 @@ from .model import Model
 #: Gap sources of :func:`ptcheck.error_bounds` (a positive number = ``"given"``).
 GAP_KINDS = ("auto", "weyl", "neighbours", "estimate")
 
-RIGOROUS_KINDS = ("weyl", "neighbours")
-
 
 @dataclass(frozen=True)
 class Settings:
