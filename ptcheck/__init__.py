@@ -9,6 +9,7 @@ from . import _startup  # noqa: F401  (first: a quiet Ctrl-C while the command l
 from . import models
 from .approximants import Pade, parse_order
 from .blocks import Block, BlockSeries, block_series, find_blocks
+from .bounds import CertifiedBoundary, ErrorBounds, certified_boundary, error_bounds
 from .compare import ComparisonResult, ValidityBoundary, compare, validity_boundary
 from .convergence import ConvergenceResult, DivergenceMap, convergence, divergence_map
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, NearDegeneratePair, near_degenerate_pairs
@@ -52,12 +53,14 @@ __all__ = [
     "BasisTooLargeError",
     "Block",
     "BlockSeries",
+    "CertifiedBoundary",
     "CheckSettings",
     "ComparisonResult",
     "ConvergenceResult",
     "DEFAULT_MIXING_THRESHOLD",
     "DegenerateLevelError",
     "DivergenceMap",
+    "ErrorBounds",
     "ExactSolver",
     "ExactSweep",
     "Formula",
@@ -78,12 +81,14 @@ __all__ = [
     "ValidityRange",
     "anharmonicity",
     "block_series",
+    "certified_boundary",
     "combination",
     "compare",
     "convergence",
     "cross_kerr",
     "dispersive_shift",
     "divergence_map",
+    "error_bounds",
     "exchange",
     "find_blocks",
     "formula",
