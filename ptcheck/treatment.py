@@ -422,9 +422,14 @@ class _DegenerateGroup:
     def __init__(self, model: Model, levels: tuple[int, ...], order: int) -> None:
         self.model = model
         self.levels = levels
-        idx = np.asarray(levels, dtype=int)
-        e0 = model.e0
-        sw = num.sw_coefficients(e0, model.v, idx, order)
+        # the group lives in one symmetry sector: work in that sector's sub-model (levels of other
+        # sectors with the same E0 are not coupled and must not enter the reduced resolvent)
+        space = np.asarray(model.sectors[model.sector_of(levels[0])].levels, dtype=int)
+        self._space = space
+        sub = model.restrict(model.sector_of(levels[0])) if space.size < model.n else model
+        idx = np.searchsorted(space, np.asarray(levels, dtype=int))
+        e0 = sub.e0
+        sw = num.sw_coefficients(e0, sub.v, idx, order)
         if sw.finite_order < order:
             raise FloatingPointError(
                 f"the effective Hamiltonian of the degenerate group {[model.label(i) for i in levels]} overflows "
@@ -446,7 +451,7 @@ class _DegenerateGroup:
         hs = np.array(sw.heff)
         hs[0] = np.diag(ep - ref).astype(hs.dtype)
         self.hs = hs
-        in_q = np.ones(model.n, dtype=bool)
+        in_q = np.ones(e0.size, dtype=bool)
         in_q[idx] = False
         self.gap = float(np.min(np.abs(e0[in_q][:, None] - ep[None, :]))) if np.any(in_q) else math.inf
         self.branches: list[Branch] = group_branches(np.asarray(sw.heff), natural_scales(model.norm_v, self.gap, order))
@@ -480,9 +485,14 @@ class _DegenerateGroup:
     def states(self, lam: np.ndarray, k: int) -> np.ndarray:
         """(p, C, N) normalised perturbative states at order k (work basis)."""
         tr = self.solve(lam, k)
-        ul = num.isometry_at(self.sw, k, lam)  # (C, N, p)
-        psi = np.einsum("cnp,cpi->icn", ul, tr.vectors)
-        return psi / np.linalg.norm(psi, axis=2, keepdims=True)
+        ul = num.isometry_at(self.sw, k, lam)  # (C, N_sector, p)
+        sub = np.einsum("cnp,cpi->icn", ul, tr.vectors)
+        sub = sub / np.linalg.norm(sub, axis=2, keepdims=True)
+        if self._space.size == self.model.n:
+            return sub
+        psi = np.zeros(sub.shape[:2] + (self.model.n,), dtype=sub.dtype)
+        psi[:, :, self._space] = sub
+        return psi
 
 
 @dataclass(frozen=True, repr=False, eq=False)
