@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import html
 import math
+import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -35,6 +36,7 @@ from . import _validation as val
 from ._progress import ProgressCallback, report_progress
 from .approximants import order_name, parse_order
 from .compare import validity_boundary
+from .maps import _single_thread_blas
 from .model import Model
 from .quantities import Quantity, combination, stark_shift
 
@@ -188,7 +190,7 @@ def photon_boundaries(
     photons: Any = None,
     quantity: str = "transition",
     coupling: float = 1.0,
-    treatment: str = "auto",
+    treatment: str = "nondegenerate",
     backend: str = "auto",
     max_coupling: float | None = None,
     units: str = "",
@@ -212,8 +214,13 @@ def photon_boundaries(
     quantity : {"transition", "dispersive_shift"}
     coupling : float, default 1.0
         Coupling of interest λ (λ = 1: the model's own g) for ``n_valid`` and ``n_crit``.
-    treatment, backend : str
-        As for :func:`ptcheck.compare.validity_boundary`.
+    treatment : str, default "nondegenerate"
+        Perturbative treatment judged.  The dispersive formulas are the
+        non-degenerate (Rayleigh–Schrödinger) series, so that is the default;
+        "auto" would switch to a block treatment where |1,n⟩ and |0,n+1⟩ mix
+        strongly, and then judge that instead.
+    backend : str
+        Exact solver, as for :func:`ptcheck.compare.validity_boundary`.
     max_coupling : float, optional
         Largest |λ| searched.
     units : str
@@ -269,27 +276,29 @@ def photon_boundaries(
     g = float(abs(model.v_element(e_q, e_r)))
     if g == 0:
         raise ValueError(f"model {model.name!r} has no coupling between |1,0⟩ and |0,1⟩ (V element 0): no g to quote")
-    bounds, status, solves, notes = [], [], [], []
-    for k, n in enumerate(photons):
-        try:
-            b = validity_boundary(model, _target(quantity, n, units), spec, tol=tol, rtol=rtol, treatment=treatment,
-                                  backend=backend, max_coupling=max_coupling, coupling=lam if lam != 0 else None)
-            bounds.append(float(b.coupling))
-            status.append(b.status)
-            solves.append(int(b.exact_solves))
-            notes.extend(f"n = {n}: {x}" for x in b.notes[1:])
-        except (ValueError, ArithmeticError) as exc:
-            bounds.append(math.nan)
-            status.append("error")
-            solves.append(0)
-            notes.append(f"n = {n}: {type(exc).__name__}: {exc}")
-        report_progress(progress, k + 1, len(photons))
+    notes: list[str] = []
+    with _single_thread_blas():  # many small diagonalisations: one BLAS thread is faster and steadier
+        found = [_boundary(model, _target(quantity, n, units), spec, tol, rtol, treatment, backend, max_coupling, lam,
+                           progress, k, len(photons)) for k, n in enumerate(photons)]
+    bounds = [f[0] for f in found]
+    status = [f[1] for f in found]
+    solves = [f[2] for f in found]
+    for n, f in zip(photons, found):
+        notes.extend(f"n = {n}: {x}" for x in f[3])
     top_used = max(photons) + 1 + extra
     if top_used > n_max_states - 1 - HEADROOM:
         notes.append(
             f"Levels up to {top_used} photons are within {HEADROOM} Fock states of the truncation (n_photons = "
             f"{n_max_states}): check that they are converged (ptcheck.models.truncation_check)."
         )
+    for i, n in enumerate(photons):  # an isolated failure at λ → 0 between valid neighbours: say what it likely is
+        if status[i] == "fails_at_zero" and any(status[j] == "found" and abs(bounds[j]) > 0
+                                                 for j in (i - 1, i + 1) if 0 <= j < len(photons)):
+            notes.append(
+                f"n = {n}: reported to fail at any nonzero coupling while its neighbours hold to finite λ*; likely "
+                "round-off in the exact shift at tiny λ (the levels' absolute energies are large). Check it with an "
+                "absolute tolerance (tol=...)."
+            )
     n_valid = None
     for n, b, s in zip(photons, bounds, status):
         ok = s == "not_reached" or (s == "found" and abs(b) > abs(lam))
@@ -304,3 +313,22 @@ def photon_boundaries(
         boundary=_ro(bounds), status=tuple(status), exact_solves=_ro(solves, int), coupling=lam, detuning=detuning,
         g=g, n_crit=float(n_crit), critical_coupling=_ro(crit), n_valid=n_valid, notes=tuple(dict.fromkeys(notes)),
     )
+
+
+def _boundary(model, target, spec, tol, rtol, treatment, backend, max_coupling, lam, progress, k, total):
+    """(λ*, status, exact solves, notes) of one photon number.
+
+    A failed search is reported, not raised; warnings of the search (e.g. a
+    forced non-degenerate series near a degeneracy) become notes.
+    """
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            b = validity_boundary(model, target, spec, tol=tol, rtol=rtol, treatment=treatment, backend=backend,
+                                  max_coupling=max_coupling, coupling=lam if lam != 0 else None)
+            out = (float(b.coupling), b.status, int(b.exact_solves), tuple(b.notes[1:]))  # [0]: generic truncation note
+        except (ValueError, ArithmeticError) as exc:
+            out = (math.nan, "error", 0, (f"{type(exc).__name__}: {exc}",))
+    extra = tuple(f"{w.category.__name__}: {w.message}" for w in caught)
+    report_progress(progress, k + 1, total)
+    return out[:3] + (out[3] + extra,)

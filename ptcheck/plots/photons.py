@@ -90,7 +90,9 @@ def plot_photon_boundaries(
     lw = max(scale, 0.75)
     n = np.asarray(result.photons, dtype=float)
     b = np.abs(np.asarray(result.boundary, dtype=float))
-    found = np.isfinite(b)
+    status = np.asarray(result.status)
+    found = np.isfinite(b) & (status == "found")
+    at_zero = status == "fails_at_zero"
     lam = abs(float(result.coupling))
     col = order_color(result.order)
     tol = f"{100 * result.rtol:.3g} %" if result.rtol is not None else f"{result.tol:.3g} (absolute)"
@@ -99,9 +101,13 @@ def plot_photon_boundaries(
         top = 1.3 * max([lam] + [float(x) for x in b[found]] or [1.0])
         fill_y = np.where(np.isinf(b), top, np.where(found, b, np.nan))
         region = ax.fill_between(n, 0.0, fill_y, color=col, alpha=0.12, linewidth=0,
-                                 label=f"{order_name(result.order)} meets {tol} (below its line)")
-        (line,) = ax.plot(n[found], b[found], color=col, marker="o", linewidth=2.2 * lw,
-                          label=f"{order_name(result.order)}: validity boundary λ*_n of the {what}")
+                                 label=f"{order_name(result.order)} meets {tol} (shaded)")
+        (line,) = ax.plot(n, np.where(found, b, np.nan), color=col, marker="o", linewidth=2.2 * lw,
+                          label=f"λ*_n of the {what}, {order_name(result.order)}")
+        if at_zero.any():
+            ax.plot(n[at_zero], np.zeros(int(at_zero.sum())), linestyle="none", marker="x", color=col,
+                    markersize=10 * lw, markeredgewidth=2 * lw, clip_on=False,
+                    label="fails at any λ ≠ 0 (see notes)")
         beyond = np.isinf(b)
         (nr,) = ax.plot(n[beyond], np.full(int(beyond.sum()), top), linestyle="none", marker="^", color=col,
                         clip_on=False, label="λ*_n beyond the search" if beyond.any() else None)
@@ -109,7 +115,7 @@ def plot_photon_boundaries(
         nn = nn[nn > 0]
         (crit,) = ax.plot(nn, abs(result.detuning) / (2 * result.g * np.sqrt(nn)), color=_CRIT_COLOR,
                           linestyle=(0, (5, 2)), linewidth=1.8 * lw,
-                          label="n = n_crit = Δ²/(4λ²g²)  (Blais et al. 2004)")
+                          label="n = n_crit = Δ²/(4λ²g²) (Blais 2004)")
         nv = "none" if result.n_valid is None else f"n ≤ {result.n_valid}"
         cl = ax.axhline(lam, color=MARKER_COLOR, linewidth=1.6 * lw,
                         label=f"λ = {lam:g}: valid for {nv}; n_crit = {result.n_crit:.3g}")
@@ -119,8 +125,11 @@ def plot_photon_boundaries(
         ax.set_xlabel("photons in the resonator n")
         ax.set_ylabel("coupling λ")
         style_axes(ax, scale)
-        add_physical_axis(ax, physical_coupling(result, coupling_scale, coupling_unit), scale, which="y")
-        legend = add_legend(ax, scale, loc="upper right", size=FONT_SIZES["legend"] * 0.9)
+        sec = add_physical_axis(ax, physical_coupling(result, coupling_scale, coupling_unit), scale, which="y")
+        # beside the axes (right of the physical axis, if any): the curves fill the plane
+        legend = add_legend(ax, scale, loc="upper left", size=FONT_SIZES["legend"] * 0.85)
+        legend.set_bbox_to_anchor((1.0, 1.0), transform=ax.transAxes)
+        legend.borderaxespad = (4.8 if sec is not None else 0.6)
         if caption is None:
             caption = caption_text("validity against photon number", model=result.model_name,
                                    extra=[f"{order_name(result.order)}", f"tolerance {tol}"])
