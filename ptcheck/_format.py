@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
-__all__ = ["fmt_complex", "clean_complex", "order_json", "order_from_json"]
+__all__ = ["fmt_complex", "clean_complex", "order_json", "order_from_json", "order_from_name"]
 
 
 def clean_complex(z: complex, *, rel: float = 1e-9) -> complex:
@@ -89,3 +89,23 @@ def order_from_json(x: Any) -> Any:
         num, den = x["pade"]
         return Pade(int(num), int(den), in_square=bool(x.get("in_square", False)))
     return parse_order(x)
+
+
+def order_from_name(order: Any) -> Any:
+    """An order spec from a spec or its printable name (``"order 2"``, ``"Padé[2/2]"``, ``"Padé[1/1](λ²)"``).
+
+    Examples
+    --------
+    >>> order_from_name("order 3"), order_from_name("Padé[2/1]")
+    (3, Pade(num=2, den=1, in_square=False))
+    """
+    from .approximants import parse_order
+
+    if isinstance(order, str):
+        name = order.strip()
+        if name.startswith("order "):
+            name = name[len("order "):]
+        if name.startswith(("Padé[", "Pade[")):
+            name = "pade" + name[5:].replace("]", "").replace("(λ²)", "@2")
+        return parse_order(name)
+    return parse_order(order)

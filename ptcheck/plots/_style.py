@@ -183,9 +183,10 @@ def order_style(order: Any) -> dict:
         ``color``, ``linestyle`` and, for Padé approximants, ``marker`` and
         ``markevery``.
     """
-    from ..approximants import Pade, parse_order
+    from .._format import order_from_name
+    from ..approximants import Pade
 
-    spec = _spec(order, parse_order)
+    spec = order_from_name(order)
     if isinstance(spec, Pade):
         return {"color": PADE_COLORS[(spec.num + spec.den + 2 * spec.in_square) % len(PADE_COLORS)],
                 "linestyle": ORDER_DASHES[spec.den % len(ORDER_DASHES)], "marker": "D", "markevery": 0.1}
@@ -194,17 +195,6 @@ def order_style(order: Any) -> dict:
         return {"color": ORDER0_COLOR, "linestyle": (0, (1, 3))}
     n = len(ORDER_COLORS)
     return {"color": ORDER_COLORS[(k - 1) % n], "linestyle": ORDER_DASHES[((k - 1) % n + (k - 1) // n) % len(ORDER_DASHES)]}
-
-
-def _spec(order: Any, parse_order: Any) -> Any:
-    if isinstance(order, str):
-        name = order.strip()
-        if name.startswith("order "):
-            name = name[len("order "):]
-        if name.startswith("Padé[") or name.startswith("Pade["):
-            name = "pade" + name[5:].replace("]", "").replace("(λ²)", "@2")
-        return parse_order(name)
-    return parse_order(order)
 
 
 def font_scale(fig) -> float:

@@ -237,7 +237,7 @@ def plot_divergence(
         marker = None
         if coupling is not None:
             (marker,) = ax.plot([float(coupling)], [0.0], linestyle="none", marker="D", markersize=9 * lw,
-                                color=MARKER_COLOR, markeredgecolor="black", label="coupling λ", zorder=6)
+                                color=MARKER_COLOR, markeredgecolor="black", label=f"coupling λ = {float(coupling):.3g}", zorder=6)
         ax.axhline(0.0, color="#999999", linewidth=0.8 * lw, zorder=0)
         ax.axvline(0.0, color="#999999", linewidth=0.8 * lw, zorder=0)
         ax.set_xlabel("Re λ")

@@ -231,7 +231,7 @@ def _end_labels(ax: Any, names: list[str], values: np.ndarray, scale: float) -> 
     ys = spread(ends, gap)
     return [
         ax.annotate(name, xy=(1.0, y), xycoords="axes fraction", xytext=(4.0 * scale / 0.72, 0.0), textcoords="offset points",
-                    ha="left", va="center", fontsize=size, color=EXACT_COLOR, annotation_clip=False)
+                    ha="left", va="center", fontsize=size, color=EXACT_COLOR, annotation_clip=False, clip_on=False)
         for name, y in zip(names, ys)
     ]
 

@@ -122,6 +122,9 @@ def plot_photon_boundaries(
         ax.set_ylim(0.0, top)
         if n.size:
             ax.set_xlim(float(n.min()) - 0.3, float(n.max()) + 0.3)
+        from matplotlib.ticker import MaxNLocator
+
+        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
         ax.set_xlabel("photons in the resonator n")
         ax.set_ylabel("coupling λ")
         style_axes(ax, scale)
