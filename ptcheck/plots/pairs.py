@@ -700,9 +700,8 @@ def plot_mixing_matrix(
             nb = [b for b in mmap.blocks if b.size > 1]
             extra = [f"threshold {mmap.threshold:g}", f"{len(mmap.pairs)} flagged pair(s)"]
             extra += [f"B{i + 1} = block {{{', '.join(b.labels)}}}" for i, b in enumerate(nb)]
-            caption = caption_text("near-degenerate pairs", model=mmap.model_name, n=mmap.n,
-                                   levels=[mmap.labels[list(mmap.levels).index(a)] for a in mmap.asked if a in pos],
-                                   extra=[f"λ = {mmap.coupling:.3g}"] + extra)
+            caption = caption_text("mixing ratios", model=mmap.model_name, n=mmap.n,
+                                   extra=[f"λ = {mmap.coupling:.3g}"] + extra[2:] + extra[:2])
         cap = add_caption(ax, caption, scale)
     return MatrixArtists(figure=fig, ax=ax, image=im, colorbar=cbar, flagged=tuple(flagged), block_outlines=tuple(outlines),
                        block_labels=tuple(labels), caption=cap)
