@@ -574,21 +574,25 @@ def _tolerances(x: Any, name: str) -> list[float]:
 
 
 def said_once(texts: Sequence[str]) -> list[str]:
-    """Texts with every sentence already said in an earlier text removed (boilerplate said once).
+    """Texts with boilerplate already said in an earlier text removed (said once).
 
-    The result is aligned with ``texts`` ("" where nothing new is left).
+    Boilerplate: a sentence without any digit (advice, definitions); a
+    sentence with numbers is data about its own text and always stays.  The
+    result is aligned with ``texts`` ("" where nothing new is left).
 
     Examples
     --------
-    >>> said_once(["A is 1. Check it.", "B is 2. Check it."])
-    ['A is 1. Check it.', 'B is 2.']
+    >>> said_once(["A is 1. Check it.", "B is 1. Check it."])
+    ['A is 1. Check it.', 'B is 1.']
     """
+    import re
+
     seen: set[str] = set()
     out = []
     for t in texts:
         kept = []
         for sentence in _sentences(t):
-            if sentence not in seen:
+            if sentence not in seen or re.search(r"\d", sentence):
                 kept.append(sentence)
                 seen.add(sentence)
         out.append(" ".join(kept))
@@ -599,7 +603,7 @@ def _sentences(text: str) -> list[str]:
     """Split at ". " (a full stop followed by a space and a capital or digit), keeping the stops."""
     import re
 
-    return [p for p in re.split(r"(?<=[.!?])\s+(?=[A-Z0-9(])", text.strip()) if p]
+    return [p for p in re.split(r"(?<=[.!?])\s+(?=[^a-z\s])", text.strip()) if p]
 
 
 def _boundary(model, target, name, spec, direction, threshold, tolkw, treatment, backend, lam0) -> ValidityBoundary:

@@ -276,3 +276,5 @@ def test_boilerplate_said_once():
     texts = ["Level a: radius 2. These are estimates: check them.", "Level b: radius 3. These are estimates: check them."]
     assert rp.said_once(texts) == ["Level a: radius 2. These are estimates: check them.", "Level b: radius 3."]
     assert rp.said_once(["Same. Same.", "Same."]) == ["Same.", ""]
+    # a sentence with numbers is data about its own level: never dropped
+    assert rp.said_once(["a: bound 0.75.", "b: bound 0.75."]) == ["a: bound 0.75.", "b: bound 0.75."]

@@ -208,11 +208,26 @@ def physical_coupling(source: Any, scale: float | None = None, unit: str | None 
 
 
 def fmt_physical(coupling: float, phys: tuple[float, str] | None) -> str:
-    """``"0.798"`` or, with a physical coupling, ``"0.798 (65.4 MHz)"``."""
-    text = f"{coupling:.3g}"
+    """``"0.798"`` or, with a physical coupling, ``"0.798 (65.4 MHz)"``, ``"14 (1148 MHz)"``."""
+    text = plain3(coupling)
     if phys is not None and math.isfinite(coupling):
-        text += f" ({coupling * phys[0]:.3g}{' ' + phys[1] if phys[1] else ''})"
+        text += f" ({plain3(coupling * phys[0])}{' ' + phys[1] if phys[1] else ''})"
     return text
+
+
+def plain3(x: float) -> str:
+    """Three significant digits without an exponent between 1e-3 and 1e5 (``1148``, ``0.798``).
+
+    Examples
+    --------
+    >>> plain3(1148.2), plain3(0.7981), plain3(82.0), plain3(2e-5)
+    ('1148', '0.798', '82', '2e-05')
+    """
+    if not math.isfinite(x) or x == 0 or not (1e-3 <= abs(x) < 1e5):
+        return f"{x:.3g}"
+    p = max(0, 2 - math.floor(math.log10(abs(x))))
+    text = f"{x:.{p}f}"
+    return text.rstrip("0").rstrip(".") if "." in text else text
 
 
 def add_physical_axis(ax: Any, phys: tuple[float, str] | None, scale: float, *, which: str = "x") -> Any:
