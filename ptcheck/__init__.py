@@ -23,6 +23,7 @@ from .errors import (
 )
 from .exact import AvoidedCrossing, ExactSolver, ExactSweep, track
 from .model import Model
+from .photons import PhotonBoundaries, photon_boundaries
 from .products import product_model
 from .quantities import (
     Quantity,
@@ -59,6 +60,7 @@ __all__ = [
     "NearDegeneratePair",
     "NearDegenerateWarning",
     "Pade",
+    "PhotonBoundaries",
     "PtcheckWarning",
     "Quantity",
     "QuantitySeries",
@@ -79,6 +81,7 @@ __all__ = [
     "models",
     "near_degenerate_pairs",
     "parse_order",
+    "photon_boundaries",
     "product_model",
     "quantity_series",
     "rs_series",

@@ -17,6 +17,8 @@ ENGINE = [
     "ptcheck.models",
     "ptcheck.products",
     "ptcheck.maps",
+    "ptcheck.photons",
+    "ptcheck._format",
     "ptcheck.modelfile",
     "ptcheck._atomic",
 ]

@@ -363,6 +363,8 @@ def plot_pairs(
     ax: Any = None,
     table_ax: Any = None,
     caption: str | None = None,
+    cax: Any = None,
+    colorbar: Any = None,
 ) -> PairArtists:
     """Level diagram of near-degenerate pairs at one coupling, with a ranked table beside it.
 
@@ -377,6 +379,10 @@ def plot_pairs(
         Draw the ranked table (largest ratios first, :meth:`MixingMap.ranked`)
         here.  Default: none when ``ax`` is given.
     caption : str, optional
+    cax, colorbar : optional
+        Accepted from callers written for the former heat-map view and
+        ignored (the diagram has no colour bar; ``cax`` is hidden).  The heat
+        map is :func:`plot_mixing_matrix`.
 
     Returns
     -------
@@ -385,6 +391,8 @@ def plot_pairs(
     """
     if not isinstance(mmap, MixingMap):
         raise TypeError(f"plot_pairs needs a MixingMap (from ptcheck.plots.mixing_map); got {type(mmap).__name__}")
+    if cax is not None:
+        cax.set_axis_off()
     if ax is None:
         fig, ax, scale = new_axes(None)
         gs = ax.get_subplotspec().subgridspec(1, 2, width_ratios=(3, 2))
