@@ -1064,11 +1064,20 @@ FIGURE_SIZE = (13.333, 7.5)
 def _render(fig: Any, *, fmt: str = "png", dpi: int = 100) -> bytes:
     """The figure's file bytes, drawn once at its own size (no timestamps: re-runs give the same bytes)."""
     import matplotlib as mpl
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
 
     buf = io.BytesIO()
     meta = {"png": {"Software": None}, "svg": {"Date": None, "Creator": None},
             "pdf": {"CreationDate": None, "Creator": None, "Producer": None}}[fmt]
     kw = {"pil_kwargs": {"compress_level": 3}} if fmt == "png" else {}
+    # lay out once with the renderer that then draws: text is measured once (savefig would lay out on a
+    # renderer of its own, then draw on another, measuring every label twice)
+    fig.set_dpi(dpi)
+    FigureCanvasAgg(fig)
+    engine = fig.get_layout_engine()
+    if engine is not None:
+        engine.execute(fig)
+        fig.set_layout_engine("none")
     with mpl.rc_context({"svg.hashsalt": "ptcheck"}):
         fig.savefig(buf, format=fmt, dpi=dpi, metadata=meta, facecolor="white", **kw)
     return buf.getvalue()
