@@ -24,10 +24,12 @@ Exit status
 from __future__ import annotations
 
 import argparse
+import io
 import sys
 import textwrap
 import warnings
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
@@ -306,21 +308,47 @@ def _figures(a: argparse.Namespace) -> Any:
 def _cmd_demo(a: argparse.Namespace) -> int:
     from .maps import _single_thread_blas
 
-    with _single_thread_blas():  # small matrices (N = 32, 96): one BLAS thread is faster than several
-        return _demo(a)
+    # small matrices (N = 32, 96): one BLAS thread is faster than several; independent parts (the side
+    # studies, each figure) run on two forked workers beside the main check
+    with _single_thread_blas(), _worker_pool() as pool:
+        return _demo(a, pool)
 
 
-def _demo(a: argparse.Namespace) -> int:
-    import numpy as np
+@contextmanager
+def _worker_pool() -> Iterator[Any]:
+    """Two forked worker processes, shut down on the way out; None where fork is unavailable."""
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor
+
+    if "fork" not in mp.get_all_start_methods():
+        yield None
+        return
+    pool = ProcessPoolExecutor(max_workers=2, mp_context=mp.get_context("fork"), initializer=_warm_up)
+    try:
+        yield pool
+    finally:
+        pool.shutdown(wait=True, cancel_futures=True)
+
+
+def _warm_up() -> None:
+    """Import the figure code and load the fonts in a worker (while the main check runs)."""
+    from matplotlib.figure import Figure
+
+    from .plots import _common
+
+    _common.text_width("λ 0123456789 ⟩", 12.0)
+    Figure(figsize=(1, 1)).savefig(io.BytesIO(), format="png")
+
+
+def _demo(a: argparse.Namespace, pool: Any) -> int:
+    from functools import partial
 
     from .models import kerr_qubit_resonator
     from .quantities import dispersive_shift, stark_shift
-    from .report import run_check, write_report
+    from .report import default_figures, run_check, write_report
 
     p = DEMO_PARAMS
-    model = kerr_qubit_resonator(**p)
-    model.name = "Q-17 qubit + readout resonator (invented)"
-    _set_physical_coupling(model, 1000.0 * p["g"], "MHz")
+    model = _demo_model(p)
     lamb = stark_shift((1, 0), (0, 0), name="qubit Lamb shift", units="GHz")
     chi = dispersive_shift(name="chi", units="GHz")
     description = (
@@ -332,6 +360,10 @@ def _demo(a: argparse.Namespace) -> int:
         "coupling λ = 1 (g/2π = 82 MHz); this report checks them against exact diagonalisation, to 1 % (judged) "
         "and 5 %, and shows how far the coupling, the resonator frequency and the photon number can go."
     )
+    side = None
+    if pool is not None:  # two workers started now warm up while the main check runs
+        side = pool.submit(_side_studies, chi) if not a.no_map else None
+        pool.submit(int)
     with _progress_bar("demo") as bar:
         report = run_check(
             model, [lamb, chi], [2, 4], coupling=1.0, rtol=[0.01, 0.05], builder="kerr_qubit_resonator", params=p,
@@ -341,31 +373,43 @@ def _demo(a: argparse.Namespace) -> int:
         )
     extras: dict[str, Any] = {"energy_unit": "GHz"}
     if not a.no_map:
-        from .maps import validity_map
-        from .photons import photon_boundaries
-
-        detunings = np.round(np.linspace(5.95, 7.35, 8), 4)
-        with _progress_bar("validity map") as bar:
-            extras["validity_map"] = validity_map(  # a small map: serially (a process pool costs more than it saves)
-                "kerr_qubit_resonator", "omega_r", detunings, level=chi, order=2, rtol=0.01,
-                couplings=np.linspace(0.1, 2.0, 20), builder_kwargs={k: v for k, v in p.items() if k != "omega_r"},
-                executor="serial", progress=bar,
-            )
+        extras.update(side.result() if side is not None else _side_studies(chi))
         extras["validity_map_mark"] = (p["omega_r"], 1.0)
-        # photon budget: the same device with room for 24 photons in the resonator basis
-        big = kerr_qubit_resonator(**{**p, "n_photons": 24})
-        big.name = model.name
-        _set_physical_coupling(big, 1000.0 * p["g"], "MHz")
-        with _progress_bar("photon numbers") as bar:
-            extras["photon_boundaries"] = photon_boundaries(big, 2, rtol=0.01, photons=range(0, 21, 2), units="GHz",
-                                                            progress=bar)
     from dataclasses import replace
 
     report = replace(report, extras={**report.extras, **extras})
     out = Path(a.out)
-    files = write_report(report, out, figures=_figures(a), force=a.force)
+    figures = False if a.no_figures else partial(default_figures, figure_format=a.figure_format, executor=pool)
+    files = write_report(report, out, figures=figures, force=a.force)
     _print_summary(report, files, out)
     return EXIT_VALID
+
+
+def _demo_model(p: dict, **changes: Any) -> Any:
+    from .models import kerr_qubit_resonator
+
+    model = kerr_qubit_resonator(**{**p, **changes})
+    model.name = "Q-17 qubit + readout resonator (invented)"
+    _set_physical_coupling(model, 1000.0 * p["g"], "MHz")
+    return model
+
+
+def _side_studies(chi: Any) -> dict:
+    """The demo's validity map over ω_r and its photon-number boundaries (module level: runs on a worker)."""
+    import numpy as np
+
+    from .maps import validity_map
+    from .photons import photon_boundaries
+
+    p = DEMO_PARAMS
+    vm = validity_map(  # a small map: serially (a process pool of its own costs more than it saves)
+        "kerr_qubit_resonator", "omega_r", np.round(np.linspace(5.95, 7.35, 8), 4), level=chi, order=2, rtol=0.01,
+        couplings=np.linspace(0.1, 2.0, 20), builder_kwargs={k: v for k, v in p.items() if k != "omega_r"},
+        executor="serial",
+    )
+    # photon budget: the same device with room for 24 photons in the resonator basis
+    pb = photon_boundaries(_demo_model(p, n_photons=24), 2, rtol=0.01, photons=range(0, 21, 2), units="GHz")
+    return {"validity_map": vm, "photon_boundaries": pb}
 
 
 def _set_physical_coupling(model: Any, scale: float, unit: str) -> None:

@@ -1069,7 +1069,7 @@ def _render(fig: Any, *, fmt: str = "png", dpi: int = 100) -> bytes:
     buf = io.BytesIO()
     meta = {"png": {"Software": None}, "svg": {"Date": None, "Creator": None},
             "pdf": {"CreationDate": None, "Creator": None, "Producer": None}}[fmt]
-    kw = {"pil_kwargs": {"compress_level": 3}} if fmt == "png" else {}
+    kw = {"pil_kwargs": {"compress_level": 1}} if fmt == "png" else {}  # fast; files stay ~150 kB
     # lay out once with the renderer that then draws: text is measured once (savefig would lay out on a
     # renderer of its own, then draw on another, measuring every label twice)
     fig.set_dpi(dpi)
@@ -1097,7 +1097,9 @@ def _new_figure(figsize: tuple[float, float] = FIGURE_SIZE, *, columns: Sequence
         return fig, [fig.add_subplot(gs[0, i]) for i in range(len(columns))]
 
 
-def default_figures(report: CheckReport, *, figure_format: str = "png", dpi: int = 100) -> list[Figure]:
+def default_figures(
+    report: CheckReport, *, figure_format: str = "png", dpi: int = 100, executor: Any = None
+) -> list[Figure]:
     """Figures of a report, made by :mod:`ptcheck.plots` (16:9 slides, fonts legible on a projector).
 
     Per target: values against λ and errors against λ (with the tolerance(s)
@@ -1114,11 +1116,45 @@ def default_figures(report: CheckReport, *, figure_format: str = "png", dpi: int
     figure_format : {"png", "svg", "pdf"}
     dpi : int
         Resolution of PNG files (pixels = 13.33 in × dpi wide).
+    executor : concurrent.futures.Executor, optional
+        Draw the figures as independent tasks there (e.g. a process pool on
+        a multi-core machine); the list comes back in the same order.
+        Default: one after the other in this process.
+
+    Returns
+    -------
+    list of Figure
     """
     val.check_choice(figure_format, "figure format", FIGURE_FORMATS)
-    plots = _plots_module()
-    if plots is None:
+    if _plots_module() is None:
         return [_fallback_error_figure(report, figure_format)]
+    plan = figure_plan(report)
+    if executor is None:
+        return [draw_figure(report, key, figure_format=figure_format, dpi=dpi) for key in plan]
+    futures = [executor.submit(draw_figure, report, key, figure_format=figure_format, dpi=dpi) for key in plan]
+    return [f.result() for f in futures]
+
+
+def figure_plan(report: CheckReport) -> list[tuple]:
+    """The figures :func:`default_figures` draws for this report, as keys for :func:`draw_figure`."""
+    plots = _plots_module()
+    plan: list[tuple] = []
+    for ti in range(len(report.comparison.targets)):
+        plan += [("values", ti), ("errors", ti)]
+    if any(c is not None for c in report.convergence):
+        plan.append(("convergence",))
+    if report.source_model is not None and report.pairs and hasattr(plots, "plot_pairs"):
+        plan.append(("pairs",))
+    if report.extras.get("validity_map") is not None:
+        plan.append(("validity_map",))
+    if report.extras.get("photon_boundaries") is not None and hasattr(plots, "plot_photon_boundaries"):
+        plan.append(("photons",))
+    return plan
+
+
+def draw_figure(report: CheckReport, key: tuple, *, figure_format: str = "png", dpi: int = 100) -> Figure:
+    """One figure of :func:`figure_plan` (module level: a worker process can draw it)."""
+    plots = _plots_module()
     comp = report.comparison
     s = report.settings
     lam = s["coupling"]
@@ -1130,47 +1166,48 @@ def default_figures(report: CheckReport, *, figure_format: str = "png", dpi: int
     def done(name: str, caption: str, fig: Any) -> Figure:
         return Figure(f"{name}.{ext}", caption, _render(fig, fmt=ext, dpi=dpi), ext)
 
-    figs: list[Figure] = []
-    for ti, t in enumerate(comp.targets):
+    kind = key[0]
+    if kind in ("values", "errors"):
+        ti = key[1]
+        t = comp.targets[ti]
         slug = _slug(t, ti)
         fig, ax = _new_figure()
-        plots.plot_levels(comp, targets=[t], orders=judged, coupling=lam, ax=ax, **phys)
-        figs.append(done(f"values-{slug}", f"{t}: exact and perturbative values against λ (vertical line: λ = {lam:g}).", fig))
-        fig, ax = _new_figure()
+        if kind == "values":
+            plots.plot_levels(comp, targets=[t], orders=judged, coupling=lam, ax=ax, **phys)
+            return done(f"values-{slug}", f"{t}: exact and perturbative values against λ (vertical line: λ = {lam:g}).", fig)
         bnds = [b for b in report.boundaries + report.other_boundaries if b.target == t]
         tols = [s["rtol"] if rel else s["tol"]] + list(s.get("other_tolerances") or ())
         plots.plot_errors(comp, bnds, target=t, orders=judged, error="relative" if rel else "absolute", tol=tols,
                           coupling=lam, ax=ax, **phys)
-        figs.append(done(f"errors-{slug}", f"{t}: error of each order against λ, the tolerance"
-                         f"{'s' if len(tols) > 1 else ''}, and where each order stops meeting "
-                         f"{'them' if len(tols) > 1 else 'it'} (λ*).", fig))
-    convs = [c for c in report.convergence if c is not None]
-    if convs and hasattr(plots, "plot_divergence"):
+        return done(f"errors-{slug}", f"{t}: error of each order against λ, the tolerance{'s' if len(tols) > 1 else ''}, "
+                    f"and where each order stops meeting {'them' if len(tols) > 1 else 'it'} (λ*).", fig)
+    if kind == "convergence":
         fig, ax = _new_figure()
-        plots.plot_divergence(convs, coupling=lam, model_name=report.model["name"], ax=ax)
-        figs.append(done("convergence", "Complex coupling plane: exceptional points, convergence discs and Kato bounds "
-                         "of the levels used; your λ on the real axis.", fig))
-    if report.source_model is not None and report.pairs and hasattr(plots, "plot_pairs"):
+        plots.plot_divergence([c for c in report.convergence if c is not None], coupling=lam,
+                              model_name=report.model["name"], ax=ax)
+        return done("convergence", "Complex coupling plane: exceptional points, convergence discs and Kato bounds of "
+                    "the levels used; your λ on the real axis.", fig)
+    if kind == "pairs":
         needed = sorted({n for q in report.comparison.levels for n in _levels_of(report.source_model, q)})
         fig, (ax, tax) = _new_figure(columns=(3, 2))
         plots.plot_pairs(plots.mixing_map(report.source_model, lam, levels=needed, threshold=s["threshold"]), ax=ax,
                          table_ax=tax)
-        figs.append(done("pairs", f"Levels at λ = {lam:g} and the pairs whose mixing ratio |λV|/|ΔE| is large; "
-                         "outlined: blocks treated together.", fig))
-    vm = report.extras.get("validity_map")
-    if vm is not None:
+        return done("pairs", f"Levels at λ = {lam:g} and the pairs whose mixing ratio |λV|/|ΔE| is large; "
+                    "outlined: blocks treated together.", fig)
+    if kind == "validity_map":
         from .maps_plot import plot_validity_map
 
+        vm = report.extras["validity_map"]
         fig, ax = _new_figure()
         plot_validity_map(vm, ax=ax, mark=report.extras.get("validity_map_mark"), mark_label="design point",
                           unit=report.extras.get("energy_unit"))
-        figs.append(done("validity-map", vm.caption(), fig))
-    pb = report.extras.get("photon_boundaries")
-    if pb is not None and hasattr(plots, "plot_photon_boundaries"):
+        return done("validity-map", vm.caption(), fig)
+    if kind == "photons":
+        pb = report.extras["photon_boundaries"]
         fig, ax = _new_figure()
         plots.plot_photon_boundaries(pb, ax=ax, **phys)
-        figs.append(done("photons", pb.summary(), fig))
-    return figs
+        return done("photons", pb.summary(), fig)
+    raise ValueError(f"unknown figure {key!r}; figure_plan gives {figure_plan(report)}")
 
 
 def _physical(report: CheckReport) -> dict:

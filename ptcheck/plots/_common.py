@@ -5,6 +5,7 @@ Private module.  Nothing here computes physics: only text and indexing.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Iterable, Sequence
 from typing import Any
@@ -106,8 +107,9 @@ def add_caption(ax: Any, text: str, scale: float) -> Any:
     return ax.set_title(line, loc="left", fontsize=size, color="#444444", pad=6.0 * scale / 0.72)
 
 
+@functools.lru_cache(maxsize=1024)
 def text_width(text: str, fontsize: float) -> float:
-    """Width of one line of text in points (Agg font metrics, current font family)."""
+    """Width of one line of text in points (Agg font metrics, default font family; cached)."""
     from matplotlib.backends.backend_agg import RendererAgg
     from matplotlib.font_manager import FontProperties
 
