@@ -331,9 +331,11 @@ def _worker_pool() -> Iterator[Any]:
 
 
 def _warm_up() -> None:
-    """Import the figure code and load the fonts in a worker (while the main check runs)."""
+    """Import the figure code and load the fonts in a worker, while the main check runs (the main process
+    itself never imports matplotlib: the figures are drawn on the workers)."""
     from matplotlib.figure import Figure
 
+    from . import maps_plot  # noqa: F401
     from .plots import _common
 
     _common.text_width("λ 0123456789 ⟩", 12.0)

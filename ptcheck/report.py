@@ -1126,10 +1126,10 @@ def default_figures(
     list of Figure
     """
     val.check_choice(figure_format, "figure format", FIGURE_FORMATS)
-    if _plots_module() is None:
-        return [_fallback_error_figure(report, figure_format)]
     plan = figure_plan(report)
     if executor is None:
+        if _plots_module() is None:
+            return [_fallback_error_figure(report, figure_format)]
         return [draw_figure(report, key, figure_format=figure_format, dpi=dpi) for key in plan]
     futures = [executor.submit(draw_figure, report, key, figure_format=figure_format, dpi=dpi) for key in plan]
     return [f.result() for f in futures]
@@ -1137,17 +1137,16 @@ def default_figures(
 
 def figure_plan(report: CheckReport) -> list[tuple]:
     """The figures :func:`default_figures` draws for this report, as keys for :func:`draw_figure`."""
-    plots = _plots_module()
     plan: list[tuple] = []
     for ti in range(len(report.comparison.targets)):
         plan += [("values", ti), ("errors", ti)]
     if any(c is not None for c in report.convergence):
         plan.append(("convergence",))
-    if report.source_model is not None and report.pairs and hasattr(plots, "plot_pairs"):
+    if report.source_model is not None and report.pairs:
         plan.append(("pairs",))
     if report.extras.get("validity_map") is not None:
         plan.append(("validity_map",))
-    if report.extras.get("photon_boundaries") is not None and hasattr(plots, "plot_photon_boundaries"):
+    if report.extras.get("photon_boundaries") is not None:
         plan.append(("photons",))
     return plan
 
