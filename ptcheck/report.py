@@ -38,7 +38,7 @@ import numpy as np
 from . import _validation as val
 from ._atomic import ReportExistsError, write_all
 from ._progress import ProgressCallback, report_progress
-from ._format import clean_complex, fmt_complex, order_from_name, order_json
+from ._format import clean_complex, order_from_name, order_json
 from .approximants import Pade, order_name, parse_orders
 from .compare import TRUNCATION_NOTE, ComparisonResult, ValidityBoundary, compare, validity_boundary
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, NearDegeneratePair, near_degenerate_pairs
