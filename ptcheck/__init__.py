@@ -26,6 +26,7 @@ from .errors import (
 from .exact import AvoidedCrossing, ExactSolver, ExactSweep, track
 from .formula import Formula, ValidityRange, formula
 from .model import Model
+from .photons import PhotonBoundaries, photon_boundaries
 from .products import product_model
 from .quantities import (
     Quantity,
@@ -68,6 +69,7 @@ __all__ = [
     "NearDegeneratePair",
     "NearDegenerateWarning",
     "Pade",
+    "PhotonBoundaries",
     "PtcheckWarning",
     "Quantity",
     "QuantitySeries",
@@ -95,6 +97,7 @@ __all__ = [
     "models",
     "near_degenerate_pairs",
     "parse_order",
+    "photon_boundaries",
     "product_model",
     "quantity_series",
     "rs_series",

@@ -34,6 +34,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import io
 import signal
 import sys
 import textwrap
@@ -50,6 +51,9 @@ __all__ = ["main", "build_parser", "DEMO_PARAMS"]
 EXIT_VALID, EXIT_NOT_VALID, EXIT_BAD_INPUT, EXIT_INTERNAL_ERROR = 0, 1, 2, 3
 #: SIGINT and SIGTERM: 128 + the signal number, as a shell reports them.
 EXIT_INTERRUPTED, EXIT_TERMINATED = 130, 143
+
+#: Figure file formats (as in :data:`ptcheck.report.FIGURE_FORMATS`; kept here so --help needs no heavy import).
+FIGURE_FORMATS = ("png", "svg", "pdf")
 
 #: The invented demo device "Q-17": a transmon-like Kerr-ladder qubit and its
 #: readout resonator (GHz).  These numbers describe no real device.
@@ -153,8 +157,10 @@ def build_parser() -> argparse.ArgumentParser:
     )
     d.add_argument("--out", metavar="DIR", default="ptcheck-demo", help="output directory (default: %(default)s)")
     d.add_argument("--force", action="store_true", help="replace a different report already in DIR")
-    d.add_argument("--no-map", action="store_true", help="skip the validity map (the part run on 2 worker processes)")
+    d.add_argument("--no-map", action="store_true", help="skip the validity map and the photon-number boundaries")
     d.add_argument("--no-figures", action="store_true", help="write no figures")
+    d.add_argument("--figure-format", choices=FIGURE_FORMATS, default="png", metavar="FMT",
+                   help="figure files: png, svg or pdf (default: %(default)s)")
 
     c = sub.add_parser(
         "check",
@@ -171,18 +177,28 @@ def build_parser() -> argparse.ArgumentParser:
                    help="a derived quantity, e.g. 'f01 = (1,0) - (0,0)' (repeatable)")
     c.add_argument("--orders", nargs="+", metavar="ORDER", help="orders you rely on, e.g. 2 4 or 2,4 or pade2/2 (default: 2)")
     tg = c.add_mutually_exclusive_group()
-    tg.add_argument("--tol", type=float, metavar="X", help="absolute tolerance (energy units of H0)")
-    tg.add_argument("--rtol", type=float, metavar="X", help="relative tolerance (default 0.01: 1 %% of the exact shift)")
+    tg.add_argument("--tol", type=float, nargs="+", metavar="X",
+                    help="absolute tolerance (energy units of H0); several: the first is judged, all get a boundary")
+    tg.add_argument("--rtol", type=float, nargs="+", metavar="X",
+                    help="relative tolerance (default 0.01: 1 %% of the exact shift); e.g. --rtol 0.01 0.05")
     c.add_argument("--coupling", type=float, metavar="λ", help="the coupling you use (dimensionless); required here or in MODEL")
     c.add_argument("--treatment", choices=TREATMENTS,
                    help="perturbation theory judged (default: standard = the textbook series; degenerate perturbation "
                         "theory inside exactly degenerate groups); block/auto ask for near-degenerate blocks")
     c.add_argument("--backend", metavar="NAME", help="exact solver: auto, dense, sparse, qutip (default: auto)")
+    c.add_argument("--sweep", nargs=3, metavar=("LO", "HI", "N"),
+                   help="couplings of the comparison (figures, CSV): N points from LO to HI (default: automatic)")
+    c.add_argument("--threshold", type=float, metavar="X",
+                   help="mixing-ratio threshold |λV|/|ΔE| for near-degenerate pairs and blocks (default 0.1)")
+    c.add_argument("--convergence-order", type=int, metavar="K",
+                   help="series order analysed for convergence (radius, exceptional points; default 40)")
     c.add_argument("--out", metavar="DIR", help="output directory (default: <MODEL name>-report)")
     c.add_argument("--format", nargs="+", choices=("json", "md", "csv"), metavar="FMT",
                    help="report formats among json, md, csv (default: all three)")
     c.add_argument("--force", action="store_true", help="replace a different report already in DIR")
     c.add_argument("--no-figures", action="store_true", help="write no figures")
+    c.add_argument("--figure-format", choices=FIGURE_FORMATS, default="png", metavar="FMT",
+                   help="figure files: png, svg or pdf (default: %(default)s)")
     c.add_argument("--formula", action="store_true",
                    help="also write formula.tex, formula.py and the formula figure: each target's formula at each "
                         "order judged, with the range where it meets the tolerance")
@@ -320,11 +336,12 @@ def _cmd_check(a: argparse.Namespace, run: _Run) -> int:
     treatment = a.treatment or mf.treatment or DEFAULT_TREATMENT
     backend = a.backend or mf.backend or "auto"
     source = {"model_file": str(a.model), "kind": mf.kind}
+    extra = _presentation_options(a)
     with _progress_bar("checking") as bar:
         report = run_check(
             model, targets or None, orders, coupling=coupling, tol=tol, rtol=rtol, treatment=treatment,
             backend=backend, builder=mf.builder, params=dict(mf.params) if mf.builder else None, source=source,
-            title=mf.title, progress=bar,
+            title=mf.title, progress=bar, **extra,
         )
     if a.formula:
         from dataclasses import replace
@@ -333,55 +350,164 @@ def _cmd_check(a: argparse.Namespace, run: _Run) -> int:
 
         with _progress_bar("formulas") as bar:
             report = replace(report, extras={**report.extras, "formulas": report_formulas(report, progress=bar)})
-    files = _write(report, out, formats=a.format or ("json", "md", "csv"), figures=not a.no_figures, force=a.force)
+    files = _write(report, out, formats=a.format or ("json", "md", "csv"), figures=_figures(a), force=a.force)
     _print_summary(report, files, Path(given))
     return report.exit_status
 
 
-def _cmd_demo(a: argparse.Namespace, run: _Run) -> int:
+def _presentation_options(a: argparse.Namespace) -> dict:
+    """run_check keywords of --sweep, --threshold and --convergence-order (only those given)."""
     import numpy as np
+
+    out: dict[str, Any] = {}
+    if a.sweep is not None:
+        lo, hi, n = a.sweep
+        try:
+            lo_f, hi_f, n_i = float(lo), float(hi), int(n)
+        except ValueError:
+            raise ValueError(f"--sweep takes LO HI N (two numbers and a whole number of points); got {' '.join(a.sweep)}") from None
+        if not (np.isfinite(lo_f) and np.isfinite(hi_f) and lo_f < hi_f and n_i >= 3):
+            raise ValueError(f"--sweep needs LO < HI (finite) and N >= 3; got {' '.join(a.sweep)}")
+        out["couplings"] = np.linspace(lo_f, hi_f, n_i)
+    if a.threshold is not None:
+        out["threshold"] = a.threshold
+    if a.convergence_order is not None:
+        out["convergence_order"] = a.convergence_order
+    return out
+
+
+def _figures(a: argparse.Namespace) -> Any:
+    """The figure step of write_report: none, or the default figures in the format asked for."""
+    if a.no_figures:
+        return False
+    from functools import partial
+
+    from .report import default_figures
+
+    return partial(default_figures, figure_format=a.figure_format)
+
+
+def _cmd_demo(a: argparse.Namespace, run: _Run) -> int:
+    from .maps import _single_thread_blas
+
+    # small matrices (N = 32, 96): one BLAS thread is faster than several; independent parts (the side
+    # studies, each figure) run on two forked workers beside the main check
+    with _single_thread_blas(), _worker_pool() as pool:
+        return _demo(a, pool, run)
+
+
+@contextlib.contextmanager
+def _worker_pool() -> Iterator[Any]:
+    """Two forked worker processes, shut down on the way out; None where fork is unavailable."""
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor
+
+    if "fork" not in mp.get_all_start_methods():
+        yield None
+        return
+    from .maps import _stop_pool
+
+    pool = ProcessPoolExecutor(max_workers=2, mp_context=mp.get_context("fork"), initializer=_warm_up)
+    try:
+        yield pool
+    except BaseException:  # an interrupt or an error: stop the workers now, leave no orphans
+        _stop_pool(pool)
+        raise
+    pool.shutdown(wait=True, cancel_futures=True)
+
+
+def _warm_up() -> None:
+    """Workers end quietly on SIGINT/SIGTERM (the caller stops them); import the figure code and load the fonts in a worker, while the main check runs (the main process
+    itself never imports matplotlib: the figures are drawn on the workers)."""
+    from .maps import _worker_init
+
+    _worker_init()
+    from matplotlib.figure import Figure
+
+    from . import maps_plot  # noqa: F401
+    from .plots import _common
+
+    _common.text_width("λ 0123456789 ⟩", 12.0)
+    Figure(figsize=(1, 1)).savefig(io.BytesIO(), format="png")
+
+
+def _demo(a: argparse.Namespace, pool: Any, run: _Run) -> int:
+    from functools import partial
 
     from .models import kerr_qubit_resonator
     from .quantities import dispersive_shift, stark_shift
-    from .report import run_check
+    from .report import default_figures, run_check
 
     given = _out_dir(a.out, "ptcheck-demo")
     out = run.out = _prepare_output(given)
-    model = kerr_qubit_resonator(**DEMO_PARAMS)
-    model.name = "Q-17 qubit + readout resonator (invented)"
+    p = DEMO_PARAMS
+    model = _demo_model(p)
     lamb = stark_shift((1, 0), (0, 0), name="qubit Lamb shift", units="GHz")
     chi = dispersive_shift(name="chi", units="GHz")
-    p = DEMO_PARAMS
     description = (
-        "Q-17 is an **invented** transmon-like qubit (a Kerr ladder of 4 levels: ω_q/2π = "
+        "Design check of Q-17, an **invented** transmon-like qubit (a Kerr ladder of 4 levels: ω_q/2π = "
         f"{p['omega_q']} GHz, anharmonicity α/2π = {p['alpha']} GHz) coupled with g/2π = {p['g']} GHz to a readout "
         f"resonator at ω_r/2π = {p['omega_r']} GHz ({p['n_photons']} Fock states), without the rotating-wave "
-        "approximation. The numbers are made up for this demonstration and describe no real device. λ = 1 is the "
-        "design coupling. Question: can the textbook second-order (dispersive) formulas for the qubit's Lamb shift "
-        "and the dispersive shift χ be trusted at the design coupling, to 1 %?"
+        "approximation. The numbers are made up for this demonstration and describe no real device. The design uses "
+        "the second-order (dispersive) formulas for the qubit's Lamb shift and the dispersive shift χ at the design "
+        "coupling λ = 1 (g/2π = 82 MHz); this report checks them against exact diagonalisation, to 1 % (judged) "
+        "and 5 %, and shows how far the coupling, the resonator frequency and the photon number can go."
     )
+    side = None
+    if pool is not None:  # two workers started now warm up while the main check runs
+        side = pool.submit(_side_studies, chi) if not a.no_map else None
+        pool.submit(int)
     with _progress_bar("demo") as bar:
         report = run_check(
-            model, [lamb, chi], [2, 4], coupling=1.0, rtol=0.01, builder="kerr_qubit_resonator", params=p,
-            source={"demo": "Q-17 (invented)"}, title="Q-17 (invented device): can second-order dispersive formulas be trusted?",
+            model, [lamb, chi], [2, 4], coupling=1.0, rtol=[0.01, 0.05], builder="kerr_qubit_resonator", params=p,
+            source={"demo": "Q-17 (invented)"},
+            title="Q-17 (invented device): design check of the second-order dispersive formulas",
             description=description, invented=True, progress=bar,
         )
+    extras: dict[str, Any] = {"energy_unit": "GHz"}
     if not a.no_map:
-        from dataclasses import replace
+        extras.update(side.result() if side is not None else _side_studies(chi))
+        extras["validity_map_mark"] = (p["omega_r"], 1.0)
+    from dataclasses import replace
 
-        from .maps import validity_map
-
-        detunings = np.round(np.linspace(5.95, 7.35, 8), 4)
-        with _progress_bar("validity map") as bar:
-            vm = validity_map(
-                "kerr_qubit_resonator", "omega_r", detunings, level=chi, order=2, rtol=0.01,
-                couplings=np.linspace(0.1, 2.0, 20), builder_kwargs={k: v for k, v in p.items() if k != "omega_r"},
-                progress=bar,
-            )
-        report = replace(report, extras={**report.extras, "validity_map": vm, "validity_map_mark": (p["omega_r"], 1.0)})
-    files = _write(report, out, figures=not a.no_figures, force=a.force)
+    report = replace(report, extras={**report.extras, **extras})
+    figures = False if a.no_figures else partial(default_figures, figure_format=a.figure_format, executor=pool)
+    files = _write(report, out, figures=figures, force=a.force)
     _print_summary(report, files, Path(given))
     return EXIT_VALID
+
+
+def _demo_model(p: dict, **changes: Any) -> Any:
+    from .models import kerr_qubit_resonator
+
+    model = kerr_qubit_resonator(**{**p, **changes})
+    model.name = "Q-17 qubit + readout resonator (invented)"
+    _set_physical_coupling(model, 1000.0 * p["g"], "MHz")
+    return model
+
+
+def _side_studies(chi: Any) -> dict:
+    """The demo's validity map over ω_r and its photon-number boundaries (module level: runs on a worker)."""
+    import numpy as np
+
+    from .maps import validity_map
+    from .photons import photon_boundaries
+
+    p = DEMO_PARAMS
+    vm = validity_map(  # a small map: serially (a process pool of its own costs more than it saves)
+        "kerr_qubit_resonator", "omega_r", np.round(np.linspace(5.95, 7.35, 8), 4), level=chi, order=2, rtol=0.01,
+        couplings=np.linspace(0.1, 2.0, 20), builder_kwargs={k: v for k, v in p.items() if k != "omega_r"},
+        executor="serial",
+    )
+    # photon budget: the same device with room for 24 photons in the resonator basis
+    pb = photon_boundaries(_demo_model(p, n_photons=24), 2, rtol=0.01, photons=range(0, 21, 2), units="GHz")
+    return {"validity_map": vm, "photon_boundaries": pb}
+
+
+def _set_physical_coupling(model: Any, scale: float, unit: str) -> None:
+    """λ = 1 ↔ ``scale`` ``unit`` on the model, for the figures' second coupling axis."""
+    model.coupling_scale = scale
+    model.coupling_unit = unit
 
 
 # ---------------------------------------------------------------------- entry point
