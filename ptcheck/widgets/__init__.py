@@ -26,7 +26,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from ._panel import Controls, Panel, parse_params
+from ._builders import parse_params
+from ._panel import Controls, Panel
 
 __all__ = ["Controls", "Dashboard", "DivergencePanel", "ErrorsPanel", "LevelsPanel", "PairsPanel", "Panel", "parse_params"]
 
@@ -70,10 +71,7 @@ class Dashboard(Panel):
         self.tabs = w.Tab(children=[v.widget for v in views], titles=[v.title for v in views])
         self.tabs.add_class("ptcheck-tabs")
         self.tabs.observe(self._on_tab, names="selected_index")
-        # let the tab titles (plain physics names) show in full instead of a fixed 144 px
-        css = w.HTML("<style>.ptcheck-tabs > .lm-TabBar .lm-TabBar-tab, .ptcheck-tabs > .p-TabBar .p-TabBar-tab "
-                     "{flex: 0 0 auto !important; min-width: 9em; max-width: none !important;}</style>")
-        return w.VBox([css, self.tabs])
+        return self.tabs
 
     @property
     def visible_views(self) -> list:
@@ -89,17 +87,22 @@ class Dashboard(Panel):
         self.tabs.selected_index = names.index(name)
 
     def _on_tab(self, change: dict) -> None:
-        if self.model is None or self.settings is None:
+        self._slots["tab"] = ""
+        if self.state is None:
             return
-        with self._guard():
+        with self._guard("tab"):
             (v,) = self.visible_views
-            missing = (v.needs | {"comparison"}) - self._computed
-            if missing:
-                self._ensure([v])
-            if missing or v.artists is None:
-                self._render([v])
-            elif v.stale:
-                if v.name == "pairs":
-                    v.move(self, self.coupling)
+            try:
+                self._complete([v])
+            except Exception:
+                v.unavailable(f"No {v.title} for these settings: see the message above.")
                 v.redraw()
-            self._update_readout()
+                raise
+            if v.artists is None or v.state is not self.state:
+                v.build(self, self.state)
+                v.move(self, self.coupling)
+                v.redraw()
+            elif v.stale:
+                v.move(self, self.coupling)
+                v.redraw()
+        self._update_text()
