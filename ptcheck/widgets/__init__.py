@@ -1,16 +1,26 @@
-"""Interactive panels (ipywidgets) over ptcheck's engine and figures.
+"""Interactive panels (ipywidgets) over ptcheck's engine and figures, headed by the verdict.
 
 A thin skin: standard controls -> the same engine functions the command line
-uses -> the figures of :mod:`ptcheck.plots`, updated in place.  Heavy work
-(``compare`` sweep, validity boundaries, divergence map) runs only when what it
-depends on changes; moving the coupling only moves markers and rewrites the
-readout.  Errors appear in the panel as a message (``raise_errors=True``
-re-raises them, for tests).
+uses -> the figures of :mod:`ptcheck.plots`, updated in place.  Every panel
+opens with a verdict banner: for the chosen target, each order and each
+tolerance, whether the order is valid at the current coupling and up to which
+λ* (and physical coupling, when the model has ``coupling_scale`` and
+``coupling_unit``).  Controls are grouped by the question they answer: what
+(targets, orders, tolerances), where (the coupling and its range), how
+(treatment, exact solver); the model and export boxes are folded away.
+
+Heavy work (``compare`` sweep, validity boundaries, divergence map) runs only
+when what it depends on changes; moving the coupling moves markers and
+rewrites the verdict and the readout (values at the exact λ, interpolated as
+the figure draws its lines).  Only a complete answer replaces the one shown:
+after a failed request the previous answer stays usable and is marked as such,
+and the error stays on screen until it is fixed.  ``raise_errors=True``
+re-raises errors (for tests).
 
 - :class:`LevelsPanel`: levels (or derived quantities) vs coupling λ.
-- :class:`ErrorsPanel`: error per order vs λ, tolerance, validity boundaries.
+- :class:`ErrorsPanel`: error per order vs λ, tolerances, validity boundaries.
 - :class:`DivergencePanel`: exceptional points, radius of convergence, Kato bound.
-- :class:`PairsPanel`: mixing ratios of near-degenerate pairs, blocks chosen.
+- :class:`PairsPanel`: near-degenerate pairs at the current λ, blocks chosen.
 - :class:`Dashboard`: all four as tabs sharing one set of controls.
 
 Use ``%matplotlib widget`` (ipympl) for the fast in-place canvas; otherwise

@@ -385,8 +385,7 @@ class Panel:
         elif slot == "tab":
             head, tail = "This figure cannot be drawn.", ""
         else:
-            head = "Cannot compute this."
-            tail = " The figure below still shows the previous answer." if shown else ""
+            head, tail = "Cannot compute this.", ""
         return f"<b>{head}</b> {html.escape(text)}{html.escape(tail)}{detail}"
 
     def _render_messages(self) -> None:

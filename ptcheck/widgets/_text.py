@@ -135,6 +135,6 @@ def sentence(exc: BaseException) -> str:
     first = text.split(" ", 1)[0]
     if first.isalpha() and first.islower():  # a word, not a name like jaynes_cummings or n_photons
         text = text[0].upper() + text[1:]
-    if text[-1] not in ".!?)":
+    if text[-1] not in ".!?":
         text += "."
     return text
