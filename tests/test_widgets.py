@@ -108,6 +108,20 @@ def test_verdict_follows_the_brute_force_boundary():
         p.close()
 
 
+def test_verdict_on_the_negative_side_uses_that_side_s_boundary():
+    lam1 = brute_force_boundary(0.5, 0.01)  # E(−λ) = E(λ) for this model: the same |λ*| on both sides
+    p = LevelsPanel(two_level(), levels=[0], orders=(2,), rtol=0.01, coupling_range=(-1.0, 1.0), n_points=41,
+                    treatment="nondegenerate", raise_errors=True, canvas="image")
+    try:
+        p.set_coupling(-0.95 * lam1)
+        assert p.verdict.orders[0].meets == (True,)
+        assert f"down to λ* = −{lam1:.3g}" in p.verdict.orders[0].text
+        p.set_coupling(-1.05 * lam1)
+        assert p.verdict.orders[0].meets == (False,)
+    finally:
+        p.close()
+
+
 def test_single_tolerance_sentence_and_physical_coupling():
     m = two_level()
     m.coupling_scale, m.coupling_unit = 66.0, "MHz"  # λ = 1 is g = 66 MHz (attributes of Model, read with getattr)

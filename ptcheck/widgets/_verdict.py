@@ -139,7 +139,8 @@ def _one(b: Any, lam: float, tol: float, relative: bool, model: Any, unit: str) 
         return math.nan, None, ("has", f"no boundary for {t}", "")
     if b.status == "found":
         reach = abs(float(b.coupling))
-        return reach, abs(lam) < reach, ("meets", t, f"up to {fmt_coupling(b.coupling, model, symbol='λ*')}")
+        way = "up to" if b.coupling > 0 else "down to"
+        return reach, abs(lam) < reach, ("meets", t, f"{way} {fmt_coupling(b.coupling, model, symbol='λ*')}")
     if b.status == "not_reached":
         top = float(b.max_coupling)
         return math.inf, abs(lam) <= top * (1 + 1e-12), ("meets", t, f"over the whole range checked (|λ| ≤ {fmt_number(top, 3)})")
@@ -168,7 +169,7 @@ def _join(clauses: Sequence[tuple]) -> str:
 def _at(lam: float, tols: Sequence[float], meets: Sequence, reach: Sequence, relative: bool, model: Any, unit: str) -> str:
     where = fmt_coupling(lam, model)
     if lam == 0:
-        return f"; at {where} every order is exact."
+        return f"; at {where} it is exact (no perturbation)."
     if all(r == 0 for r in reach):
         return "."
     if any(m is None for m in meets):
