@@ -348,7 +348,8 @@ class Panel:
         st = state or self.state
         s, r = st.settings, st.result
         unit = energy_unit(st.model)
-        tols = " & ".join(fmt_tol(t, s.relative, unit) for t in s.tols)
+        tols = (" & ".join(fmt_tol(t, True) for t in s.tols) if s.relative
+                else " & ".join(fmt_number(t, 3) for t in s.tols) + f" {unit}")
         return caption_text(kind, model=st.model.name, n=st.model.n, orders=[order_name(o) for o in r.orders],
                             extra=[f"tolerance {tols}", f"treatment {s.treatment}"])
 
@@ -731,6 +732,7 @@ class Panel:
                 self._setting = False
             c.coupling_text.value = fmt_input(lam, 4)
         self._lam = lam
+        self._pinned = lam  # the browser's slider re-snaps to the new step grid: keep λ where it was
         self._show_physical()
         self.refresh()
 

@@ -119,6 +119,13 @@ def readout_html(
     """Table of exact and perturbative values at λ (as the levels figure shows them) with each order's error."""
     off = shown_offset(result, shift)
     err = point.rel_error if relative else point.abs_error
+    # round-off of an exactly vanishing value (e.g. a first-order shift that is 0) reads as 0
+    scale = float(np.nanmax(np.abs(np.asarray(result.exact)))) if np.size(result.exact) else 0.0
+    floor = 1e-12 * max(scale, np.finfo(float).tiny)
+
+    def value(x: float) -> str:
+        return fmt_number(0.0 if abs(x) < floor else x, 6)
+
     what = "shift E(λ) − E(0)" if shift else "value"
     head = "".join(f"<th style='padding:0 10px;text-align:left'>{html.escape(o)}</th>" for o in result.order_names)
     rows = ""
@@ -127,7 +134,7 @@ def readout_html(
         cells = ""
         for oi in range(len(result.orders)):
             e = float(err[ti, oi])
-            val = fmt_number(float(point.perturbative[ti, oi] - off[ti]), 6)
+            val = value(float(point.perturbative[ti, oi] - off[ti]))
             if not np.isfinite(e):
                 mark = "<span style='color:#666'>error undefined (shift ≈ 0)</span>" if relative else \
                     "<span style='color:#666'>error —</span>"
@@ -137,7 +144,7 @@ def readout_html(
                 mark = f"<span style='color:{col}'>{sym} {html.escape(fmt_error(e, tols, relative))}</span>"
             cells += f"<td style='padding:0 10px'>{html.escape(val)} &nbsp;{mark}</td>"
         rows += (f"<tr><td style='padding:0 10px 0 0'>{html.escape(name)}</td>"
-                 f"<td style='padding:0 10px'>{html.escape(fmt_number(float(point.exact[ti] - off[ti]), 6))}</td>{cells}</tr>")
+                 f"<td style='padding:0 10px'>{html.escape(value(float(point.exact[ti] - off[ti])))}</td>{cells}</tr>")
     kinds = sorted(set(relative_to))
     err_word = (f"error in % of {' / '.join(kinds)}" if relative else f"absolute error in {unit}")
     return (

@@ -160,10 +160,19 @@ def _join(clauses: Sequence[tuple]) -> str:
             groups.append([verb, [tol], where])
     out, prev = [], None
     for verb, tols, where in groups:
-        body = " and ".join(tols) + (f" {where}" if where else "")
+        body = _and(tols) + (f" {where}" if where else "")
         out.append(body if verb == prev else f"{verb} {body}")
         prev = verb
     return " and ".join(out)
+
+
+def _and(tols: Sequence[str]) -> str:
+    """``0.0001 and 0.001 energy units`` (one unit word for several absolute tolerances); ``1 % and 5 %``."""
+    units = {t.split(" ", 1)[1] for t in tols if " " in t}
+    if len(tols) > 1 and len(units) == 1 and all(" " in t for t in tols) and units != {"%"}:
+        (unit,) = units
+        return " and ".join(t.split(" ", 1)[0] for t in tols) + f" {unit}"
+    return " and ".join(tols)
 
 
 def _at(lam: float, tols: Sequence[float], meets: Sequence, reach: Sequence, relative: bool, model: Any, unit: str) -> str:
