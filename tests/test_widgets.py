@@ -410,6 +410,8 @@ def test_export_writes_figure_and_numbers(levels_panel, tmp_path, fmt):
     assert header.startswith("target,order,treatment,coupling,exact,perturbative,abs_error,rel_error")
     data = json.loads(paths[2].read_text(encoding="utf-8"))
     assert data["settings"]["orders"] == ["order 1", "order 2"] and data["matches_controls"] is True
+    assert [o["order"] for o in data["verdict"]["orders"]] == ["order 1", "order 2"]
+    assert data["verdict"]["coupling"] == levels_panel.coupling
     assert data["comparison"]["exact"] == levels_panel.result.exact.tolist()
 
 

@@ -320,7 +320,8 @@ class Panel:
             view._background = None  # until the next full draw on screen
         rows, data = view.numbers(self)
         data = {"model": st.model.name, "model_request": st.model_text, "n": st.model.n,
-                "settings": self._settings_dict(st), "matches_controls": not self.stale and st is self.state, **data}
+                "settings": self._settings_dict(st), "matches_controls": not self.stale and st is self.state,
+                **({"verdict": self.verdict.to_dict()} if st is self.state and self.verdict is not None else {}), **data}
         write_numbers(rows, data, folder / f"{stem}.csv", folder / f"{stem}.json")
         view.redraw()
         return (fig_path, folder / f"{stem}.csv", folder / f"{stem}.json")

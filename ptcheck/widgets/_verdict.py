@@ -57,13 +57,40 @@ class OrderVerdict:
 
 @dataclass(frozen=True)
 class Verdict:
-    """The banner's content: target, coupling, tolerances and one :class:`OrderVerdict` per order."""
+    """The banner's content: target, coupling, tolerances and one :class:`OrderVerdict` per order.
+
+    Attributes
+    ----------
+    target : str
+    coupling : float
+        The coupling λ the verdict is for.
+    tols : tuple of float
+        Tolerances (fractions of the reference when ``relative``, else energy units).
+    relative : bool
+    orders : tuple of OrderVerdict
+    """
 
     target: str
     coupling: float
     tols: tuple
     relative: bool
     orders: tuple
+
+    def to_dict(self) -> dict:
+        def num(x: float) -> float | str | None:
+            return x if math.isfinite(x) else (None if math.isnan(x) else str(x))
+
+        return {"target": self.target, "coupling": self.coupling, "tolerances": list(self.tols),
+                "tolerance_kind": "relative" if self.relative else "absolute",
+                "orders": [{"order": o.order, "reach": [num(r) for r in o.reach], "valid_here": list(o.meets),
+                            "text": o.text} for o in self.orders]}
+
+    def __repr__(self) -> str:
+        marks = ", ".join(f"{o.order} {o.mark}" for o in self.orders)
+        return f"Verdict({self.target} at λ = {self.coupling:.4g}: {marks})"
+
+    def _repr_html_(self) -> str:
+        return verdict_html(self, heading=f"Verdict for {self.target}")
 
 
 def verdict(
