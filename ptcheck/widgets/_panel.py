@@ -657,9 +657,8 @@ class Panel:
             return
         with self._guard("compute"):
             for v in self.views.values():
-                if v.artists is not None and v not in self.visible_views:
-                    v.move(self, self._lam)
-                    v.stale = True
+                if v not in self.visible_views:
+                    v.stale = True  # moved when its tab is shown
             for v in self.visible_views:
                 if v.artists is not None:
                     v.move(self, self._lam)

@@ -100,10 +100,11 @@ class _View:
         canvas = self.figure.canvas
         if self._cid is None:
             self._cid = canvas.mpl_connect("draw_event", self._on_draw)
-        quick = not full and self._background is not None and all(a.get_animated() for a in self.moving())
+        moving = self.moving()
+        quick = not full and self._background is not None and bool(moving) and all(a.get_animated() for a in moving)
         if quick:
             canvas.restore_region(self._background)
-            for art in self.moving():
+            for art in moving:
                 self.figure.draw_artist(art)
         if self.ipympl:
             if quick:
