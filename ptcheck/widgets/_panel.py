@@ -285,7 +285,8 @@ class Panel:
             s = self._read_settings()
             state = self._compute(s, self.visible_views)
             self._slots["compute"] = ""
-            self._slots["dropped"] = html.escape(sentence(ValueError(state.dropped))) if state.dropped else ""
+            info = ([state.dropped] if state.dropped else []) + [reason for _, reason in state.unavailable]
+            self._slots["dropped"] = "<br>".join(html.escape(sentence(ValueError(t))) for t in info)
             self.state = state
             self._show_notes()
             for v in self.views.values():
@@ -513,9 +514,9 @@ class Panel:
         def step() -> None:
             self.progress.value += 1
 
-        bounds = sess.boundaries(s, tuple(result.orders), progress=step)
+        bounds, unavailable = sess.boundaries(s, tuple(result.orders), progress=step)
         state = State(model=self.model, model_text=self._model_text, settings=s, result=result, boundaries=bounds,
-                      dropped=dropped)
+                      dropped=dropped, unavailable=tuple(unavailable.items()))
         if "divergence" in needs:
             self.progress.description = "radius & EPs"
             state = state.with_divergence(sess.divergence(s))
@@ -566,7 +567,8 @@ class Panel:
         errors_at = {name: float(err[ti, oi]) for oi, name in enumerate(r.order_names)}
         undefined = [name for oi, name in enumerate(r.order_names) if s.relative and np.all(np.isnan(r.rel_error[ti, oi]))]
         v = verdict(st.boundaries, target=focus, orders=r.orders, tols=s.tols, relative=s.relative, coupling=lam,
-                    model=st.model, unit=unit, errors_at=errors_at, undefined=undefined)
+                    model=st.model, unit=unit, errors_at=errors_at, undefined=undefined,
+                    unavailable={order_name(o): "not available for this target (see the message)" for o, _ in st.unavailable})
         kind = f"relative error, in % of {relative_to_text(s.focus)}" if s.relative else f"absolute error, in {unit}"
         treat = r.treatments[ti]
         heading = f"Verdict for {focus} ({treat} treatment; {kind})"

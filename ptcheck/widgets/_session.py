@@ -84,6 +84,9 @@ class State:
         Computed when a view needs it.
     dropped : str
         Why orders were left out ("" when none were).
+    unavailable : tuple of (order spec, str)
+        Orders of ``result`` with no verdict for ``settings.focus`` (a Padé
+        approximant of a level without a scalar series), and why.
     notes : tuple of str
         Engine warnings and result notes, in plain words.
     """
@@ -95,6 +98,7 @@ class State:
     boundaries: tuple
     divergence: Any = None
     dropped: str = ""
+    unavailable: tuple = ()
     notes: tuple = field(default=())
 
     def with_divergence(self, d: Any, notes: tuple = ()) -> State:
@@ -165,23 +169,36 @@ class Session:
         """How many validity boundaries are not cached yet."""
         return sum(self._bkey(s, o, t, d) not in self._boundaries for o in orders for t in s.tols for d in s.directions)
 
-    def boundaries(self, s: Settings, orders: tuple, progress: Callable[[], None] | None = None) -> tuple:
-        """Validity boundaries of ``s.focus``: each order × tolerance × direction (cached)."""
-        out = []
+    def boundaries(self, s: Settings, orders: tuple, progress: Callable[[], None] | None = None) -> tuple[tuple, dict]:
+        """Validity boundaries of ``s.focus``: each order × tolerance × direction (cached).
+
+        Returns the boundaries and ``{order spec: reason}`` for the Padé orders
+        the engine refuses for this target (no scalar series to approximate).
+        """
+        out, unavailable = [], {}
         for o in orders:
             for t in s.tols:
                 for d in s.directions:
                     k = self._bkey(s, o, t, d)
                     if k not in self._boundaries:
-                        self._boundaries[k] = self._call(
-                            validity_boundary, self.model, s.focus, o, direction=d, treatment=s.treatment,
-                            backend=s.backend, max_coupling=s.reach, threshold=s.threshold, coupling=s.reach,
-                            **({"rtol": t} if s.relative else {"tol": t}),
-                        )
+                        try:
+                            self._boundaries[k] = self._call(
+                                validity_boundary, self.model, s.focus, o, direction=d, treatment=s.treatment,
+                                backend=s.backend, max_coupling=s.reach, threshold=s.threshold, coupling=s.reach,
+                                **({"rtol": t} if s.relative else {"tol": t}),
+                            )
+                        except ValueError as exc:
+                            if not isinstance(o, Pade):
+                                raise
+                            self._boundaries[k] = exc
                         if progress is not None:
                             progress()
-                    out.append(self._boundaries[k])
-        return tuple(out)
+                    b = self._boundaries[k]
+                    if isinstance(b, Exception):
+                        unavailable[o] = str(b)
+                    else:
+                        out.append(b)
+        return tuple(out), unavailable
 
     def divergence(self, s: Settings) -> Any:
         levels = tuple(t for t in s.targets if not isinstance(t, Quantity))

@@ -105,6 +105,7 @@ def verdict(
     unit: str = "energy units",
     errors_at: dict | None = None,
     undefined: Sequence[str] = (),
+    unavailable: dict | None = None,
 ) -> Verdict:
     """Verdict per order from validity boundaries (see module docstring).
 
@@ -125,12 +126,18 @@ def verdict(
     undefined : sequence of str
         Order names whose relative error is undefined over the whole sweep (the
         exact reference is ≈ 0 everywhere): no verdict is given for them.
+    unavailable : dict, optional
+        ``order name -> reason`` for orders without boundaries (no verdict).
     """
     lam = float(coupling)
     side = 1 if lam >= 0 else -1
     lines = []
     for spec in orders:
         name = order_name(spec)
+        if name in (unavailable or {}):
+            lines.append(OrderVerdict(order=name, reach=(math.nan,) * len(tols), meets=(None,) * len(tols),
+                                      text=f"{name}: {unavailable[name]}."))
+            continue
         if name in undefined:
             text = (f"{name}: no verdict — the relative error is undefined because the exact reference of {target} "
                     "is ≈ 0 over the whole range (it does not move); use an absolute tolerance.")
