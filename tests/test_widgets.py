@@ -20,7 +20,7 @@ import ipywidgets
 
 from ptcheck import Model
 from ptcheck.errors import DegenerateLevelError
-from ptcheck.models import jaynes_cummings
+from ptcheck.models import jaynes_cummings, rabi
 from ptcheck.quantities import Quantity
 from ptcheck.widgets import Dashboard, DivergencePanel, ErrorsPanel, LevelsPanel, PairsPanel, parse_params
 from ptcheck.widgets._text import fmt_error
@@ -439,7 +439,8 @@ def test_degenerate_level_with_nondegenerate_treatment_is_a_message():
 
 
 def test_pade_for_a_block_level_leaves_it_out_with_a_message():
-    near = jaynes_cummings(omega_q=5.95, omega_r=6.0, n_photons=3)  # |1,0> and |0,1> 50 MHz apart: a block
+    # |1,0> and |0,1> 50 MHz apart: a near-degenerate block (inside a larger parity sector of the Rabi model)
+    near = rabi(omega_q=5.95, omega_r=6.0, n_photons=3)
     d = Dashboard(near, levels=[1], tol=1e-3, **dict(OPTS, orders=(2, "pade2/2"), treatment="block"))
     try:
         oi = d.result.order_names.index("order 2")  # the other order is compared

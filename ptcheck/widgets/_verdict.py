@@ -143,9 +143,14 @@ def verdict(
                     "is ≈ 0 over the whole range (it does not move); use an absolute tolerance.")
             lines.append(OrderVerdict(order=name, reach=(math.nan,) * len(tols), meets=(None,) * len(tols), text=text))
             continue
+        picked = [_pick(boundaries, spec, tol, relative, side) for tol in tols]
+        if picked and all(b is not None and b.status == "exact_in_sector" for b in picked):
+            text = (f"{name}: no verdict — with this treatment {target} is exact within its sector (its block is a "
+                    "whole invariant sector: exact diagonalisation, not a perturbative order).")
+            lines.append(OrderVerdict(order=name, reach=(math.nan,) * len(tols), meets=(None,) * len(tols), text=text))
+            continue
         reach, meets, clauses = [], [], []
-        for tol in tols:
-            b = _pick(boundaries, spec, tol, relative, side)
+        for tol, b in zip(tols, picked):
             r, m, clause = _one(b, lam, tol, relative, model, unit)
             reach.append(r)
             meets.append(m)
@@ -180,8 +185,10 @@ def _one(b: Any, lam: float, tol: float, relative: bool, model: Any, unit: str) 
         return math.inf, abs(lam) <= top * (1 + 1e-12), ("meets", t, f"over the whole range checked (|λ| ≤ {fmt_number(top, 3)})")
     if b.status == "fails_at_zero":
         return 0.0, lam == 0, ("misses", t, "at every λ ≠ 0")
-    return math.nan, None, ("has", f"no defined relative error for {t}",
-                            "(the exact shift passes through 0; use an absolute tolerance)")
+    if b.status == "ill_defined":
+        return math.nan, None, ("has", f"no defined relative error for {t}",
+                                "(the exact shift passes through 0; use an absolute tolerance)")
+    return math.nan, None, ("has", f"no verdict for {t}", f"({b.status.replace('_', ' ')})")
 
 
 def _join(clauses: Sequence[tuple]) -> str:
