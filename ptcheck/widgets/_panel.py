@@ -560,7 +560,8 @@ class Panel:
         s, r = st.settings, st.result
         lam = min(max(self.coupling, s.coupling_min), s.coupling_max)
         unit = energy_unit(st.model)
-        point = values_at(r, lam)
+        shift = bool(self.controls.shift.value) and "levels" in self.views
+        point = values_at(r, lam, shift=shift)
         focus = self.error_target_name
         ti = list(r.targets).index(focus)
         err = point.rel_error if s.relative else point.abs_error
@@ -575,7 +576,7 @@ class Panel:
         self.verdict = v
         self.banner.value = verdict_html(v, heading=heading, stale=self.stale)
         refs = [relative_to_text(t) for t in r.levels]
-        self.readout.value = readout_html(r, point, shift=bool(self.controls.shift.value) and "levels" in self.views,
+        self.readout.value = readout_html(r, point, shift=shift,
                                           tols=s.tols, relative=s.relative, unit=unit,
                                           where=fmt_coupling(lam, st.model, digits=4), relative_to=refs)
 

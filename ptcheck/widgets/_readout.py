@@ -17,7 +17,7 @@ import numpy as np
 
 from ._text import fmt_error, fmt_number
 
-__all__ = ["interp_linear", "interp_log", "PointValues", "values_at", "shown_offset", "readout_html"]
+__all__ = ["interp_linear", "interp_log", "PointValues", "shown_arrays", "values_at", "readout_html"]
 
 
 def _bracket(grid: np.ndarray, x: float) -> tuple[int, float]:
@@ -67,13 +67,14 @@ def interp_log(grid: Any, values: Any, x: float) -> np.ndarray:
 
 @dataclass(frozen=True)
 class PointValues:
-    """A comparison at one coupling between sweep points.
+    """A comparison at one coupling between sweep points, as the levels figure shows it.
 
     Attributes
     ----------
     coupling : float
     exact : (T,) ndarray
-        Exact values (energy units), linear interpolation.
+        Exact values shown (energy units; shifts E(λ) − E(0) when asked),
+        linear interpolation.
     perturbative : (T, O) ndarray
     abs_error, rel_error : (T, O) ndarray
         Interpolated as on the log error axis; NaN where undefined.
@@ -86,23 +87,36 @@ class PointValues:
     rel_error: np.ndarray
 
 
-def values_at(result: Any, coupling: float) -> PointValues:
-    """Interpolate a ComparisonResult at ``coupling`` (clipped to its sweep)."""
+def shown_arrays(result: Any, shift: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Exact (T, C) and perturbative (T, O, C) values as the levels figure shows them.
+
+    Shifts E(λ) − E(0) when ``shift``; otherwise what the result presents for
+    each target (``exact_presented``: a quantity defined by its shift presents
+    the shift) when it has such fields, else the values.
+    """
+    exact = np.asarray(result.exact, dtype=float)
+    pert = np.asarray(result.perturbative, dtype=float)
+    if shift:
+        e0 = np.asarray(result.unperturbed, dtype=float)
+        return exact - e0[:, None], pert - e0[:, None, None]
+    if hasattr(result, "exact_presented") and hasattr(result, "perturbative_presented"):
+        return np.asarray(result.exact_presented, dtype=float), np.asarray(result.perturbative_presented, dtype=float)
+    return exact, pert
+
+
+def values_at(result: Any, coupling: float, *, shift: bool = False) -> PointValues:
+    """Interpolate a ComparisonResult at ``coupling`` (clipped to its sweep), values as shown."""
     lam = np.asarray(result.couplings, dtype=float)
     order = np.argsort(lam, kind="stable")
     g = lam[order]
+    exact, pert = shown_arrays(result, shift)
     return PointValues(
         coupling=float(coupling),
-        exact=interp_linear(g, np.asarray(result.exact)[..., order], coupling),
-        perturbative=interp_linear(g, np.asarray(result.perturbative)[..., order], coupling),
+        exact=interp_linear(g, exact[..., order], coupling),
+        perturbative=interp_linear(g, pert[..., order], coupling),
         abs_error=interp_log(g, np.asarray(result.abs_error)[..., order], coupling),
         rel_error=interp_log(g, np.asarray(result.rel_error)[..., order], coupling),
     )
-
-
-def shown_offset(result: Any, shift: bool) -> np.ndarray:
-    """What is subtracted from each target's values in the levels figure: E(0) when showing shifts, else 0."""
-    return np.asarray(result.unperturbed, dtype=float) if shift else np.zeros(len(result.targets))
 
 
 def readout_html(
@@ -117,7 +131,6 @@ def readout_html(
     relative_to: Sequence[str],
 ) -> str:
     """Table of exact and perturbative values at λ (as the levels figure shows them) with each order's error."""
-    off = shown_offset(result, shift)
     err = point.rel_error if relative else point.abs_error
     # round-off of an exactly vanishing value (e.g. a first-order shift that is 0) reads as 0
     scale = float(np.nanmax(np.abs(np.asarray(result.exact)))) if np.size(result.exact) else 0.0
@@ -134,17 +147,19 @@ def readout_html(
         cells = ""
         for oi in range(len(result.orders)):
             e = float(err[ti, oi])
-            val = value(float(point.perturbative[ti, oi] - off[ti]))
+            val_f = float(point.perturbative[ti, oi])
+            val = value(val_f)
             if not np.isfinite(e):
-                mark = "<span style='color:#666'>error undefined (shift ≈ 0)</span>" if relative else \
-                    "<span style='color:#666'>error —</span>"
+                ref = "shift" if ("shift" in relative_to[ti] or "change" in relative_to[ti]) else "value"
+                mark = (f"<span style='color:#666'>error undefined ({ref} ≈ 0)</span>" if relative and np.isfinite(val_f)
+                        else "<span style='color:#666'>error —</span>")
             else:
                 ok = sum(e <= t for t in t_sorted)
                 sym, col = ("✓", "#009E73") if ok == len(t_sorted) else ("✗", "#D55E00") if ok == 0 else ("◐", "#B77A00")
                 mark = f"<span style='color:{col}'>{sym} {html.escape(fmt_error(e, tols, relative))}</span>"
             cells += f"<td style='padding:0 10px'>{html.escape(val)} &nbsp;{mark}</td>"
         rows += (f"<tr><td style='padding:0 10px 0 0'>{html.escape(name)}</td>"
-                 f"<td style='padding:0 10px'>{html.escape(value(float(point.exact[ti] - off[ti])))}</td>{cells}</tr>")
+                 f"<td style='padding:0 10px'>{html.escape(value(float(point.exact[ti])))}</td>{cells}</tr>")
     kinds = sorted(set(relative_to))
     err_word = (f"error in % of {' / '.join(kinds)}" if relative else f"absolute error in {unit}")
     return (

@@ -14,7 +14,7 @@ from ..plots import mixing_map, plot_divergence, plot_errors, plot_levels, plot_
 from ..plots._common import positive_or_nan
 from ..plots._style import SLIDE_SIZE, style
 from ..quantities import Quantity
-from ._readout import interp_linear, interp_log, shown_offset
+from ._readout import interp_linear, interp_log
 
 __all__ = ["LevelsView", "ErrorsView", "DivergenceView", "PairsView", "VIEWS", "use_ipympl", "PANEL_SIZE"]
 
@@ -159,20 +159,29 @@ class _View:
         raise NotImplementedError
 
 
-def _move_markers(art: Any, lam_grid: np.ndarray, coupling: float, values: np.ndarray, *, log: bool) -> None:
-    """Vertical line at λ and markers on the drawn lines at λ (interpolated as the axis draws them)."""
+def _move_markers(art: Any, lines: Any, coupling: float, *, log: bool) -> None:
+    """Vertical line at λ and one marker on each drawn line at λ.
+
+    The marker heights are read off the lines themselves, interpolated as the
+    axis draws them (straight segments; straight in log(value) on a log axis),
+    so markers and lines agree whatever the figure function chose to draw.
+    """
     if art is None or art.coupling_line is None:
         return
     art.coupling_line.set_xdata([coupling, coupling])
     if art.coupling_markers is None:
         return
-    srt = np.argsort(lam_grid, kind="stable")
-    grid, vals = lam_grid[srt], values[..., srt]
-    lam = min(max(coupling, float(grid[0])), float(grid[-1]))
-    y = interp_log(grid, vals, lam) if log else interp_linear(grid, vals, lam)
-    if log:
-        y = positive_or_nan(y)
-    art.coupling_markers.set_data(np.full(len(y), lam), y)
+    xs, ys = [], []
+    for ln in lines:
+        x = np.asarray(ln.get_xdata(), dtype=float)
+        y = np.asarray(ln.get_ydata(), dtype=float)
+        srt = np.argsort(x, kind="stable")
+        x, y = x[srt], y[srt]
+        lam = min(max(coupling, float(x[0])), float(x[-1]))
+        v = float(interp_log(x, y, lam) if log else interp_linear(x, y, lam))
+        xs.append(lam)
+        ys.append(positive_or_nan([v])[0] if log else v)
+    art.coupling_markers.set_data(xs, ys)
 
 
 class LevelsView(_View):
@@ -186,12 +195,11 @@ class LevelsView(_View):
         self._shift = bool(panel.controls.shift.value)
         self.artists = plot_levels(r, coupling=panel.coupling, ax=self.ax, shift=self._shift,
                                    caption=panel.caption("levels vs coupling", state))
-        self._shown = np.asarray(r.exact) - shown_offset(r, self._shift)[:, None]
 
     def move(self, panel: Any, coupling: float) -> None:
         if self.state is None:
             return
-        _move_markers(self.artists, np.asarray(self.state.result.couplings), coupling, self._shown, log=False)
+        _move_markers(self.artists, self.artists.exact, coupling, log=False)
 
     def numbers(self, panel: Any) -> tuple[list[dict], dict]:
         r = self.state.result
@@ -212,14 +220,11 @@ class ErrorsView(_View):
         bounds = tuple(b for b in state.boundaries if (b.rtol if s.relative else b.tol) == tol)
         self.artists = plot_errors(r, bounds, target=target, error=kind, tol=tol, coupling=panel.coupling, ax=self.ax,
                                    caption=panel.caption(f"{kind} error of {target} vs coupling", state))
-        ti = list(r.targets).index(self.artists.target)
-        o_idx = [list(r.order_names).index(o) for o in self.artists.orders]
-        self._data = np.asarray(r.rel_error if s.relative else r.abs_error)[ti][o_idx]
 
     def move(self, panel: Any, coupling: float) -> None:
         if self.state is None:
             return
-        _move_markers(self.artists, np.asarray(self.state.result.couplings), coupling, self._data, log=True)
+        _move_markers(self.artists, self.artists.lines, coupling, log=True)
 
     def numbers(self, panel: Any) -> tuple[list[dict], dict]:
         st = self.state
