@@ -159,6 +159,13 @@ class _View:
         raise NotImplementedError
 
 
+def _drawable(orders: tuple, values: Any) -> list:
+    """Orders with at least one finite value in ``values`` (T, O, C): an order the engine left undefined
+    (e.g. a Padé approximant of a block-treated level) has nothing to draw."""
+    v = np.asarray(values, dtype=float)
+    return [o for oi, o in enumerate(orders) if np.any(np.isfinite(v[:, oi]))]
+
+
 def _move_markers(art: Any, lines: Any, coupling: float, *, log: bool) -> None:
     """Vertical line at λ and one marker on each drawn line at λ.
 
@@ -193,7 +200,8 @@ class LevelsView(_View):
         self.clear()
         r = state.result
         self._shift = bool(panel.controls.shift.value)
-        self.artists = plot_levels(r, coupling=panel.coupling, ax=self.ax, shift=self._shift,
+        self.artists = plot_levels(r, orders=_drawable(r.orders, r.perturbative), coupling=panel.coupling, ax=self.ax,
+                                   shift=self._shift,
                                    caption=panel.caption("levels vs coupling", state))
 
     def move(self, panel: Any, coupling: float) -> None:
@@ -218,7 +226,9 @@ class ErrorsView(_View):
         target = panel.error_target_name
         tol = s.tols[0]
         bounds = tuple(b for b in state.boundaries if (b.rtol if s.relative else b.tol) == tol)
-        self.artists = plot_errors(r, bounds, target=target, error=kind, tol=tol, coupling=panel.coupling, ax=self.ax,
+        ti = list(r.targets).index(target)
+        self.artists = plot_errors(r, bounds, target=target, orders=_drawable(r.orders, r.abs_error[ti:ti + 1]), error=kind,
+                                   tol=tol, coupling=panel.coupling, ax=self.ax,
                                    caption=panel.caption(f"{kind} error of {target} vs coupling", state))
 
     def move(self, panel: Any, coupling: float) -> None:
