@@ -137,7 +137,7 @@ def readout_html(
     floor = 1e-12 * max(scale, np.finfo(float).tiny)
 
     def value(x: float) -> str:
-        return fmt_number(0.0 if abs(x) < floor else x, 6)
+        return fmt_number(0.0 if abs(x) < floor else x, 6, keep_zeros=True)
 
     what = "shift E(λ) − E(0)" if shift else "value"
     head = "".join(f"<th style='padding:0 10px;text-align:left'>{html.escape(o)}</th>" for o in result.order_names)

@@ -40,14 +40,20 @@ def physical_coupling(model: Any) -> tuple[float, str] | None:
     return scale, str(unit or "")
 
 
-def fmt_number(x: float, digits: int = 4) -> str:
-    """``x`` to ``digits`` significant digits (trailing zeros dropped), positional for ordinary sizes."""
+def fmt_number(x: float, digits: int = 4, *, keep_zeros: bool = False) -> str:
+    """``x`` to ``digits`` significant digits, positional for ordinary sizes.
+
+    Trailing zeros are dropped (``0.8``) unless ``keep_zeros`` (``−0.0100000``:
+    a column of values that all show their precision).
+    """
     if x is None or not math.isfinite(x):
         return "∞" if x == math.inf else "−∞" if x == -math.inf else "—"
-    if x == 0 or 1e-4 <= abs(x) < 1e6:
+    if x == 0:
+        return "0"
+    if 1e-4 <= abs(x) < 1e6:
         return np.format_float_positional(float(x), precision=digits, unique=False, fractional=False,
-                                          trim="-").replace("-", "−")
-    return f"{x:.{digits}g}".replace("-", "−")
+                                          trim="k" if keep_zeros else "-").replace("-", "−")
+    return (f"{x:#.{digits}g}" if keep_zeros else f"{x:.{digits}g}").replace("-", "−")
 
 
 def fmt_input(x: float, digits: int = 4) -> str:
