@@ -192,6 +192,7 @@ class Panel:
         self.model: Model | None = None
         self.session: Session | None = None
         self._model_text = ""
+        self._model_params: dict | None = None
         with self._guard("model"):
             if isinstance(model, Model):
                 c.model_name.options = [model.name]
@@ -206,7 +207,7 @@ class Panel:
                 c.model_name.value = model
                 c.model_params.value = format_params(params)
                 self._builder_name = model
-                self._set_model(build_model(model, params), f"{model}({format_params(params)})", levels)
+                self._set_model(build_model(model, params), f"{model}({format_params(params)})", levels, params)
             else:
                 raise TypeError(f"model must be a ptcheck Model or a built-in model name; got {type(model).__name__}")
         self.widget = self._layout()
@@ -320,7 +321,7 @@ class Panel:
             view.set_moving_animated(True)
             view._background = None  # until the next full draw on screen
         rows, data = view.numbers(self)
-        data = {"model": st.model.name, "model_request": st.model_text, "n": st.model.n,
+        data = {"model": st.model.name, "model_request": st.model_text, "model_params": st.model_params, "n": st.model.n,
                 "settings": self._settings_dict(st), "matches_controls": not self.stale and st is self.state,
                 **({"verdict": self.verdict.to_dict()} if st is self.state and self.verdict is not None else {}), **data}
         write_numbers(rows, data, folder / f"{stem}.csv", folder / f"{stem}.json")
@@ -407,7 +408,7 @@ class Panel:
             (body.add_class if stale else body.remove_class)("ptcheck-stale")
         self._show_model_status()
 
-    def _set_model(self, model: Model, text: str, levels: Sequence | None) -> None:
+    def _set_model(self, model: Model, text: str, levels: Sequence | None, params: dict | None = None) -> None:
         c = self.controls
         opts = [(model.label(i), i) for i in range(min(model.n, self.max_level_choices))]
         opts += [(q.name, q) for q in self.quantities]
@@ -425,6 +426,7 @@ class Panel:
             self._heavy_done += self.session.heavy_computations
         self.model = model
         self._model_text = text
+        self._model_params = None if params is None else dict(params)
         self.session = Session(model)
         self._sync_focus()
 
@@ -515,7 +517,8 @@ class Panel:
             self.progress.value += 1
 
         bounds, unavailable = sess.boundaries(s, tuple(result.orders), progress=step)
-        state = State(model=self.model, model_text=self._model_text, settings=s, result=result, boundaries=bounds,
+        state = State(model=self.model, model_text=self._model_text, model_params=self._model_params, settings=s,
+                      result=result, boundaries=bounds,
                       dropped=dropped, unavailable=tuple(unavailable.items()))
         if "divergence" in needs:
             self.progress.description = "radius & EPs"
@@ -761,7 +764,7 @@ class Panel:
             params = parse_params(c.model_params.value)
             model = build_model(name, params)
             self._builder_name = name
-            self._set_model(model, f"{name}({format_params(params)})", None)
+            self._set_model(model, f"{name}({format_params(params)})", None, params)
             self._slots["model"] = ""
             ok = True
         if ok:

@@ -75,6 +75,8 @@ class State:
     model : Model
     model_text : str
         How the model was asked for (builder and parameters, or its name).
+    model_params : dict or None
+        The builder's parameters (None for a model given directly).
     settings : Settings
     result : ComparisonResult
         Its ``orders`` may leave out orders that do not apply (see ``dropped``).
@@ -93,6 +95,7 @@ class State:
 
     model: Any
     model_text: str
+    model_params: Any
     settings: Settings
     result: Any
     boundaries: tuple
