@@ -14,26 +14,46 @@ Exit status
     ``check``: at least one of them does not (or its relative error is
     undefined at that coupling).
 2
-    Bad input: unknown flags or values, a missing / malformed model file, an
-    unknown model or parameter, a non-Hermitian matrix, a different report
-    already in the output directory (use ``--force``).  One line on stderr.
-130
-    Interrupted (Ctrl-C); no partial report file is left behind.
+    Bad input: unknown flags or values, a missing / malformed / damaged model
+    file, an unknown model or parameter, a size or order beyond the limits, a
+    non-Hermitian matrix, λ = 0, an unusable output folder, a different report
+    already in the output folder (use ``--force``), another ptcheck writing
+    into the same folder at the same moment.  One line on stderr.
+3
+    Internal error: ptcheck itself failed (a bug, or out of memory).  One
+    line on stderr; no verdict was reached.  A script can tell it from 1.
+130, 143
+    Interrupted by SIGINT (Ctrl-C) or SIGTERM.  The output folder holds the
+    previous report or the new one, complete (the message says which).
+
+Every failure is one line on stderr starting with ``ptcheck: error:``, never
+a traceback.
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
+import io
+import signal
 import sys
 import textwrap
+import threading
 import warnings
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
+from .treatment import DEFAULT_TREATMENT, TREATMENTS
+
 __all__ = ["main", "build_parser", "DEMO_PARAMS"]
 
-EXIT_VALID, EXIT_NOT_VALID, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+EXIT_VALID, EXIT_NOT_VALID, EXIT_BAD_INPUT, EXIT_INTERNAL_ERROR = 0, 1, 2, 3
+#: SIGINT and SIGTERM: 128 + the signal number, as a shell reports them.
+EXIT_INTERRUPTED, EXIT_TERMINATED = 130, 143
+
+#: Figure file formats (as in :data:`ptcheck.report.FIGURE_FORMATS`; kept here so --help needs no heavy import).
+FIGURE_FORMATS = ("png", "svg", "pdf")
 
 #: The invented demo device "Q-17": a transmon-like Kerr-ladder qubit and its
 #: readout resonator (GHz).  These numbers describe no real device.
@@ -48,10 +68,12 @@ DEMO_PARAMS = {
 
 _MAIN_EPILOG = """\
 exit status:
-  0  check: every order asked for meets the tolerance at the coupling (demo/models: done)
-  1  check: some order does not meet it
-  2  bad input (flags, model file, model, matrices, existing different report)
-  130 interrupted
+  0    check: every order asked for meets the tolerance at the coupling (demo/models: done)
+  1    check: some order does not meet it
+  2    bad input (flags, model file, model, matrices, output folder, existing different report)
+  3    internal error (a bug in ptcheck, or out of memory): no verdict
+  130  interrupted (Ctrl-C)
+  143  terminated (SIGTERM)
 
 examples:
   ptcheck demo --out q17-report
@@ -80,7 +102,7 @@ model file (TOML; see also `python -c "import ptcheck.modelfile as m; help(m)"`)
   orders = [2, 4]                        # every order listed is judged
   coupling = 1.0
   rtol = 0.01                            # or tol = 1e-4 (absolute, energy units)
-  treatment = "auto"
+  treatment = "standard"
   backend = "auto"
 
   [[quantity]]                           # derived quantities, any number
@@ -96,10 +118,13 @@ orders: 2, 4, pade2/2, pade2/2@2 (Padé in λ²).
 Give MODEL before the options that take several values (--levels, --orders, --format).
 
 output (in --out, default <MODEL name>-report): report.md (verdict, cautions, tables,
-figures), report.json (everything), comparison.csv, boundaries.csv, figures (*.png).
-A different existing report is not replaced without --force.
+figures), report.json (everything), comparison.csv, boundaries.csv, figures (*.png);
+with --formula also formula.tex, formula.py and formula*.png.
+The folder is replaced as a whole (never a mix of old and new files); a
+different existing report is not replaced without --force.
 
-exit status: 0 valid, 1 not valid, 2 bad input, 130 interrupted.
+exit status: 0 valid, 1 not valid, 2 bad input, 3 internal error,
+130 interrupted, 143 terminated.
 """
 
 
@@ -127,12 +152,15 @@ def build_parser() -> argparse.ArgumentParser:
         description=_wrap("Run the full check on the invented device Q-17 (a transmon-like qubit with a readout "
                           "resonator; invented numbers) and write the report with figures."),
         formatter_class=argparse.RawDescriptionHelpFormatter,
-        epilog="exit status: 0 when the report was written (whatever its verdict), 2 on bad input.",
+        epilog="exit status: 0 when the report was written (whatever its verdict), 2 on bad input, "
+               "3 on an internal error, 130/143 when interrupted/terminated.",
     )
     d.add_argument("--out", metavar="DIR", default="ptcheck-demo", help="output directory (default: %(default)s)")
     d.add_argument("--force", action="store_true", help="replace a different report already in DIR")
-    d.add_argument("--no-map", action="store_true", help="skip the validity map (the part run on 2 worker processes)")
+    d.add_argument("--no-map", action="store_true", help="skip the validity map and the photon-number boundaries")
     d.add_argument("--no-figures", action="store_true", help="write no figures")
+    d.add_argument("--figure-format", choices=FIGURE_FORMATS, default="png", metavar="FMT",
+                   help="figure files: png, svg or pdf (default: %(default)s)")
 
     c = sub.add_parser(
         "check",
@@ -149,17 +177,31 @@ def build_parser() -> argparse.ArgumentParser:
                    help="a derived quantity, e.g. 'f01 = (1,0) - (0,0)' (repeatable)")
     c.add_argument("--orders", nargs="+", metavar="ORDER", help="orders you rely on, e.g. 2 4 or 2,4 or pade2/2 (default: 2)")
     tg = c.add_mutually_exclusive_group()
-    tg.add_argument("--tol", type=float, metavar="X", help="absolute tolerance (energy units of H0)")
-    tg.add_argument("--rtol", type=float, metavar="X", help="relative tolerance (default 0.01: 1 %% of the exact shift)")
+    tg.add_argument("--tol", type=float, nargs="+", metavar="X",
+                    help="absolute tolerance (energy units of H0); several: the first is judged, all get a boundary")
+    tg.add_argument("--rtol", type=float, nargs="+", metavar="X",
+                    help="relative tolerance (default 0.01: 1 %% of the exact shift); e.g. --rtol 0.01 0.05")
     c.add_argument("--coupling", type=float, metavar="λ", help="the coupling you use (dimensionless); required here or in MODEL")
-    c.add_argument("--treatment", choices=("auto", "nondegenerate", "block"),
-                   help="perturbative treatment (default: auto = block for near-degenerate levels)")
+    c.add_argument("--treatment", choices=TREATMENTS,
+                   help="perturbation theory judged (default: standard = the textbook series; degenerate perturbation "
+                        "theory inside exactly degenerate groups); block/auto ask for near-degenerate blocks")
     c.add_argument("--backend", metavar="NAME", help="exact solver: auto, dense, sparse, qutip (default: auto)")
+    c.add_argument("--sweep", nargs=3, metavar=("LO", "HI", "N"),
+                   help="couplings of the comparison (figures, CSV): N points from LO to HI (default: automatic)")
+    c.add_argument("--threshold", type=float, metavar="X",
+                   help="mixing-ratio threshold |λV|/|ΔE| for near-degenerate pairs and blocks (default 0.1)")
+    c.add_argument("--convergence-order", type=int, metavar="K",
+                   help="series order analysed for convergence (radius, exceptional points; default 40)")
     c.add_argument("--out", metavar="DIR", help="output directory (default: <MODEL name>-report)")
     c.add_argument("--format", nargs="+", choices=("json", "md", "csv"), metavar="FMT",
                    help="report formats among json, md, csv (default: all three)")
     c.add_argument("--force", action="store_true", help="replace a different report already in DIR")
     c.add_argument("--no-figures", action="store_true", help="write no figures")
+    c.add_argument("--figure-format", choices=FIGURE_FORMATS, default="png", metavar="FMT",
+                   help="figure files: png, svg or pdf (default: %(default)s)")
+    c.add_argument("--formula", action="store_true",
+                   help="also write formula.tex, formula.py and the formula figure: each target's formula at each "
+                        "order judged, with the range where it meets the tolerance")
 
     sub.add_parser("models", help="list the built-in models and their parameters",
                    description="List the built-in models (for `builtin = ...` in a model file) and their parameters.")
@@ -222,11 +264,59 @@ def _cmd_models() -> int:
     return EXIT_VALID
 
 
-def _cmd_check(a: argparse.Namespace) -> int:
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM, raised in the main thread so that clean-up code runs as for Ctrl-C."""
+
+
+class _Output:
+    """Where this run writes its report, and the fingerprint of that report once computed.
+
+    Used to say truthfully what an interrupt left in the output folder.
+    """
+
+    def __init__(self, given: str, target: Path) -> None:
+        self.given = given
+        self.target = target
+        self.fingerprint: str | None = None
+        self.before: str | None = None
+
+
+class _Run:
+    """What one run of the command line has set up so far (for the message after an interrupt)."""
+
+    def __init__(self) -> None:
+        self.out: _Output | None = None
+
+
+def _out_dir(given: str | None, default: str) -> str:
+    if given is not None and not given.strip():
+        raise ValueError(f"--out is empty; give the report folder, e.g. --out {default}")
+    return default if given is None else given
+
+
+def _prepare_output(given: str) -> _Output:
+    """Check the output folder before any work (empty name, a file, the current folder, foreign files)."""
+    from .report import check_out_dir, read_fingerprint
+
+    out = _Output(given, check_out_dir(given))
+    out.before = read_fingerprint(out.target)
+    return out
+
+
+def _write(report: Any, out: _Output, **kw: Any) -> list[Path]:
+    from .report import report_fingerprint, write_report
+
+    out.fingerprint = report_fingerprint(report)
+    return write_report(report, out.target, **kw)
+
+
+def _cmd_check(a: argparse.Namespace, run: _Run) -> int:
     from .approximants import parse_orders
     from .modelfile import load_model_file, parse_level, parse_quantity
-    from .report import run_check, write_report
+    from .report import run_check
 
+    given = _out_dir(a.out, f"{Path(a.model).stem}-report")
+    out = run.out = _prepare_output(given)
     mf = load_model_file(a.model)
     model = mf.model
     levels: list[Any] = [parse_level(x) for x in a.levels] if a.levels else list(mf.levels)
@@ -236,75 +326,253 @@ def _cmd_check(a: argparse.Namespace) -> int:
     coupling = a.coupling if a.coupling is not None else mf.coupling
     if coupling is None:
         raise ValueError("no coupling given: pass --coupling λ or set coupling in the [check] table of the model file")
+    if coupling == 0:
+        raise ValueError("the coupling is 0: at λ = 0 every order is exact, there is nothing to check; give the coupling "
+                         "you use (--coupling λ)")
     if a.tol is not None or a.rtol is not None:
         tol, rtol = a.tol, a.rtol
     else:
         tol, rtol = mf.tol, mf.rtol
-    treatment = a.treatment or mf.treatment or "auto"
+    treatment = a.treatment or mf.treatment or DEFAULT_TREATMENT
     backend = a.backend or mf.backend or "auto"
-    out = Path(a.out) if a.out else Path(f"{Path(a.model).stem}-report")
     source = {"model_file": str(a.model), "kind": mf.kind}
+    extra = _presentation_options(a)
     with _progress_bar("checking") as bar:
         report = run_check(
             model, targets or None, orders, coupling=coupling, tol=tol, rtol=rtol, treatment=treatment,
             backend=backend, builder=mf.builder, params=dict(mf.params) if mf.builder else None, source=source,
-            title=mf.title, progress=bar,
+            title=mf.title, progress=bar, **extra,
         )
-    files = write_report(report, out, formats=a.format or ("json", "md", "csv"), figures=not a.no_figures, force=a.force)
-    _print_summary(report, files, out)
+    if a.formula:
+        from dataclasses import replace
+
+        from .formula_report import report_formulas
+
+        with _progress_bar("formulas") as bar:
+            report = replace(report, extras={**report.extras, "formulas": report_formulas(report, progress=bar)})
+    files = _write(report, out, formats=a.format or ("json", "md", "csv"), figures=_figures(a), force=a.force)
+    _print_summary(report, files, Path(given))
     return report.exit_status
 
 
-def _cmd_demo(a: argparse.Namespace) -> int:
+def _presentation_options(a: argparse.Namespace) -> dict:
+    """run_check keywords of --sweep, --threshold and --convergence-order (only those given)."""
     import numpy as np
+
+    out: dict[str, Any] = {}
+    if a.sweep is not None:
+        lo, hi, n = a.sweep
+        try:
+            lo_f, hi_f, n_i = float(lo), float(hi), int(n)
+        except ValueError:
+            raise ValueError(f"--sweep takes LO HI N (two numbers and a whole number of points); got {' '.join(a.sweep)}") from None
+        if not (np.isfinite(lo_f) and np.isfinite(hi_f) and lo_f < hi_f and n_i >= 3):
+            raise ValueError(f"--sweep needs LO < HI (finite) and N >= 3; got {' '.join(a.sweep)}")
+        out["couplings"] = np.linspace(lo_f, hi_f, n_i)
+    if a.threshold is not None:
+        out["threshold"] = a.threshold
+    if a.convergence_order is not None:
+        out["convergence_order"] = a.convergence_order
+    return out
+
+
+def _figures(a: argparse.Namespace) -> Any:
+    """The figure step of write_report: none, or the default figures in the format asked for."""
+    if a.no_figures:
+        return False
+    from functools import partial
+
+    from .report import default_figures
+
+    return partial(default_figures, figure_format=a.figure_format)
+
+
+def _cmd_demo(a: argparse.Namespace, run: _Run) -> int:
+    from .maps import _single_thread_blas
+
+    # small matrices (N = 32, 96): one BLAS thread is faster than several; independent parts (the side
+    # studies, each figure) run on two forked workers beside the main check
+    with _single_thread_blas(), _worker_pool() as pool:
+        return _demo(a, pool, run)
+
+
+@contextlib.contextmanager
+def _worker_pool() -> Iterator[Any]:
+    """Two forked worker processes, shut down on the way out; None where fork is unavailable."""
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor
+
+    if "fork" not in mp.get_all_start_methods():
+        yield None
+        return
+    from .maps import _stop_pool
+
+    pool = ProcessPoolExecutor(max_workers=2, mp_context=mp.get_context("fork"), initializer=_warm_up)
+    try:
+        yield pool
+    except BaseException:  # an interrupt or an error: stop the workers now, leave no orphans
+        _stop_pool(pool)
+        raise
+    pool.shutdown(wait=True, cancel_futures=True)
+
+
+def _warm_up() -> None:
+    """Workers end quietly on SIGINT/SIGTERM (the caller stops them); import the figure code and load the fonts in a worker, while the main check runs (the main process
+    itself never imports matplotlib: the figures are drawn on the workers)."""
+    from .maps import _worker_init
+
+    _worker_init()
+    from matplotlib.figure import Figure
+
+    from . import maps_plot  # noqa: F401
+    from .plots import _common
+
+    _common.text_width("λ 0123456789 ⟩", 12.0)
+    Figure(figsize=(1, 1)).savefig(io.BytesIO(), format="png")
+
+
+def _demo(a: argparse.Namespace, pool: Any, run: _Run) -> int:
+    from functools import partial
 
     from .models import kerr_qubit_resonator
     from .quantities import dispersive_shift, stark_shift
-    from .report import run_check, write_report
+    from .report import default_figures, run_check
 
-    model = kerr_qubit_resonator(**DEMO_PARAMS)
-    model.name = "Q-17 qubit + readout resonator (invented)"
+    given = _out_dir(a.out, "ptcheck-demo")
+    out = run.out = _prepare_output(given)
+    p = DEMO_PARAMS
+    model = _demo_model(p)
     lamb = stark_shift((1, 0), (0, 0), name="qubit Lamb shift", units="GHz")
     chi = dispersive_shift(name="chi", units="GHz")
-    p = DEMO_PARAMS
     description = (
-        "Q-17 is an **invented** transmon-like qubit (a Kerr ladder of 4 levels: ω_q/2π = "
+        "Design check of Q-17, an **invented** transmon-like qubit (a Kerr ladder of 4 levels: ω_q/2π = "
         f"{p['omega_q']} GHz, anharmonicity α/2π = {p['alpha']} GHz) coupled with g/2π = {p['g']} GHz to a readout "
         f"resonator at ω_r/2π = {p['omega_r']} GHz ({p['n_photons']} Fock states), without the rotating-wave "
-        "approximation. The numbers are made up for this demonstration and describe no real device. λ = 1 is the "
-        "design coupling. Question: can the textbook second-order (dispersive) formulas for the qubit's Lamb shift "
-        "and the dispersive shift χ be trusted at the design coupling, to 1 %?"
+        "approximation. The numbers are made up for this demonstration and describe no real device. The design uses "
+        "the second-order (dispersive) formulas for the qubit's Lamb shift and the dispersive shift χ at the design "
+        "coupling λ = 1 (g/2π = 82 MHz); this report checks them against exact diagonalisation, to 1 % (judged) "
+        "and 5 %, and shows how far the coupling, the resonator frequency and the photon number can go."
     )
+    side = None
+    if pool is not None:  # two workers started now warm up while the main check runs
+        side = pool.submit(_side_studies, chi) if not a.no_map else None
+        pool.submit(int)
     with _progress_bar("demo") as bar:
         report = run_check(
-            model, [lamb, chi], [2, 4], coupling=1.0, rtol=0.01, builder="kerr_qubit_resonator", params=p,
-            source={"demo": "Q-17 (invented)"}, title="Q-17 (invented device): can second-order dispersive formulas be trusted?",
+            model, [lamb, chi], [2, 4], coupling=1.0, rtol=[0.01, 0.05], builder="kerr_qubit_resonator", params=p,
+            source={"demo": "Q-17 (invented)"},
+            title="Q-17 (invented device): design check of the second-order dispersive formulas",
             description=description, invented=True, progress=bar,
         )
+    extras: dict[str, Any] = {"energy_unit": "GHz"}
     if not a.no_map:
-        from dataclasses import replace
+        extras.update(side.result() if side is not None else _side_studies(chi))
+        extras["validity_map_mark"] = (p["omega_r"], 1.0)
+    from dataclasses import replace
 
-        from .maps import validity_map
-
-        detunings = np.round(np.linspace(5.95, 7.35, 8), 4)
-        with _progress_bar("validity map") as bar:
-            vm = validity_map(
-                "kerr_qubit_resonator", "omega_r", detunings, level=chi, order=2, rtol=0.01,
-                couplings=np.linspace(0.1, 2.0, 20), builder_kwargs={k: v for k, v in p.items() if k != "omega_r"},
-                progress=bar,
-            )
-        report = replace(report, extras={**report.extras, "validity_map": vm, "validity_map_mark": (p["omega_r"], 1.0)})
-    out = Path(a.out)
-    files = write_report(report, out, figures=not a.no_figures, force=a.force)
-    _print_summary(report, files, out)
+    report = replace(report, extras={**report.extras, **extras})
+    figures = False if a.no_figures else partial(default_figures, figure_format=a.figure_format, executor=pool)
+    files = _write(report, out, figures=figures, force=a.force)
+    _print_summary(report, files, Path(given))
     return EXIT_VALID
 
 
+def _demo_model(p: dict, **changes: Any) -> Any:
+    from .models import kerr_qubit_resonator
+
+    model = kerr_qubit_resonator(**{**p, **changes})
+    model.name = "Q-17 qubit + readout resonator (invented)"
+    _set_physical_coupling(model, 1000.0 * p["g"], "MHz")
+    return model
+
+
+def _side_studies(chi: Any) -> dict:
+    """The demo's validity map over ω_r and its photon-number boundaries (module level: runs on a worker)."""
+    import numpy as np
+
+    from .maps import validity_map
+    from .photons import photon_boundaries
+
+    p = DEMO_PARAMS
+    vm = validity_map(  # a small map: serially (a process pool of its own costs more than it saves)
+        "kerr_qubit_resonator", "omega_r", np.round(np.linspace(5.95, 7.35, 8), 4), level=chi, order=2, rtol=0.01,
+        couplings=np.linspace(0.1, 2.0, 20), builder_kwargs={k: v for k, v in p.items() if k != "omega_r"},
+        executor="serial",
+    )
+    # photon budget: the same device with room for 24 photons in the resonator basis
+    pb = photon_boundaries(_demo_model(p, n_photons=24), 2, rtol=0.01, photons=range(0, 21, 2), units="GHz")
+    return {"validity_map": vm, "photon_boundaries": pb}
+
+
+def _set_physical_coupling(model: Any, scale: float, unit: str) -> None:
+    """λ = 1 ↔ ``scale`` ``unit`` on the model, for the figures' second coupling axis."""
+    model.coupling_scale = scale
+    model.coupling_unit = unit
+
+
 # ---------------------------------------------------------------------- entry point
-def main(argv: Sequence[str] | None = None) -> int:
-    """Run the command line; return the exit status (see the module docstring)."""
+def _interrupted(exc: KeyboardInterrupt, run: _Run) -> int:
+    """One truthful line about what the output folder holds after an interrupt."""
+    from .report import read_fingerprint
+
+    what = "terminated" if isinstance(exc, _Terminated) else "interrupted"
+    out = run.out
+    if out is None:
+        _err(f"{what}; nothing was written")
+    else:
+        now = read_fingerprint(out.target)
+        where = repr(out.given)
+        if out.fingerprint is not None and now == out.fingerprint and out.before == now:
+            _err(f"{what}; {where} holds a complete report of these same settings and results")
+        elif out.fingerprint is not None and now == out.fingerprint:
+            _err(f"{what} after the report was written: {where} holds the new report, complete")
+        elif now is not None:
+            _err(f"{what} before the report was written: {where} still holds the previous report, unchanged")
+        else:
+            _err(f"{what} before the report was written; nothing was written to {where}")
+    return EXIT_TERMINATED if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
+
+
+def _raise_terminated(signum: int, frame: Any) -> None:
+    raise _Terminated()
+
+
+@contextlib.contextmanager
+def _signal_handlers() -> Iterator[None]:
+    """Ctrl-C raises KeyboardInterrupt and SIGTERM raises _Terminated while main runs (main thread only)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = {sig: signal.getsignal(sig) for sig in (signal.SIGINT, signal.SIGTERM)}
+    signal.signal(signal.SIGINT, signal.default_int_handler)
+    signal.signal(signal.SIGTERM, _raise_terminated)
+    try:
+        yield
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler if handler is not None else signal.SIG_DFL)
+
+
+def _bad_input_types() -> tuple[type[BaseException], ...]:
     import tomllib
 
+    return (ValueError, TypeError, OSError, tomllib.TOMLDecodeError, FloatingPointError, OverflowError)
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; return the exit status (see the module docstring)."""
+    run = _Run()
+    try:
+        with _signal_handlers():
+            try:
+                return _main(argv, run)
+            except KeyboardInterrupt as exc:
+                return _interrupted(exc, run)
+    except KeyboardInterrupt as exc:  # a second signal while the first one was being reported
+        return EXIT_TERMINATED if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
+
+
+def _main(argv: Sequence[str] | None, run: _Run) -> int:
     parser = build_parser()
     try:
         a = parser.parse_args(argv)
@@ -319,11 +587,16 @@ def main(argv: Sequence[str] | None = None) -> int:
             if a.command == "models":
                 return _cmd_models()
             if a.command == "demo":
-                return _cmd_demo(a)
-            return _cmd_check(a)
-        except KeyboardInterrupt:
-            _err("interrupted; no partial report was written")
-            return EXIT_INTERRUPTED
-        except (ValueError, TypeError, OSError, tomllib.TOMLDecodeError, ArithmeticError) as exc:
+                return _cmd_demo(a, run)
+            return _cmd_check(a, run)
+        except MemoryError as exc:
+            _err(f"internal error: out of memory ({exc or 'no detail'}); no verdict. Ask for a smaller basis or "
+                 "fewer orders")
+            return EXIT_INTERNAL_ERROR
+        except _bad_input_types() as exc:
             _err(exc)
             return EXIT_BAD_INPUT
+        except Exception as exc:  # a bug: one line, a distinct status, never a traceback
+            _err(f"internal error: {type(exc).__name__}: {exc} (no verdict). This is a bug in ptcheck: please "
+                 "report it with the command that caused it")
+            return EXIT_INTERNAL_ERROR

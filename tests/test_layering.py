@@ -9,6 +9,7 @@ ENGINE = [
     "ptcheck.series",
     "ptcheck.blocks",
     "ptcheck.exact",
+    "ptcheck.formula",
     "ptcheck.compare",
     "ptcheck.convergence",
     "ptcheck.degeneracy",
@@ -17,6 +18,8 @@ ENGINE = [
     "ptcheck.models",
     "ptcheck.products",
     "ptcheck.maps",
+    "ptcheck.photons",
+    "ptcheck._format",
     "ptcheck.modelfile",
     "ptcheck._atomic",
 ]

@@ -261,7 +261,7 @@ def test_errors_panel_tolerances_and_boundaries(jc):
 def test_treatment_and_backend_reach_the_engine(jc):
     p = LevelsPanel(jc, levels=[(1, 0)], treatment="block", **OPTS)
     try:
-        assert p.result.treatments == ("block",)
+        assert p.result.treatments == ("near-degenerate block",)
         p.controls.treatment.value = "nondegenerate"
         assert p.result.treatments == ("nondegenerate",)
         p.controls.backend.value = "dense"
@@ -431,7 +431,7 @@ def test_degenerate_level_with_nondegenerate_treatment_is_a_message():
         assert "DegenerateLevelError" in p.message.value
         assert "Traceback" not in p.message.value
         p.controls.treatment.value = "block"  # the fix clears the message
-        assert p.message.value == "" and p.result.treatments == ("block",)
+        assert p.message.value == "" and p.result.treatments == ("degenerate",)
     finally:
         p.close()
     with pytest.raises(DegenerateLevelError):

@@ -102,6 +102,9 @@ class Controls:
         self.export_format = w.Dropdown(options=EXPORT_FORMATS, value="png", description="figure as", style=style,
                                         layout=w.Layout(width="160px"))
         self.export_button = w.Button(description="export figure + numbers", icon="download", layout=w.Layout(width="220px"))
+        self.formula_button = w.Button(description="export formula", icon="download", layout=w.Layout(width="160px"),
+                                       tooltip="formula of the verdict's target at the highest integer order selected, "
+                                               "with where it meets the tolerances: .tex, .py and figure")
         self.export_status = w.HTML()
 
     # ------------------------------------------------------------------ groups
@@ -136,6 +139,7 @@ class Controls:
         import ipywidgets as w
 
         model = w.VBox(([self.model_name, self.model_params] if model_editable else []) + [self.model_status])
-        export = w.VBox([self.folder, w.HBox([self.export_format, self.export_button]), self.export_status])
+        export = w.VBox([self.folder, self.export_format, w.HBox([self.export_button, self.formula_button]),
+                         self.export_status])
         acc = w.Accordion(children=[model, export], titles=("model", "export"), selected_index=None)
         return acc

@@ -23,11 +23,13 @@ from typing import Any
 
 import numpy as np
 
-from ..approximants import order_name
+from ..approximants import Pade, order_name
 from ..degeneracy import DEFAULT_MIXING_THRESHOLD
+from ..formula import formula
+from ..formula_report import collect
 from ..model import Model
 from ..models import BUILDERS
-from ..plots import save
+from ..plots import SLIDE_SIZE, plot_formula, save
 from ..plots._common import caption_text
 from ..quantities import Quantity
 from ._builders import build_model, builder_defaults, format_params, parse_params
@@ -223,6 +225,7 @@ class Panel:
         c.model_params.observe(self._on_model_params, names="value")
         c.shift.observe(self._on_shift, names="value")
         c.export_button.on_click(lambda _b: self._export_clicked())
+        c.formula_button.on_click(lambda _b: self._export_clicked(formula_files=True))
         self._show_physical()
         if self.model is not None:
             self.refresh()
@@ -327,6 +330,65 @@ class Panel:
         write_numbers(rows, data, folder / f"{stem}.csv", folder / f"{stem}.json")
         view.redraw()
         return (fig_path, folder / f"{stem}.csv", folder / f"{stem}.json")
+
+    def export_formula(self, folder: str | Path | None = None, *, order: int | None = None,
+                       fmt: str | None = None) -> tuple[Path, Path, Path]:
+        """Write the formula of the verdict's target with where it meets the panel's tolerances.
+
+        :func:`ptcheck.formula` for the answer shown (its model, target,
+        tolerances, treatment, exact solver, threshold and coupling range,
+        searched as the panel searches its validity boundaries, so the ranges
+        are the same numbers); the error curve is drawn on the panel's couplings.
+
+        Parameters
+        ----------
+        folder : str or Path, optional
+            Default: the panel's export folder.
+        order : int, optional
+            Default: the highest integer order selected.
+        fmt : {"png", "svg", "pdf"}, optional
+            Format of the figure (default: the panel's "figure as").
+
+        Returns
+        -------
+        (Path, Path, Path)
+            ``.tex`` (equation and ranges), ``.py`` (a self-contained function)
+            and the slide figure.
+        """
+        st = self.state
+        if st is None:
+            raise ValueError("nothing to export yet: no answer shown (see the message above)")
+        s = st.settings
+        fmt = (fmt or self.controls.export_format.value).lower()
+        if fmt not in EXPORT_FORMATS:
+            raise ValueError(f"export format must be one of {', '.join(EXPORT_FORMATS)}; got {fmt!r}")
+        if order is None:
+            ints = [o for o in s.orders if not isinstance(o, Pade)]
+            if not ints:
+                raise ValueError("a formula is a truncated series: select an integer order (Padé approximants are not "
+                                 f"exported); selected: {', '.join(order_name(o) for o in s.orders)}")
+            order = max(ints)
+        same = self.session is not None and st.model is self.session.model
+        call = self.session._call if same else (lambda fn, *a, **k: fn(*a, **k))
+        f = call(formula, st.model, s.focus, order, **({"rtol": list(s.tols)} if s.relative else {"tol": list(s.tols)}),
+                 directions=s.directions, treatment=s.treatment, backend=s.backend, threshold=s.threshold,
+                 coupling=s.reach, max_coupling=s.reach, couplings=s.couplings, params=st.model_params)
+        unit = energy_unit(st.model)
+        tols = " & ".join(fmt_tol(t, s.relative, unit) for t in s.tols)
+        fx = collect([f], title=f"a panel of {st.model.name} (tolerance {tols}, treatment {s.treatment!r}, "
+                                f"coupling range {s.coupling_min:g} to {s.coupling_max:g})")
+        folder = Path(folder if folder is not None else self.controls.folder.value).expanduser()
+        folder.mkdir(parents=True, exist_ok=True)
+        stem = f"ptcheck_formula_{_slug(st.model.name)}_{_slug(f.target)}_order{f.order}"
+        tex, py, fig_path = folder / f"{stem}.tex", folder / f"{stem}.py", folder / f"{stem}.{fmt}"
+        tex.write_text(fx.latex(), encoding="utf-8")
+        py.write_text(fx.python(), encoding="utf-8")
+        from matplotlib.figure import Figure  # no pyplot: no global state
+
+        fig = Figure(figsize=SLIDE_SIZE, layout="constrained")
+        plot_formula(f, ax=fig.add_subplot())
+        save(fig, fig_path)
+        return (tex, py, fig_path)
 
     def close(self) -> None:
         """Close this panel's widgets (controls, canvases, containers); other widgets are left alone."""
@@ -773,11 +835,11 @@ class Panel:
         else:
             self._update_text()
 
-    def _export_clicked(self) -> None:
+    def _export_clicked(self, *, formula_files: bool = False) -> None:
         c = self.controls
         c.export_status.value = ""
         with self._export_guard():
-            paths = self.export()
+            paths = self.export_formula() if formula_files else self.export()
             note = "" if not self.stale else (" <b>Note:</b> these files hold the previous answer shown in the figure, "
                                               "not the current controls (the last change failed).")
             c.export_status.value = (f"<div style='{_DONE_BOX}'><small>written: "
