@@ -123,8 +123,8 @@ def test_verdict_on_the_negative_side_uses_that_side_s_boundary():
 
 
 def test_single_tolerance_sentence_and_physical_coupling():
-    m = two_level()
-    m.coupling_scale, m.coupling_unit = 66.0, "MHz"  # λ = 1 is g = 66 MHz (attributes of Model, read with getattr)
+    m = Model(np.diag([-0.5, 0.5]), [[0.0, 0.5], [0.5, 0.0]], name="two-level", coupling_scale=66.0,
+              coupling_unit="MHz")  # λ = 1 is g = 66 MHz
     lam1 = brute_force_boundary(0.5, 0.01)
     p = LevelsPanel(m, levels=[0], orders=(2,), rtol=0.01, coupling_range=(0.0, 1.0), n_points=41, raise_errors=True,
                     treatment="nondegenerate",
@@ -135,6 +135,7 @@ def test_single_tolerance_sentence_and_physical_coupling():
         assert text.startswith(f"order 2 meets 1 % up to λ* = {lam1:.3g} (g = {66 * lam1:.3g} MHz)")
         assert text.endswith("at λ = 0.5 (g = 33 MHz) it does not.")
         assert "g = 33 MHz" in p.controls.coupling_physical.value
+        assert "coupling (MHz)" in [c.get_xlabel() for c in p.artists.ax.child_axes]  # the figure's physical axis
         p.set_coupling(0.1)
         assert p.verdict.orders[0].text.endswith("at λ = 0.1 (g = 6.6 MHz) it does.")
     finally:
@@ -247,6 +248,7 @@ def test_errors_panel_tolerances_and_boundaries(jc):
         p.controls.tolerance.value = "1e-3, 1e-2"
         assert p.heavy_computations == before + 4  # one boundary per order and tolerance; the sweep is cached
         assert sorted({b.tol for b in p.boundaries}) == [1e-3, 1e-2]
+        assert [ln.get_ydata()[0] for ln in p.artists.tolerance_lines] == [1e-3, 1e-2]  # both in the figure
         p.controls.tolerance_kind.value = True
         assert sorted({b.rtol for b in p.boundaries}) == [1e-5, 1e-4]  # "1e-3, 1e-2" read as percent
         assert "% of the exact shift E(λ) − E(0)" in p.controls.tolerance_hint.value
@@ -500,7 +502,15 @@ def test_single_divergence_and_pairs_panels(jc):
     q = PairsPanel(jc, **OPTS)
     try:
         assert p.divergence.order == 12 and p.artists.discs
-        assert q.views["pairs"].map.levels.size
+        assert len(q.artists.lines) == len(q.views["pairs"].map.levels)  # the level diagram: one line per level
+        # a coupling move updates the same artists in place (no clear, no redraw from scratch)
+        art, heavy = q.artists, q.heavy_computations
+        cells = [t.get_text() for t in art.table]
+        q.controls.coupling.value = 0.75
+        assert q.artists is art and q.views["pairs"].artists is art
+        assert q.views["pairs"].map.coupling == pytest.approx(0.75)
+        assert [t.get_text() for t in art.table] != cells  # the ranked ratios grow with λ
+        assert q.heavy_computations == heavy
     finally:
         p.close()
         q.close()

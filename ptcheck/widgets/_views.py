@@ -10,7 +10,7 @@ from typing import Any
 import numpy as np
 from matplotlib.figure import Figure
 
-from ..plots import mixing_map, plot_divergence, plot_errors, plot_levels, plot_pairs
+from ..plots import mixing_map, plot_divergence, plot_errors, plot_levels, plot_pairs, update_pairs
 from ..plots._common import positive_or_nan
 from ..plots._style import SLIDE_SIZE, style
 from ..quantities import Quantity
@@ -191,6 +191,12 @@ def _move_markers(art: Any, lines: Any, coupling: float, *, log: bool) -> None:
     art.coupling_markers.set_data(xs, ys)
 
 
+def _physical(model: Any) -> dict:
+    """``coupling_scale``/``coupling_unit`` for the figures' physical coupling axis (none when the model has none)."""
+    scale = getattr(model, "coupling_scale", None)
+    return {} if scale is None else {"coupling_scale": scale, "coupling_unit": getattr(model, "coupling_unit", None)}
+
+
 class LevelsView(_View):
     name = "levels"
     title = "levels vs coupling λ"
@@ -201,8 +207,8 @@ class LevelsView(_View):
         r = state.result
         self._shift = bool(panel.controls.shift.value)
         self.artists = plot_levels(r, orders=_drawable(r.orders, r.perturbative), coupling=panel.coupling, ax=self.ax,
-                                   shift=self._shift,
-                                   caption=panel.caption("levels vs coupling", state))
+                                   shift=self._shift, caption=panel.caption("levels vs coupling", state),
+                                   **_physical(state.model))
 
     def move(self, panel: Any, coupling: float) -> None:
         if self.state is None:
@@ -224,12 +230,11 @@ class ErrorsView(_View):
         r, s = state.result, state.settings
         kind = "relative" if s.relative else "absolute"
         target = panel.error_target_name
-        tol = s.tols[0]
-        bounds = tuple(b for b in state.boundaries if (b.rtol if s.relative else b.tol) == tol)
         ti = list(r.targets).index(target)
-        self.artists = plot_errors(r, bounds, target=target, orders=_drawable(r.orders, r.abs_error[ti:ti + 1]), error=kind,
-                                   tol=tol, coupling=panel.coupling, ax=self.ax,
-                                   caption=panel.caption(f"{kind} error of {target} vs coupling", state))
+        self.artists = plot_errors(r, state.boundaries, target=target, orders=_drawable(r.orders, r.abs_error[ti:ti + 1]),
+                                   error=kind, tol=list(s.tols), coupling=panel.coupling, ax=self.ax,
+                                   caption=panel.caption(f"{kind} error of {target} vs coupling", state),
+                                   **_physical(state.model))
 
     def move(self, panel: Any, coupling: float) -> None:
         if self.state is None:
@@ -273,33 +278,30 @@ class PairsView(_View):
     needs = frozenset()
 
     def _setup_axes(self) -> None:
-        gs = self.figure.add_gridspec(1, 2, width_ratios=(20, 1))
+        gs = self.figure.add_gridspec(1, 2, width_ratios=(3, 2))
         self.ax = self.figure.add_subplot(gs[0, 0])
-        self.cax = self.figure.add_subplot(gs[0, 1])
+        self.table_ax = self.figure.add_subplot(gs[0, 1])
 
     def clear(self) -> None:
         self.ax.clear()
-        self.cax.clear()
+        self.table_ax.clear()
         self.artists = None
 
     def render(self, panel: Any, state: Any) -> None:
-        self._draw(state, panel.coupling)
-
-    def _draw(self, state: Any, coupling: float) -> None:
         # mixing ratios are cheap (one row of V per level): recomputed at each coupling, not counted as heavy
         s = state.settings
         levels = [t for t in s.targets if not isinstance(t, Quantity)] or None
-        self.map = mixing_map(state.model, coupling, levels=levels, threshold=s.threshold)
         self.clear()
-        self.artists = plot_pairs(self.map, ax=self.ax, cax=self.cax)
+        self.map = mixing_map(state.model, panel.coupling, levels=levels, threshold=s.threshold)
+        self.artists = plot_pairs(self.map, ax=self.ax, table_ax=self.table_ax)
 
     def move(self, panel: Any, coupling: float) -> None:
-        if self.state is None or (self.artists is not None and self.map.coupling == coupling):
+        if self.artists is None or self.map.coupling == coupling:
             return
-        self._draw(self.state, coupling)
+        self.map = update_pairs(self.artists, coupling)  # the same artists, new data
 
-    def redraw(self, *, full: bool = True) -> None:
-        super().redraw(full=True)  # the heat map itself changes with the coupling
+    def moving(self) -> list:
+        return []  # the whole diagram follows the coupling: a full (layout-free) draw
 
     def numbers(self, panel: Any) -> tuple[list[dict], dict]:
         return self.map.to_rows(), {"mixing_map": self.map.to_dict()}
