@@ -25,10 +25,10 @@ EXPORT_FORMATS = ("png", "svg", "pdf")
 SLIDER_STEPS = 100
 
 _TREATMENT_WORDS = {
-    "standard": "standard (RS; degenerate PT where exact)",
+    "standard": "standard (RS, degenerate PT)",
     "nondegenerate": "non-degenerate RS",
     "block": "near-degenerate block",
-    "auto": "auto (block where near-degenerate)",
+    "auto": "auto (block if near-degenerate)",
 }
 
 
