@@ -472,7 +472,7 @@ def test_parse_params():
 
 
 # ---------------------------------------------------------------- dashboard and the other panels
-def test_dashboard_computes_each_tab_once(jc):
+def test_dashboard_computes_each_tab_once(jc, tmp_path):
     d = Dashboard(jc, **OPTS)
     try:
         assert d.heavy_computations == 1 + 2  # the sweep + one validity boundary per order (the verdict)
@@ -493,6 +493,8 @@ def test_dashboard_computes_each_tab_once(jc):
         d.controls.coupling.value = 0.75
         assert d.views["pairs"].map.coupling == pytest.approx(0.75)
         assert d.heavy_computations == 4
+        fig, rows, data = d.export(tmp_path)  # the diagram at the coupling shown, with its numbers
+        assert fig.stat().st_size > 0 and json.loads(data.read_text(encoding="utf-8"))["mixing_map"]["coupling"] == 0.75
     finally:
         d.close()
 

@@ -298,10 +298,22 @@ class PairsView(_View):
     def move(self, panel: Any, coupling: float) -> None:
         if self.artists is None or self.map.coupling == coupling:
             return
+        limits = (self.ax.get_xlim(), self.ax.get_ylim())
         self.map = update_pairs(self.artists, coupling)  # the same artists, new data
+        # new axis limits change the ticks under the diagram: the cached background no longer fits
+        self._limits_moved = (self.ax.get_xlim(), self.ax.get_ylim()) != limits
 
     def moving(self) -> list:
-        return []  # the whole diagram follows the coupling: a full (layout-free) draw
+        """Everything the diagram changes with the coupling (drawn over a cached background)."""
+        a = self.artists
+        if a is None:
+            return []
+        arts = [*a.lines, *a.level_labels, *a.arcs, *a.block_outlines, *a.block_labels, *a.table]
+        return arts + ([a.caption] if a.caption is not None else [])
+
+    def redraw(self, *, full: bool = True) -> None:
+        super().redraw(full=full or getattr(self, "_limits_moved", False))
+        self._limits_moved = False
 
     def numbers(self, panel: Any) -> tuple[list[dict], dict]:
         return self.map.to_rows(), {"mixing_map": self.map.to_dict()}
