@@ -10,6 +10,7 @@ import math
 from collections.abc import Iterable, Sequence
 from typing import Any
 
+import matplotlib as mpl
 import numpy as np
 
 from ._style import FONT_SIZES, LEGEND_STYLE, SCREEN_SIZE, font_scale, style
@@ -25,8 +26,13 @@ def new_axes(ax: Any, figsize: tuple[float, float] = SCREEN_SIZE) -> tuple[Any, 
     if ax is None:
         import matplotlib.pyplot as plt  # only here: a figure is made for the caller
 
+        # The figure is made OUTSIDE the style context: the first pyplot figure of a session loads
+        # the backend, and a notebook's inline backend then switches interactive mode on; inside an
+        # rc_context that switch would be undone on exit and no later figure would be displayed.
+        fig = plt.figure(figsize=figsize, layout="constrained")
         with style(figsize[0] / 13.333):
-            fig, ax = plt.subplots(figsize=figsize, layout="constrained")
+            fig.set_dpi(mpl.rcParams["figure.dpi"])
+            ax = fig.add_subplot()
     else:
         fig = ax.figure
     return fig, ax, font_scale(fig)
