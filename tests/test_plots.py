@@ -500,3 +500,21 @@ def test_avoided_crossing_is_marked_at_its_coupling(ax):
     assert [ln.get_xdata()[0] for ln in lines] == [ac.coupling for ac in r.avoided_crossings]
     assert lines[0].get_xdata()[0] == pytest.approx(0.2, abs=0.01)
     assert "avoided crossing n=1–n=2" in labels[0].get_text()
+
+
+def test_an_order_with_no_value_draws_an_empty_line_not_an_error():
+    # a Padé order asked for a level of an exactly degenerate group has no value (no scalar series): the
+    # figures must still draw the other orders and keep a legend entry for it (common practice, no source)
+    import numpy as np
+
+    from ptcheck import Model, compare
+    from ptcheck.plots import plot_errors, plot_levels
+
+    m = Model(np.diag([0.0, 0.0, 1.0]), [[0, .1, .2], [.1, 0, .3], [.2, .3, 0]], name="degenerate pair (invented)")
+    r = compare(m, [0], [2, "pade1/1"], np.linspace(0, .5, 11))
+    assert r.treatments == ("degenerate",) and np.isnan(r.perturbative[0, 1]).all()
+    for art in (plot_levels(r), plot_errors(r)):
+        art.figure.canvas.draw()
+        labels = [t.get_text() for t in art.figure.axes[0].get_legend().get_texts()]
+        assert any("Padé" in t for t in labels) and any("order 2" in t for t in labels)
+        plt.close(art.figure)

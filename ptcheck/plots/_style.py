@@ -28,6 +28,7 @@ from types import MappingProxyType
 from typing import Any
 
 import matplotlib as mpl
+import numpy as np
 from matplotlib.colors import LinearSegmentedColormap
 
 __all__ = [
@@ -51,6 +52,7 @@ __all__ = [
     "font_scale",
     "style",
     "order_style",
+    "finite_style",
 ]
 
 #: Okabe & Ito (2008) colour-universal-design set, by their names.
@@ -195,6 +197,14 @@ def order_style(order: Any) -> dict:
         return {"color": ORDER0_COLOR, "linestyle": (0, (1, 3))}
     n = len(ORDER_COLORS)
     return {"color": ORDER_COLORS[(k - 1) % n], "linestyle": ORDER_DASHES[((k - 1) % n + (k - 1) // n) % len(ORDER_DASHES)]}
+
+
+def finite_style(style_kw: dict, y: Any) -> dict:
+    """``style_kw`` without ``markevery`` when ``y`` has no finite value (matplotlib cannot space markers
+    along an empty path); the line is then empty but keeps its legend entry."""
+    if "markevery" in style_kw and not np.any(np.isfinite(np.asarray(y, dtype=float))):
+        return {k: v for k, v in style_kw.items() if k != "markevery"}
+    return style_kw
 
 
 def font_scale(fig) -> float:

@@ -22,7 +22,7 @@ from ._common import (
     positive_or_nan,
     style_axes,
 )
-from ._style import EXACT_COLOR, FONT_SIZES, MARKER_COLOR, SHADE_COLOR, order_style, style
+from ._style import EXACT_COLOR, FONT_SIZES, MARKER_COLOR, SHADE_COLOR, finite_style, order_style, style
 from .levels import _order_indices, _target_indices, check_comparison, target_unit
 
 __all__ = ["ErrorArtists", "plot_errors", "ERROR_KINDS", "error_label", "fmt_tolerance", "TOLERANCE_DASHES"]
@@ -181,8 +181,8 @@ def plot_errors(
         lines = []
         for oi in o_idx:
             tag = f" ({result.treatments[ti]})" if result.treatments[ti] in ("block", "mixed") else ""
-            (ln,) = ax.plot(x, positive_or_nan(data[ti, oi])[srt], label=result.order_names[oi] + tag,
-                            **order_style(result.orders[oi]))
+            y = positive_or_nan(data[ti, oi])[srt]
+            (ln,) = ax.plot(x, y, label=result.order_names[oi] + tag, **finite_style(order_style(result.orders[oi]), y))
             lines.append(ln)
         if x.size > 1 and x[-1] > x[0]:
             ax.set_xlim(x[0], x[-1])

@@ -18,7 +18,7 @@ from ._common import (
     physical_coupling,
     style_axes,
 )
-from ._style import CROSSING_COLOR, EXACT_COLOR, FONT_SIZES, MARKER_COLOR, order_style, style
+from ._style import CROSSING_COLOR, EXACT_COLOR, FONT_SIZES, MARKER_COLOR, finite_style, order_style, style
 
 __all__ = ["LevelArtists", "plot_levels", "crossing_info", "spread", "target_unit"]
 
@@ -158,10 +158,9 @@ def plot_levels(
         for k, ti in enumerate(t_idx):
             row = []
             for oi in o_idx:
-                (ln,) = ax.plot(
-                    x, np.asarray(result.perturbative[ti, oi])[srt] - offset[ti], label=result.order_names[oi] if k == 0 else None,
-                    **order_style(result.orders[oi]),
-                )
+                y = np.asarray(result.perturbative[ti, oi])[srt] - offset[ti]
+                (ln,) = ax.plot(x, y, label=result.order_names[oi] if k == 0 else None,
+                                **finite_style(order_style(result.orders[oi]), y))
                 row.append(ln)
             pert_lines.append(tuple(row))
             (ex,) = ax.plot(x, np.asarray(result.exact[ti])[srt] - offset[ti], color=EXACT_COLOR, linewidth=2.6 * lw,

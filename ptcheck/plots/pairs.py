@@ -4,7 +4,8 @@
 horizontal lines, grouped in columns (symmetry sector, or excitation number
 of a product model), joins the pairs whose mixing ratio is large by arcs
 (width and opacity by ratio; the threshold in the legend), outlines the
-blocks the "auto" treatment would choose, and, on a second Axes, lists the
+near-degenerate blocks a block treatment would use (suggested beside the
+answer, computed on request), and, on a second Axes, lists the
 pairs ranked by ratio.  :func:`update_pairs` moves an existing diagram to
 another coupling in place (for sliders).  :func:`plot_mixing_matrix` keeps
 the heat map of the same :class:`MixingMap`.
@@ -439,7 +440,7 @@ def plot_pairs(
             Line2D([], [], color=_WEAK_COLOR, linewidth=1.2 * lw, linestyle=(0, (3, 2)), alpha=0.6,
                    label=f"{mmap.threshold / ARC_FLOOR:g} ≤ ratio < {mmap.threshold:g}"),
             Rectangle((0, 0), 1, 1, fill=False, edgecolor=_BLOCK_COLOR, linestyle=(0, (4, 2)), linewidth=1.4 * lw,
-                      label="block treated together"),
+                      label="near-degenerate block (suggested; on request)"),
         ]
         table = _make_table(table_ax, scale) if table_ax is not None else ()
         if table_ax is not None:  # below the table: never over a level (and no "best" search on every draw)
