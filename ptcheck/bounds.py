@@ -380,18 +380,41 @@ def _resolve(model: Model, level: Any) -> tuple[str, dict[int, float], str]:
     return model.label(n), {n: 1.0}, "shift"
 
 
+def _sector_model(model: Model, n: int) -> tuple[Model, int]:
+    """The sub-model of level n's symmetry sector and n's index in it (the model itself with one sector).
+
+    V never couples sectors, so the level's bounds, gaps and identification are
+    judged among the levels of its own sector: equal energies in other sectors
+    are neither neighbours nor crossings.
+    """
+    if len(model.sectors) == 1:
+        return model, n
+    k = int(model.level_sectors[n])
+    sub = model.restrict(k)
+    return sub, int(np.searchsorted(np.flatnonzero(model.level_sectors == k), n))
+
+
 def _engines(model: Model, weights: dict[int, float], settings: Settings, caller: str) -> dict[int, LevelEngine]:
-    scales = operator_scales(model)
+    scales: dict[int, Any] = {}
     out = {}
     for n in weights:
+        sub, local = _sector_model(model, n)
+        if id(sub) not in scales:
+            scales[id(sub)] = operator_scales(sub)
         try:
-            out[n] = LevelEngine(model, n, settings, scales)
+            out[n] = LevelEngine(sub, local, settings, scales[id(sub)])
         except DegenerateLevelError as exc:
             raise DegenerateLevelError(
-                f"{caller} needs a non-degenerate level (its trial state is a Rayleigh–Schrödinger series): {exc}",
+                f"{caller} needs a level that is not degenerate with another level of its sector (its trial state "
+                f"is a Rayleigh–Schrödinger series): {exc}",
                 exc.pair,
             ) from None
     return out
+
+
+def _v_bound(engines: dict[int, LevelEngine]) -> float:
+    """Largest bound on ‖V‖ over the sectors of the levels used (energy units)."""
+    return max(max(abs(e.scales.v_min), abs(e.scales.v_max)) for e in engines.values())
 
 
 # ---------------------------------------------------------------------- one level, pointwise
@@ -808,8 +831,7 @@ def certified_boundary(
     name, weights, relative_to = _resolve(model, level)
     settings = _settings(gap, trial_order, krylov_steps, lanczos_steps, seed, spec)
     engines = _engines(model, weights, settings, "certified_boundary")
-    scales = next(iter(engines.values())).scales
-    v_big = max(abs(scales.v_min), abs(scales.v_max))
+    v_big = _v_bound(engines)
     iso = min(e.sep0 for e in engines.values())
     s_nat = iso / v_big if v_big > 0 else np.inf
     if max_coupling is None:
@@ -921,7 +943,7 @@ class _Target:
         unpert = sum(weights[n] * float(model.e0[n]) for n in engines)
         self.offset = unpert if relative_to == "shift" else 0.0
         w = np.array([weights[n] for n in engines])
-        v_big = max(abs(next(iter(engines.values())).scales.v_min), abs(next(iter(engines.values())).scales.v_max))
+        v_big = _v_bound(engines)
         self.slope = float(np.sum(np.abs(w))) * v_big  # |d(exact value)/dλ| ≤ Σ|w| ‖V‖ (Weyl)
         k = int(spec)
         coef = sum(weights[n] * eng.trial.energy_coefficients[: k + 1] for n, eng in engines.items())
