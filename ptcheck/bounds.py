@@ -369,6 +369,14 @@ def _settings(gap: Any, trial_order: Any, krylov_steps: Any, lanczos_steps: Any,
     return Settings(gap_mode, gap_value, trial_order, krylov_steps, lanczos_steps, seed)
 
 
+def bounds_options(gap: Any, trial_order: Any, order: Any) -> Settings:
+    """Validated options of a bounds computation for callers in other modules (compare, the report).
+
+    ``order``: the highest order spec judged (sets the default trial order).
+    """
+    return _settings(gap, trial_order, 0, None, 0, parse_order(order))
+
+
 def _resolve(model: Model, level: Any) -> tuple[str, dict[int, float], str]:
     if not isinstance(model, Model):
         raise TypeError(f"model must be a ptcheck Model; got {type(model).__name__}")
@@ -828,16 +836,30 @@ def certified_boundary(
         raise ValueError(f"certified_boundary needs a truncation order (an int); got {order_name(spec)}")
     k = int(spec)
     xrtol = float(val.check_positive(xrtol, "xrtol"))
+    if max_coupling is not None:
+        max_coupling = float(val.check_positive(max_coupling, "max_coupling"))
     name, weights, relative_to = _resolve(model, level)
     settings = _settings(gap, trial_order, krylov_steps, lanczos_steps, seed, spec)
-    engines = _engines(model, weights, settings, "certified_boundary")
+    return certify(model, name, weights, relative_to, k, thr, relative, direction, settings, max_coupling, xrtol)
+
+
+def certify(
+    model: Model, name: str, weights: dict[int, float], relative_to: str, k: int, thr: float, relative: bool,
+    direction: int, settings: Settings, max_coupling: float | None, xrtol: float, *, reach_at_least: float = 0.0,
+) -> CertifiedBoundary:
+    """:func:`certified_boundary` on validated, resolved input.
+
+    ``reach_at_least``: the default search limit is raised to this |λ| (the
+    caller's coupling of interest must be inside the range searched).
+    """
+    engines = _engines(model, weights, settings, "certified bounds")
     v_big = _v_bound(engines)
     iso = min(e.sep0 for e in engines.values())
     s_nat = iso / v_big if v_big > 0 else np.inf
     if max_coupling is None:
-        s_max = 100.0 * s_nat if np.isfinite(s_nat) else 1e6
+        s_max = max(100.0 * s_nat if np.isfinite(s_nat) else 1e6, reach_at_least)
     else:
-        s_max = float(val.check_positive(max_coupling, "max_coupling"))
+        s_max = max_coupling
     notes = [BOUNDS_NOTE]
     pieces = [(weights[n], eng.trial.polynomials(direction), float(model.e0[n])) for n, eng in engines.items()]
 
@@ -900,7 +922,7 @@ def certified_boundary(
         s_p = max(s_p, best)
 
     # beyond the polynomial certificate: pointwise Kato–Temple brackets and Weyl's slope bound
-    target = _Target(engines, weights, spec, direction, thr, relative, relative_to, model)
+    target = _Target(engines, weights, k, direction, thr, relative, relative_to, model)
     fail, fail_rig = np.nan, False
     if s_p < s_max:
         fail, fail_rig = _find_fail(target, max(s_p, 1e-9 * min(s_nat, s_max)), s_max, xrtol, settings.krylov_steps > 0)
