@@ -494,7 +494,13 @@ def _pointwise(eng: LevelEngine, lam: np.ndarray, *, krylov: bool, allow_estimat
     return _Pointwise(lo, hi, rho, r, alpha, beta, kind, rigorous, ident)
 
 
-def _error_brackets(lo, hi, pert, ref_lo, ref_hi):
+def error_brackets(lo, hi, pert, ref_lo, ref_hi):
+    """(error ≥, error ≤, relative error ≥, relative error ≤) of ``pert`` against a value in [lo, hi].
+
+    The relative error is relative to a reference known to lie in [ref_lo,
+    ref_hi]; its upper end is ``inf`` where that range contains 0, and both
+    ends are NaN where the reference is exactly 0 (λ = 0).  Shapes broadcast.
+    """
     err_lo = np.maximum(0.0, np.maximum(lo - pert, pert - hi))
     err_hi = np.maximum(np.abs(pert - lo), np.abs(pert - hi))
     ref_max = np.maximum(np.abs(ref_lo), np.abs(ref_hi))
@@ -586,7 +592,7 @@ def error_bounds(
 
     def level_result(n: int, eng: LevelEngine, pw: _Pointwise, pert: np.ndarray) -> ErrorBounds:
         e0 = float(model.e0[n])
-        el, eh, rl, rh = _error_brackets(pw.lo, pw.hi, pert, pw.lo - e0, pw.hi - e0)
+        el, eh, rl, rh = error_brackets(pw.lo, pw.hi, pert, pw.lo - e0, pw.hi - e0)
         gapv = np.minimum(pw.beta - pw.rho, pw.rho - pw.alpha)
         return ErrorBounds(
             model_name=model.name, target=model.label(n), levels=(n,), weights=(1.0,), order=spec,
@@ -603,6 +609,39 @@ def error_bounds(
         only = level_parts[0]
         return replace(only, notes=(BOUNDS_NOTE,) + only.notes)
     return _combine(model, name, weights, relative_to, spec, settings, lam, level_parts)
+
+
+@dataclass(frozen=True)
+class LevelBracket:
+    """Bracket of one exact level over couplings (for :func:`ptcheck.compare`); arrays of shape (C,).
+
+    ``lower``/``upper`` in energy units; ``rigorous``: rigorous gaps and
+    identification; ``identified``: about the labelled level; ``gap_kind``:
+    the gap source per coupling.
+    """
+
+    lower: np.ndarray
+    upper: np.ndarray
+    rigorous: np.ndarray
+    identified: np.ndarray
+    gap_kind: np.ndarray
+
+
+def level_brackets(
+    model: Model, levels: list[int], couplings: np.ndarray, settings: Settings,
+) -> tuple[dict[int, LevelBracket], list[str], int]:
+    """Brackets of exact levels (work indices) at couplings, no exact solve.
+
+    Returns the brackets, notes and the mat-vecs spent.  A level that cannot be
+    bracketed (degenerate in its sector) raises :class:`DegenerateLevelError`.
+    """
+    engines = _engines(model, {n: 1.0 for n in levels}, settings, "certified bounds")
+    out, notes = {}, [BOUNDS_NOTE]
+    for n, eng in engines.items():
+        pw = _pointwise(eng, couplings, krylov=True)
+        out[n] = LevelBracket(pw.lo, pw.hi, pw.rigorous & pw.identified, pw.identified, pw.kind.astype(str))
+        notes.extend(_level_notes(eng, pw, couplings))
+    return out, list(dict.fromkeys(notes)), int(sum(e.mat_vecs for e in engines.values()))
 
 
 def _level_notes(eng: LevelEngine, pw: _Pointwise, lam: np.ndarray) -> list[str]:
@@ -633,7 +672,7 @@ def _combine(model, name, weights, relative_to, spec, settings, lam, parts) -> E
     pert = sum(wi * p.perturbative for wi, p in zip(w, parts))
     unpert = float(sum(wi * p.unperturbed for wi, p in zip(w, parts)))
     ref_off = unpert if relative_to == "shift" else 0.0
-    el, eh, rl, rh = _error_brackets(lo, hi, pert, lo - ref_off, hi - ref_off)
+    el, eh, rl, rh = error_brackets(lo, hi, pert, lo - ref_off, hi - ref_off)
     kinds = np.array(["+".join(dict.fromkeys(str(p.gap_kind[i]) for p in parts)) for i in range(lam.size)])
     notes = [BOUNDS_NOTE, f"Quantity {name!r}: bracket = interval sum of its levels' brackets (weights {tuple(w.tolist())})."]
     for p in parts:
@@ -988,7 +1027,7 @@ class _Target:
             rig &= pw.rigorous
             useful &= (pw.alpha < pw.rho) & (pw.rho < pw.beta)
         pert = np.polynomial.polynomial.polyval(np.abs(lam), self.pert_coef)
-        el, eh, _, _ = _error_brackets(lo, hi, pert, lo - self.offset, hi - self.offset)
+        el, eh, _, _ = error_brackets(lo, hi, pert, lo - self.offset, hi - self.offset)
         ref_lo, ref_hi = lo - self.offset, hi - self.offset
         contains_zero = (ref_lo <= 0) & (ref_hi >= 0)
         ref_min = np.where(contains_zero, 0.0, np.minimum(np.abs(ref_lo), np.abs(ref_hi)))

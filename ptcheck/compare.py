@@ -34,9 +34,9 @@ from scipy.sparse.linalg import ArpackError, ArpackNoConvergence
 from . import _validation as val
 from . import pairing
 from .approximants import OrderSpec, Pade, order_name, parse_order, parse_orders, required_order
-from .bounds import bounds_options, certify
+from .bounds import bounds_options, certify, error_brackets, level_brackets
 from .degeneracy import DEFAULT_MIXING_THRESHOLD
-from .errors import AccuracyWarning
+from .errors import AccuracyWarning, DegenerateLevelError
 from .exact import ExactSolver
 from .model import Model
 from .quantities import Quantity
@@ -268,6 +268,26 @@ class ComparisonResult:
         their groups), with its reason.
     coupling : float
         Coupling of interest |λ| used for near-degeneracy judgements.
+    reference : str
+        ``"exact"`` (exact solves), ``"bounds"`` (certified brackets only, no
+        exact solve: ``exact``, ``abs_error``, ``rel_error`` and ``infidelity``
+        are NaN) or ``"both"``.
+    exact_lower, exact_upper : (T, C) ndarray or None
+        Certified bracket of the exact value (energy units; the value, also
+        for a target that presents its shift); None with ``reference="exact"``;
+        NaN where a target could not be bracketed (``notes`` say why).
+    error_lower, error_upper : (T, O, C) ndarray or None
+        Bracket of ``abs_error`` from those brackets (energy units).
+    rel_error_lower, rel_error_upper : (T, O, C) ndarray or None
+        Bracket of ``rel_error`` (upper end ``inf`` where the reference's
+        bracket contains 0).
+    bounds_rigorous : (T, C) bool ndarray or None
+        The bracket rests on rigorous gaps and identifies the labelled level;
+        False where it is conditional on an estimated gap (or not shown to be
+        about the labelled level).
+    bounds_gap_kind : (T, C) str ndarray or None
+        Gap source of each bracket (:mod:`ptcheck.bounds`; a quantity joins its
+        levels' sources with "+").
     """
 
     model_name: str
@@ -296,6 +316,15 @@ class ComparisonResult:
     suggestions: tuple = field(default=())
     choices: tuple = field(default=())
     coupling: float = math.nan
+    reference: str = "exact"
+    exact_lower: np.ndarray | None = None
+    exact_upper: np.ndarray | None = None
+    error_lower: np.ndarray | None = None
+    error_upper: np.ndarray | None = None
+    rel_error_lower: np.ndarray | None = None
+    rel_error_upper: np.ndarray | None = None
+    bounds_rigorous: np.ndarray | None = None
+    bounds_gap_kind: np.ndarray | None = None
 
     @property
     def order_names(self) -> tuple[str, ...]:
@@ -319,6 +348,18 @@ class ComparisonResult:
         """Error of one target at one order over the couplings, shape (C,)."""
         ti, oi = self._index(target, order)
         return (self.rel_error if relative else self.abs_error)[ti, oi]
+
+    def error_bracket(self, target: Any, order: Any, *, relative: bool = False) -> tuple[np.ndarray, np.ndarray]:
+        """Certified (lower, upper) bracket of the error of one target at one order, each shape (C,).
+
+        Raises ValueError for a comparison made with ``reference="exact"``.
+        """
+        if self.error_lower is None:
+            raise ValueError("this comparison has no bounds; call compare(..., reference='bounds' or 'both')")
+        ti, oi = self._index(target, order)
+        if relative:
+            return self.rel_error_lower[ti, oi], self.rel_error_upper[ti, oi]
+        return self.error_lower[ti, oi], self.error_upper[ti, oi]
 
     def __repr__(self) -> str:
         return (
@@ -359,6 +400,15 @@ class ComparisonResult:
             "backend": self.backend,
             "exact_solves": self.exact_solves,
             "notes": list(self.notes),
+            "reference": self.reference,
+            "exact_lower": None if self.exact_lower is None else nn(self.exact_lower),
+            "exact_upper": None if self.exact_upper is None else nn(self.exact_upper),
+            "error_lower": None if self.error_lower is None else nn(self.error_lower),
+            "error_upper": None if self.error_upper is None else nn(self.error_upper),
+            "rel_error_lower": None if self.rel_error_lower is None else nn(self.rel_error_lower),
+            "rel_error_upper": None if self.rel_error_upper is None else nn(self.rel_error_upper),
+            "bounds_rigorous": None if self.bounds_rigorous is None else self.bounds_rigorous.tolist(),
+            "bounds_gap_kind": None if self.bounds_gap_kind is None else self.bounds_gap_kind.tolist(),
         }
 
     def to_rows(self) -> list[dict]:
@@ -391,6 +441,17 @@ class ComparisonResult:
                             "ambiguous": bool(self.ambiguous[ti, ci]) if self.ambiguous is not None else False,
                         }
                     )
+                    if self.error_lower is not None:
+                        rows[-1].update({
+                            "exact_lower": float(self.exact_lower[ti, ci]),
+                            "exact_upper": float(self.exact_upper[ti, ci]),
+                            "error_lower": float(self.error_lower[ti, oi, ci]),
+                            "error_upper": float(self.error_upper[ti, oi, ci]),
+                            "rel_error_lower": float(self.rel_error_lower[ti, oi, ci]),
+                            "rel_error_upper": float(self.rel_error_upper[ti, oi, ci]),
+                            "bounds_rigorous": bool(self.bounds_rigorous[ti, ci]),
+                            "bounds_gap_kind": str(self.bounds_gap_kind[ti, ci]),
+                        })
         return rows
 
     def _repr_html_(self) -> str:
@@ -424,6 +485,9 @@ def compare(
     threshold: float = DEFAULT_MIXING_THRESHOLD,
     method: str = "schrieffer-wolff",
     coupling: float | None = None,
+    reference: str = "exact",
+    gap: str | float = "auto",
+    trial_order: int | None = None,
 ) -> ComparisonResult:
     """Compare perturbative and exact values of levels or quantities.
 
@@ -451,6 +515,18 @@ def compare(
         Method of near-degenerate blocks.
     coupling : float, optional
         Coupling of interest (default: the largest |λ| compared).
+    reference : {"exact", "bounds", "both"}, default "exact"
+        Exact solves; certified brackets of the exact values instead (no exact
+        solve, for bases too large to diagonalise: :mod:`ptcheck.bounds`); or
+        both side by side.  The brackets are the fields ``exact_lower`` ...
+        ``rel_error_upper``.  With ``"bounds"`` every level used must not be
+        degenerate with another level of its sector (else ``ValueError``); with
+        ``"both"`` such targets get NaN brackets and a note.
+    gap : {"auto", "weyl", "neighbours", "estimate"} or float, default "auto"
+        Gap source of the brackets (:mod:`ptcheck.bounds`).
+    trial_order : int, optional
+        Order of the trial states of the brackets (default ``max(12, k + 10)``
+        for the highest truncation order k compared).
 
     Returns
     -------
@@ -469,34 +545,117 @@ def compare(
     targets = _resolve_targets(model, levels)
     specs = parse_orders(orders)
     lam = val.as_couplings(couplings)
-    _check_coupling_range(model, float(np.max(np.abs(lam))), "couplings reach")
+    reference = val.check_choice(reference, "reference", REFERENCES)
+    opts = None
+    if reference == "exact":
+        if not (isinstance(gap, str) and gap == "auto") or trial_order is not None:
+            raise ValueError(
+                f"gap and trial_order shape certified bounds: give them with reference='bounds' or 'both'; got "
+                f"gap={gap!r}, trial_order={trial_order!r} with reference='exact'"
+            )
+    else:
+        top = max((sp_ for sp_ in specs if not isinstance(sp_, Pade)), default=0)
+        opts = bounds_options(gap, trial_order, top)
+    norm = _cheap_norm_bound(model) if reference == "bounds" else None
+    _check_coupling_range(model, float(np.max(np.abs(lam))), "couplings reach", norm=norm)
     if coupling is not None:
         coupling = val.as_coupling(coupling)
-        _check_coupling_range(model, coupling)
+        _check_coupling_range(model, coupling, norm=norm)
     settings = CheckSettings(
         treatment=treatment, backend=backend, threshold=threshold, method=method,
         coupling=float(np.max(np.abs(lam))) if coupling is None else coupling,
     )
-    return _compare(model, levels, targets, specs, lam, settings)
+    return _compare(model, levels, targets, specs, lam, settings, reference=reference, opts=opts)
 
 
-def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam: np.ndarray, s: CheckSettings) -> ComparisonResult:
+@dataclass(frozen=True)
+class _Brackets:
+    """Certified brackets of every target (value, errors), shapes as in :class:`ComparisonResult`."""
+
+    exact_lower: np.ndarray
+    exact_upper: np.ndarray
+    error_lower: np.ndarray
+    error_upper: np.ndarray
+    rel_error_lower: np.ndarray
+    rel_error_upper: np.ndarray
+    rigorous: np.ndarray
+    gap_kind: np.ndarray
+    notes: tuple
+
+
+def _target_brackets(
+    model: Model, targets: list[_Target], lam: np.ndarray, pert_value: np.ndarray, opts: Any, *, strict: bool,
+) -> _Brackets:
+    """Brackets of each target's exact value and of its errors (interval arithmetic over its levels).
+
+    ``strict``: a level that cannot be bracketed raises; otherwise its targets
+    get NaN brackets and a note.
+    """
+    n_t, n_o, n_c = pert_value.shape
+    lo = np.full((n_t, n_c), np.nan)
+    hi = np.full((n_t, n_c), np.nan)
+    rig = np.zeros((n_t, n_c), dtype=bool)
+    kind = np.full((n_t, n_c), "", dtype=object)
+    notes: list[str] = []
+    per_level: dict[int, Any] = {}
+    for n in _needed_levels(targets):
+        try:
+            got, level_notes, _ = level_brackets(model, [n], lam, opts)
+        except DegenerateLevelError as exc:
+            if strict:
+                raise
+            notes.append(f"No certified bracket for level {model.label(n)}: {exc}")
+            continue
+        per_level.update(got)
+        notes.extend(level_notes)
+    for ti, t in enumerate(targets):
+        if not all(n in per_level for n in t.weights):
+            continue
+        parts = [(w, per_level[n]) for n, w in t.weights.items()]
+        lo[ti] = sum(np.where(w >= 0, w * b.lower, w * b.upper) for w, b in parts)
+        hi[ti] = sum(np.where(w >= 0, w * b.upper, w * b.lower) for w, b in parts)
+        rig[ti] = np.all([b.rigorous for _, b in parts], axis=0)
+        kind[ti] = ["+".join(dict.fromkeys(str(b.gap_kind[i]) for _, b in parts)) for i in range(n_c)]
+    offset = np.array([_unperturbed(model, t) if t.relative_to == "shift" else 0.0 for t in targets])
+    el, eh, rl, rh = error_brackets(
+        lo[:, None, :], hi[:, None, :], pert_value, (lo - offset[:, None])[:, None, :], (hi - offset[:, None])[:, None, :],
+    )
+    nan_pert = np.isnan(pert_value) | np.isnan(lo)[:, None, :]
+    el, eh, rl, rh = (np.where(nan_pert, np.nan, a) for a in (el, eh, rl, rh))
+    return _Brackets(lo, hi, el, eh, rl, rh, rig, kind.astype(str), tuple(notes))
+
+
+def _compare(
+    model: Model, keys: Any, targets: list[_Target], specs: tuple, lam: np.ndarray, s: CheckSettings, *,
+    reference: str = "exact", opts: Any = None,
+) -> ComparisonResult:
     max_order = max(required_order(sp_) for sp_ in specs)
     needed = _needed_levels(targets)
     exps = expansion_map(model, needed, max_order, settings=s)
     need_states = any(t.is_level for t in targets) and any(not isinstance(sp_, Pade) for sp_ in specs)
-
-    solver = ExactSolver(model, backend=s.backend, n_levels_hint=len(exps))
-    with _solver_guard(f"on the couplings compared (|λ| up to {float(np.max(np.abs(lam))):g})"):
-        paired = pairing.sweep(solver, exps, needed, lam, keep_states=need_states)
-    row = {n: paired.row(n) for n in needed}
-    ex_shift = _combine(targets, {n: paired.shifts[row[n]] for n in needed})  # (T, C)
-    ex_energy = _combine(targets, {n: paired.energies[row[n]] for n in needed})
-    amb = np.stack([np.any([paired.ambiguous[row[n]] for n in t.weights], axis=0) for t in targets])
     unperturbed = np.array([_unperturbed(model, t) for t in targets])
-
     notes = [TRUNCATION_NOTE]
-    notes.extend(paired.notes)
+
+    if reference == "bounds":
+        need_states = False
+        nan_tc = np.full((len(targets), lam.size), np.nan)
+        ex_shift, ex_energy = nan_tc, nan_tc.copy()
+        amb = np.zeros((len(targets), lam.size), dtype=bool)
+        avoided, backend_used, solves = (), "none (certified bounds)", 0
+        notes = [
+            "No exact solve: the exact values are bracketed by certified bounds (Kato–Temple brackets from "
+            "perturbative trial states); exact, abs_error and rel_error are NaN, see exact_lower ... rel_error_upper."
+        ]
+    else:
+        solver = ExactSolver(model, backend=s.backend, n_levels_hint=len(exps))
+        with _solver_guard(f"on the couplings compared (|λ| up to {float(np.max(np.abs(lam))):g})"):
+            paired = pairing.sweep(solver, exps, needed, lam, keep_states=need_states)
+        row = {n: paired.row(n) for n in needed}
+        ex_shift = _combine(targets, {n: paired.shifts[row[n]] for n in needed})  # (T, C)
+        ex_energy = _combine(targets, {n: paired.energies[row[n]] for n in needed})
+        amb = np.stack([np.any([paired.ambiguous[row[n]] for n in t.weights], axis=0) for t in targets])
+        avoided, backend_used, solves = tuple(paired.avoided_crossings), paired.backend, paired.solves
+        notes.extend(paired.notes)
     pert_shift = np.full((len(targets), len(specs), lam.size), np.nan)
     infid = np.full_like(pert_shift, np.nan)
     for oi, spec in enumerate(specs):
@@ -521,7 +680,8 @@ def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam:
     with np.errstate(invalid="ignore"):
         perturbative = unperturbed[:, None, None] + pert_shift
     ref = np.stack([np.abs(ex_shift[i]) if t.relative_to == "shift" else np.abs(ex_energy[i]) for i, t in enumerate(targets)])
-    scale = float(max(np.ptp(model.e0), model.norm_v * float(np.max(np.abs(lam))), np.finfo(float).tiny))
+    norm_v = _cheap_norm_bound(model) if reference == "bounds" else model.norm_v
+    scale = float(max(np.ptp(model.e0), norm_v * float(np.max(np.abs(lam))), np.finfo(float).tiny))
     tiny = 1e-12 * scale
     with np.errstate(divide="ignore", invalid="ignore"):
         rel = np.where(ref[:, None, :] > tiny, abs_err / ref[:, None, :], np.nan)
@@ -533,6 +693,10 @@ def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam:
     ex_pres = np.stack([ex_shift[i] if p == "shift" else ex_energy[i] for i, p in enumerate(presents)])
     pert_pres = np.stack([pert_shift[i] if p == "shift" else perturbative[i] for i, p in enumerate(presents)])
     in_sector = tuple(_exact_in_sector(exps, t) for t in targets)
+    br = None
+    if reference != "exact":
+        br = _target_brackets(model, targets, lam, perturbative, opts, strict=reference == "bounds")
+        notes.extend(br.notes)
     notes.extend(_treatment_notes(model, exps, needed, targets, s))
     suggestions = tuple(_suggestions(model, targets, exps, s))
     for sg in suggestions:
@@ -551,9 +715,9 @@ def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam:
         rel_error=_ro(rel),
         infidelity=_ro(infid),
         treatments=tuple(_combined_treatment(exps, t) for t in targets),
-        avoided_crossings=tuple(paired.avoided_crossings),
-        backend=paired.backend,
-        exact_solves=paired.solves,
+        avoided_crossings=avoided,
+        backend=backend_used,
+        exact_solves=solves,
         notes=tuple(dict.fromkeys(notes)),
         reasons=tuple(_combined_reason(model, exps, t) for t in targets),
         presents=presents,
@@ -564,6 +728,15 @@ def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam:
         suggestions=suggestions,
         choices=tuple(e.choice for e in exps.values()),
         coupling=float(s.coupling) if s.coupling is not None else math.nan,
+        reference=reference,
+        exact_lower=None if br is None else _ro(br.exact_lower),
+        exact_upper=None if br is None else _ro(br.exact_upper),
+        error_lower=None if br is None else _ro(br.error_lower),
+        error_upper=None if br is None else _ro(br.error_upper),
+        rel_error_lower=None if br is None else _ro(br.rel_error_lower),
+        rel_error_upper=None if br is None else _ro(br.rel_error_upper),
+        bounds_rigorous=None if br is None else _ro(br.rigorous),
+        bounds_gap_kind=None if br is None else _ro(br.gap_kind),
     )
 
 
