@@ -555,7 +555,7 @@ def compare(
             )
     else:
         top = max((sp_ for sp_ in specs if not isinstance(sp_, Pade)), default=0)
-        opts = bounds_options(gap, trial_order, top)
+        opts = bounds_options(gap, trial_order, top if trial_order is None else 0)  # brackets need no K > k
     norm = _cheap_norm_bound(model) if reference == "bounds" else None
     _check_coupling_range(model, float(np.max(np.abs(lam))), "couplings reach", norm=norm)
     if coupling is not None:

@@ -9,6 +9,8 @@ is built from the Okabe–Ito colour-universal-design set (see :mod:`._style`).
 - :func:`plot_levels`: exact and perturbative levels/quantities against λ.
 - :func:`plot_errors`: error of each order against λ (log), tolerance,
   validity boundaries with the region beyond shaded.
+- :func:`plot_error_bands`: certified bracket of each order's error against
+  λ (no exact solve), certified boundaries.
 - :func:`plot_divergence`: complex λ plane: exceptional points, convergence
   discs, Kato bound, real-axis regimes.
 - :func:`plot_pairs` (+ :func:`mixing_map`): mixing ratios among levels at one
@@ -19,6 +21,7 @@ is built from the Okabe–Ito colour-universal-design set (see :mod:`._style`).
 """
 
 from ._style import OKABE_ITO, ORDER_COLORS, SCREEN_SIZE, SLIDE_SIZE, style
+from .bands import BandArtists, plot_error_bands
 from .divergence import DivergenceArtists, plot_divergence
 from .errors import ErrorArtists, plot_errors
 from .export import FORMATS, SavedFigure, save
@@ -32,6 +35,7 @@ __all__ = [
     "SCREEN_SIZE",
     "SLIDE_SIZE",
     "FORMATS",
+    "BandArtists",
     "DivergenceArtists",
     "ErrorArtists",
     "FormulaArtists",
@@ -41,6 +45,7 @@ __all__ = [
     "SavedFigure",
     "mixing_map",
     "plot_divergence",
+    "plot_error_bands",
     "plot_errors",
     "plot_formula",
     "plot_levels",
