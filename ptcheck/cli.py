@@ -128,8 +128,8 @@ states: no exact solve, for bases too large to diagonalise). A certified verdict
 --reference auto (default) uses bounds above --bounds-above states (default 20000)
 when every level is non-degenerate in its sector and no Padé order is judged.
 
-exit status: 0 valid, 1 not valid (or undecided), 2 bad input, 3 internal error,
-130 interrupted, 143 terminated.
+exit status: 0 valid, 1 not valid, 2 bad input, 3 internal error,
+130 interrupted, 143 terminated (1 also when certified bounds cannot decide).
 """
 
 
