@@ -697,6 +697,7 @@ def choose_reference(
     """
     reference = val.check_choice(reference, "reference", REPORT_REFERENCES)
     bounds_above = val.check_int(bounds_above, "bounds_above", minimum=0)
+    orders = parse_orders(orders)
     if reference == "exact":
         return "exact", "exact solves, as asked"
     if reference == "bounds":
