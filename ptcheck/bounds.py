@@ -31,6 +31,15 @@ a positive number δ
     The user's statement that the labelled level stays at least δ (energy
     units) from every other level on the path from λ = 0.  Conditional on it.
 
+Each level is bracketed inside its own symmetry sector (the sector's sub-model):
+equal energies of other sectors are neither neighbours nor crossings.  A level
+that is exactly degenerate with others of its sector has no series trial state;
+:func:`error_bounds` (and ``compare(..., reference="bounds")``) bracket it through
+its group's degenerate-perturbation-theory states (:mod:`ptcheck._cluster`:
+Rayleigh–Ritz in their span, a cluster bound derived from Weyl's inequality and
+Kato–Temple), conditional on pairing labels with ranks; certified boundaries need
+a series and refuse it.
+
 Identification: an interval is about the level that carries the label (the
 branch continuous from the unperturbed level) when that level is separated from
 its neighbours on the whole path from 0 to λ; the separation is checked at
@@ -65,12 +74,14 @@ import numpy as np
 from scipy.optimize import brentq
 
 from . import _validation as val
+from ._cluster import group_brackets
 from ._gaps import GAP_KINDS, LevelEngine, Settings
 from ._trial import operator_scales
 from .approximants import OrderSpec, Pade, order_name, parse_order, required_order
 from .errors import DegenerateLevelError
 from .model import Model
 from .quantities import Quantity
+from .treatment import CheckSettings, expansion_map
 
 __all__ = ["CertifiedBoundary", "ErrorBounds", "GAP_KINDS", "certified_boundary", "error_bounds"]
 
@@ -414,7 +425,8 @@ def _engines(model: Model, weights: dict[int, float], settings: Settings, caller
         except DegenerateLevelError as exc:
             raise DegenerateLevelError(
                 f"{caller} needs a level that is not degenerate with another level of its sector (its trial state "
-                f"is a Rayleigh–Schrödinger series): {exc}",
+                f"is a Rayleigh–Schrödinger series; error_bounds and compare(..., reference='bounds') bracket a "
+                f"degenerate level at given couplings through its group): {exc}",
                 exc.pair,
             ) from None
     return out
@@ -532,7 +544,10 @@ def error_bounds(
     model : Model
     level : level key or Quantity
         Energy rank, label, or a :class:`~ptcheck.Quantity` (its bracket is the
-        interval sum of its levels' brackets).  Levels must be non-degenerate.
+        interval sum of its levels' brackets).  A level that is exactly
+        degenerate with others of its sector is bracketed through its group
+        (module notes of :mod:`ptcheck._cluster`): its order-k energy is that of
+        degenerate perturbation theory, and its brackets are never rigorous.
     order : int, Pade or str
         The order spec whose error is bracketed.
     couplings : float or (C,) array_like
@@ -552,11 +567,6 @@ def error_bounds(
     Returns
     -------
     ErrorBounds
-
-    Raises
-    ------
-    DegenerateLevelError
-        A level is exactly degenerate in H0 (no Rayleigh–Schrödinger trial).
 
     Notes
     -----
@@ -583,7 +593,8 @@ def error_bounds(
     lam = val.as_couplings(couplings)
     name, weights, relative_to = _resolve(model, level)
     settings = _settings(gap, trial_order, krylov_steps, lanczos_steps, seed, spec)
-    engines = _engines(model, weights, settings, "error_bounds")
+    groups = _degenerate_members(model, list(weights), lam, settings)
+    engines = _engines(model, {n: w for n, w in weights.items() if n not in groups}, settings, "error_bounds")
     parts = []
     for n, eng in engines.items():
         pw = _pointwise(eng, lam, krylov=True)
@@ -604,7 +615,27 @@ def error_bounds(
             mat_vecs=eng.mat_vecs, notes=tuple(_level_notes(eng, pw, lam)),
         )
 
-    level_parts = [level_result(*p) for p in parts]
+    def group_result(n: int) -> ErrorBounds:
+        gb, i, exp = groups[n]
+        e0 = float(model.e0[n])
+        lo, hi = gb.lower[i], gb.upper[i]
+        pert = np.asarray(exp.energy(lam, spec), dtype=float)
+        el, eh, rl, rh = error_brackets(lo, hi, pert, lo - e0, hi - e0)
+        rho = gb.rayleigh_quotient[i]
+        gapv = np.minimum(gb.neighbour_above[i] - rho, rho - gb.neighbour_below[i])
+        return ErrorBounds(
+            model_name=model.name, target=model.label(n), levels=(n,), weights=(1.0,), order=spec,
+            trial_order=settings.trial_order, couplings=_ro(lam), perturbative=_ro(pert), unperturbed=e0,
+            rayleigh_quotient=_ro(rho), residual=_ro(gb.residual[i]), gap=_ro(gapv), gap_kind=_ro(gb.gap_kind),
+            neighbour_below=_ro(gb.neighbour_below[i]), neighbour_above=_ro(gb.neighbour_above[i]),
+            energy_lower=_ro(lo), energy_upper=_ro(hi), error_lower=_ro(el), error_upper=_ro(eh),
+            rel_error_lower=_ro(rl), rel_error_upper=_ro(rh), rigorous=_ro(np.zeros(lam.shape, dtype=bool)),
+            identified=_ro(gb.identified[i]), mat_vecs=gb.mat_vecs, notes=tuple(_group_notes(model, n, gb, i, lam, settings)),
+        )
+
+    by_level = {p[0]: level_result(*p) for p in parts}
+    by_level.update({n: group_result(n) for n in weights if n in groups})
+    level_parts = [by_level[n] for n in weights]
     if not isinstance(level, Quantity):
         only = level_parts[0]
         return replace(only, notes=(BOUNDS_NOTE,) + only.notes)
@@ -632,16 +663,69 @@ def level_brackets(
 ) -> tuple[dict[int, LevelBracket], list[str], int]:
     """Brackets of exact levels (work indices) at couplings, no exact solve.
 
-    Returns the brackets, notes and the mat-vecs spent.  A level that cannot be
-    bracketed (degenerate in its sector) raises :class:`DegenerateLevelError`.
+    Returns the brackets, notes and the mat-vecs spent.  A level in an exactly
+    degenerate group is bracketed through its group (never marked rigorous).
     """
-    engines = _engines(model, {n: 1.0 for n in levels}, settings, "certified bounds")
+    groups = _degenerate_members(model, levels, couplings, settings)
+    engines = _engines(model, {n: 1.0 for n in levels if n not in groups}, settings, "certified bounds")
     out, notes = {}, [BOUNDS_NOTE]
     for n, eng in engines.items():
         pw = _pointwise(eng, couplings, krylov=True)
         out[n] = LevelBracket(pw.lo, pw.hi, pw.rigorous & pw.identified, pw.identified, pw.kind.astype(str))
         notes.extend(_level_notes(eng, pw, couplings))
-    return out, list(dict.fromkeys(notes)), int(sum(e.mat_vecs for e in engines.values()))
+    spent = {id(gb): gb.mat_vecs for gb, _, _ in groups.values()}
+    for n in levels:
+        if n in groups:
+            gb, i, _ = groups[n]
+            out[n] = LevelBracket(gb.lower[i], gb.upper[i], np.zeros(couplings.shape, dtype=bool), gb.identified[i],
+                                  gb.gap_kind)
+            notes.extend(_group_notes(model, n, gb, i, couplings, settings))
+    return out, list(dict.fromkeys(notes)), int(sum(e.mat_vecs for e in engines.values()) + sum(spent.values()))
+
+
+def _degenerate_members(model: Model, levels: list[int], lam: np.ndarray, settings: Settings) -> dict[int, tuple]:
+    """Group brackets of the levels that are exactly degenerate in their sector: {level: (brackets, index, expansion)}.
+
+    The trial states are the group's degenerate-perturbation-theory states at the trial order
+    (:mod:`ptcheck.treatment`, standard treatment); see :mod:`ptcheck._cluster`.
+    """
+    out: dict[int, tuple] = {}
+    k = settings.trial_order
+    for n in levels:
+        grp = model.degenerate_group_of(n)
+        if grp is None or n in out:
+            continue
+        exps = expansion_map(model, list(grp), k, settings=CheckSettings())
+
+        def states(c: float, exps=exps, grp=grp) -> np.ndarray:
+            return np.stack([np.asarray(exps[m].state(np.array([c]), k)).reshape(model.n) for m in grp])
+
+        energies = np.stack([np.asarray(exps[m].energy(lam, k), dtype=float).reshape(lam.shape) for m in grp])
+        gb = group_brackets(model, tuple(grp), states, energies, lam, trial_order=k, use_neighbours=settings.gap != "weyl")
+        for i, m in enumerate(grp):
+            out[m] = (gb, i, exps[m])
+    return out
+
+
+def _group_notes(model: Model, n: int, gb: Any, i: int, lam: np.ndarray, settings: Settings) -> list[str]:
+    lab = model.label(n)
+    others = ", ".join(model.label(m) for m in model.degenerate_group_of(n) if m != n)
+    notes = [
+        f"Level {lab} is exactly degenerate with {others} in its sector: its bracket comes from the group's "
+        "degenerate-perturbation-theory states (Rayleigh–Ritz in their span, cluster and Kato–Temple bounds), and "
+        "its label is paired with the exact level of the same rank among the group's branches at each coupling. "
+        "That pairing is not proven along the path from λ = 0, so these brackets are conditional, never rigorous."
+    ]
+    if settings.gap in ("estimate", "given") or settings.krylov_steps > 0:
+        notes.append(f"Level {lab}: a degenerate group uses rigorous bounds outside the group (Weyl and the neighbours' "
+                     "own brackets); the gap option and Krylov steps asked for apply to non-degenerate levels only.")
+    bad = ~gb.identified[i] & (lam != 0)
+    if np.any(bad):
+        notes.append(
+            f"Level {lab}: at {int(np.sum(bad))} coupling(s) the group's brackets overlap (or reach past its "
+            "neighbours), so which exact level carries the label is not resolved there."
+        )
+    return notes
 
 
 def _level_notes(eng: LevelEngine, pw: _Pointwise, lam: np.ndarray) -> list[str]:

@@ -36,7 +36,7 @@ from . import pairing
 from .approximants import OrderSpec, Pade, order_name, parse_order, parse_orders, required_order
 from .bounds import bounds_options, certify, error_brackets, level_brackets
 from .degeneracy import DEFAULT_MIXING_THRESHOLD
-from .errors import AccuracyWarning, DegenerateLevelError
+from .errors import AccuracyWarning
 from .exact import ExactSolver
 from .model import Model
 from .quantities import Quantity
@@ -519,9 +519,11 @@ def compare(
         Exact solves; certified brackets of the exact values instead (no exact
         solve, for bases too large to diagonalise: :mod:`ptcheck.bounds`); or
         both side by side.  The brackets are the fields ``exact_lower`` ...
-        ``rel_error_upper``.  With ``"bounds"`` every level used must not be
-        degenerate with another level of its sector (else ``ValueError``); with
-        ``"both"`` such targets get NaN brackets and a note.
+        ``rel_error_upper``.  A level in an exactly degenerate group is
+        bracketed through its group (conditional, never rigorous: see
+        :func:`ptcheck.error_bounds`).  Where a level cannot be bracketed,
+        ``"bounds"`` raises ``ValueError``; ``"both"`` leaves NaN brackets and a
+        note.
     gap : {"auto", "weyl", "neighbours", "estimate"} or float, default "auto"
         Gap source of the brackets (:mod:`ptcheck.bounds`).
     trial_order : int, optional
@@ -601,7 +603,7 @@ def _target_brackets(
     for n in _needed_levels(targets):
         try:
             got, level_notes, _ = level_brackets(model, [n], lam, opts)
-        except DegenerateLevelError as exc:
+        except (ValueError, FloatingPointError) as exc:  # e.g. a group whose expansion overflows
             if strict:
                 raise
             notes.append(f"No certified bracket for level {model.label(n)}: {exc}")
@@ -1272,7 +1274,8 @@ def _certified_boundary(
         n = other[0]
         raise ValueError(
             f"reference='bounds' brackets each level through its own Rayleigh–Schrödinger series; level "
-            f"{model.label(n)} gets the {exps[n].treatment} treatment ({exps[n].reason}). Use reference='exact' for it"
+            f"{model.label(n)} gets the {exps[n].treatment} treatment ({exps[n].reason}). Use reference='exact' for its "
+            "boundary (compare(..., reference='bounds') still brackets it at given couplings)"
         )
     if val.max_abs(model.v) == 0:
         return ValidityBoundary(

@@ -406,8 +406,8 @@ def test_bad_input_messages():
     with pytest.raises(ValueError, match="direction must be"):
         certified_boundary(m, 0, 2, tol=1e-3, direction=2)
     deg = Model(np.diag([0.0, 0.0, 1.0]), np.ones((3, 3)))
-    with pytest.raises(DegenerateLevelError, match="error_bounds needs a level that is not degenerate with another level of its sector"):
-        error_bounds(deg, 0, 2, [0.1])
+    with pytest.raises(DegenerateLevelError, match="needs a level that is not degenerate with another level of its sector"):
+        certified_boundary(deg, 0, 2, tol=1e-3)
     with warnings.catch_warnings():
         warnings.simplefilter("error")
         error_bounds(m, 1, 2, np.linspace(-1, 1, 5))  # no stray warnings

@@ -169,14 +169,12 @@ def test_compare_brackets_contain_the_exact_values_and_errors():
         compare(m, [0], [2], lam).error_bracket(0, 2)
 
 
-def test_compare_with_a_degenerate_level():
+def test_compare_marks_degenerate_brackets_conditional():
     deg = Model(np.diag([0.0, 0.0, 1.0, 2.0]), [[0, 0.3, 1, 0.2], [0.3, 0, 1, 0.1], [1, 1, 0, 0.5], [0.2, 0.1, 0.5, 0]])
-    lam = [0.05, 0.1]
-    with pytest.raises(DegenerateLevelError):
-        compare(deg, [0, 3], [2], lam, reference="bounds")
-    r = compare(deg, [0, 3], [2], lam, reference="both")
-    assert np.all(np.isnan(r.error_upper[0])) and np.all(np.isfinite(r.error_upper[1]))
-    assert any("No certified bracket for level" in n for n in r.notes)
+    r = compare(deg, [0, 3], [2], [0.05, 0.1], reference="bounds")
+    assert np.all(np.isfinite(r.error_upper)) and r.exact_solves == 0
+    assert r.bounds_rigorous.tolist() == [[False, False], [True, True]]
+    assert any("exactly degenerate" in n for n in r.notes)
 
 
 # ---------------------------------------------------------------------- report
@@ -267,3 +265,55 @@ def test_cli_reference_flags_bad_input(tmp_path, capsys):
     assert main([*base, "--bounds-above", "-3"]) == 2
     assert "--bounds-above must be" in capsys.readouterr().err
     assert main([*base, "--reference", "oracle"]) == 2
+
+
+# ---------------------------------------------------------------------- exactly degenerate groups
+def degenerate_model(seed: int) -> Model:
+    """Invented 7-level model, one sector, with a threefold degenerate H0 level (ranks 2, 3, 4)."""
+    rng = np.random.default_rng(seed)
+    e0 = np.array([-2.0, -1.1, 0.0, 0.0, 0.0, 1.3, 2.4]) + 0.1 * seed
+    a = rng.normal(size=(7, 7)) * 0.3
+    return Model(np.diag(e0), (a + a.T) / 2)
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_degenerate_group_brackets_contain_the_exact_levels(seed):
+    m = degenerate_model(seed)
+    grp = m.degenerate_group_of(2)
+    assert grp == (2, 3, 4) and len(m.sectors) == 1
+    lam = np.array([-0.12, -0.03, 0.01, 0.05, 0.12])
+    r = compare(m, list(grp), [1, 2], lam, reference="both")
+    assert not r.bounds_rigorous.any()  # pairing labels with ranks is not proven: never rigorous
+    # rank by rank (rigorous part): the sorted brackets hold the sorted exact levels of the group's ranks
+    # (numpy eigvalsh of the whole matrix: one sector)
+    exact = np.array([np.linalg.eigvalsh(m.hamiltonian(x))[2:5] for x in lam]).T
+    lo, hi = np.sort(r.exact_lower, axis=0), np.sort(r.exact_upper, axis=0)
+    assert np.all(lo <= exact + 1e-12) and np.all(exact <= hi + 1e-12)
+    # label by label: where compare's exact side pairs a level, its bracket holds that value
+    paired = np.isfinite(r.exact)
+    assert np.all(r.exact_lower[paired] <= r.exact[paired] + 1e-12)
+    assert np.all(r.exact[paired] <= r.exact_upper[paired] + 1e-12)
+    finite = np.isfinite(r.abs_error)
+    assert np.all(r.error_lower[finite] <= r.abs_error[finite] + 1e-12)
+    assert np.all(r.abs_error[finite] <= r.error_upper[finite] + 1e-12)
+
+
+def test_degenerate_level_error_bounds_and_refused_boundary():
+    # Ising chain, declared parity: the one-domain-wall manifold is degenerate inside each sector (Pfeuty,
+    # Ann. Phys. 57, 79 (1970) for the model); referee: dense eigvalsh of the sector.
+    from ptcheck import error_bounds
+
+    m = spin_chain(n_spins=6)
+    grp = m.degenerate_group_of(2)
+    assert grp is not None and len(grp) > 2
+    lam = np.array([0.03, 0.1])
+    b = error_bounds(m, 2, 2, lam)
+    assert not b.rigorous.any() and any("exactly degenerate" in n for n in b.notes)
+    sector = np.flatnonzero(m.level_sectors == m.level_sectors[2])
+    first = int(np.searchsorted(sector, grp[0]))
+    v = m.v.toarray()
+    for i, x in enumerate(lam):
+        w = np.linalg.eigvalsh(np.diag(m.e0[sector]) + x * v[np.ix_(sector, sector)])
+        assert b.energy_lower[i] <= w[first] + 1e-12 and w[first] <= b.energy_upper[i] + 1e-12  # lowest branch
+    with pytest.raises(ValueError, match="degenerate treatment"):
+        validity_boundary(m, 2, 2, rtol=1e-2, reference="bounds")
