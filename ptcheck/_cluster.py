@@ -32,7 +32,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._gaps import _temple
-from ._trial import EPS, OperatorScales, SeriesTrial
+from ._trial import EPS, OperatorScales, SeriesTrial, operator_scales
 from .errors import DegenerateLevelError
 from .model import Model
 
@@ -126,8 +126,6 @@ def group_brackets(model: Model, levels: tuple[int, ...], states, branch_energie
         Improve the bounds outside the group with the neighbours' own brackets.
     """
     sub, space = _sector(model, levels)
-    from ._trial import operator_scales
-
     scales = operator_scales(sub)
     local = np.searchsorted(space, np.asarray(levels))
     first, last = int(local[0]), int(local[-1])

@@ -701,7 +701,7 @@ def choose_reference(
     if reference == "exact":
         return "exact", "exact solves, as asked"
     if reference == "bounds":
-        return "bounds", "certified bounds (no exact solve), as asked"
+        return "bounds", "certified bounds, as asked"
     if model.n <= bounds_above:
         return "exact", f"exact solves: the basis (N = {model.n}) is not above {bounds_above} states"
     obstacles = []
@@ -717,7 +717,7 @@ def choose_reference(
             f"exact solves although the basis (N = {model.n}) is above {bounds_above} states: certified bounds are "
             f"not available here ({'; '.join(obstacles)})"
         )
-    return "bounds", f"certified bounds (no exact solve): the basis (N = {model.n}) is above {bounds_above} states"
+    return "bounds", f"certified bounds: the basis (N = {model.n}) is above {bounds_above} states"
 
 
 def _certified_verdict(comp: ComparisonResult, ti: int, oi: int, ci: int, name: str, spec: Any, lam0: float, thr: float,
@@ -783,7 +783,7 @@ def _reference_cautions(ref: str, reason: str, verdicts: Sequence[Verdict], boun
     if ref != "bounds":
         return []
     out = [
-        f"No exact solve: {reason}. Verdicts are certified by Kato–Temple brackets of the exact levels; each says "
+        f"No exact solve — {reason}. Verdicts are certified by Kato–Temple brackets of the exact levels; each says "
         "whether it is rigorous or conditional on an estimated gap."
     ]
     cond = [v for v in verdicts if v.status in ("valid", "not valid") and not v.rigorous]

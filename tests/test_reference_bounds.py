@@ -14,7 +14,6 @@ from scipy.sparse.linalg import eigsh
 
 from ptcheck import Model, compare, transition_frequency, validity_boundary
 from ptcheck.cli import main
-from ptcheck.errors import DegenerateLevelError
 from ptcheck.models import spin_chain
 from ptcheck.report import boundaries_csv, choose_reference, run_check, to_markdown
 
