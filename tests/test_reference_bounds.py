@@ -316,3 +316,29 @@ def test_degenerate_level_error_bounds_and_refused_boundary():
         assert b.energy_lower[i] <= w[first] + 1e-12 and w[first] <= b.energy_upper[i] + 1e-12  # lowest branch
     with pytest.raises(ValueError, match="degenerate treatment"):
         validity_boundary(m, 2, 2, rtol=1e-2, reference="bounds")
+
+
+# ---------------------------------------------------------------------- band figure
+def test_band_figure_draws_the_brackets_and_certified_couplings():
+    import matplotlib
+
+    matplotlib.use("Agg")
+    from matplotlib.figure import Figure
+
+    from ptcheck.plots import plot_error_bands
+
+    m = two_sector_model(4)
+    lam = np.linspace(0.0, 1.5, 31)
+    r = compare(m, [0], [2], lam, reference="bounds", gap="weyl")
+    b = validity_boundary(m, 0, 2, tol=1e-3, reference="bounds", gap="weyl")
+    ax = Figure().add_subplot()
+    art = plot_error_bands(r, [b], error="absolute", ax=ax)
+    lo, hi = art.edges[0]
+    np.testing.assert_allclose(hi.get_ydata(), np.where(r.error_upper[0, 0] > 0, r.error_upper[0, 0], np.nan))
+    assert art.certified_lines[0].get_xdata()[0] == b.coupling
+    if math.isfinite(b.certified_not):
+        assert art.fail_lines[0].get_xdata()[0] == b.certified_not
+    open_ = ~np.isfinite(r.error_upper[0, 0])
+    assert bool(art.open_spans) == bool(open_.any())
+    with pytest.raises(ValueError, match="needs a comparison with bounds"):
+        plot_error_bands(compare(m, [0], [2], lam), ax=Figure().add_subplot())

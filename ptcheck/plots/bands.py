@@ -38,6 +38,8 @@ class BandArtists:
     exact_lines : tuple of Line2D
         The exact error of each order where the result has it (``reference="both"``); empty otherwise.
     tolerance_line : Line2D or None
+    open_spans : tuple of Polygon
+        Hatched spans of couplings where no order drawn has a finite bracket (the gap could not be shown).
     certified_lines : tuple of Line2D
         Vertical line at each certified coupling (solid, the order's colour).
     fail_lines : tuple of Line2D
@@ -57,6 +59,7 @@ class BandArtists:
     edges: tuple
     exact_lines: tuple
     tolerance_line: Any
+    open_spans: tuple
     certified_lines: tuple
     fail_lines: tuple
     boundaries: tuple
@@ -139,6 +142,15 @@ def plot_error_bands(
                 exact_lines.append(ln)
         if x.size > 1 and x[-1] > x[0]:
             ax.set_xlim(x[0], x[-1])
+        gaps = []  # couplings where no order drawn has a finite upper bound: hatched, said in the legend
+        open_ = ~np.any(np.isfinite(upper[ti][o_idx]), axis=0)[srt] & (x != 0)
+        edges_x = np.flatnonzero(np.diff(np.concatenate([[0], open_.astype(int), [0]])))
+        for k in range(0, edges_x.size, 2):
+            i0, i1 = edges_x[k], edges_x[k + 1] - 1
+            left = 0.5 * (x[i0 - 1] + x[i0]) if i0 > 0 else x[i0]
+            right = 0.5 * (x[i1] + x[i1 + 1]) if i1 + 1 < x.size else x[i1]
+            gaps.append(ax.axvspan(left, right, facecolor="none", edgecolor=MARKER_COLOR, hatch="//", linewidth=0,
+                                   label="no certified bracket (no gap shown)" if not gaps else None))
         tol_line = None
         if tol is not None:
             tol_line = ax.axhline(float(tol), color=EXACT_COLOR, linestyle=(0, (1, 2)), linewidth=1.8 * lw,
@@ -167,6 +179,10 @@ def plot_error_bands(
         legend = ax.legend(loc="best", fontsize=FONT_SIZES["legend"] * scale, frameon=True, framealpha=0.85)
         if caption is None:
             extra = ["certified brackets, no exact solve" if not with_exact else "certified brackets and exact error"]
+            cond = ~np.asarray(result.bounds_rigorous[ti], dtype=bool)[srt] & (x != 0) & ~open_
+            if cond.any():
+                extra.append(f"brackets conditional (estimated gap or unresolved pairing) at {int(cond.sum())} of "
+                             f"{x.size} couplings, from |λ| = {np.min(np.abs(x[cond])):.3g}")
             for b in used:
                 if math.isfinite(b.coupling) and b.coupling != 0:
                     kind = "rigorous" if b.rigorous else "conditional"
@@ -181,6 +197,7 @@ def plot_error_bands(
     return BandArtists(
         figure=fig, ax=ax, target=result.targets[ti], orders=tuple(result.order_names[i] for i in o_idx),
         bands=tuple(bands), edges=tuple(edges), exact_lines=tuple(exact_lines), tolerance_line=tol_line,
+        open_spans=tuple(gaps),
         certified_lines=tuple(cert_lines), fail_lines=tuple(fail_lines), boundaries=tuple(used), coupling_line=line,
         caption=cap, legend=legend,
     )
