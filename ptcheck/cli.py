@@ -12,7 +12,7 @@ Exit status
     quantity at the coupling asked for.  ``demo``, ``models``, ``--help``: done.
 1
     ``check``: at least one of them does not (or its relative error is
-    undefined at that coupling).
+    undefined at that coupling, or certified bounds can decide neither way).
 2
     Bad input: unknown flags or values, a missing / malformed / damaged model
     file, an unknown model or parameter, a size or order beyond the limits, a
@@ -78,6 +78,7 @@ exit status:
 examples:
   ptcheck demo --out q17-report
   ptcheck check qubit.toml --coupling 1.0 --orders 2 4 --rtol 0.01
+  ptcheck check chain.toml --coupling 0.3 --reference bounds
   ptcheck models
 """
 
@@ -123,8 +124,16 @@ with --formula also formula.tex, formula.py and formula*.png.
 The folder is replaced as a whole (never a mix of old and new files); a
 different existing report is not replaced without --force.
 
+reference: --reference exact judges against exact solves; --reference bounds against
+certified brackets of the exact levels (Kato–Temple bounds from perturbative trial
+states: no exact solve, for bases too large to diagonalise). A certified verdict is
+'valid' (guaranteed below the certified coupling), 'not valid' (failure certified) or
+'undecided'; each says whether it is rigorous or conditional on an estimated gap.
+--reference auto (default) uses bounds above --bounds-above states (default 20000)
+when every level is non-degenerate in its sector and no Padé order is judged.
+
 exit status: 0 valid, 1 not valid, 2 bad input, 3 internal error,
-130 interrupted, 143 terminated.
+130 interrupted, 143 terminated (1 also when certified bounds cannot decide).
 """
 
 
@@ -192,6 +201,16 @@ def build_parser() -> argparse.ArgumentParser:
                    help="mixing-ratio threshold |λV|/|ΔE| for near-degenerate pairs and blocks (default 0.1)")
     c.add_argument("--convergence-order", type=int, metavar="K",
                    help="series order analysed for convergence (radius, exceptional points; default 40)")
+    c.add_argument("--reference", choices=("exact", "bounds", "auto"), default="auto",
+                   help="what the perturbative values are judged against: exact solves, or certified bounds with no "
+                        "exact solve (verdicts say 'certified', rigorous or conditional on an estimated gap, or "
+                        "'undecided'); auto (default) uses bounds above --bounds-above states when every level can "
+                        "be bracketed")
+    c.add_argument("--bounds-above", type=int, metavar="N", default=None,
+                   help="basis size above which --reference auto uses certified bounds (default: 20000)")
+    c.add_argument("--gap", metavar="KIND",
+                   help="gap of the certified bounds: auto (default), weyl, neighbours (rigorous), estimate (a Lanczos "
+                        "estimate: verdicts conditional on it), or a number (a gap you state, energy units)")
     c.add_argument("--out", metavar="DIR", help="output directory (default: <MODEL name>-report)")
     c.add_argument("--format", nargs="+", choices=("json", "md", "csv"), metavar="FMT",
                    help="report formats among json, md, csv (default: all three)")
@@ -335,13 +354,14 @@ def _cmd_check(a: argparse.Namespace, run: _Run) -> int:
         tol, rtol = mf.tol, mf.rtol
     treatment = a.treatment or mf.treatment or DEFAULT_TREATMENT
     backend = a.backend or mf.backend or "auto"
+    bounds_kw = _bounds_options(a)
     source = {"model_file": str(a.model), "kind": mf.kind}
     extra = _presentation_options(a)
     with _progress_bar("checking") as bar:
         report = run_check(
             model, targets or None, orders, coupling=coupling, tol=tol, rtol=rtol, treatment=treatment,
             backend=backend, builder=mf.builder, params=dict(mf.params) if mf.builder else None, source=source,
-            title=mf.title, progress=bar, **extra,
+            title=mf.title, progress=bar, **extra, **bounds_kw,
         )
     if a.formula:
         from dataclasses import replace
@@ -353,6 +373,32 @@ def _cmd_check(a: argparse.Namespace, run: _Run) -> int:
     files = _write(report, out, formats=a.format or ("json", "md", "csv"), figures=_figures(a), force=a.force)
     _print_summary(report, files, Path(given))
     return report.exit_status
+
+
+def _bounds_options(a: argparse.Namespace) -> dict:
+    """run_check keywords of --reference, --bounds-above and --gap (checked here, before any work)."""
+    from .report import DEFAULT_BOUNDS_ABOVE
+
+    kw: dict[str, Any] = {"reference": a.reference}
+    if a.bounds_above is not None:
+        if a.bounds_above < 0:
+            raise ValueError(f"--bounds-above must be a basis size >= 0; got {a.bounds_above}")
+        kw["bounds_above"] = a.bounds_above
+    else:
+        kw["bounds_above"] = DEFAULT_BOUNDS_ABOVE
+    if a.gap is not None:
+        from ._gaps import GAP_KINDS
+
+        if a.gap in GAP_KINDS:
+            kw["gap"] = a.gap
+        else:
+            try:
+                kw["gap"] = float(a.gap)
+            except ValueError:
+                raise ValueError(f"--gap must be one of {', '.join(GAP_KINDS)} or a positive number; got {a.gap!r}") from None
+            if not kw["gap"] > 0 or kw["gap"] == float("inf"):
+                raise ValueError(f"--gap must be one of {', '.join(GAP_KINDS)} or a positive number; got {a.gap!r}")
+    return kw
 
 
 def _presentation_options(a: argparse.Namespace) -> dict:

@@ -59,6 +59,9 @@ __all__ = [
     "CheckReport",
     "Verdict",
     "VERDICT_STATUSES",
+    "REPORT_REFERENCES",
+    "DEFAULT_BOUNDS_ABOVE",
+    "choose_reference",
     "Figure",
     "FORMATS",
     "ReportBusyError",
@@ -93,6 +96,15 @@ DEFAULT_RTOL = 0.01
 #: Default orders judged when none are given.
 DEFAULT_ORDERS = (2,)
 
+#: Where a report's reference values come from: ``"exact"`` solves, certified ``"bounds"``
+#: (no exact solve, :mod:`ptcheck.bounds`), or ``"auto"``: bounds for a basis larger than
+#: ``bounds_above`` states when every target can be bracketed, exact solves otherwise.
+REPORT_REFERENCES = ("exact", "bounds", "auto")
+
+#: Default basis size above which ``reference="auto"`` uses certified bounds: beyond it each
+#: sparse exact solve costs about a second or more and a report needs dozens of them.
+DEFAULT_BOUNDS_ABOVE = 20_000
+
 
 
 def _version() -> str:
@@ -102,8 +114,9 @@ def _version() -> str:
 
 
 # ---------------------------------------------------------------------- result types
-#: Verdict statuses: what a verdict can say about one order of one target.
-VERDICT_STATUSES = ("valid", "not valid", "exact within its sector", "undefined")
+#: Verdict statuses: what a verdict can say about one order of one target ("undecided":
+#: certified bounds neither certify that the order meets the tolerance nor that it does not).
+VERDICT_STATUSES = ("valid", "not valid", "exact within its sector", "undefined", "undecided")
 
 
 @dataclass(frozen=True)
@@ -141,11 +154,26 @@ class Verdict:
         boundary), ``"not valid"``, ``"exact within its sector"`` (the treatment
         is exact diagonalisation of a whole invariant sector: no order is
         judged, never a "valid" verdict), ``"undefined"`` (the error cannot be
-        judged, e.g. a relative error whose reference vanishes).
+        judged, e.g. a relative error whose reference vanishes), ``"undecided"``
+        (certified bounds only: neither meeting the tolerance nor failing it
+        is certified at this coupling).
     treatment : str
         Treatment used (:mod:`ptcheck.treatment`).
     reason : str
         Why that treatment.
+    reference : str
+        ``"exact"`` or ``"bounds"`` (no exact solve: "valid" and "not valid"
+        are certified, see ``rigorous``).
+    error_lower, error_upper : float
+        ``reference="bounds"``: certified bracket of the error at ``coupling``
+        (as ``error``: absolute or relative); NaN otherwise.  ``error`` is NaN
+        with ``reference="bounds"``.
+    rigorous : bool
+        ``reference="bounds"``: the verdict rests on rigorous gaps only; False
+        when it is conditional on an estimated (Lanczos) gap or a given one.
+    certified_not : float
+        ``reference="bounds"``: signed coupling from which the order is
+        certified not to meet the tolerance (NaN: none certified).
     """
 
     target: str
@@ -161,9 +189,14 @@ class Verdict:
     status: str = "valid"
     treatment: str = "nondegenerate"
     reason: str = ""
+    reference: str = "exact"
+    error_lower: float = math.nan
+    error_upper: float = math.nan
+    rigorous: bool = False
+    certified_not: float = math.nan
 
     def to_dict(self) -> dict:
-        return {
+        d = {
             "target": self.target,
             "order": order_json(self.order),
             "coupling": self.coupling,
@@ -178,6 +211,15 @@ class Verdict:
             "boundary_status": self.boundary_status,
             "text": self.text,
         }
+        if self.reference == "bounds":
+            d.update({
+                "reference": self.reference,
+                "error_lower": _finite_or_str(self.error_lower),
+                "error_upper": _finite_or_str(self.error_upper),
+                "rigorous": self.rigorous,
+                "certified_not": _finite_or_str(self.certified_not),
+            })
+        return d
 
 
 @dataclass(frozen=True, repr=False, eq=False)
@@ -373,6 +415,10 @@ def run_check(
     convergence_order: int = 40,
     couplings: Any = None,
     progress: ProgressCallback | None = None,
+    reference: str = "auto",
+    bounds_above: int = DEFAULT_BOUNDS_ABOVE,
+    gap: str | float = "auto",
+    trial_order: int | None = None,
 ) -> CheckReport:
     """Run the full check of levels / quantities of a model at one coupling.
 
@@ -419,6 +465,18 @@ def run_check(
         to past the coupling and the boundaries found.
     progress : callable(done, total), optional
         Called after each step.
+    reference : {"auto", "exact", "bounds"}, default "auto"
+        Where the reference values come from (:func:`choose_reference`, the
+        one place that decides): exact solves, or certified bounds with no
+        exact solve (verdicts then say "certified", rigorous or conditional on
+        an estimated gap, and may be "undecided"); ``"auto"`` uses bounds for
+        a basis larger than ``bounds_above`` when every target can be bracketed.
+    bounds_above : int, default :data:`DEFAULT_BOUNDS_ABOVE`
+        Basis size N above which ``reference="auto"`` uses bounds.
+    gap : {"auto", "weyl", "neighbours", "estimate"} or float, default "auto"
+        Gap source of the bounds (:mod:`ptcheck.bounds`).
+    trial_order : int, optional
+        Order of the bounds' trial states (default ``max(12, k + 10)``).
 
     Returns
     -------
@@ -430,7 +488,9 @@ def run_check(
     with λ as the coupling of interest): an order is valid at λ exactly when
     |λ| lies below the first coupling where its error exceeds the tolerance.
     An error that comes back within tolerance beyond that boundary is an
-    accident, reported as NOT valid with a caution.
+    accident, reported as NOT valid with a caution.  With certified bounds the
+    boundary is the certified coupling: "valid" below it, "not valid" from the
+    coupling where failure is certified, "undecided" in between.
     """
     require_model(model, "run_check")
     lam0 = val.as_coupling(coupling)
@@ -463,8 +523,16 @@ def run_check(
     if len(set(names)) != len(names):
         raise ValueError(f"targets must be distinct; got {names}")
     needed = list(dict.fromkeys(n for s_ in level_sets for n in s_))
+    ref, ref_reason = choose_reference(model, needed, specs, reference=reference, bounds_above=bounds_above,
+                                       treatment=settings.treatment)
+    bounds_kw = {"gap": gap, "trial_order": trial_order} if ref == "bounds" else {}
+    if ref == "bounds":
+        from .bounds import bounds_options
 
-    do_trunc = builder is not None and any(p in (params or {}) or _has_param(builder, p) for p in SIZE_PARAMS)
+        bounds_options(gap, trial_order, max((s_ for s_ in specs if not isinstance(s_, Pade)), default=0))
+
+    do_trunc = ref == "exact" and builder is not None and any(
+        p in (params or {}) or _has_param(builder, p) for p in SIZE_PARAMS)
     total = 2 + len(targets) * len(specs) * (1 + len(other_thr)) + len(needed) + (1 if do_trunc else 0)
     step = 0
 
@@ -480,14 +548,14 @@ def run_check(
     boundaries = []
     for t, name in zip(targets, names):
         for sp_ in specs:
-            boundaries.append(_boundary(model, t, name, sp_, direction, tolkw, settings, lam0))
+            boundaries.append(_boundary(model, t, name, sp_, direction, tolkw, settings, lam0, bounds_kw))
             tick()
     other_boundaries = []
     for x in other_thr:
         kw_x = {"rtol": x} if relative else {"tol": x}
         for t, name in zip(targets, names):
             for s in specs:
-                other_boundaries.append(_boundary(model, t, name, s, direction, kw_x, settings, lam0))
+                other_boundaries.append(_boundary(model, t, name, s, direction, kw_x, settings, lam0, bounds_kw))
                 tick()
 
     # 2. comparison on a grid reaching past the coupling and the boundaries found
@@ -506,10 +574,12 @@ def run_check(
     context = list(range(1, min(kmax + 2, 40) + 1))
     all_orders = list(dict.fromkeys(list(specs) + context))
     comp = compare(model, targets, all_orders, grid, coupling=lam0 if lam0 != 0 else None, threshold=threshold,
-                   treatment=settings.treatment, backend=settings.backend)
+                   treatment=settings.treatment, backend=settings.backend, reference=ref, **bounds_kw)
     tick()
     ci = int(np.argmin(np.abs(comp.couplings - lam0)))
     errs = comp.rel_error if relative else comp.abs_error
+    if ref == "bounds":  # judged by the certified upper end of the error
+        errs = comp.rel_error_upper if relative else comp.error_upper
 
     # 3. verdicts, gated by the boundaries
     verdicts = []
@@ -520,6 +590,9 @@ def run_check(
             e = float(errs[ti, oi, ci])
             b = boundaries[bi]
             bi += 1
+            if ref == "bounds":
+                verdicts.append(_certified_verdict(comp, ti, oi, ci, name, sp_, lam0, thr, relative, b))
+                continue
             status = _verdict_status(b, lam0, e, thr)
             text = _verdict_sentence(name, sp_, lam0, e, thr, relative, status, b, comp.treatments[ti])
             verdicts.append(Verdict(name, sp_, lam0, e, thr, relative, status == "valid", float(b.coupling), b.status, text,
@@ -561,9 +634,13 @@ def run_check(
         trunc, trunc_notes = _truncation_checks(model, builder, dict(params or {}), needed, lam0)
         tick()
 
+    if ref == "bounds" and builder is not None and any(_has_param(builder, p) for p in SIZE_PARAMS):
+        trunc_notes.append("Truncation check skipped: it needs exact solves, and this report uses certified bounds "
+                           "instead (check the truncation on a smaller basis, or with --reference exact).")
     suggestions = _report_suggestions(boundaries, comp)
     cautions = _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam0, builder, source,
                          suggestions)
+    cautions = _reference_cautions(ref, ref_reason, verdicts, boundaries) + cautions
     notes = list(comp.notes)
     for b in boundaries:
         notes.extend(b.notes)
@@ -602,7 +679,14 @@ def run_check(
         "convergence_order": convergence_order,
         "sweep": None if grid_given is None else [float(grid_given.min()), float(grid_given.max()), int(grid_given.size)],
         "ptcheck_version": _version(),
+        "reference": ref,
+        "reference_asked": reference,
+        "reference_reason": ref_reason,
+        "bounds_above": bounds_above,
     }
+    if ref == "bounds":
+        settings_info["gap"] = gap if isinstance(gap, str) else float(gap)
+        settings_info["trial_order"] = trial_order
     report_progress(progress, total, total)
     return CheckReport(
         title=title or f"Can perturbation theory be trusted for {model.name} at λ = {lam0:g}?",
@@ -624,6 +708,146 @@ def run_check(
         source_model=model,
         suggestions=suggestions,
     )
+
+
+def choose_reference(
+    model: Model, levels: Sequence[int], orders: Sequence[Any], *, reference: str = "auto",
+    bounds_above: int = DEFAULT_BOUNDS_ABOVE, treatment: str = DEFAULT_TREATMENT,
+) -> tuple[str, str]:
+    """Exact solves or certified bounds for a report: the one place that decides.
+
+    Parameters
+    ----------
+    model : Model
+    levels : sequence of int
+        Work-basis indices of every level the targets use.
+    orders : sequence of order specs
+        The orders judged.
+    reference : {"auto", "exact", "bounds"}
+    bounds_above : int
+        ``"auto"`` uses bounds when the basis size N exceeds this.
+    treatment : str
+        The treatment asked for.
+
+    Returns
+    -------
+    (str, str)
+        ``"exact"`` or ``"bounds"``, and the reason in plain words.
+
+    Notes
+    -----
+    Bounds bracket a level through its own Rayleigh–Schrödinger series, so
+    ``"auto"`` keeps exact solves when a level is degenerate with another
+    level of its sector, when a Padé approximant is judged, or when a block
+    treatment is asked for; ``"bounds"`` then fails with the engine's
+    message naming the reason.
+    """
+    reference = val.check_choice(reference, "reference", REPORT_REFERENCES)
+    bounds_above = val.check_int(bounds_above, "bounds_above", minimum=0)
+    orders = parse_orders(orders)
+    if reference == "exact":
+        return "exact", "exact solves, as asked"
+    if reference == "bounds":
+        return "bounds", "certified bounds, as asked"
+    if model.n <= bounds_above:
+        return "exact", f"exact solves: the basis (N = {model.n}) is not above {bounds_above} states"
+    obstacles = []
+    degenerate = [n for n in levels if model.degenerate_group_of(n) is not None]
+    if degenerate:
+        obstacles.append(f"level {model.label(degenerate[0])} is degenerate with another level of its sector")
+    if any(isinstance(o, Pade) for o in orders):
+        obstacles.append("a Padé approximant is judged")
+    if treatment in ("block", "auto"):
+        obstacles.append(f"treatment {treatment!r} asks for near-degenerate blocks")
+    if obstacles:
+        return "exact", (
+            f"exact solves although the basis (N = {model.n}) is above {bounds_above} states: certified bounds are "
+            f"not available here ({'; '.join(obstacles)})"
+        )
+    return "bounds", f"certified bounds: the basis (N = {model.n}) is above {bounds_above} states"
+
+
+def _certified_verdict(comp: ComparisonResult, ti: int, oi: int, ci: int, name: str, spec: Any, lam0: float, thr: float,
+                       relative: bool, b: ValidityBoundary) -> Verdict:
+    """The verdict of one order at λ0 from certified bounds (gated by the certified boundary)."""
+    lo_arr, hi_arr = (comp.rel_error_lower, comp.rel_error_upper) if relative else (comp.error_lower, comp.error_upper)
+    lo, hi = float(lo_arr[ti, oi, ci]), float(hi_arr[ti, oi, ci])
+    rig_here = bool(comp.bounds_rigorous[ti, ci])
+    if b.status == "exact_in_sector":
+        status = "exact within its sector"
+    elif b.status == "error":
+        status = "not valid" if lo > thr else "undecided"
+    else:
+        status = b.decision_at(lam0)
+        if status == "undecided" and lo > thr:  # failure certified at λ0 itself: the first crossing lies below it
+            status = "not valid"
+    if status == "valid":
+        rigorous = b.rigorous or abs(lam0) < abs(b.rigorous_coupling)
+    elif status == "not valid":
+        rigorous = (lo > thr and rig_here) or b.status == "fails_at_zero"
+    else:
+        rigorous = False
+    text = _certified_sentence(name, spec, lam0, lo, hi, thr, relative, status, rigorous, b, comp.treatments[ti])
+    return Verdict(
+        name, spec, lam0, math.nan, thr, relative, status == "valid", float(b.coupling), b.status, text, status,
+        comp.treatments[ti], comp.reasons[ti] if comp.reasons else "", reference="bounds", error_lower=lo,
+        error_upper=hi, rigorous=bool(rigorous), certified_not=float(b.certified_not),
+    )
+
+
+def _certified_sentence(name, spec, lam, lo, hi, thr, relative, status, rigorous, b: ValidityBoundary, treatment_here) -> str:
+    tol = _fmt_err(thr, relative)
+    how = "" if treatment_here == "nondegenerate" else f" ({treatment_here} treatment)"
+    what = f"{name}, {order_name(spec)}{how}"
+    if status == "exact within its sector":
+        return (f"{what}: {EXACT_IN_SECTOR} — the treatment is exact diagonalisation of a whole invariant sector, "
+                "not a perturbative approximation; no verdict on an order.")
+    kind = "rigorous" if rigorous else "conditional on an estimated gap"
+    if b.gap_kind.startswith("given"):
+        kind = "rigorous" if rigorous else "conditional on the gap given"
+    err = f"error certified in [{_fmt_err(lo, relative)}, {_fmt_err(hi, relative)}] at λ = {lam:g}"
+    if status == "valid":
+        s = f"{what}: {err} — certified valid ({kind}): it meets {tol} for every |λ| up to {_fmt_lam(abs(b.coupling))}."
+    elif status == "not valid":
+        s = f"{what}: {err} — certified NOT valid ({kind})"
+        if math.isfinite(b.certified_not) and abs(lam) >= abs(b.certified_not):
+            s += f": the error exceeds {tol} at |λ| = {abs(b.certified_not):.4g}."
+        elif b.status == "fails_at_zero":
+            s += ": it does not meet the tolerance at any nonzero coupling."
+        else:
+            s += f": the error exceeds {tol} at λ = {lam:g}."
+    else:
+        s = f"{what}: {err} — undecided: the bounds certify neither that it meets {tol} nor that it does not"
+        if b.status in ("certified", "not_certified") and b.coupling != 0:
+            s += f" (certified only up to |λ| = {abs(b.coupling):.4g}"
+            s += f", certified to fail from {abs(b.certified_not):.4g})" if math.isfinite(b.certified_not) else ")"
+        s += ". An exact check (--reference exact), a higher trial order or a better gap decides."
+    return s
+
+
+def _reference_cautions(ref: str, reason: str, verdicts: Sequence[Verdict], boundaries: Sequence[ValidityBoundary]) -> list[str]:
+    """Cautions about where the reference values come from (certified bounds)."""
+    if ref != "bounds":
+        return []
+    out = [
+        f"No exact solve — {reason}. Verdicts are certified by Kato–Temple brackets of the exact levels; each says "
+        "whether it is rigorous or conditional on an estimated gap."
+    ]
+    cond = [v for v in verdicts if v.status in ("valid", "not valid") and not v.rigorous]
+    if cond:
+        out.append(
+            "Conditional verdicts (they rest on a Lanczos gap estimate, not a proof): "
+            + "; ".join(f"{v.target} at {order_name(v.order)}" for v in cond)
+            + ". Confirm design decisions with your own convergence checks."
+        )
+    und = [v for v in verdicts if v.status == "undecided"]
+    if und:
+        out.append(
+            "Undecided (neither certified valid nor certified not valid): "
+            + "; ".join(f"{v.target} at {order_name(v.order)}" for v in und)
+            + ". Run with --reference exact on this model (or a smaller one) to decide."
+        )
+    return out
 
 
 def _verdict_status(b: ValidityBoundary, lam0: float, error: float, thr: float) -> str:
@@ -691,7 +915,7 @@ def _sentences(text: str) -> list[str]:
     return [p for p in re.split(r"(?<=[.!?])\s+(?=[^a-z\s])", text.strip()) if p]
 
 
-def _boundary(model, target, name, spec, direction, tolkw, settings: CheckSettings, lam0) -> ValidityBoundary:
+def _boundary(model, target, name, spec, direction, tolkw, settings: CheckSettings, lam0, bounds_kw=None) -> ValidityBoundary:
     """validity_boundary, robust to a failure of the search itself (reported, not raised).
 
     Inputs were validated before; a ValueError here is a numerical outcome (e.g.
@@ -701,6 +925,8 @@ def _boundary(model, target, name, spec, direction, tolkw, settings: CheckSettin
     """
     kw = dict(direction=direction, threshold=settings.threshold, backend=settings.backend,
               coupling=lam0 if lam0 != 0 else None, treatment=settings.treatment, **tolkw)
+    if bounds_kw:
+        kw.update(reference="bounds", **bounds_kw)
     try:
         return validity_boundary(model, target, spec, **kw)
     except (ValueError, ArithmeticError) as exc:
@@ -711,6 +937,7 @@ def _boundary(model, target, name, spec, direction, tolkw, settings: CheckSettin
         target=name, order=spec, treatment=settings.treatment, tol=None if rel else thr, rtol=thr if rel else None,
         direction=direction, coupling=math.nan, status="error", exact_solves=0, bracket=(math.nan, math.nan),
         error_at_boundary=math.nan, max_coupling=math.nan, notes=(f"The validity boundary search failed: {first}",),
+        reference="bounds" if bounds_kw else "exact",
     )
 
 
@@ -771,7 +998,7 @@ def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes
                 "diagonalisation of a whole invariant sector, not perturbation theory; no order is judged "
                 "(not counted as valid)."
             )
-        if not np.isfinite(v.error) and v.status != "exact within its sector":
+        if not np.isfinite(v.error) and v.status != "exact within its sector" and v.reference == "exact":
             out.append(
                 f"{v.target}, {order_name(v.order)}: the relative error is undefined at λ = {v.coupling:g} (the exact "
                 "reference is ~0 or the pairing of states is ambiguous); judge it with an absolute tolerance (--tol)."
@@ -893,6 +1120,7 @@ def _verdict_paragraph(r: CheckReport) -> str:
         bad = [v for v in r.verdicts if not v.valid and v.status == "not valid"]
         exact = [v for v in r.verdicts if v.status == "exact within its sector"]
         undef = [v for v in r.verdicts if v.status == "undefined"]
+        undecided = [v for v in r.verdicts if v.status == "undecided"]
         parts = []
         if bad:
             parts.append(f"the {kind} tolerance {tol} is not met for " + "; ".join(f"{v.target} at {order_name(v.order)}" for v in bad))
@@ -901,16 +1129,27 @@ def _verdict_paragraph(r: CheckReport) -> str:
                          + f" ({EXACT_IN_SECTOR}: its treatment is exact diagonalisation, not perturbation theory)")
         if undef:
             parts.append("the error cannot be judged for " + "; ".join(f"{v.target} at {order_name(v.order)}" for v in undef))
+        if undecided:
+            parts.append("the certified bounds cannot decide for "
+                         + "; ".join(f"{v.target} at {order_name(v.order)}" for v in undecided))
         head = f"at λ = {lam:g}, " + "; ".join(parts) + "."
+    certified = r.settings.get("reference") == "bounds"
+    if certified:
+        judged = [v for v in r.verdicts if v.status in ("valid", "not valid")]
+        n_rig = sum(v.rigorous for v in judged)
+        head += (f" Certified by bounds, no exact solve: {n_rig} of {len(judged)} decided verdict(s) rigorous, "
+                 f"{len(judged) - n_rig} conditional on an estimated gap.")
+    meets = "is certified to meet it" if certified else "meets it"
     exact_targets = {v.target for v in r.verdicts if v.status == "exact within its sector"}
     low = []
     for t, k in r.lowest_valid_order.items():
         if t in exact_targets:
             continue
         if k is None:
-            low.append(f"{t}: no truncation order up to {max(o for o in r.comparison.orders if not isinstance(o, Pade))} meets it")
+            top = max(o for o in r.comparison.orders if not isinstance(o, Pade))
+            low.append(f"{t}: no truncation order up to {top} {meets}")
         else:
-            low.append(f"{t}: order {k} is the lowest that meets it")
+            low.append(f"{t}: order {k} is the lowest that {'is certified to meet' if certified else 'meets'} it")
     return head + (" Lowest sufficient order at this coupling — " + "; ".join(low) + "." if low else "")
 
 
@@ -1036,6 +1275,9 @@ def comparison_csv(report: CheckReport) -> str:
     """
     cols = ["target", "order", "treatment", "coupling", "presents", "unperturbed", "exact_presented",
             "perturbative_presented", "exact", "perturbative", "abs_error", "rel_error", "infidelity", "ambiguous"]
+    if report.comparison.error_lower is not None:
+        cols += ["exact_lower", "exact_upper", "error_lower", "error_upper", "rel_error_lower", "rel_error_upper",
+                 "bounds_rigorous", "bounds_gap_kind"]
     return _csv(report.comparison.to_rows(), cols)
 
 
@@ -1048,9 +1290,14 @@ def boundaries_csv(report: CheckReport) -> str:
             "coupling": v.coupling, "error_at_coupling": v.error, "tolerance": v.tolerance,
             "tolerance_kind": "relative" if v.relative else "absolute", "valid": v.valid, "verdict": v.status,
             "boundary": b.coupling, "boundary_status": b.status, "exact_solves": b.exact_solves,
+            "reference": b.reference, "error_lower": v.error_lower, "error_upper": v.error_upper,
+            "rigorous": v.rigorous, "certified_not": b.certified_not, "rigorous_boundary": b.rigorous_coupling,
+            "gap_kind": b.gap_kind,
         })
     cols = ["target", "order", "treatment", "coupling", "error_at_coupling", "tolerance", "tolerance_kind", "valid",
             "verdict", "boundary", "boundary_status", "exact_solves"]
+    if any(b.reference == "bounds" for b in report.boundaries):
+        cols += ["reference", "error_lower", "error_upper", "rigorous", "certified_not", "rigorous_boundary", "gap_kind"]
     return _csv(rows, cols)
 
 
@@ -1065,6 +1312,44 @@ def _md_table(header: Sequence[str], rows: Sequence[Sequence[Any]]) -> str:
     lines = ["| " + " | ".join(cell(h) for h in header) + " |", "|" + "---|" * len(header)]
     lines += ["| " + " | ".join(cell(c) for c in r) + " |" for r in rows]
     return "\n".join(lines)
+
+
+def _fmt_bracket(lo: float, hi: float, relative: bool) -> str:
+    if not (np.isfinite(lo) or np.isfinite(hi)):
+        return "—"
+    return f"[{_fmt_err(lo, relative)}, {_fmt_err(hi, relative)}]" if np.isfinite(hi) else f"≥ {_fmt_err(lo, relative)}"
+
+
+def _md_certified_tables(r: CheckReport) -> list[str]:
+    """Certified couplings and the certified error brackets of a report made with bounds (no exact solve)."""
+    s = r.settings
+    rel = s["rtol"] is not None
+    out = ["", "## Certified validity boundaries", "",
+           "No exact solve. Below the certified |λ| the order is guaranteed to meet the tolerance; from the "
+           "'certified not' |λ| on it is guaranteed not to (the true boundary λ* lies between them). 'rigorous': "
+           "the certificate uses rigorous gaps only (Weyl's inequality, the neighbouring levels' own brackets); "
+           "'conditional': it rests on an estimated (Lanczos) or given gap.", "",
+           _md_table(["target", "order", "treatment", f"error at λ = {s['coupling']:g}", "verdict", "certified |λ|",
+                      "certified with rigorous gaps", "certified not |λ|", "gap", "status", "mat-vecs", "exact solves"], [
+               [v.target, order_name(v.order), b.treatment, _fmt_bracket(v.error_lower, v.error_upper, v.relative),
+                f"{v.status} ({'rigorous' if v.rigorous else 'conditional'})" if v.status in ("valid", "not valid") else v.status,
+                _fmt_lam(abs(b.coupling)), _fmt_lam(abs(b.rigorous_coupling)), _fmt_lam(abs(b.certified_not)),
+                b.gap_kind or "—", b.status, b.mat_vecs, b.exact_solves]
+               for v, b in zip(r.verdicts, r.boundaries)])]
+    comp = r.comparison
+    ci = int(np.argmin(np.abs(comp.couplings - s["coupling"])))
+    lo_a, hi_a = (comp.rel_error_lower, comp.rel_error_upper) if rel else (comp.error_lower, comp.error_upper)
+    cols = sorted(range(len(comp.orders)), key=lambda i: _order_sort_key(comp.orders[i]))
+    out += ["", f"## Certified error at λ = {s['coupling']:g}, order by order", "",
+            "Each cell brackets the error: the exact value lies in the certified interval shown, so the error lies "
+            "in the bracket. Orders next to the ones judged are shown for context.", "",
+            _md_table(["target", "exact value in", "gap", "unperturbed"] + [comp.order_names[i] for i in cols], [
+                [t, f"[{comp.exact_lower[ti, ci]:.10g}, {comp.exact_upper[ti, ci]:.10g}]",
+                 f"{comp.bounds_gap_kind[ti, ci]} ({'rigorous' if comp.bounds_rigorous[ti, ci] else 'conditional'})",
+                 f"{comp.unperturbed[ti]:.10g}"]
+                + [_fmt_bracket(float(lo_a[ti, oi, ci]), float(hi_a[ti, oi, ci]), rel) for oi in cols]
+                for ti, t in enumerate(comp.targets)])]
+    return out
 
 
 def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: Sequence[str] = ()) -> str:
@@ -1104,8 +1389,10 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
         ["targets", ", ".join(s["targets"])], ["orders judged", ", ".join(s["orders"])],
         ["coupling λ", f"{s['coupling']:g}"], ["tolerance", tol], ["treatment", s["treatment"]],
         ["exact backend", f"{s['backend']} (used: {r.comparison.backend})"],
+        ["reference", f"{s.get('reference', 'exact')} ({s.get('reference_reason', 'exact solves')})"],
         ["near-degeneracy threshold", f"{s['threshold']:g}"], ["ptcheck", s["ptcheck_version"]],
     ])]
+    tables_at = len(out)
     out += ["", "## Validity boundaries", "",
             "λ* is the smallest |λ| at which the order stops meeting the tolerance (searched towards the sign of λ).", "",
             _md_table(["target", "order", "treatment", f"error at λ = {s['coupling']:g}", "verdict", "λ*", "status", "exact solves"], [
@@ -1132,6 +1419,8 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
                 [t, f"{shown[ti, ci]:.10g} ({'shift' if pres[ti] == 'shift' else 'value'})", f"{comp.unperturbed[ti]:.10g}"]
                 + [_fmt_err(float(errs[ti, oi, ci]), rel) for oi in cols]
                 for ti, t in enumerate(comp.targets)])]
+    if s.get("reference") == "bounds":  # certified couplings and error brackets instead of exact ones
+        out[tables_at:] = _md_certified_tables(r)
     convs = [c for c in r.convergence if c is not None]
     if convs:
         header = ["level", "kind", "radius", "Kato bound"]
@@ -1256,8 +1545,9 @@ def default_figures(
 def figure_plan(report: CheckReport) -> list[tuple]:
     """The figures :func:`default_figures` draws for this report, as keys for :func:`draw_figure`."""
     plan: list[tuple] = []
+    bands = report.comparison.reference == "bounds"
     for ti in range(len(report.comparison.targets)):
-        plan += [("values", ti), ("errors", ti)]
+        plan += [("bands", ti)] if bands else [("values", ti), ("errors", ti)]
     if any(c is not None for c in report.convergence):
         plan.append(("convergence",))
     if report.source_model is not None and report.pairs:
@@ -1284,6 +1574,15 @@ def draw_figure(report: CheckReport, key: tuple, *, figure_format: str = "png", 
         return Figure(f"{name}.{ext}", caption, _render(fig, fmt=ext, dpi=dpi), ext)
 
     kind = key[0]
+    if kind == "bands":  # no exact solve: the certified bracket of each order's error
+        ti = key[1]
+        t = comp.targets[ti]
+        fig, ax = _new_figure()
+        bnds = [b for b in report.boundaries if b.target == t]
+        plots.plot_error_bands(comp, bnds, target=t, orders=judged, error="relative" if rel else "absolute",
+                               tol=s["rtol"] if rel else s["tol"], coupling=lam, ax=ax)
+        return done(f"errors-{_slug(t, ti)}", f"{t}: certified bracket of each order's error against λ (no exact "
+                    "solve); solid: certified valid below, dashed: certified not valid from.", fig)
     if kind in ("values", "errors"):
         ti = key[1]
         t = comp.targets[ti]
@@ -1310,7 +1609,7 @@ def draw_figure(report: CheckReport, key: tuple, *, figure_format: str = "png", 
         plots.plot_pairs(plots.mixing_map(report.source_model, lam, levels=needed, threshold=s["threshold"]), ax=ax,
                          table_ax=tax)
         return done("pairs", f"Levels at λ = {lam:g} and the pairs whose mixing ratio |λV|/|ΔE| is large; "
-                    "outlined: blocks treated together.", fig)
+                    "outlined: near-degenerate blocks (suggested beside the answer).", fig)
     if kind == "validity_map":
         from .maps_plot import plot_validity_map
 

@@ -9,6 +9,8 @@ is built from the Okabe–Ito colour-universal-design set (see :mod:`._style`).
 - :func:`plot_levels`: exact and perturbative levels/quantities against λ.
 - :func:`plot_errors`: error of each order against λ (log), tolerance,
   validity boundaries with the region beyond shaded.
+- :func:`plot_error_bands`: certified bracket of each order's error against
+  λ (no exact solve), certified boundaries.
 - :func:`plot_divergence`: complex λ plane: exceptional points, convergence
   discs, Kato bound, real-axis regimes.
 - :func:`plot_pairs` (+ :func:`mixing_map`): mixing ratios among levels at one
@@ -25,6 +27,7 @@ is built from the Okabe–Ito colour-universal-design set (see :mod:`._style`).
 """
 
 from ._style import OKABE_ITO, ORDER_COLORS, PADE_COLORS, SCREEN_SIZE, SLIDE_SIZE, order_color, order_style, style
+from .bands import BandArtists, plot_error_bands
 from .divergence import DivergenceArtists, plot_divergence
 from .errors import ErrorArtists, plot_errors
 from .export import FORMATS, SavedFigure, save
@@ -40,6 +43,7 @@ __all__ = [
     "PADE_COLORS",
     "SCREEN_SIZE",
     "SLIDE_SIZE",
+    "BandArtists",
     "DivergenceArtists",
     "ErrorArtists",
     "FormulaArtists",
@@ -53,6 +57,7 @@ __all__ = [
     "order_color",
     "order_style",
     "plot_divergence",
+    "plot_error_bands",
     "plot_errors",
     "plot_formula",
     "plot_levels",
