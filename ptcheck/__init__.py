@@ -5,9 +5,11 @@ figures live in :mod:`ptcheck.plots`, notebook panels in :mod:`ptcheck.widgets`,
 the command line in :mod:`ptcheck.cli`.
 """
 
+from . import _startup  # noqa: F401  (first: a quiet Ctrl-C while the command line starts)
 from . import models
 from .approximants import Pade, parse_order
 from .blocks import Block, BlockSeries, block_series, find_blocks
+from .bounds import CertifiedBoundary, ErrorBounds, certified_boundary, error_bounds
 from .compare import ComparisonResult, ValidityBoundary, compare, validity_boundary
 from .convergence import ConvergenceResult, DivergenceMap, convergence, divergence_map
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, NearDegeneratePair, near_degenerate_pairs
@@ -22,6 +24,7 @@ from .errors import (
     TruncationWarning,
 )
 from .exact import AvoidedCrossing, ExactSolver, ExactSweep, track
+from .formula import Formula, ValidityRange, formula
 from .model import Model
 from .products import product_model
 from .quantities import (
@@ -37,7 +40,9 @@ from .quantities import (
     transition_frequency,
     zz_coupling,
 )
+from .sectors import Sector
 from .series import SeriesResult, rs_series
+from .treatment import CheckSettings, Suggestion, TreatmentChoice
 
 __version__ = "0.1.0"
 
@@ -48,13 +53,17 @@ __all__ = [
     "BasisTooLargeError",
     "Block",
     "BlockSeries",
+    "CertifiedBoundary",
+    "CheckSettings",
     "ComparisonResult",
     "ConvergenceResult",
     "DEFAULT_MIXING_THRESHOLD",
     "DegenerateLevelError",
     "DivergenceMap",
+    "ErrorBounds",
     "ExactSolver",
     "ExactSweep",
+    "Formula",
     "Model",
     "NearDegeneratePair",
     "NearDegenerateWarning",
@@ -62,20 +71,27 @@ __all__ = [
     "PtcheckWarning",
     "Quantity",
     "QuantitySeries",
+    "Sector",
     "SeriesResult",
+    "Suggestion",
     "TrackingWarning",
+    "TreatmentChoice",
     "TruncationWarning",
     "ValidityBoundary",
+    "ValidityRange",
     "anharmonicity",
     "block_series",
+    "certified_boundary",
     "combination",
     "compare",
     "convergence",
     "cross_kerr",
     "dispersive_shift",
     "divergence_map",
+    "error_bounds",
     "exchange",
     "find_blocks",
+    "formula",
     "models",
     "near_degenerate_pairs",
     "parse_order",

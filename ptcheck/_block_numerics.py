@@ -137,13 +137,46 @@ def sw_coefficients(e0: np.ndarray, v, block: np.ndarray, order: int) -> SWCoeff
             heff[k] += left[m] @ ti[k - m]
 
     fro = lambda a: np.linalg.norm(a, axis=(1, 2))  # noqa: E731
-    scale = _conv_norms(fro(t), fro(hb), fro(ti))[: kmax + 1]
+    scale = _residual_scale(_conv_norms(fro(t), fro(hb), fro(ti))[: kmax + 1], e0, v, block)
     anti = fro(heff - np.conj(np.swapaxes(heff, 1, 2)))
     tiny = np.finfo(float).tiny
     residual = anti / (2.0 * np.maximum(scale, tiny))
     heff = 0.5 * (heff + np.conj(np.swapaxes(heff, 1, 2)))
 
     return SWCoefficients(heff=heff, omega=omega[:, : kmax + 1, :], s_inv_sqrt=ti, residual=residual, finite_order=finite_order)
+
+
+def _residual_scale(direct: np.ndarray, e0: np.ndarray, v, block: np.ndarray) -> np.ndarray:
+    """Scale against which the anti-Hermitian round-off of ``H_eff^(k)`` is judged.
+
+    ``direct[k]`` (the size of the products that make up order k) vanishes for
+    orders that vanish by symmetry (e.g. odd orders under parity), while their
+    computed coefficients still carry round-off inherited from the neighbouring
+    orders (cancellations of products of size ~ the order-(k-1) pieces times
+    ‖V‖ / gap).  The scale is therefore the larger of ``direct[k]`` and the
+    geometric continuation ``max_{j<k} direct[j] ρ^(k-j)`` with
+    ``ρ = ‖V P‖ / gap``, which does not vanish with the coefficient.
+    """
+    p = block.size
+    n = e0.size
+    in_q = np.ones(n, dtype=bool)
+    in_q[block] = False
+    if not np.any(in_q):
+        return direct
+    gap = float(np.min(np.abs(e0[in_q][:, None] - e0[block][None, :])))
+    basis = np.zeros((n, p))
+    basis[block, np.arange(p)] = 1.0
+    vcol = float(np.linalg.norm(np.asarray(v @ basis), ord=2))
+    if not (gap > 0 and vcol > 0):
+        return direct
+    rho = vcol / gap
+    out = direct.astype(float).copy()
+    with np.errstate(over="ignore"):
+        for k in range(1, out.size):
+            cont = float(np.max(direct[:k] * rho ** np.arange(k, 0, -1)))
+            if np.isfinite(cont):
+                out[k] = max(out[k], cont)
+    return out
 
 
 def isometry_at(sw: SWCoefficients, order: int, couplings: np.ndarray) -> np.ndarray:
@@ -241,7 +274,13 @@ _BUDGET = 20_000
 
 
 def track_branches(
-    heff: np.ndarray, couplings: np.ndarray, guess_vectors: np.ndarray, guess_coupling: float, scale: float
+    heff: np.ndarray,
+    couplings: np.ndarray,
+    guess_vectors: np.ndarray,
+    guess_coupling: float,
+    scale: float,
+    *,
+    cluster_rtol: float | None = None,
 ) -> TrackResult:
     """Follow the eigenbranches of ``H_eff(λ) = Σ_j λ^j heff[j]`` from ``±guess_coupling``.
 
@@ -249,19 +288,33 @@ def track_branches(
     λ = 0.  Four monotone paths start at ±guess_coupling (outwards and inwards
     towards 0); neighbouring points are matched by eigenvector overlap, and an
     interval is bisected while the overlap is below :data:`QUALITY`.
+
+    Eigenvalues closer than ``1e-10 x scale`` count as numerically degenerate
+    (their eigenvectors are aligned with the previous point).  With
+    ``cluster_rtol`` the threshold is ``cluster_rtol x ‖H_eff(λ)‖`` instead: for
+    an ``H_eff`` whose constant part has been removed (a degenerate group,
+    whose splitting can start at a high order), so that a small but resolved
+    splitting is followed rather than taken for a degeneracy.
     """
     p = heff.shape[1]
     c = couplings.size
     energies = np.zeros((p, c))
     vectors = np.zeros((c, p, p), dtype=np.result_type(heff.dtype, guess_vectors.dtype))
-    dtol = 1e-10 * max(scale, np.finfo(float).tiny)
+    tiny = np.finfo(float).tiny
+    fixed_dtol = 1e-10 * max(scale, tiny)
+
+    def cluster_tol(w: np.ndarray) -> float:
+        if cluster_rtol is None:
+            return fixed_dtol
+        return cluster_rtol * max(float(np.max(np.abs(w), initial=0.0)), tiny)
+
     state = {"budget": _BUDGET, "ambiguous": False}
 
     def eig(lams: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         return np.linalg.eigh(evaluate_polynomial(heff, lams))
 
     def step(a: float, ref: np.ndarray, b: float, wb: np.ndarray, vb: np.ndarray, depth: int):
-        e, vv, q = match_eigenvectors(ref, wb, vb, dtol)
+        e, vv, q = match_eigenvectors(ref, wb, vb, cluster_tol(wb))
         if q >= QUALITY:
             return e, vv
         if depth >= _MAX_DEPTH or state["budget"] <= 0:
@@ -292,7 +345,7 @@ def track_branches(
             pts = np.concatenate([couplings[sel], fill])
             pts = pts[np.argsort(np.abs(pts - start), kind="stable")]
             w_all, v_all = eig(np.concatenate([[start], pts]))
-            _, ref, _ = match_eigenvectors(guess_vectors, w_all[0], v_all[0], dtol)
+            _, ref, _ = match_eigenvectors(guess_vectors, w_all[0], v_all[0], cluster_tol(w_all[0]))
             prev = start
             results = []
             for g, lam in enumerate(pts):

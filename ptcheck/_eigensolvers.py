@@ -7,7 +7,10 @@ columns of an ``(N, k)`` array.  Three kinds of request:
 * ``lowest(coupling, k, start)``: the k lowest eigenpairs;
 * ``window(coupling, lo, hi, start)``: eigenpairs of energy rank lo..hi-1
   (only when ``supports_rank_window``);
-* ``nearest(coupling, sigma, k, start)``: the k eigenpairs closest to ``sigma``.
+* ``nearest(coupling, sigma, k, start)``: the k eigenpairs closest to ``sigma``;
+* ``probe(coupling, k, start, tight=...)``: the k lowest eigenpairs at a coupling
+  far from any solved one, started from perturbative states (None if the
+  iterative solver does not converge; the caller then takes tracked steps).
 
 ``start`` is an optional ``(N, s)`` block of vectors close to the wanted ones
 (the previous point of a coupling sweep); backends that cannot use it ignore it.
@@ -37,7 +40,10 @@ import scipy.sparse.linalg as spla
 from .errors import BasisTooLargeError
 from .model import DENSE_LIMIT, Model
 
-__all__ = ["make_backend", "BACKEND_CLASSES", "DenseBackend", "SparseBackend", "QutipBackend", "inner", "combine"]
+__all__ = [
+    "make_backend", "BACKEND_CLASSES", "DenseBackend", "SparseBackend", "QutipBackend", "ProbeBasis",
+    "davidson_lowest", "inner", "combine",
+]
 
 #: Below this basis size the sparse backend hands requests to LAPACK (a dense
 #: eigendecomposition of a few hundred states costs less than Python overhead).
@@ -112,6 +118,10 @@ class DenseBackend:
         lo = _nearest_block(w, sigma, k)
         return sla.eigh(h, subset_by_index=[lo, lo + k - 1], check_finite=False)
 
+    def probe(self, coupling: float, k: int, start: np.ndarray, *, tight: Any = (), basis: Any = None) -> tuple[np.ndarray, np.ndarray] | None:
+        """The k lowest eigenpairs (LAPACK: every column is exact; ``start``, ``tight``, ``basis`` are not needed)."""
+        return self.window(coupling, 0, k)
+
 
 def _nearest_block(w: np.ndarray, sigma: float, k: int) -> int:
     """Start index of the k consecutive sorted eigenvalues closest to sigma."""
@@ -149,6 +159,20 @@ class _Pattern:
         data = alpha * self.v_data
         data[self.diag_pos] += diag
         return sp.csr_matrix((data, self.indices, self.indptr), shape=self.shape, copy=False)
+
+
+class _DiagonalPlus:
+    """``diag(d) + α V`` as an operator (no new sparse matrix: one product with V per use)."""
+
+    def __init__(self, v: Any, alpha: float, d: np.ndarray) -> None:
+        self.v, self.alpha, self.d = v, alpha, d
+        self.dtype = np.result_type(v.dtype, d.dtype)
+
+    def __matmul__(self, x: np.ndarray) -> np.ndarray:
+        y = self.v @ x
+        y *= self.alpha
+        y += self.d * x if x.ndim == 1 else self.d[:, None] * x
+        return y
 
 
 class _Operator:
@@ -245,6 +269,186 @@ def _column_norms(r: np.ndarray) -> np.ndarray:
     return np.sqrt(np.einsum("ij,ij->j", r.conj(), r).real)
 
 
+# ---------------------------------------------------------------------------- Davidson
+#: Residual tolerance, relative to the spectral scale, of the columns of a probe
+#: window other than the tracked ones: enough to place their energies below the
+#: tracked level (its rank), not to resolve their states.
+PROBE_LOOSE_RTOL = 1e-4
+
+
+def _orthonormal_rows(basis: np.ndarray, j: int, c: np.ndarray, drop: float = 1e-8) -> np.ndarray:
+    """Rows of ``c`` made orthonormal to ``basis[:j]`` and to each other.
+
+    Two classical Gram–Schmidt passes; for a single vector the second pass is
+    skipped when the first kept more than 0.7 of its norm (the
+    reorthogonalisation criterion of J. W. Daniel, W. B. Gragg, L. Kaufman,
+    G. W. Stewart, Math. Comp. 30, 772 (1976)).
+
+    Directions that are (numerically) already in the span are dropped, so the
+    result may have fewer rows than ``c``.
+    """
+    if j and c.shape[0] == 1:  # one vector: second pass only when the first lost most of it
+        before = float(np.linalg.norm(c[0]))
+        c = c - (c @ basis[:j].conj().T) @ basis[:j]
+        if np.linalg.norm(c[0]) < 0.7 * before:
+            c = c - (c @ basis[:j].conj().T) @ basis[:j]
+    elif j:
+        for _ in range(2):
+            c = c - (c @ basis[:j].conj().T) @ basis[:j]
+    if c.shape[0] == 1:
+        nrm = float(np.linalg.norm(c[0]))
+        scale = float(np.max(np.abs(c[0]))) if c.size else 0.0
+        return c / nrm if nrm > 0 and scale > 0 else c[:0]
+    g = c.conj() @ c.T
+    d = np.sqrt(np.abs(np.real(np.diag(g))))
+    d[d == 0] = 1.0
+    w, u = np.linalg.eigh(g / d[:, None] / d[None, :])
+    keep = w > drop * max(float(w[-1]), 1e-300)
+    return (u[:, keep] / d[:, None] / np.sqrt(w[keep])).T @ c
+
+
+class ProbeBasis:
+    """Fixed part of a probe's search space: orthonormal rows ``q_i`` with ``H0 q_i`` and ``V q_i``.
+
+    ``at(λ)`` gives the rows, their images under ``H(λ) = H0 + λ V`` and the
+    projected matrix, all without products with V.
+    """
+
+    def __init__(self, rows: np.ndarray, h0_rows: np.ndarray, v_rows: np.ndarray, h0_proj: np.ndarray, v_proj: np.ndarray) -> None:
+        self.rows, self.h0_rows, self.v_rows = rows, h0_rows, v_rows
+        self.h0_proj, self.v_proj = h0_proj, v_proj
+
+    def at(self, coupling: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        return self.rows, self.h0_rows + coupling * self.v_rows, self.h0_proj + coupling * self.v_proj
+
+
+def davidson_lowest(
+    h: Any,
+    diag: np.ndarray,
+    k: int,
+    start: np.ndarray,
+    *,
+    tols: np.ndarray,
+    rng: np.random.Generator | None,
+    max_matvecs: int | None = None,
+    subspace: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+) -> tuple[np.ndarray, np.ndarray] | None:
+    """The k lowest eigenpairs of a Hermitian ``h`` by block Davidson, or None.
+
+    E. R. Davidson, "The iterative calculation of a few of the lowest
+    eigenvalues and corresponding eigenvectors of large real-symmetric
+    matrices", J. Comput. Phys. 17, 87 (1975), with the diagonal of ``h`` as
+    preconditioner in the correction of J. Olsen, P. Jørgensen, J. Simons,
+    Chem. Phys. Lett. 169, 463 (1990) (the correction is made orthogonal to the
+    Ritz vector in the preconditioned metric, so it does not collapse onto it
+    when the diagonal is a good approximation).  In the unperturbed eigenbasis
+    the diagonal of ``H0 + λV`` holds ``H0`` exactly, so the preconditioner is
+    the unperturbed resolvent: started from a perturbative state, each step adds
+    roughly one order of the expansion, and the subspace makes it converge
+    beyond the radius too.
+
+    Parameters
+    ----------
+    h : (N, N) sparse matrix or ndarray, Hermitian
+    diag : (N,) ndarray
+        Real diagonal of ``h``.
+    k : int
+        Number of lowest eigenpairs wanted.
+    start : (N, s) ndarray
+        Start vectors (any number, need not be orthonormal).  One random vector
+        is added when ``rng`` is given, so that a state absent from the start
+        can still enter.
+    tols : (k,) ndarray
+        Residual tolerance ``‖h x - θ x‖`` of each wanted column (energy units);
+        a loose tolerance for a column only places its energy.
+    rng : numpy Generator or None
+    max_matvecs : int, optional
+        Give up (return None) after this many products with ``h``.
+    subspace : ((b, N), (b, N), (b, b) ndarrays), optional
+        Orthonormal rows, their images under ``h`` and the projected matrix,
+        put in the search space before ``start`` at no product cost (e.g. the
+        perturbative corrections of the tracked level: :class:`ProbeBasis`).
+
+    Returns
+    -------
+    (energies (k,), vectors (N, k)) or None if not converged.
+    """
+    n = diag.size
+    dtype = np.result_type(start.dtype, getattr(h, "dtype", np.float64), np.float64)
+    fixed = 0 if subspace is None else subspace[0].shape[0]
+    max_dim = max(20, 4 * (k + 1), fixed + 2 * (k + 1) + 4)
+    max_matvecs = max_matvecs if max_matvecs is not None else 40 * k + 160
+    basis = np.empty((max_dim, n), dtype=dtype)  # orthonormal rows q_j
+    hbasis = np.empty((max_dim, n), dtype=dtype)  # rows (h q_j)^T
+    proj = np.zeros((max_dim, max_dim), dtype=dtype)  # q_i^H h q_j
+    j = 0
+    if subspace is not None:
+        basis[:fixed], hbasis[:fixed], proj[:fixed, :fixed] = subspace
+        j = fixed
+    pending: np.ndarray | None = np.array(start.T, dtype=dtype)
+    if rng is not None:
+        pending = np.vstack([pending, rng.standard_normal((1, n))])
+    matvecs = 0
+    tiny = 1e-13 * max(float(np.max(np.abs(diag))), 1.0)
+    theta = u = None
+    added = 0
+    while True:
+        if j >= k:  # Rayleigh–Ritz on the current space; stop or compute corrections
+            theta, u = np.linalg.eigh(proj[:j, :j])
+            ut = u[:, :k].T
+            x = ut @ basis[:j]
+            r = ut @ hbasis[:j] - theta[:k, None] * x
+            res = np.sqrt(np.einsum("ij,ij->i", r.conj(), r).real)
+            todo = np.flatnonzero(res > tols)
+            if todo.size == 0:
+                return theta[:k].copy(), np.ascontiguousarray(x.T)
+            c = np.empty((todo.size, n), dtype=dtype)
+            for row, i in enumerate(todo):
+                d = diag - theta[i]
+                d[np.abs(d) < tiny] = tiny
+                pr = r[i] / d
+                px = x[i] / d
+                den = np.vdot(x[i], px)
+                # θ inside the diagonal's range can make x^H D^-1 x vanish: plain correction then
+                c[row] = pr - (np.vdot(x[i], pr) / den) * px if abs(den) > 1e-8 * np.linalg.norm(px) else pr
+            if pending is not None:
+                c = np.vstack([pending, c])
+        elif pending is not None:
+            c = pending
+        elif added:
+            c = hbasis[j - added : j].copy()  # too few vectors yet: grow by Krylov directions
+        else:
+            return None
+        pending = None
+        c = _orthonormal_rows(basis, j, c)
+        m = c.shape[0]
+        if m == 0 or matvecs + m > max_matvecs:
+            return None
+        if j + m > max_dim:  # thick restart from the lowest Ritz vectors
+            if u is None:
+                return None
+            keep = min(j, max_dim - m, max(2 * (k + 1), max_dim // 2))
+            ut = u[:, :keep].T
+            basis[:keep] = ut @ basis[:j]
+            hbasis[:keep] = ut @ hbasis[:j]
+            proj[:] = 0.0
+            proj[np.arange(keep), np.arange(keep)] = theta[:keep]
+            j = keep
+            c = _orthonormal_rows(basis, j, c)
+            m = c.shape[0]
+            if m == 0:
+                return None
+        basis[j : j + m] = c
+        for i in range(m):  # one vector at a time: scipy's multi-vector CSR product is slower for few vectors
+            hbasis[j + i] = h @ c[i]
+        matvecs += m
+        block = basis[j : j + m].conj() @ hbasis[: j + m].T
+        proj[j : j + m, : j + m] = block
+        proj[: j + m, j : j + m] = block.conj().T
+        j += m
+        added = m
+
+
 class SparseBackend:
     """Sparse iterative backend.
 
@@ -271,7 +475,8 @@ class SparseBackend:
         self.rng = rng
         self.v = model.v
         self.e0 = np.asarray(model.e0, dtype=float)
-        self._pattern = _Pattern(model.v, model.n)
+        self._pattern_cache: _Pattern | None = None
+        self._vdiag = model.v_diagonal()
         self._spread = float(max(np.max(np.abs(self.e0)), np.ptp(self.e0)))
         self._efficiency = 1.0  # observed / predicted filter gain (log scale), adapted
         self._last_guards: np.ndarray | None = None  # guard vectors of the previous solve
@@ -279,6 +484,13 @@ class SparseBackend:
         self.fallbacks = 0
 
     # ---------------------------------------------------------------- helpers
+    @property
+    def _pattern(self) -> _Pattern:
+        """CSR pattern of V plus the diagonal, built on first use (the Chebyshev filter needs it)."""
+        if self._pattern_cache is None:
+            self._pattern_cache = _Pattern(self.model.v, self.model.n)
+        return self._pattern_cache
+
     def _scale(self, coupling: float) -> float:
         return self._spread + abs(coupling) * self.model.norm_v
 
@@ -330,6 +542,49 @@ class SparseBackend:
         w, x = spla.eigsh(h, k=k, sigma=sigma, which="LM", v0=v0, tol=self.rtol * 1e-2)
         order = np.argsort(w)
         return w[order], x[:, order]
+
+    def probe_basis(self, vectors: np.ndarray) -> "ProbeBasis":
+        """Orthonormal basis of the columns of ``vectors`` with its images under H0 and V, for :meth:`probe`.
+
+        Built once (e.g. from the Rayleigh–Schrödinger corrections of a level),
+        it enters every later probe's search space at no product cost, since
+        ``H(λ) Q = H0 Q + λ V Q``.
+        """
+        rows = np.ascontiguousarray(svqb(svqb(np.asarray(vectors))).T)  # (b, N) orthonormal rows (twice: the corrections are far from orthogonal)
+        h0_rows = rows * self.e0[None, :]
+        v_rows = np.ascontiguousarray((self.v @ rows.T).T)
+        return ProbeBasis(rows, h0_rows, v_rows, rows.conj() @ h0_rows.T, rows.conj() @ v_rows.T)
+
+    def probe(
+        self, coupling: float, k: int, start: np.ndarray, *, tight: Any = (), basis: "ProbeBasis | None" = None
+    ) -> tuple[np.ndarray, np.ndarray] | None:
+        """The k lowest eigenpairs for a probe far from any solved coupling; None if not converged.
+
+        Block Davidson (:func:`davidson_lowest`) started from ``start`` (e.g.
+        the vectors of the nearest solved coupling) and ``basis`` (from
+        :meth:`probe_basis`, e.g. the perturbative corrections of the tracked
+        level: their span holds the perturbative state of every order at every
+        coupling).  Columns listed in ``tight`` (energy ranks of the tracked
+        levels) are converged to ``rtol`` x the spectral scale, the others to
+        :data:`PROBE_LOOSE_RTOL` x scale: they only place their energies below
+        the tracked ones.  The caller falls back to a tracked step when None is
+        returned.  No random vector is added: "lowest" means lowest in the
+        space the start and its Davidson corrections reach (a state of another
+        symmetry sector with no weight in the start never enters), so the
+        caller must confirm the tracked column's identity (e.g. by its overlap
+        with the perturbative state).
+        """
+        n = self.model.n
+        if self._small() or k >= n - 1:
+            _check_dense_size(self.model, f"asking for {k} of {n} eigenpairs")
+            return sla.eigh(self._dense(coupling), subset_by_index=[0, k - 1], check_finite=False)
+        scale = self._scale(coupling)
+        tols = np.full(k, PROBE_LOOSE_RTOL * scale)
+        tols[np.asarray(list(tight), dtype=int)] = self.rtol * scale
+        diag = self.e0 + coupling * self._vdiag
+        h = _DiagonalPlus(self.v, coupling, self.e0)
+        sub = None if basis is None else basis.at(coupling)
+        return davidson_lowest(h, diag, k, np.asarray(start), tols=tols, rng=None, subspace=sub)
 
     # ---------------------------------------------------------------- ARPACK
     def _start_vector(self, start: Any) -> np.ndarray | None:
@@ -509,6 +764,10 @@ class QutipBackend:
     def window(self, coupling: float, lo: int, hi: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
         w, x = self.lowest(coupling, hi)
         return w[lo:], x[:, lo:]
+
+    def probe(self, coupling: float, k: int, start: np.ndarray, *, tight: Any = (), basis: Any = None) -> tuple[np.ndarray, np.ndarray] | None:
+        """The k lowest eigenpairs (qutip's own solver; ``start``, ``tight``, ``basis`` are not used)."""
+        return self.lowest(coupling, k)
 
     def nearest(self, coupling: float, sigma: float, k: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
         _check_dense_size(self.model, "backend 'qutip' with an energy target")

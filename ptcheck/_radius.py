@@ -30,9 +30,13 @@ Works on the energy coefficients ``c_0 … c_K`` of one level.
 * *Growth class*: factorial growth needs two signs: ``|r_j| ~ j^b`` with
   b > 0.5 (Theil–Sen slope of log|r_j| against log j; for oscillating signs
   the rise of the envelope slope between the middle and last third), and an
-  envelope slope that rises steadily over three windows of the tail (beats of
-  several singularities make it rise and fall).  A tail that sits at round-off
-  far below the trend of the coefficients before it → terminating.
+  envelope slope that rises steadily over three windows of the tail by the
+  amount that growth implies (beats of several singularities make it rise
+  and fall).  Both are judged in the pattern index j, so Γ(j + a) growth of
+  every p-th coefficient is found as well.  A root-test radius that keeps
+  shrinking as orders are added is never called convergent (asymptotic, with
+  a note).  A tail that sits at round-off far below the trend of the
+  coefficients before it → terminating.
 """
 
 from __future__ import annotations
@@ -133,7 +137,16 @@ def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
 
     # ---- growth class: log|ratio| vs log j (Theil–Sen slope, robust to outliers)
     b = _growth_exponent(jj, dd, half)
-    if np.isfinite(b) and b > ASYMPTOTIC_SLOPE and _confirm_factorial(jj, dd, p):
+    if np.isfinite(b) and b > ASYMPTOTIC_SLOPE and _confirm_factorial(jj, dd, b):
+        return _nan_result("asymptotic", p, o, k0, notes, b)
+    shrink = _shrinking_radius(jj, dd)
+    if shrink is not None:
+        r_half, r_full = shrink
+        notes.append(
+            f"the root-test radius keeps shrinking as orders are added ({r_half ** (1.0 / p):.3g} from the first half "
+            f"of the coefficients, {r_full ** (1.0 / p):.3g} from all of them): no finite radius is in sight, so the "
+            "series is treated as asymptotic, not convergent"
+        )
         return _nan_result("asymptotic", p, o, k0, notes, b)
 
     # ---- root test: upper envelope of log|d_j| + 1.5 log j (square-root branch point,
@@ -268,12 +281,15 @@ def _upper_fit(x: np.ndarray, y: np.ndarray, *, drop: float = 0.5, rounds: int =
     return None if sol is None else (float(sol[0]), float(sol[1]))
 
 
-def _confirm_factorial(jj: np.ndarray, dd: np.ndarray, p: int) -> bool:
+def _confirm_factorial(jj: np.ndarray, dd: np.ndarray, b: float) -> bool:
     """Second, independent sign of factorial growth (guards against beats of several singularities).
 
-    The upper-envelope slope of log|d_j| must rise steadily over three windows
-    [J/4, J/2], [J/2, 3J/4], [3J/4, J], each step by more than 0.2 p.  Factorial
-    growth (slope ≈ p log j) rises by p log(5/3) ≈ 0.5 p and p log(7/5) ≈ 0.34 p;
+    Growth like Γ(j + a)^b in the pattern index j (b = 1 for the Γ(j + ½) of
+    the cubic oscillator in λ², or the Γ(j + ½) of the quartic one in λ; Bender
+    & Wu 1969, 1973) gives an upper-envelope slope of log|d_j| ≈ b log j.  The
+    slope must rise steadily over three windows [J/4, J/2], [J/2, 3J/4],
+    [3J/4, J], each step by more than 40 % of the rise b log(centre ratio)
+    that growth would give (b log(5/3) ≈ 0.51 b, b log(7/5) ≈ 0.34 b);
     geometric growth with beats between singularities rises and falls.
     """
     J = jj.size
@@ -282,13 +298,47 @@ def _confirm_factorial(jj: np.ndarray, dd: np.ndarray, p: int) -> bool:
     with np.errstate(divide="ignore"):
         logm = np.log(np.abs(dd))
     edges = [J // 4, J // 2, 3 * J // 4, J]
-    slopes = []
+    slopes, centres = [], []
     for lo, hi in zip(edges[:-1], edges[1:]):
         fit = _upper_fit(jj[lo:hi], logm[lo:hi])
         if fit is None:
             return False
         slopes.append(fit[1])
-    return bool(np.all(np.diff(slopes) > 0.2 * p))
+        centres.append(float(np.mean(jj[lo:hi])))
+    want = 0.4 * b * np.diff(np.log(centres))
+    return bool(np.all(np.diff(slopes) > want))
+
+
+#: A root-test radius (in the pattern variable) that drops below this fraction of its
+#: value from the first half of the coefficients, monotonically, is "shrinking".
+SHRINK_RATIO = 0.8
+
+
+def _shrinking_radius(jj: np.ndarray, dd: np.ndarray) -> tuple[float, float] | None:
+    """(radius from the first half, radius from all) when the root-test radius keeps shrinking.
+
+    The root-test radius ``exp(−slope)`` of the upper envelope of
+    ``log|d_j| + 1.5 log j`` over the second half of the first m coefficients,
+    for m = J/2, 3J/4, J.  A convergent series settles (its estimates move by
+    O(1/J)); factorial growth makes it fall like 1/J.  Returned only when it
+    falls at every step and by more than :data:`SHRINK_RATIO` overall.
+    """
+    J = jj.size
+    if J < 12:
+        return None
+    with np.errstate(divide="ignore"):
+        corr = np.log(np.abs(dd)) + 1.5 * np.log(jj)
+    radii = []
+    for m in (J // 2, 3 * J // 4, J):
+        lo = m // 2
+        fit = _upper_fit(jj[lo:m], corr[lo:m])
+        if fit is None:
+            return None
+        radii.append(float(np.exp(-fit[1])))
+    r = np.array(radii)
+    if np.all(np.isfinite(r)) and np.all(np.diff(r) < 0) and r[-1] < SHRINK_RATIO * r[0]:
+        return float(r[0]), float(r[-1])
+    return None
 
 
 def _upper_hull(x: np.ndarray, y: np.ndarray) -> np.ndarray:

@@ -14,16 +14,41 @@ import numpy as np
 import scipy.sparse as sp
 
 __all__ = [
+    "MAX_BASIS_SIZE",
+    "MAX_NONZEROS",
+    "MAX_ORDER",
+    "SERIES_MEMORY_BUDGET",
     "as_operator",
     "check_square_pair",
     "check_finite",
     "check_hermitian",
     "check_int",
+    "check_matrix_size",
+    "check_order",
     "check_positive",
     "check_choice",
     "as_couplings",
     "as_coupling",
 ]
+
+#: Highest perturbative order accepted anywhere (series, blocks, comparisons,
+#: validity boundaries, convergence diagnosis, command line).  The work grows
+#: like order² for a Rayleigh–Schrödinger series and faster for a block series
+#: (order 1000 of a two-level block already takes tens of seconds), so an order
+#: of 10⁶ would run for days: it is refused instead.
+MAX_ORDER = 1000
+
+#: Memory allowed for the state coefficients of one series, in bytes (2 GiB):
+#: ``(order + 1) x N x 16`` bytes (complex double) must not exceed it.
+SERIES_MEMORY_BUDGET = 2 * 2**30
+
+#: Largest basis size N accepted for a model (about 4.2 million states, four
+#: times the largest built-in spin chain).
+MAX_BASIS_SIZE = 2**22
+
+#: Largest number of stored entries of one sparse matrix (200 million: about
+#: 2.4 GB in CSR form).
+MAX_NONZEROS = 200_000_000
 
 
 def _is_qobj(x: Any) -> bool:
@@ -31,11 +56,67 @@ def _is_qobj(x: Any) -> bool:
     return mod.startswith("qutip") and hasattr(x, "full") and hasattr(x, "dims")
 
 
-def as_operator(x: Any, name: str) -> tuple[np.ndarray | sp.csr_matrix, list | None]:
+def _gb(n_bytes: float) -> str:
+    return f"{n_bytes / 1e9:.3g} GB"
+
+
+def _shape_of(x: Any) -> tuple | None:
+    """The shape an input declares without converting it (None if it has none)."""
+    shape = getattr(x, "shape", None)
+    if shape is None:
+        return None
+    try:
+        return tuple(int(d) for d in shape)
+    except (TypeError, ValueError):
+        return None
+
+
+def check_matrix_size(shape: tuple, name: str, *, dense: bool, max_dense: int | None = None, itemsize: int = 8) -> None:
+    """Refuse a matrix shape ptcheck cannot hold (checked before any copy is made).
+
+    At most :data:`MAX_BASIS_SIZE` rows and columns; a dense matrix (``dense``)
+    at most ``max_dense``; ``itemsize`` (bytes per entry) is used in the message.
+    """
+    if len(shape) != 2:
+        return  # the caller reports the wrong number of dimensions
+    n = max(shape)
+    if n > MAX_BASIS_SIZE:
+        raise ValueError(
+            f"{name} has shape {shape}: a basis of more than {MAX_BASIS_SIZE} states is beyond ptcheck's limit; "
+            "reduce the truncation or restrict the model to a symmetry sector"
+        )
+    if dense and max_dense is not None and n > max_dense:
+        raise ValueError(
+            f"{name} is a dense {shape[0]} x {shape[1]} matrix ({_gb(float(itemsize) * shape[0] * shape[1])}): dense "
+            f"matrices are accepted up to N = {max_dense}. Give it as a sparse matrix instead (scipy.sparse, e.g. "
+            "scipy.sparse.csr_array of its nonzero entries; a sparse qutip.Qobj; or a file written with "
+            "scipy.sparse.save_npz), with h0 diagonal"
+        )
+
+
+def as_operator(
+    x: Any, name: str, *, max_dense: int | None = None
+) -> tuple[np.ndarray | sp.csr_matrix, list | None]:
     """Convert a user matrix (ndarray, array_like, scipy.sparse, qutip.Qobj).
 
-    Returns the matrix (dense ndarray or CSR) and, for a ``Qobj``, its
-    subsystem dimensions (``None`` otherwise).
+    The size is checked before anything is converted or copied: at most
+    :data:`MAX_BASIS_SIZE` rows and columns, at most :data:`MAX_NONZEROS`
+    stored entries for a sparse matrix, and at most ``max_dense`` rows and
+    columns for a dense one.
+
+    Parameters
+    ----------
+    x : (N, N) array_like, scipy.sparse matrix or qutip.Qobj
+    name : str
+        Name used in error messages (``"h0"``, ``"v"``).
+    max_dense : int, optional
+        Largest N accepted for a dense matrix (no limit when None).
+
+    Returns
+    -------
+    matrix : (N, N) float or complex ndarray, or CSR matrix
+    dims : list of int or None
+        A ``Qobj``'s subsystem dimensions (``None`` otherwise).
     """
     dims = None
     if _is_qobj(x):
@@ -48,16 +129,29 @@ def as_operator(x: Any, name: str) -> tuple[np.ndarray | sp.csr_matrix, list | N
             is_dense = isinstance(x.data, qutip.data.Dense)
         except Exception:  # pragma: no cover - very old qutip
             is_dense = True
+        shape = _shape_of(x)
+        if shape is not None:
+            check_matrix_size(shape, name, dense=is_dense, max_dense=max_dense)
+            if not is_dense and _qobj_nnz(x) > MAX_NONZEROS:
+                raise ValueError(f"{name} has more than {MAX_NONZEROS} stored entries; ptcheck cannot hold it")
         x = x.full() if is_dense else x.to("csr").data_as("csr_matrix")
     if sp.issparse(x):
+        if x.ndim != 2:  # pragma: no cover - sparse is always 2-D
+            raise ValueError(f"{name} must be a 2-D matrix; got {x.ndim}-D")
+        check_matrix_size(tuple(x.shape), name, dense=False, max_dense=max_dense)
+        if x.nnz > MAX_NONZEROS:
+            raise ValueError(
+                f"{name} has {x.nnz} stored entries (shape {x.shape}); ptcheck accepts at most {MAX_NONZEROS}"
+            )
+        if not np.issubdtype(x.dtype, np.number) or x.dtype == np.bool_:
+            raise TypeError(f"{name} must hold numbers; got dtype {x.dtype}")
         m = sp.csr_matrix(x)
-        if m.ndim != 2:  # pragma: no cover - sparse is always 2-D
-            raise ValueError(f"{name} must be a 2-D matrix; got {m.ndim}-D")
-        if not np.issubdtype(m.dtype, np.number) or m.dtype == np.bool_:
-            raise TypeError(f"{name} must hold numbers; got dtype {m.dtype}")
         m = m.astype(np.result_type(m.dtype, np.float64), copy=False)
         m.sum_duplicates()
         return m, dims
+    shape = _shape_of(x)
+    if shape is not None:
+        check_matrix_size(shape, name, dense=True, max_dense=max_dense, itemsize=_itemsize(x))
     try:
         a = np.asarray(x)
     except Exception as exc:  # ragged lists and the like
@@ -66,8 +160,23 @@ def as_operator(x: Any, name: str) -> tuple[np.ndarray | sp.csr_matrix, list | N
         raise TypeError(f"{name} must hold numbers; got dtype {a.dtype}")
     if a.ndim != 2:
         raise ValueError(f"{name} must be a 2-D matrix; got shape {a.shape}")
+    check_matrix_size(a.shape, name, dense=True, max_dense=max_dense, itemsize=a.dtype.itemsize)
     a = a.astype(np.result_type(a.dtype, np.float64), copy=False)
     return a, dims
+
+
+def _itemsize(x: Any) -> int:
+    try:
+        return int(np.dtype(x.dtype).itemsize)
+    except Exception:  # no numpy dtype: assume float64
+        return 8
+
+
+def _qobj_nnz(x: Any) -> int:
+    try:
+        return int(x.data.num_elements if hasattr(x.data, "num_elements") else x.data.nnz)
+    except Exception:  # unknown data layer: the CSR conversion will tell
+        return 0
 
 
 def check_square_pair(h0: Any, v: Any) -> int:
@@ -101,26 +210,56 @@ def max_abs(m: Any) -> float:
     return float(np.max(np.abs(data))) if data.size else 0.0
 
 
-def check_hermitian(m: Any, name: str, rtol: float) -> None:
-    """Raise if ``m`` differs from its conjugate transpose by more than ``rtol`` x max|m|."""
-    scale = max_abs(m)
-    tol = rtol * max(scale, 1e-300)
+def check_hermitian(m: Any, name: str, rtol: float, *, scale: float = 0.0) -> None:
+    """Raise unless every entry of ``m`` matches the conjugate of its mirror entry.
+
+    Each pair is judged on its own scale::
+
+        |m[i,j] - conj(m[j,i])| <= rtol * max(|m[i,j]|, |m[j,i]|) + N * eps * S
+
+    where ``eps`` is the float64 machine epsilon and ``S = max(max|m|, scale)``:
+    the last term accepts the rounding noise of a matrix computed in floating
+    point (pass the scale of the other operator of the model as ``scale``, so
+    that noise on the scale of H0 is accepted in V).  A small entry is not
+    excused by a large one elsewhere: ``v[1,0] = 0.2`` with ``v[0,1] = 0.1`` is
+    refused even next to an entry ``1e10``.
+    """
+    n = int(m.shape[0])
+    big = max(max_abs(m), float(scale))
+    floor = n * np.finfo(float).eps * big
     if sp.issparse(m):
-        d = (m - m.conj().T).tocoo()
+        d = abs(m - m.conj().T).tocsr()
         if d.nnz == 0:
             return
-        k = int(np.argmax(np.abs(d.data)))
-        worst, i, j = float(abs(d.data[k])), int(d.row[k]), int(d.col[k])
+        a = abs(m)
+        excess = (d - rtol * a.maximum(a.T)).tocoo()
+        if excess.nnz == 0:
+            return
+        k = int(np.argmax(excess.data))
+        worst, i, j = float(excess.data[k]), int(excess.row[k]), int(excess.col[k])
+        if worst <= floor:
+            return
+        aij, aji = m[i, j], m[j, i]
     else:
-        d = np.abs(m - m.conj().T)
-        flat = int(np.argmax(d))
+        a = np.abs(m)
+        excess = np.abs(m - m.conj().T) - rtol * np.maximum(a, a.T)
+        flat = int(np.argmax(excess))
         i, j = divmod(flat, m.shape[1])
-        worst = float(d[i, j])
-    if worst > tol:
-        raise ValueError(
-            f"{name} is not Hermitian: |{name}[{i},{j}] - conj({name}[{j},{i}])| = {worst:.3g} "
-            f"(allowed {rtol:g} x max|{name}| = {tol:.3g})"
-        )
+        if float(excess[i, j]) <= floor:
+            return
+        aij, aji = m[i, j], m[j, i]
+    diff = abs(aij - np.conj(aji))
+    allowed = rtol * max(abs(aij), abs(aji)) + floor
+    raise ValueError(
+        f"{name} is not Hermitian: |{name}[{i},{j}] - conj({name}[{j},{i}])| = {diff:.3g} with "
+        f"{name}[{i},{j}] = {_num(aij)} and {name}[{j},{i}] = {_num(aji)} (allowed {allowed:.3g}: "
+        f"hermitian_rtol {rtol:g} of the larger of the two, plus rounding noise)"
+    )
+
+
+def _num(x: Any) -> str:
+    x = complex(x)
+    return f"{x.real:.6g}" if x.imag == 0 else f"{x:.6g}"
 
 
 def check_int(x: Any, name: str, *, minimum: int | None = None, maximum: int | None = None) -> int:
@@ -135,9 +274,38 @@ def check_int(x: Any, name: str, *, minimum: int | None = None, maximum: int | N
     return x
 
 
+def check_order(order: Any, *, n: int | None = None, minimum: int = 0, name: str = "order") -> int:
+    """A perturbative order: an int from ``minimum`` to :data:`MAX_ORDER` (1000).
+
+    With the basis size ``n`` given, the state coefficients of a series to
+    this order, ``(order + 1) x n x 16`` bytes, must also fit in
+    :data:`SERIES_MEMORY_BUDGET` (2 GiB).  Both limits are checked before any
+    work starts, so that a mistyped order fails at once instead of running for
+    hours or exhausting the memory.
+    """
+    k = check_int(order, name, minimum=minimum)
+    if k > MAX_ORDER:
+        raise ValueError(
+            f"{name} {k} is beyond the limit of {MAX_ORDER} orders (the work grows like the order squared); "
+            f"ask for at most {MAX_ORDER}"
+        )
+    if n is not None:
+        need = (k + 1) * int(n) * 16
+        if need > SERIES_MEMORY_BUDGET:
+            fit = max(SERIES_MEMORY_BUDGET // (16 * int(n)) - 1, 0)
+            raise ValueError(
+                f"{name} {k} on a basis of N = {n} states needs {_gb(need)} for the series coefficients, more than "
+                f"the budget of {_gb(SERIES_MEMORY_BUDGET)}; ask for at most order {fit} on this basis"
+            )
+    return k
+
+
 def check_positive(x: Any, name: str, *, allow_none: bool = False) -> float | None:
+    """A finite real number > 0 (bool, complex and strings refused)."""
     if x is None and allow_none:
         return None
+    if isinstance(x, (bool, np.bool_, str, bytes, complex, np.complexfloating)):
+        raise TypeError(f"{name} must be a positive number; got {x!r}")
     try:
         f = float(x)
     except (TypeError, ValueError):
@@ -174,6 +342,8 @@ def as_coupling(x: Any, name: str = "coupling") -> float:
 
 def as_couplings(x: Any, name: str = "couplings") -> np.ndarray:
     """1-D float array of finite couplings (a scalar becomes shape (1,))."""
+    if isinstance(x, (bool, np.bool_, str, bytes)) or getattr(x, "dtype", None) == np.bool_:
+        raise TypeError(f"{name} must be real numbers; got {x!r}")
     try:
         a = np.asarray(x, dtype=float)
     except (TypeError, ValueError):

@@ -58,7 +58,18 @@ _PADE_RE = re.compile(r"^\s*(?:pad[eé])\s*\[?\s*(\d+)\s*/\s*(\d+)\s*\]?\s*(@\s*
 
 
 def parse_order(spec: Any) -> OrderSpec:
-    """Normalise one order spec (int, :class:`Pade` or string) or raise ``ValueError``."""
+    """Normalise one order spec (int, :class:`Pade` or string) or raise ``ValueError``.
+
+    Orders above :data:`ptcheck._validation.MAX_ORDER` (1000) are refused, also
+    when a Padé approximant would need them.
+    """
+    out = _parse_order(spec)
+    if isinstance(out, Pade) and out.order > val.MAX_ORDER:
+        raise ValueError(f"{out} needs the series to order {out.order}, beyond the limit of {val.MAX_ORDER} orders")
+    return val.check_order(out) if not isinstance(out, Pade) else out
+
+
+def _parse_order(spec: Any) -> OrderSpec:
     if isinstance(spec, Pade):
         return spec
     if isinstance(spec, str):

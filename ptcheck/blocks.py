@@ -167,6 +167,13 @@ class Block:
         )
 
 
+def _require_model(model: Any, caller: str) -> None:
+    if not isinstance(model, Model):
+        shown = repr(model)
+        shown = shown if len(shown) <= 60 else shown[:57] + "..."
+        raise TypeError(f"{caller} needs a ptcheck Model as its first argument; got {type(model).__name__}: {shown}")
+
+
 def _resolve_levels(model: Model, levels: Any, name: str = "levels") -> list[int]:
     """Work indices of a list of level keys (ints or labels).
 
@@ -271,6 +278,7 @@ def find_blocks(
     >>> [b.levels for b in find_blocks(m, 0.5)]
     [(1, 2)]
     """
+    _require_model(model, "find_blocks")
     lam = val.as_coupling(coupling)
     threshold = float(val.check_positive(threshold, "threshold"))
     max_size = val.check_int(max_size, "max_size", minimum=1)
@@ -412,6 +420,7 @@ class BlockSeries:
     _guess: np.ndarray = field(repr=False)
     _guess_coupling: float = field(repr=False)
     _scale: float = field(repr=False)
+    _space: "_Space" = field(repr=False)
     _cache: dict = field(default_factory=dict, repr=False)
 
     treatment = "block"
@@ -452,8 +461,7 @@ class BlockSeries:
         e = val.as_coupling(energy, "energy")
         if self.method == "schrieffer-wolff":
             return self.coefficients
-        block = np.asarray(self.levels)
-        return _readonly(num.bw_matrices(self.model.e0, self.model.v, block, self.order, np.array([e]))[0])
+        return _readonly(self._space.bw_matrices(self.order, np.array([e]))[0])
 
     def effective_hamiltonian(self, coupling: float, order: int | None = None, *, level: Any = None, energy: float | None = None) -> np.ndarray:
         """``H_eff`` truncated at ``order`` at one coupling, shape ``(p, p)``.
@@ -488,7 +496,7 @@ class BlockSeries:
                 )
         else:
             energy = val.as_coupling(energy, "energy")
-        mats = num.bw_matrices(self.model.e0, self.model.v, np.asarray(self.levels), k, np.array([energy]))[0]
+        mats = self._space.bw_matrices(k, np.array([energy]))[0]
         h = num.evaluate_polynomial(mats, np.array([lam]))[0]
         return 0.5 * (h + h.conj().T)
 
@@ -511,15 +519,16 @@ class BlockSeries:
         key = ("solve", k, lam.tobytes())
         if key in self._cache:
             return self._cache[key]
-        heff = self._sw.heff[: k + 1]
+        heff = self._sw.heff[: k + 1]  # offset-free (E_P relative to the model's energy offset)
         tr = num.track_branches(heff, lam, self._guess, self._guess_coupling, self._scale)
         energies, vectors, ambiguous = tr.energies, tr.vectors, tr.ambiguous
         converged = np.ones(energies.shape, dtype=bool)
         if self.method == "brillouin-wigner" and k >= 2:
             p, c = energies.shape
             ref = np.transpose(vectors, (2, 0, 1)).reshape(p * c, p)  # (level, coupling) -> vector
+            sp_ = self._space
             sol = num.bw_solve(
-                self.model.e0, self.model.v, np.asarray(self.levels), k, np.tile(lam, p), energies.reshape(-1), ref,
+                sp_.e0, sp_.v, sp_.block, k, np.tile(lam, p), energies.reshape(-1), ref,
                 rtol=self.rtol, max_iter=self.max_iter, scale=self._scale,
             )
             energies = sol.energies.reshape(p, c)
@@ -528,7 +537,7 @@ class BlockSeries:
         out = BlockSolution(
             couplings=_readonly(lam.copy()),
             order=k,
-            energies=_readonly(np.real(energies).astype(float)),
+            energies=_readonly(np.real(energies).astype(float) + self._space.offset),
             vectors=_readonly(vectors),
             converged=_readonly(converged),
             ambiguous=ambiguous,
@@ -565,12 +574,14 @@ class BlockSeries:
         sol = self.solve(lam, k)
         self._warn(sol)
         p, c, n = self.size, lam.size, self.model.n
+        space = self._space
         if self.method == "schrieffer-wolff" or k < 2:
-            ul = num.isometry_at(self._sw, k, lam)  # (C, N, p)
-            psi = np.einsum("cnp,cpi->icn", ul, sol.vectors)
+            ul = num.isometry_at(self._sw, k, lam)  # (C, M, p) on the block's sectors
+            psi = space.embed(np.einsum("cnp,cpi->icn", ul, sol.vectors))
         else:
             phis = np.transpose(sol.vectors, (2, 0, 1)).reshape(p * c, p)
-            psi = num.bw_states(self.model.e0, self.model.v, np.asarray(self.levels), k, sol.energies.reshape(-1), np.tile(lam, p), phis)
+            rel = sol.energies.reshape(-1) - space.offset
+            psi = space.embed(num.bw_states(space.e0, space.v, space.block, k, rel, np.tile(lam, p), phis))
             psi = psi.reshape(p, c, n)
         norm = np.linalg.norm(psi, axis=2, keepdims=True)
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -709,6 +720,52 @@ class BlockLevelExpansion:
         return f"Level {html.escape(self.label)} in " + self.block._repr_html_()
 
 
+# ================================================================ sectors of a block
+@dataclass(frozen=True, eq=False)
+class _Space:
+    """Where a block's effective Hamiltonian lives: the sectors of its levels (private).
+
+    Levels of other sectors never couple to the block (V is exactly zero
+    between sectors), so the block numerics run on the block's sectors only
+    (no division by a cross-sector energy difference) and with offset-free
+    energies (``model.e0_relative``); ``offset`` is added back to energies.
+    """
+
+    levels: np.ndarray | None  # parent work indices of the kept levels (None: all)
+    e0: np.ndarray  # offset-free energies of the kept levels
+    v: Any  # V restricted to the kept levels
+    block: np.ndarray  # positions of the block's levels among the kept levels
+    offset: float
+    n: int  # parent basis size
+
+    @classmethod
+    def of(cls, model: Model, block: np.ndarray) -> "_Space":
+        secs = np.unique(model.level_sectors[block])
+        if secs.size == int(model.level_sectors.max()) + 1:
+            return cls(None, model.e0_relative, model.v, block, model.energy_offset, model.n)
+        if secs.size == 1:
+            sub = model.restrict(int(secs[0]))  # cached: e0 and V of the sector
+            keep = np.flatnonzero(model.level_sectors == secs[0])
+            return cls(keep, sub.e0_relative, sub.v, np.searchsorted(keep, block), model.energy_offset, model.n)
+        keep = np.flatnonzero(np.isin(model.level_sectors, secs))
+        v = model.v[keep][:, keep].tocsr() if sp.issparse(model.v) else model.v[np.ix_(keep, keep)]
+        return cls(keep, model.e0_relative[keep], v, np.searchsorted(keep, block), model.energy_offset, model.n)
+
+    def embed(self, psi: np.ndarray) -> np.ndarray:
+        """Vectors on the kept levels (last axis) as N-vectors of the model."""
+        if self.levels is None:
+            return psi
+        out = np.zeros(psi.shape[:-1] + (self.n,), dtype=psi.dtype)
+        out[..., self.levels] = psi
+        return out
+
+    def bw_matrices(self, order: int, energies: np.ndarray) -> np.ndarray:
+        """Brillouin–Wigner ``M_m(E)`` at absolute energies ``E``."""
+        mats = num.bw_matrices(self.e0, self.v, self.block, order, np.asarray(energies, dtype=float) - self.offset)
+        mats[:, 0] += self.offset * np.eye(self.block.size)
+        return mats
+
+
 # ================================================================ entry point
 def _check_block(model: Model, block: list[int]) -> None:
     members = set(block)
@@ -725,8 +782,9 @@ def _check_block(model: Model, block: list[int]) -> None:
                 f"degenerate groups. Add {missing} (group {list(grp)}).",
                 (min(n, m), max(n, m)),
             )
-    e0 = model.e0
-    in_q = np.ones(model.n, dtype=bool)
+    # levels of other sectors never mix with the block: equal energies there are no degeneracy
+    e0 = model.e0_relative
+    in_q = np.isin(model.level_sectors, np.unique(model.level_sectors[block]))
     in_q[block] = False
     if np.any(in_q):
         eq = e0[in_q]
@@ -817,16 +875,17 @@ def block_series(
     array([[-1.,  0.],
            [ 0.,  1.]])
     """
+    _require_model(model, "block_series")
     block = sorted(_resolve_levels(model, levels))
-    order = val.check_int(order, "order", minimum=0)
+    order = val.check_order(order, n=model.n)
     method = val.check_choice(method, "method", METHODS)
     rtol = float(val.check_positive(rtol, "rtol"))
     max_iter = val.check_int(max_iter, "max_iter", minimum=1)
     _check_block(model, block)
 
-    e0 = model.e0
     idx = np.asarray(block, dtype=int)
-    sw = num.sw_coefficients(e0, model.v, idx, order)
+    space = _Space.of(model, idx)
+    sw = num.sw_coefficients(space.e0, space.v, space.block, order)  # offset-free, on the block's sectors
     if sw.finite_order < order:
         raise FloatingPointError(
             f"the block effective Hamiltonian of {[model.label(i) for i in block]} overflows float64 at order "
@@ -842,17 +901,18 @@ def block_series(
         notes.append(msg)
         warnings.warn(msg, BlockWarning, stacklevel=2)
 
-    # scales: the gap to the rest of the spectrum, V's size on the block, energies
-    in_q = np.ones(model.n, dtype=bool)
-    in_q[idx] = False
-    gap = float(np.min(np.abs(e0[in_q][:, None] - e0[idx][None, :]))) if np.any(in_q) else np.inf
-    ep = e0[idx]
+    # scales: the gap to the rest of the block's sectors, V's size on the block, energies
+    e0 = space.e0
+    in_q = np.ones(e0.size, dtype=bool)
+    in_q[space.block] = False
+    ep = e0[space.block]
+    gap = float(np.min(np.abs(e0[in_q][:, None] - ep[None, :]))) if np.any(in_q) else np.inf
     intra = np.abs(ep[:, None] - ep[None, :])
     intra = intra[intra > model.degeneracy_tol]
     gaps = [g for g in (gap, float(np.min(intra)) if intra.size else np.inf) if np.isfinite(g)]
-    basis = np.zeros((model.n, idx.size))
-    basis[idx, np.arange(idx.size)] = 1.0
-    vcol = float(np.max(np.linalg.norm(np.asarray(model.v @ basis), axis=0)))
+    basis = np.zeros((e0.size, idx.size))
+    basis[space.block, np.arange(idx.size)] = 1.0
+    vcol = float(np.max(np.linalg.norm(np.asarray(space.v @ basis), axis=0)))
     # energy scale of the block (tolerances of the branch matching and of Brillouin–Wigner)
     escale = float(max(np.max(np.abs(ep)), np.ptp(ep), vcol, gap if np.isfinite(gap) else 0.0, np.finfo(float).tiny))
     if vcol > 0 and gaps:
@@ -879,12 +939,14 @@ def block_series(
             "energy at small positive coupling"
         )
 
+    absolute = sw.heff.copy()
+    absolute[0] += space.offset * np.eye(idx.size)
     if method == "schrieffer-wolff":
-        coefficients = sw.heff
+        coefficients = absolute
         residual = sw.residual
     else:
         coefficients = np.zeros_like(sw.heff)
-        coefficients[0] = sw.heff[0]
+        coefficients[0] = absolute[0]
         if order >= 1:
             coefficients[1] = sw.heff[1]
         residual = np.zeros(order + 1)
@@ -910,4 +972,5 @@ def block_series(
         _guess=guess,
         _guess_coupling=float(guess_coupling),
         _scale=escale,
+        _space=space,
     )

@@ -14,26 +14,42 @@ Exit status
     ``check``: at least one of them does not (or its relative error is
     undefined at that coupling).
 2
-    Bad input: unknown flags or values, a missing / malformed model file, an
-    unknown model or parameter, a non-Hermitian matrix, a different report
-    already in the output directory (use ``--force``).  One line on stderr.
-130
-    Interrupted (Ctrl-C); no partial report file is left behind.
+    Bad input: unknown flags or values, a missing / malformed / damaged model
+    file, an unknown model or parameter, a size or order beyond the limits, a
+    non-Hermitian matrix, λ = 0, an unusable output folder, a different report
+    already in the output folder (use ``--force``), another ptcheck writing
+    into the same folder at the same moment.  One line on stderr.
+3
+    Internal error: ptcheck itself failed (a bug, or out of memory).  One
+    line on stderr; no verdict was reached.  A script can tell it from 1.
+130, 143
+    Interrupted by SIGINT (Ctrl-C) or SIGTERM.  The output folder holds the
+    previous report or the new one, complete (the message says which).
+
+Every failure is one line on stderr starting with ``ptcheck: error:``, never
+a traceback.
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
+import signal
 import sys
 import textwrap
+import threading
 import warnings
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
+from .treatment import DEFAULT_TREATMENT, TREATMENTS
+
 __all__ = ["main", "build_parser", "DEMO_PARAMS"]
 
-EXIT_VALID, EXIT_NOT_VALID, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+EXIT_VALID, EXIT_NOT_VALID, EXIT_BAD_INPUT, EXIT_INTERNAL_ERROR = 0, 1, 2, 3
+#: SIGINT and SIGTERM: 128 + the signal number, as a shell reports them.
+EXIT_INTERRUPTED, EXIT_TERMINATED = 130, 143
 
 #: The invented demo device "Q-17": a transmon-like Kerr-ladder qubit and its
 #: readout resonator (GHz).  These numbers describe no real device.
@@ -48,10 +64,12 @@ DEMO_PARAMS = {
 
 _MAIN_EPILOG = """\
 exit status:
-  0  check: every order asked for meets the tolerance at the coupling (demo/models: done)
-  1  check: some order does not meet it
-  2  bad input (flags, model file, model, matrices, existing different report)
-  130 interrupted
+  0    check: every order asked for meets the tolerance at the coupling (demo/models: done)
+  1    check: some order does not meet it
+  2    bad input (flags, model file, model, matrices, output folder, existing different report)
+  3    internal error (a bug in ptcheck, or out of memory): no verdict
+  130  interrupted (Ctrl-C)
+  143  terminated (SIGTERM)
 
 examples:
   ptcheck demo --out q17-report
@@ -80,7 +98,7 @@ model file (TOML; see also `python -c "import ptcheck.modelfile as m; help(m)"`)
   orders = [2, 4]                        # every order listed is judged
   coupling = 1.0
   rtol = 0.01                            # or tol = 1e-4 (absolute, energy units)
-  treatment = "auto"
+  treatment = "standard"
   backend = "auto"
 
   [[quantity]]                           # derived quantities, any number
@@ -96,10 +114,13 @@ orders: 2, 4, pade2/2, pade2/2@2 (Padé in λ²).
 Give MODEL before the options that take several values (--levels, --orders, --format).
 
 output (in --out, default <MODEL name>-report): report.md (verdict, cautions, tables,
-figures), report.json (everything), comparison.csv, boundaries.csv, figures (*.png).
-A different existing report is not replaced without --force.
+figures), report.json (everything), comparison.csv, boundaries.csv, figures (*.png);
+with --formula also formula.tex, formula.py and formula*.png.
+The folder is replaced as a whole (never a mix of old and new files); a
+different existing report is not replaced without --force.
 
-exit status: 0 valid, 1 not valid, 2 bad input, 130 interrupted.
+exit status: 0 valid, 1 not valid, 2 bad input, 3 internal error,
+130 interrupted, 143 terminated.
 """
 
 
@@ -127,7 +148,8 @@ def build_parser() -> argparse.ArgumentParser:
         description=_wrap("Run the full check on the invented device Q-17 (a transmon-like qubit with a readout "
                           "resonator; invented numbers) and write the report with figures."),
         formatter_class=argparse.RawDescriptionHelpFormatter,
-        epilog="exit status: 0 when the report was written (whatever its verdict), 2 on bad input.",
+        epilog="exit status: 0 when the report was written (whatever its verdict), 2 on bad input, "
+               "3 on an internal error, 130/143 when interrupted/terminated.",
     )
     d.add_argument("--out", metavar="DIR", default="ptcheck-demo", help="output directory (default: %(default)s)")
     d.add_argument("--force", action="store_true", help="replace a different report already in DIR")
@@ -152,14 +174,18 @@ def build_parser() -> argparse.ArgumentParser:
     tg.add_argument("--tol", type=float, metavar="X", help="absolute tolerance (energy units of H0)")
     tg.add_argument("--rtol", type=float, metavar="X", help="relative tolerance (default 0.01: 1 %% of the exact shift)")
     c.add_argument("--coupling", type=float, metavar="λ", help="the coupling you use (dimensionless); required here or in MODEL")
-    c.add_argument("--treatment", choices=("auto", "nondegenerate", "block"),
-                   help="perturbative treatment (default: auto = block for near-degenerate levels)")
+    c.add_argument("--treatment", choices=TREATMENTS,
+                   help="perturbation theory judged (default: standard = the textbook series; degenerate perturbation "
+                        "theory inside exactly degenerate groups); block/auto ask for near-degenerate blocks")
     c.add_argument("--backend", metavar="NAME", help="exact solver: auto, dense, sparse, qutip (default: auto)")
     c.add_argument("--out", metavar="DIR", help="output directory (default: <MODEL name>-report)")
     c.add_argument("--format", nargs="+", choices=("json", "md", "csv"), metavar="FMT",
                    help="report formats among json, md, csv (default: all three)")
     c.add_argument("--force", action="store_true", help="replace a different report already in DIR")
     c.add_argument("--no-figures", action="store_true", help="write no figures")
+    c.add_argument("--formula", action="store_true",
+                   help="also write formula.tex, formula.py and the formula figure: each target's formula at each "
+                        "order judged, with the range where it meets the tolerance")
 
     sub.add_parser("models", help="list the built-in models and their parameters",
                    description="List the built-in models (for `builtin = ...` in a model file) and their parameters.")
@@ -222,11 +248,59 @@ def _cmd_models() -> int:
     return EXIT_VALID
 
 
-def _cmd_check(a: argparse.Namespace) -> int:
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM, raised in the main thread so that clean-up code runs as for Ctrl-C."""
+
+
+class _Output:
+    """Where this run writes its report, and the fingerprint of that report once computed.
+
+    Used to say truthfully what an interrupt left in the output folder.
+    """
+
+    def __init__(self, given: str, target: Path) -> None:
+        self.given = given
+        self.target = target
+        self.fingerprint: str | None = None
+        self.before: str | None = None
+
+
+class _Run:
+    """What one run of the command line has set up so far (for the message after an interrupt)."""
+
+    def __init__(self) -> None:
+        self.out: _Output | None = None
+
+
+def _out_dir(given: str | None, default: str) -> str:
+    if given is not None and not given.strip():
+        raise ValueError(f"--out is empty; give the report folder, e.g. --out {default}")
+    return default if given is None else given
+
+
+def _prepare_output(given: str) -> _Output:
+    """Check the output folder before any work (empty name, a file, the current folder, foreign files)."""
+    from .report import check_out_dir, read_fingerprint
+
+    out = _Output(given, check_out_dir(given))
+    out.before = read_fingerprint(out.target)
+    return out
+
+
+def _write(report: Any, out: _Output, **kw: Any) -> list[Path]:
+    from .report import report_fingerprint, write_report
+
+    out.fingerprint = report_fingerprint(report)
+    return write_report(report, out.target, **kw)
+
+
+def _cmd_check(a: argparse.Namespace, run: _Run) -> int:
     from .approximants import parse_orders
     from .modelfile import load_model_file, parse_level, parse_quantity
-    from .report import run_check, write_report
+    from .report import run_check
 
+    given = _out_dir(a.out, f"{Path(a.model).stem}-report")
+    out = run.out = _prepare_output(given)
     mf = load_model_file(a.model)
     model = mf.model
     levels: list[Any] = [parse_level(x) for x in a.levels] if a.levels else list(mf.levels)
@@ -236,13 +310,15 @@ def _cmd_check(a: argparse.Namespace) -> int:
     coupling = a.coupling if a.coupling is not None else mf.coupling
     if coupling is None:
         raise ValueError("no coupling given: pass --coupling λ or set coupling in the [check] table of the model file")
+    if coupling == 0:
+        raise ValueError("the coupling is 0: at λ = 0 every order is exact, there is nothing to check; give the coupling "
+                         "you use (--coupling λ)")
     if a.tol is not None or a.rtol is not None:
         tol, rtol = a.tol, a.rtol
     else:
         tol, rtol = mf.tol, mf.rtol
-    treatment = a.treatment or mf.treatment or "auto"
+    treatment = a.treatment or mf.treatment or DEFAULT_TREATMENT
     backend = a.backend or mf.backend or "auto"
-    out = Path(a.out) if a.out else Path(f"{Path(a.model).stem}-report")
     source = {"model_file": str(a.model), "kind": mf.kind}
     with _progress_bar("checking") as bar:
         report = run_check(
@@ -250,18 +326,27 @@ def _cmd_check(a: argparse.Namespace) -> int:
             backend=backend, builder=mf.builder, params=dict(mf.params) if mf.builder else None, source=source,
             title=mf.title, progress=bar,
         )
-    files = write_report(report, out, formats=a.format or ("json", "md", "csv"), figures=not a.no_figures, force=a.force)
-    _print_summary(report, files, out)
+    if a.formula:
+        from dataclasses import replace
+
+        from .formula_report import report_formulas
+
+        with _progress_bar("formulas") as bar:
+            report = replace(report, extras={**report.extras, "formulas": report_formulas(report, progress=bar)})
+    files = _write(report, out, formats=a.format or ("json", "md", "csv"), figures=not a.no_figures, force=a.force)
+    _print_summary(report, files, Path(given))
     return report.exit_status
 
 
-def _cmd_demo(a: argparse.Namespace) -> int:
+def _cmd_demo(a: argparse.Namespace, run: _Run) -> int:
     import numpy as np
 
     from .models import kerr_qubit_resonator
     from .quantities import dispersive_shift, stark_shift
-    from .report import run_check, write_report
+    from .report import run_check
 
+    given = _out_dir(a.out, "ptcheck-demo")
+    out = run.out = _prepare_output(given)
     model = kerr_qubit_resonator(**DEMO_PARAMS)
     model.name = "Q-17 qubit + readout resonator (invented)"
     lamb = stark_shift((1, 0), (0, 0), name="qubit Lamb shift", units="GHz")
@@ -294,17 +379,74 @@ def _cmd_demo(a: argparse.Namespace) -> int:
                 progress=bar,
             )
         report = replace(report, extras={**report.extras, "validity_map": vm, "validity_map_mark": (p["omega_r"], 1.0)})
-    out = Path(a.out)
-    files = write_report(report, out, figures=not a.no_figures, force=a.force)
-    _print_summary(report, files, out)
+    files = _write(report, out, figures=not a.no_figures, force=a.force)
+    _print_summary(report, files, Path(given))
     return EXIT_VALID
 
 
 # ---------------------------------------------------------------------- entry point
-def main(argv: Sequence[str] | None = None) -> int:
-    """Run the command line; return the exit status (see the module docstring)."""
+def _interrupted(exc: KeyboardInterrupt, run: _Run) -> int:
+    """One truthful line about what the output folder holds after an interrupt."""
+    from .report import read_fingerprint
+
+    what = "terminated" if isinstance(exc, _Terminated) else "interrupted"
+    out = run.out
+    if out is None:
+        _err(f"{what}; nothing was written")
+    else:
+        now = read_fingerprint(out.target)
+        where = repr(out.given)
+        if out.fingerprint is not None and now == out.fingerprint and out.before == now:
+            _err(f"{what}; {where} holds a complete report of these same settings and results")
+        elif out.fingerprint is not None and now == out.fingerprint:
+            _err(f"{what} after the report was written: {where} holds the new report, complete")
+        elif now is not None:
+            _err(f"{what} before the report was written: {where} still holds the previous report, unchanged")
+        else:
+            _err(f"{what} before the report was written; nothing was written to {where}")
+    return EXIT_TERMINATED if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
+
+
+def _raise_terminated(signum: int, frame: Any) -> None:
+    raise _Terminated()
+
+
+@contextlib.contextmanager
+def _signal_handlers() -> Iterator[None]:
+    """Ctrl-C raises KeyboardInterrupt and SIGTERM raises _Terminated while main runs (main thread only)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = {sig: signal.getsignal(sig) for sig in (signal.SIGINT, signal.SIGTERM)}
+    signal.signal(signal.SIGINT, signal.default_int_handler)
+    signal.signal(signal.SIGTERM, _raise_terminated)
+    try:
+        yield
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler if handler is not None else signal.SIG_DFL)
+
+
+def _bad_input_types() -> tuple[type[BaseException], ...]:
     import tomllib
 
+    return (ValueError, TypeError, OSError, tomllib.TOMLDecodeError, FloatingPointError, OverflowError)
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; return the exit status (see the module docstring)."""
+    run = _Run()
+    try:
+        with _signal_handlers():
+            try:
+                return _main(argv, run)
+            except KeyboardInterrupt as exc:
+                return _interrupted(exc, run)
+    except KeyboardInterrupt as exc:  # a second signal while the first one was being reported
+        return EXIT_TERMINATED if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
+
+
+def _main(argv: Sequence[str] | None, run: _Run) -> int:
     parser = build_parser()
     try:
         a = parser.parse_args(argv)
@@ -319,11 +461,16 @@ def main(argv: Sequence[str] | None = None) -> int:
             if a.command == "models":
                 return _cmd_models()
             if a.command == "demo":
-                return _cmd_demo(a)
-            return _cmd_check(a)
-        except KeyboardInterrupt:
-            _err("interrupted; no partial report was written")
-            return EXIT_INTERRUPTED
-        except (ValueError, TypeError, OSError, tomllib.TOMLDecodeError, ArithmeticError) as exc:
+                return _cmd_demo(a, run)
+            return _cmd_check(a, run)
+        except MemoryError as exc:
+            _err(f"internal error: out of memory ({exc or 'no detail'}); no verdict. Ask for a smaller basis or "
+                 "fewer orders")
+            return EXIT_INTERNAL_ERROR
+        except _bad_input_types() as exc:
             _err(exc)
             return EXIT_BAD_INPUT
+        except Exception as exc:  # a bug: one line, a distinct status, never a traceback
+            _err(f"internal error: {type(exc).__name__}: {exc} (no verdict). This is a bug in ptcheck: please "
+                 "report it with the command that caused it")
+            return EXIT_INTERNAL_ERROR

@@ -1,40 +1,85 @@
 """Perturbative vs exact, side by side: errors per order and validity boundaries.
 
 :func:`compare` evaluates every target (level or derived quantity) × order ×
-coupling against tracked exact levels.  :func:`validity_boundary` finds the
-smallest |λ| along a direction at which one order stops meeting a tolerance,
-by bracketing and Brent's method on the error, with the first bracket placed
-by the size of the next series term.
+coupling against exact levels.  :func:`validity_boundary` finds the smallest
+|λ| along a direction at which one order stops meeting a tolerance, by
+bracketing and Brent's method on the error, with the first bracket placed by
+the size of the next series term.
+
+Both answer the question asked: the treatment of each level is decided once,
+in :mod:`ptcheck.treatment` (default ``"standard"``: the non-degenerate
+Rayleigh–Schrödinger series, or degenerate perturbation theory for a level in
+an exactly degenerate group), and recorded per target with its reason.  A
+better alternative (a near-degenerate block when a partner limits the series)
+is reported beside the answer as a :class:`~ptcheck.treatment.Suggestion`,
+never in its place.  Which exact state carries a level's label is decided in
+:mod:`ptcheck.pairing`.  Errors are computed from shifts ``E(λ) − E(0)``, so
+they do not change when a constant is added to ``H0``.
 """
 
 from __future__ import annotations
 
+import contextlib
 import html
 import math
 import warnings
-from collections.abc import Sequence
-from dataclasses import dataclass, field
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
 from scipy.optimize import brentq
+from scipy.sparse.linalg import ArpackError, ArpackNoConvergence
 
 from . import _validation as val
+from . import pairing
 from .approximants import OrderSpec, Pade, order_name, parse_order, parse_orders, required_order
-from .degeneracy import DEFAULT_MIXING_THRESHOLD, mixing_ratios
+from .degeneracy import DEFAULT_MIXING_THRESHOLD
 from .errors import AccuracyWarning
 from .exact import ExactSolver
 from .model import Model
 from .quantities import Quantity
-from .treatment import TREATMENTS, expansions
+from .treatment import (
+    DEFAULT_TREATMENT,
+    EXACT_IN_SECTOR,
+    NEAR_DEGENERATE,
+    NONDEGENERATE,
+    CheckSettings,
+    PadeUnavailableError,
+    Suggestion,
+    expansion_map,
+    limiting_partner,
+    require_model,
+    smallest_block,
+    whole_sector,
+)
 
-__all__ = ["ComparisonResult", "ValidityBoundary", "compare", "validity_boundary", "TRUNCATION_NOTE"]
+__all__ = [
+    "ComparisonResult",
+    "ValidityBoundary",
+    "compare",
+    "validity_boundary",
+    "TRUNCATION_NOTE",
+    "MAX_COUPLING_ENERGY",
+    "BOUNDARY_STATUSES",
+]
 
 TRUNCATION_NOTE = (
     "Exact values are exact for the matrices given. If the basis is a truncation of a larger "
     "(or infinite) one, check that the levels you use are converged in the truncation before "
     "relying on these numbers (e.g. ptcheck.models.truncation_check)."
 )
+
+#: Largest |λ| ‖V‖ (energy units, relative to the spectral scale of H0) accepted: beyond it
+#: squares of matrix entries overflow float64 inside the eigensolvers.
+MAX_COUPLING_ENERGY = 1e150
+
+#: Status values of :class:`ValidityBoundary`.
+BOUNDARY_STATUSES = ("found", "not_reached", "fails_at_zero", "ill_defined", "exact_in_sector")
+
+#: Error assigned where the pairing of perturbative and exact states is ambiguous
+#: (the order is counted as failing there; finite so that Brent's method stays defined).
+_AMBIGUOUS_ERROR = 1e300
 
 
 def _ro(a: Any) -> np.ndarray:
@@ -50,6 +95,7 @@ class _Target:
     weights: dict  # work level index -> weight
     is_level: bool
     relative_to: str  # "shift" or "value"
+    presents: str  # "shift" or "value"
 
 
 def _resolve_targets(model: Model, levels: Any) -> list[_Target]:
@@ -57,10 +103,10 @@ def _resolve_targets(model: Model, levels: Any) -> list[_Target]:
     for key in val.as_sequence(levels):
         if isinstance(key, Quantity):
             w = key.resolve(model)
-            out.append(_Target(key.name, w, False, key.relative_to))
+            out.append(_Target(key.name, w, False, key.relative_to, "shift" if key.relative_to == "shift" else "value"))
         else:
             n = model.level_index(key)
-            out.append(_Target(model.label(n), {n: 1.0}, True, "shift"))
+            out.append(_Target(model.label(n), {n: 1.0}, True, "shift", "value"))
     if not out:
         raise ValueError("levels is empty; give at least one level or quantity")
     return out
@@ -85,16 +131,45 @@ def _combine(targets: Sequence[_Target], per_level: dict[int, np.ndarray]) -> np
     return np.stack(rows)
 
 
-def _relative(abs_err: np.ndarray, exact: np.ndarray, unperturbed: np.ndarray, relative_to: Sequence[str], scale: float):
-    """Relative error per target; NaN where the reference passes through ~0."""
-    ref = np.empty_like(exact)
-    for i, r in enumerate(relative_to):
-        ref[i] = np.abs(exact[i] - unperturbed[i]) if r == "shift" else np.abs(exact[i])
-    tiny = 1e-12 * max(scale, 1e-300)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        rel = abs_err / ref[:, None, :]
-    rel = np.where(ref[:, None, :] > tiny, rel, np.nan)
-    return rel
+def _unperturbed(model: Model, t: _Target) -> float:
+    return float(sum(w * model.e0[n] for n, w in t.weights.items()))
+
+
+def _check_coupling_range(model: Model, largest: float, name: str = "coupling") -> None:
+    """Refuse couplings for which H(λ) overflows float64 arithmetic in the eigensolvers."""
+    scale = float(max(np.max(np.abs(model.e0)), np.ptp(model.e0), 1.0))
+    size = abs(largest) * model.norm_v
+    if not np.isfinite(size) or size > MAX_COUPLING_ENERGY * scale:
+        limit = MAX_COUPLING_ENERGY * scale / model.norm_v if model.norm_v > 0 else math.inf
+        raise ValueError(
+            f"{name} {largest:g} is too large: |λ| ‖V‖ = {size:.3g} overflows float64 arithmetic in the exact "
+            f"eigensolvers; use |λ| <= {limit:.3g} for this model"
+        )
+
+
+@contextlib.contextmanager
+def _solver_guard(what: str) -> Iterator[None]:
+    """Turn an eigensolver failure into a clear ValueError."""
+    try:
+        yield
+    except (np.linalg.LinAlgError, ArpackError, ArpackNoConvergence) as exc:
+        raise ValueError(f"the exact eigensolver failed {what}: {exc}") from None
+
+
+def _combined_treatment(exps: dict, t: _Target) -> str:
+    kinds = list(dict.fromkeys(exps[n].treatment for n in t.weights))
+    return kinds[0] if len(kinds) == 1 else "mixed"
+
+
+def _combined_reason(model: Model, exps: dict, t: _Target) -> str:
+    if t.is_level:
+        (n,) = t.weights
+        return exps[n].reason
+    return "; ".join(f"{model.label(n)}: {exps[n].reason}" for n in t.weights)
+
+
+def _exact_in_sector(exps: dict, t: _Target) -> bool:
+    return all(exps[n].exact_in_sector for n in t.weights)
 
 
 # ---------------------------------------------------------------------- compare
@@ -118,21 +193,25 @@ class ComparisonResult:
     unperturbed : (T,) ndarray
         Value at λ = 0 (energy units).
     exact : (T, C) ndarray
-        Exact value (tracked levels), energy units.
+        Exact value (energy units); NaN where the pairing is ambiguous.
     perturbative : (T, O, C) ndarray
-        Perturbative value for each order spec.
+        Perturbative value for each order spec; NaN where an order spec is not
+        available for the target's treatment (see ``notes``).
     abs_error : (T, O, C) ndarray
-        ``|perturbative - exact|`` (energy units).
+        ``|perturbative - exact|`` (energy units), computed from the shifts
+        ``E(λ) − E(0)`` of both sides.
     rel_error : (T, O, C) ndarray
-        ``abs_error`` divided by ``|exact - unperturbed|`` for levels (the exact
-        shift) or by the reference the quantity names; NaN where that
-        reference is ~0 (a relative error is meaningless there).
+        ``abs_error`` divided by the exact shift ``|exact - unperturbed|`` for
+        levels and for quantities with ``relative_to="shift"``, by ``|exact|``
+        for quantities with ``relative_to="value"``; NaN where that reference
+        is ~0 (a relative error is meaningless there).
     infidelity : (T, O, C) ndarray
         ``1 - |⟨ψ_pt|ψ_exact⟩|²`` for level targets and truncation orders;
         NaN for Padé approximants and derived quantities.
     treatments : tuple of str
-        Treatment used for each target (``"nondegenerate"``, ``"block"``, or
-        ``"mixed"`` for a quantity whose levels use both).
+        Treatment used for each target: ``"nondegenerate"``, ``"degenerate"``,
+        ``"near-degenerate block"``, or ``"mixed"`` for a quantity whose levels
+        use several.
     avoided_crossings : tuple
         Avoided crossings met by the tracked exact levels.
     backend : str
@@ -140,7 +219,30 @@ class ComparisonResult:
     exact_solves : int
         Number of exact diagonalisations.
     notes : tuple of str
-        Cautions in plain words (basis truncation, forced treatments, ...).
+        Cautions in plain words (basis truncation, treatments, pairing, ...).
+    reasons : tuple of str
+        Why each target got its treatment (length T).
+    presents : tuple of str
+        ``"shift"`` when the target presents its shift ``E(λ) − E(0)``
+        (quantities with ``relative_to="shift"``), else ``"value"``.
+    exact_presented : (T, C) ndarray
+        The exact shift or value, as ``presents`` says (energy units).
+    perturbative_presented : (T, O, C) ndarray
+        The perturbative shift or value, as ``presents`` says.
+    ambiguous : (T, C) bool ndarray
+        The pairing of perturbative and exact states had no clear winner for
+        some level of the target (values there are NaN).
+    exact_in_sector : tuple of bool
+        Every level of the target is treated in a block that is a whole
+        invariant sector: its "orders" are exact diagonalisation.
+    suggestions : tuple of Suggestion
+        Near-degenerate blocks that would fix a partner limiting a target's
+        series at the coupling of interest (beside the answer, not in it).
+    choices : tuple of TreatmentChoice
+        The treatment of every level used (including the other members of
+        their groups), with its reason.
+    coupling : float
+        Coupling of interest |λ| used for near-degeneracy judgements.
     """
 
     model_name: str
@@ -160,6 +262,15 @@ class ComparisonResult:
     backend: str
     exact_solves: int
     notes: tuple = field(default=())
+    reasons: tuple = field(default=())
+    presents: tuple = field(default=())
+    exact_presented: np.ndarray | None = None
+    perturbative_presented: np.ndarray | None = None
+    ambiguous: np.ndarray | None = None
+    exact_in_sector: tuple = field(default=())
+    suggestions: tuple = field(default=())
+    choices: tuple = field(default=())
+    coupling: float = math.nan
 
     @property
     def order_names(self) -> tuple[str, ...]:
@@ -188,10 +299,14 @@ class ComparisonResult:
         return (
             f"ComparisonResult(model={self.model_name!r}, targets={list(self.targets)}, "
             f"orders={list(self.order_names)}, couplings={self.couplings.size} in "
-            f"[{self.couplings.min():.3g}, {self.couplings.max():.3g}], backend={self.backend!r})"
+            f"[{self.couplings.min():.3g}, {self.couplings.max():.3g}], treatments={list(self.treatments)}, "
+            f"backend={self.backend!r})"
         )
 
     def to_dict(self) -> dict:
+        def nn(a: np.ndarray) -> list:
+            return np.where(np.isnan(a), None, a).tolist()
+
         return {
             "model": self.model_name,
             "n": self.n,
@@ -200,12 +315,21 @@ class ComparisonResult:
             "orders": list(self.order_names),
             "couplings": self.couplings.tolist(),
             "unperturbed": self.unperturbed.tolist(),
-            "exact": self.exact.tolist(),
-            "perturbative": self.perturbative.tolist(),
-            "abs_error": self.abs_error.tolist(),
-            "rel_error": np.where(np.isnan(self.rel_error), None, self.rel_error).tolist(),
-            "infidelity": np.where(np.isnan(self.infidelity), None, self.infidelity).tolist(),
+            "exact": nn(self.exact),
+            "perturbative": nn(self.perturbative),
+            "abs_error": nn(self.abs_error),
+            "rel_error": nn(self.rel_error),
+            "infidelity": nn(self.infidelity),
             "treatments": list(self.treatments),
+            "reasons": list(self.reasons),
+            "presents": list(self.presents),
+            "exact_presented": None if self.exact_presented is None else nn(self.exact_presented),
+            "perturbative_presented": None if self.perturbative_presented is None else nn(self.perturbative_presented),
+            "ambiguous": None if self.ambiguous is None else self.ambiguous.tolist(),
+            "exact_in_sector": list(self.exact_in_sector),
+            "suggestions": [s.to_dict() for s in self.suggestions],
+            "choices": [c.to_dict() for c in self.choices],
+            "coupling": self.coupling if math.isfinite(self.coupling) else str(self.coupling),
             "avoided_crossings": [a.to_dict() for a in self.avoided_crossings],
             "backend": self.backend,
             "exact_solves": self.exact_solves,
@@ -213,9 +337,15 @@ class ComparisonResult:
         }
 
     def to_rows(self) -> list[dict]:
-        """Long-format table: one row per target × order × coupling (for CSV)."""
+        """Long-format table: one row per target × order × coupling (for CSV).
+
+        ``exact_presented`` / ``perturbative_presented`` hold the shift for a
+        target that presents its shift (``presents`` column), else the value;
+        ``unperturbed`` is the value at λ = 0 beside them.
+        """
         rows = []
         for ti, t in enumerate(self.targets):
+            pres = self.presents[ti] if self.presents else "value"
             for oi, o in enumerate(self.order_names):
                 for ci, lam in enumerate(self.couplings):
                     rows.append(
@@ -224,11 +354,16 @@ class ComparisonResult:
                             "order": o,
                             "treatment": self.treatments[ti],
                             "coupling": float(lam),
+                            "presents": pres,
+                            "unperturbed": float(self.unperturbed[ti]),
+                            "exact_presented": float(self.exact_presented[ti, ci]) if self.exact_presented is not None else float(self.exact[ti, ci]),
+                            "perturbative_presented": float(self.perturbative_presented[ti, oi, ci]) if self.perturbative_presented is not None else float(self.perturbative[ti, oi, ci]),
                             "exact": float(self.exact[ti, ci]),
                             "perturbative": float(self.perturbative[ti, oi, ci]),
                             "abs_error": float(self.abs_error[ti, oi, ci]),
                             "rel_error": float(self.rel_error[ti, oi, ci]),
                             "infidelity": float(self.infidelity[ti, oi, ci]),
+                            "ambiguous": bool(self.ambiguous[ti, ci]) if self.ambiguous is not None else False,
                         }
                     )
         return rows
@@ -237,22 +372,20 @@ class ComparisonResult:
         head = "".join(f"<th>{html.escape(o)}</th>" for o in self.order_names)
         body = ""
         for ti, t in enumerate(self.targets):
-            cells = "".join(f"<td>{np.nanmax(self.abs_error[ti, oi]):.3g}</td>" for oi in range(len(self.orders)))
-            body += f"<tr><td>{html.escape(t)} ({self.treatments[ti]})</td>{cells}</tr>"
+            cells = "".join(
+                f"<td>{np.nanmax(self.abs_error[ti, oi]) if np.any(np.isfinite(self.abs_error[ti, oi])) else float('nan'):.3g}</td>"
+                for oi in range(len(self.orders))
+            )
+            body += f"<tr><td>{html.escape(t)} ({html.escape(self.treatments[ti])})</td>{cells}</tr>"
         notes = "".join(f"<li>{html.escape(n)}</li>" for n in self.notes)
+        sugg = "".join(f"<li>{html.escape(s.text)}</li>" for s in self.suggestions)
         return (
             f"<b>Comparison</b> for model {html.escape(self.model_name)} (N = {self.n}), "
             f"{self.couplings.size} couplings in [{self.couplings.min():.3g}, {self.couplings.max():.3g}]"
-            f"<table><tr><th>max |error|</th>{head}</tr>{body}</table><ul>{notes}</ul>"
+            f"<table><tr><th>max |error|</th>{head}</tr>{body}</table>"
+            + (f"<p>Suggestions:</p><ul>{sugg}</ul>" if sugg else "")
+            + f"<ul>{notes}</ul>"
         )
-
-
-def _treatment_names(targets: Sequence[_Target], exps: dict[int, Any]) -> tuple[str, ...]:
-    out = []
-    for t in targets:
-        kinds = {exps[n].treatment for n in t.weights}
-        out.append(kinds.pop() if len(kinds) == 1 else "mixed")
-    return tuple(out)
 
 
 def compare(
@@ -261,7 +394,7 @@ def compare(
     orders: Any,
     couplings: Any,
     *,
-    treatment: str = "auto",
+    treatment: str = DEFAULT_TREATMENT,
     backend: str = "auto",
     threshold: float = DEFAULT_MIXING_THRESHOLD,
     method: str = "schrieffer-wolff",
@@ -276,20 +409,23 @@ def compare(
         Energy ranks (int), labels (e.g. ``(1, 0)``) or :class:`Quantity` objects.
         A tuple is one label; pass several levels as a list.
     orders : int, Pade, str, or list of them
-        Order specs (see :mod:`ptcheck.approximants`).
+        Order specs (see :mod:`ptcheck.approximants`).  A Padé spec is built from
+        the shift series; it is not available for a level treated with an
+        effective Hamiltonian (those entries are NaN, with a note).
     couplings : float or (C,) array_like
         Couplings λ at which to compare.
-    treatment : {"auto", "nondegenerate", "block"}
-        See :mod:`ptcheck.treatment`; ``"auto"`` judges near-degeneracy at
-        ``coupling`` (default: the largest |λ| compared).
+    treatment : {"standard", "nondegenerate", "block", "auto"}, default "standard"
+        See :mod:`ptcheck.treatment`: "standard" is the textbook series
+        (degenerate perturbation theory inside exactly degenerate groups);
+        "block"/"auto" ask for near-degenerate blocks judged at ``coupling``.
     backend : {"auto", "dense", "sparse", "qutip"}
         Exact solver.
     threshold : float
-        Mixing-ratio threshold for ``"auto"``.
-    method : str
-        Block method for block-treated levels.
+        Mixing-ratio threshold (near-degenerate blocks, notes, suggestions).
+    method : {"schrieffer-wolff", "brillouin-wigner"}
+        Method of near-degenerate blocks.
     coupling : float, optional
-        Coupling of interest for the ``"auto"`` choice.
+        Coupling of interest (default: the largest |λ| compared).
 
     Returns
     -------
@@ -301,84 +437,181 @@ def compare(
     >>> from ptcheck import Model, compare
     >>> m = Model(np.diag([-0.5, 0.5]), [[0, 0.2], [0.2, 0]])
     >>> r = compare(m, [0], [2, 4], [0.1, 0.5])
-    >>> r.abs_error.shape
-    (1, 2, 2)
+    >>> r.abs_error.shape, r.treatments
+    ((1, 2, 2), ('nondegenerate',))
     """
+    require_model(model, "compare")
     targets = _resolve_targets(model, levels)
     specs = parse_orders(orders)
     lam = val.as_couplings(couplings)
-    treatment = val.check_choice(treatment, "treatment", TREATMENTS)
-    threshold = float(val.check_positive(threshold, "threshold"))
-    if coupling is None:
-        coupling = float(np.max(np.abs(lam)))
-    else:
+    _check_coupling_range(model, float(np.max(np.abs(lam))), "couplings reach")
+    if coupling is not None:
         coupling = val.as_coupling(coupling)
-    max_order = max(required_order(s) for s in specs)
+        _check_coupling_range(model, coupling)
+    settings = CheckSettings(
+        treatment=treatment, backend=backend, threshold=threshold, method=method,
+        coupling=float(np.max(np.abs(lam))) if coupling is None else coupling,
+    )
+    return _compare(model, levels, targets, specs, lam, settings)
+
+
+def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam: np.ndarray, s: CheckSettings) -> ComparisonResult:
+    max_order = max(required_order(sp_) for sp_ in specs)
     needed = _needed_levels(targets)
+    exps = expansion_map(model, needed, max_order, settings=s)
+    need_states = any(t.is_level for t in targets) and any(not isinstance(sp_, Pade) for sp_ in specs)
 
-    exp_list = expansions(model, needed, max_order, treatment=treatment, coupling=coupling, threshold=threshold, method=method)
-    exps = dict(zip(needed, exp_list))
-    need_states = any(t.is_level for t in targets) and any(not isinstance(s, Pade) for s in specs)
+    solver = ExactSolver(model, backend=s.backend, n_levels_hint=len(exps))
+    with _solver_guard(f"on the couplings compared (|λ| up to {float(np.max(np.abs(lam))):g})"):
+        paired = pairing.sweep(solver, exps, needed, lam, keep_states=need_states)
+    row = {n: paired.row(n) for n in needed}
+    ex_shift = _combine(targets, {n: paired.shifts[row[n]] for n in needed})  # (T, C)
+    ex_energy = _combine(targets, {n: paired.energies[row[n]] for n in needed})
+    amb = np.stack([np.any([paired.ambiguous[row[n]] for n in t.weights], axis=0) for t in targets])
+    unperturbed = np.array([_unperturbed(model, t) for t in targets])
 
-    solver = ExactSolver(model, backend=backend, n_levels_hint=len(needed))
-    sweep = solver.track(needed, lam, keep_states=need_states)
-    exact_levels = {n: sweep.energies[i] for i, n in enumerate(needed)}
-    exact = _combine(targets, exact_levels)  # (T, C)
-    unperturbed = np.array([sum(w * model.e0[n] for n, w in t.weights.items()) for t in targets])
-
-    pert = np.empty((len(targets), len(specs), lam.size))
-    infid = np.full_like(pert, np.nan)
+    notes = [TRUNCATION_NOTE]
+    notes.extend(paired.notes)
+    pert_shift = np.full((len(targets), len(specs), lam.size), np.nan)
+    infid = np.full_like(pert_shift, np.nan)
     for oi, spec in enumerate(specs):
-        per_level = {n: np.asarray(exps[n].energy(lam, spec), dtype=float) for n in needed}
-        pert[:, oi, :] = _combine(targets, per_level)
+        per_level: dict[int, np.ndarray] = {}
+        for n in needed:
+            try:
+                per_level[n] = np.asarray(exps[n].shift(lam, spec), dtype=float)
+            except PadeUnavailableError as exc:
+                per_level[n] = np.full(lam.size, np.nan)
+                notes.append(f"{exc}. The other orders are compared; this one is left undefined (NaN).")
+        pert_shift[:, oi, :] = _combine(targets, per_level)
         if need_states and not isinstance(spec, Pade):
             for ti, t in enumerate(targets):
                 if not t.is_level:
                     continue
                 (n,) = t.weights
                 psi_pt = np.asarray(exps[n].state(lam, spec)).reshape(lam.size, model.n)
-                psi_ex = sweep.states[needed.index(n)]
+                psi_ex = paired.states[row[n]]
                 ov = np.abs(np.einsum("cn,cn->c", psi_pt.conj(), psi_ex)) ** 2
-                infid[ti, oi] = np.clip(1.0 - ov, 0.0, 1.0)
-    abs_err = np.abs(pert - exact[:, None, :])
-    scale = float(max(np.max(np.abs(model.e0)), np.ptp(model.e0), model.norm_v * float(np.max(np.abs(lam)))))
-    rel = _relative(abs_err, exact, unperturbed, [t.relative_to for t in targets], scale)
-
-    notes = [TRUNCATION_NOTE]
-    notes.extend(sweep.notes)
-    if np.any(np.isnan(rel)):
+                infid[ti, oi] = np.where(amb[ti], np.nan, np.clip(1.0 - ov, 0.0, 1.0))
+    abs_err = np.abs(pert_shift - ex_shift[:, None, :])
+    with np.errstate(invalid="ignore"):
+        perturbative = unperturbed[:, None, None] + pert_shift
+    ref = np.stack([np.abs(ex_shift[i]) if t.relative_to == "shift" else np.abs(ex_energy[i]) for i, t in enumerate(targets)])
+    scale = float(max(np.ptp(model.e0), model.norm_v * float(np.max(np.abs(lam))), np.finfo(float).tiny))
+    tiny = 1e-12 * scale
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rel = np.where(ref[:, None, :] > tiny, abs_err / ref[:, None, :], np.nan)
+    if np.any(np.isnan(rel) & np.isfinite(abs_err)):
         notes.append(
             "Relative errors are undefined (NaN) where the exact reference (shift or value) is ~0; use absolute errors there."
         )
-    for n in needed:
-        e = exps[n]
-        if e.treatment == "nondegenerate":
-            partners, ratios = mixing_ratios(model, n, coupling)
-            if partners.size and np.max(ratios) >= threshold:
-                notes.append(
-                    f"Level {model.label(n)} is near-degenerate at |λ| = {coupling:g} (mixing ratio "
-                    f"{np.max(ratios):.3g}); the non-degenerate series is unreliable there."
-                )
-        elif e.treatment == "block":
-            notes.append(f"Level {model.label(n)} uses the block treatment ({method}).")
+    presents = tuple(t.presents for t in targets)
+    ex_pres = np.stack([ex_shift[i] if p == "shift" else ex_energy[i] for i, p in enumerate(presents)])
+    pert_pres = np.stack([pert_shift[i] if p == "shift" else perturbative[i] for i, p in enumerate(presents)])
+    in_sector = tuple(_exact_in_sector(exps, t) for t in targets)
+    notes.extend(_treatment_notes(model, exps, needed, targets, s))
+    suggestions = tuple(_suggestions(model, targets, exps, s))
+    for sg in suggestions:
+        notes.append(sg.text)
     return ComparisonResult(
         model_name=model.name,
         n=model.n,
         targets=tuple(t.name for t in targets),
-        levels=tuple(next(iter(t.weights)) if t.is_level else _orig_quantity(levels, t.name) for t in targets),
+        levels=tuple(next(iter(t.weights)) if t.is_level else _orig_quantity(keys, t.name) for t in targets),
         orders=specs,
         couplings=_ro(lam),
         unperturbed=_ro(unperturbed),
-        exact=_ro(exact),
-        perturbative=_ro(pert),
+        exact=_ro(ex_energy),
+        perturbative=_ro(perturbative),
         abs_error=_ro(abs_err),
         rel_error=_ro(rel),
         infidelity=_ro(infid),
-        treatments=_treatment_names(targets, exps),
-        avoided_crossings=tuple(sweep.avoided_crossings),
-        backend=sweep.backend,
-        exact_solves=sweep.solves,
+        treatments=tuple(_combined_treatment(exps, t) for t in targets),
+        avoided_crossings=tuple(paired.avoided_crossings),
+        backend=paired.backend,
+        exact_solves=paired.solves,
         notes=tuple(dict.fromkeys(notes)),
+        reasons=tuple(_combined_reason(model, exps, t) for t in targets),
+        presents=presents,
+        exact_presented=_ro(ex_pres),
+        perturbative_presented=_ro(pert_pres),
+        ambiguous=_ro(amb),
+        exact_in_sector=in_sector,
+        suggestions=suggestions,
+        choices=tuple(e.choice for e in exps.values()),
+        coupling=float(s.coupling) if s.coupling is not None else math.nan,
+    )
+
+
+def _treatment_notes(model: Model, exps: dict, needed: list[int], targets: list[_Target], s: CheckSettings) -> list[str]:
+    notes = []
+    lam = s.coupling or 0.0
+    for n in needed:
+        e = exps[n]
+        if e.treatment == NONDEGENERATE and s.treatment in ("standard", "nondegenerate"):
+            lim = limiting_partner(model, n, e.group, lam, s.threshold)
+            if lim is not None:
+                notes.append(
+                    f"Level {model.label(n)} is near-degenerate with level {model.label(lim[0])} at |λ| = {lam:g} "
+                    f"(mixing ratio {lim[1]:.3g}); the non-degenerate series is unreliable there."
+                )
+        elif e.treatment != NONDEGENERATE:
+            notes.append(f"Level {model.label(n)}: {e.reason}.")
+    for t in targets:
+        if _exact_in_sector(exps, t):
+            notes.append(
+                f"{t.name} is {EXACT_IN_SECTOR}: every level it uses is treated in a block that is a whole invariant "
+                "sector, so its 'orders' are exact diagonalisation, not perturbation theory; no order is judged for it."
+            )
+    return notes
+
+
+def _suggestions(model: Model, targets: list[_Target], exps: dict, s: CheckSettings, *, at: float | None = None) -> list[Suggestion]:
+    """A near-degenerate block beside each standard-treated level whose partner limits it at the coupling of interest."""
+    lam = s.coupling if at is None else at
+    if not lam or s.treatment in ("block", "auto"):
+        return []
+    out = []
+    for t in targets:
+        seen: set[frozenset] = set()
+        for n in t.weights:
+            e = exps[n]
+            if e.treatment == NEAR_DEGENERATE:
+                continue
+            lim = limiting_partner(model, n, e.group, lam, s.threshold)
+            if lim is None or frozenset((n, lim[0])) in seen:
+                continue
+            seen.add(frozenset((n, lim[0])))
+            partner, ratio = lim
+            blk = smallest_block(model, n, lam, s.threshold)
+            if blk is None:
+                continue
+            exact = whole_sector(model, blk)
+            out.append(_make_suggestion(model, t.name, n, partner, ratio, lam, s.threshold, blk, exact))
+    return out
+
+
+def _make_suggestion(model, target, n, partner, ratio, lam, threshold, blk, exact, boundary=math.nan, status="not computed") -> Suggestion:
+    lam_thr = threshold * lam / ratio if ratio > 0 else math.inf
+    names = ", ".join(model.label(i) for i in blk)
+    text = (
+        f"{target}: level {model.label(n)} is near-degenerate with level {model.label(partner)} (mixing ratio "
+        f"{ratio:.3g} at |λ| = {lam:g}; it reaches {threshold:g} at |λ| ≈ {lam_thr:.4g}). The {NEAR_DEGENERATE} "
+        f"({names}) would treat them together (treatment='block')"
+    )
+    if exact:
+        text += f"; that block is a whole invariant sector, i.e. {EXACT_IN_SECTOR} (exact diagonalisation, not perturbation theory)"
+    if status == "found":
+        text += f"; its validity boundary for the same order and tolerance is |λ| ≈ {abs(boundary):.4g}"
+    elif status == "not_reached":
+        text += "; it meets the same tolerance over the whole range searched"
+    elif status not in ("not computed", "exact_in_sector"):
+        text += f"; its validity boundary search ended with status {status!r}"
+    text += ". A suggestion beside the answer: the answer itself judges the treatment asked for."
+    return Suggestion(
+        target=target, level=n, label=model.label(n), partner=partner, partner_label=model.label(partner),
+        mixing_ratio=float(ratio), coupling=float(lam), threshold=float(threshold), threshold_coupling=float(lam_thr),
+        block=tuple(blk), block_labels=tuple(model.label(i) for i in blk), exact_in_sector=bool(exact),
+        boundary=float(boundary), boundary_status=status, text=text,
     )
 
 
@@ -400,7 +633,8 @@ class ValidityBoundary:
         Level label or quantity name.
     order : int or Pade
     treatment : str
-        Treatment used (``"nondegenerate"``, ``"block"`` or ``"mixed"``).
+        Treatment used (``"nondegenerate"``, ``"degenerate"``,
+        ``"near-degenerate block"`` or ``"mixed"``).
     tol, rtol : float or None
         The tolerance asked for (absolute, energy units; or relative).
     direction : int
@@ -408,11 +642,14 @@ class ValidityBoundary:
     coupling : float
         Signed coupling λ* (``direction x |λ*|``) at which the error first
         exceeds the tolerance; ``inf`` (signed) if it never does up to
-        ``max_coupling``; NaN when the boundary is ill defined (see ``status``).
+        ``max_coupling``; NaN when the boundary is ill defined or the target is
+        exact within its sector (see ``status``).
     status : str
         ``"found"``, ``"not_reached"`` (within ``max_coupling``), ``"fails_at_zero"``
-        (the error exceeds the tolerance at any nonzero coupling), or
-        ``"ill_defined"`` (relative error where the exact shift passes through 0).
+        (the error exceeds the tolerance at any nonzero coupling),
+        ``"ill_defined"`` (relative error where the exact shift passes through 0),
+        or ``"exact_in_sector"`` (the treatment is exact diagonalisation of a
+        whole invariant sector: no order is judged).
     exact_solves : int
         Exact diagonalisations used.
     bracket : tuple of float
@@ -422,6 +659,13 @@ class ValidityBoundary:
     max_coupling : float
         Largest |λ| the search could reach.
     notes : tuple of str
+    reason : str
+        Why the target got its treatment.
+    suggestions : tuple of Suggestion
+        When a near-degenerate partner limits the series at the boundary (or
+        at the coupling of interest): the partner, its mixing ratio, where it
+        reaches the threshold, the smallest block that fixes it and that
+        block's validity boundary.  Beside the answer, never in its place.
     """
 
     target: str
@@ -437,17 +681,36 @@ class ValidityBoundary:
     error_at_boundary: float
     max_coupling: float
     notes: tuple = ()
+    reason: str = ""
+    suggestions: tuple = ()
 
     @property
     def magnitude(self) -> float:
         """|λ*|."""
         return abs(self.coupling)
 
+    def valid_at(self, coupling: float) -> bool:
+        """Does this order meet the tolerance at ``coupling`` (same sign as ``direction``)?
+
+        True exactly when |λ| lies below the first boundary (``"found"``) or
+        within the range searched (``"not_reached"``); False otherwise, and
+        always False for ``"exact_in_sector"``, ``"ill_defined"`` and
+        ``"fails_at_zero"`` (except at λ = 0).
+        """
+        lam = abs(float(coupling))
+        if self.status == "found":
+            return lam < abs(self.coupling)
+        if self.status == "not_reached":
+            return lam <= self.max_coupling
+        if self.status == "fails_at_zero":
+            return lam == 0.0
+        return False
+
     def __repr__(self) -> str:
         t = f"tol={self.tol:g}" if self.tol is not None else f"rtol={self.rtol:g}"
         return (
             f"ValidityBoundary({self.target}, {order_name(self.order)}, {t}: coupling={self.coupling:.6g}, "
-            f"status={self.status!r}, exact_solves={self.exact_solves})"
+            f"status={self.status!r}, treatment={self.treatment!r}, exact_solves={self.exact_solves})"
         )
 
     def to_dict(self) -> dict:
@@ -460,6 +723,7 @@ class ValidityBoundary:
             "target": self.target,
             "order": order_name(self.order),
             "treatment": self.treatment,
+            "reason": self.reason,
             "tol": self.tol,
             "rtol": self.rtol,
             "direction": self.direction,
@@ -469,37 +733,58 @@ class ValidityBoundary:
             "bracket": [f(b) for b in self.bracket],
             "error_at_boundary": f(self.error_at_boundary),
             "max_coupling": f(self.max_coupling),
+            "suggestions": [s.to_dict() for s in self.suggestions],
             "notes": list(self.notes),
         }
 
     def _repr_html_(self) -> str:
-        return f"<code>{html.escape(repr(self))}</code>" + "".join(f"<br>{html.escape(n)}" for n in self.notes)
+        return (
+            f"<code>{html.escape(repr(self))}</code>"
+            + "".join(f"<br>{html.escape(n)}" for n in self.notes)
+            + "".join(f"<br><i>Suggestion:</i> {html.escape(s.text)}" for s in self.suggestions)
+        )
+
+
+@dataclass(frozen=True)
+class _Tolerance:
+    value: float
+    relative: bool
 
 
 class _ErrorFunction:
     """Error of one target at one order spec along a ray, with exact solves counted."""
 
-    def __init__(self, model, target, exps, spec, solver, direction, relative):
+    def __init__(self, model: Model, target: _Target, exps: dict, spec: OrderSpec, solver: ExactSolver, direction: int, relative: bool):
         self.model, self.target, self.exps, self.spec = model, target, exps, spec
         self.solver, self.direction, self.relative = solver, direction, relative
-        self.unperturbed = sum(w * model.e0[n] for n, w in target.weights.items())
+        self.unperturbed = _unperturbed(model, target)
+        self.levels = list(target.weights)
         self.seen: dict[float, tuple[float, float]] = {}  # s -> (error, reference)
+        self.ambiguous: set[float] = set()
 
-    def pert(self, s: np.ndarray) -> np.ndarray:
+    def pert_shift(self, s: np.ndarray, spec: OrderSpec | None = None) -> np.ndarray:
         lam = self.direction * np.asarray(s, dtype=float)
-        return sum(w * np.asarray(self.exps[n].energy(lam, self.spec), dtype=float) for n, w in self.target.weights.items())
+        spec = self.spec if spec is None else spec
+        return sum(w * np.asarray(self.exps[n].shift(lam, spec), dtype=float) for n, w in self.target.weights.items())
 
     def __call__(self, s: float) -> float:
         s = float(s)
         if s in self.seen:
             return self.seen[s][0]
         lam = self.direction * s
-        ex = sum(w * self.solver.level_at(n, lam)[0] for n, w in self.target.weights.items())
-        err = abs(float(self.pert(np.array([s]))[0]) - ex)
-        ref = abs(ex - self.unperturbed) if self.target.relative_to == "shift" else abs(ex)
+        with _solver_guard(f"at coupling {lam:g}"):
+            shifts, amb = pairing.at(self.solver, self.exps, self.levels, lam)
+        ex = sum(w * shifts[n] for n, w in self.target.weights.items())
+        ref_val = ex if self.target.relative_to == "shift" else self.unperturbed + ex
+        if any(amb.values()):
+            self.ambiguous.add(s)
+            self.seen[s] = (_AMBIGUOUS_ERROR, ref_val)
+            return _AMBIGUOUS_ERROR
+        err = abs(float(self.pert_shift(np.array([s]))[0]) - ex)
         if self.relative:
-            err = err / ref if ref > 0 else np.inf
-        self.seen[s] = (err, ex - self.unperturbed if self.target.relative_to == "shift" else ex)
+            err = err / abs(ref_val) if ref_val != 0 else np.inf
+        err = min(err, _AMBIGUOUS_ERROR)
+        self.seen[s] = (err, ref_val)
         return err
 
 
@@ -523,32 +808,26 @@ def _first_guess(ef: _ErrorFunction, spec: OrderSpec, tol: float, s_lo: float, s
     """Cheap estimate of the boundary from the series itself (no exact solves)."""
     grid = np.geomspace(s_lo, s_hi, 400)
     k = required_order(spec)
-    # surrogate error: the next orders' terms (or the change to a higher approximant)
     higher = [ef.exps[n] for n in ef.target.weights]
     top = min(e.order for e in higher)
-    if top > k:
-        if isinstance(spec, Pade):
-            est = np.abs(ef.pert(grid) - _pert_at(ef, grid, top))
-        else:
-            est = np.zeros_like(grid)
-            for w_n, e in zip(ef.target.weights.values(), higher):
-                for j in range(k + 1, min(top, k + 3) + 1):
-                    est = est + abs(w_n) * np.asarray(e.term(ef.direction * grid, j))
-    else:
+    if top <= k:
         return float(np.sqrt(s_lo * s_hi))
+    if isinstance(spec, Pade):
+        est = np.abs(ef.pert_shift(grid) - ef.pert_shift(grid, top))
+    else:
+        est = np.zeros_like(grid)
+        for w_n, e in zip(ef.target.weights.values(), higher):
+            for j in range(k + 1, min(top, k + 3) + 1):
+                est = est + abs(w_n) * np.asarray(e.term(ef.direction * grid, j))
     if ef.relative:
-        ref = np.abs(_pert_at(ef, grid, top) - ef.unperturbed) if ef.target.relative_to == "shift" else np.abs(_pert_at(ef, grid, top))
+        top_shift = ef.pert_shift(grid, top)
+        ref = np.abs(top_shift) if ef.target.relative_to == "shift" else np.abs(ef.unperturbed + top_shift)
         with np.errstate(divide="ignore", invalid="ignore"):
             est = np.where(ref > 0, est / ref, np.inf)
     above = np.flatnonzero(est > tol)
     if above.size == 0:
         return float(grid[-1])
     return float(grid[max(above[0], 0)])
-
-
-def _pert_at(ef: _ErrorFunction, grid: np.ndarray, order: int) -> np.ndarray:
-    lam = ef.direction * grid
-    return sum(w * np.asarray(ef.exps[n].energy(lam, order), dtype=float) for n, w in ef.target.weights.items())
 
 
 def validity_boundary(
@@ -559,7 +838,7 @@ def validity_boundary(
     tol: float | None = None,
     rtol: float | None = None,
     direction: int = +1,
-    treatment: str = "auto",
+    treatment: str = DEFAULT_TREATMENT,
     backend: str = "auto",
     max_coupling: float | None = None,
     xrtol: float = 1e-3,
@@ -569,10 +848,17 @@ def validity_boundary(
 ) -> ValidityBoundary:
     """Smallest |λ| along ``direction`` where the error first exceeds the tolerance.
 
+    The boundary is that of the formula asked for: with the default treatment,
+    the textbook series of the level (degenerate perturbation theory inside an
+    exactly degenerate group), whatever near-degenerate partners do.  When a
+    partner limits it, :attr:`ValidityBoundary.suggestions` names the partner
+    and the boundary of the smallest near-degenerate block that fixes it.
+
     Parameters
     ----------
     model : Model
     level : level key or Quantity
+        One level or quantity (a list is refused).
     order : int, Pade or str
         One order spec.
     tol : float, optional
@@ -582,12 +868,9 @@ def validity_boundary(
         (for a quantity: relative to the reference it names).
     direction : {+1, -1}
         Search positive or negative couplings.
-    treatment : {"auto", "nondegenerate", "block"}
-        With ``coupling`` given, ``"auto"`` makes the same choice as
-        :func:`compare` at that coupling of interest.  Without it, ``"auto"``
-        first uses the non-degenerate series; if a partner's mixing ratio at
-        the boundary found is above ``threshold`` it switches the level's
-        cluster to the block treatment and searches again.
+    treatment : {"standard", "nondegenerate", "block", "auto"}, default "standard"
+        See :mod:`ptcheck.treatment`.  "block"/"auto" judge near-degeneracy at
+        ``coupling`` (default: where the standard series itself expects to fail).
     backend : str
         Exact solver backend.
     max_coupling : float, optional
@@ -595,13 +878,13 @@ def validity_boundary(
     xrtol : float, default 1e-3
         Relative precision of the boundary.
     threshold : float
-        Mixing-ratio threshold for grouping levels into blocks.
+        Mixing-ratio threshold (near-degenerate blocks and suggestions).
     method : str
-        Block method.
+        Method of near-degenerate blocks.
     coupling : float, optional
-        Coupling of interest at which near-degeneracy is judged (for
-        ``"auto"`` and the blocks of ``"block"``; default for ``"block"``: where
-        the next series terms reach the tolerance).
+        Coupling of interest |λ0|.  The search makes sure the first crossing
+        below |λ0| is found (so a verdict "valid at λ0" ⇔ |λ0| below the
+        boundary), and suggestions are judged there.
 
     Returns
     -------
@@ -611,151 +894,207 @@ def validity_boundary(
     -----
     The first bracket is placed where the next series terms reach the
     tolerance; the bracket is walked down until the error is within
-    tolerance, then Brent's method refines it.  Three exact checks below the
-    result guard against a later crossing being reported instead of the
-    first one.
+    tolerance, then Brent's method refines it.  Exact checks below the result
+    (and at the coupling of interest) guard against a later crossing being
+    reported instead of the first one.  A coupling where the pairing of
+    perturbative and exact states is ambiguous counts as failing.
     """
+    require_model(model, "validity_boundary")
+    if isinstance(level, (list, set, range, np.ndarray)):
+        raise TypeError(
+            f"validity_boundary takes one level or quantity; got {level!r}. Call it once per level "
+            "(a tuple is read as one label)"
+        )
     if (tol is None) == (rtol is None):
         raise ValueError(f"give exactly one of tol (absolute) or rtol (relative); got tol={tol!r}, rtol={rtol!r}")
     relative = rtol is not None
     thr = float(val.check_positive(rtol if relative else tol, "rtol" if relative else "tol"))
-    if direction not in (1, -1):
+    if direction not in (1, -1) or isinstance(direction, bool):
         raise ValueError(f"direction must be +1 or -1; got {direction!r}")
     spec = parse_order(order)
-    treatment = val.check_choice(treatment, "treatment", TREATMENTS)
-    xrtol = float(val.check_positive(xrtol, "xrtol"))
-    (target,) = _resolve_targets(model, level)
-    if isinstance(level, list):
-        raise TypeError("validity_boundary takes one level or quantity; got a list")
-    s_nat = _search_scale(model, target)
-    if max_coupling is None:
-        s_max = 100.0 * s_nat if np.isfinite(s_nat) else 1e6
-    else:
-        s_max = float(val.check_positive(max_coupling, "max_coupling"))
-    scale = float(max(np.max(np.abs(model.e0)), np.ptp(model.e0), 1e-300))
-    if not relative and thr < 1e-12 * scale:
-        warnings.warn(
-            f"tol={thr:g} is below ~1e-12 of the energy scale ({scale:.3g}); the boundary will be set by rounding noise",
-            AccuracyWarning,
-            stacklevel=2,
-        )
-
-    solver = ExactSolver(model, backend=backend, n_levels_hint=len(target.weights))
-    chosen = "nondegenerate" if treatment == "auto" else treatment
-    degenerate = any(model.degenerate_group_of(n) for n in target.weights)
     if coupling is not None:
-        coupling = abs(val.as_coupling(coupling))
-    if treatment == "auto" and degenerate:
-        chosen = "block"
-    elif treatment == "auto" and coupling is not None:
-        # the same per-level choice compare() makes at this coupling of interest
-        kinds = {e.treatment for e in expansions(model, list(target.weights), 1, treatment="auto", coupling=coupling, threshold=threshold, method=method)}
-        chosen = "block" if "block" in kinds else "nondegenerate"
-    block_coupling = coupling
-    if chosen == "block" and block_coupling is None and not degenerate:
-        # judge clusters where the non-degenerate series itself expects to fail (no exact solves)
-        nd = dict(zip(list(target.weights), expansions(model, list(target.weights), required_order(spec) + 3, treatment="nondegenerate")))
-        probe = _ErrorFunction(model, target, nd, spec, solver, direction, relative)
-        block_coupling = _first_guess(probe, spec, thr, min(1e-6 * s_nat, s_max * 1e-6), s_max)
-    result = _boundary_search(model, target, spec, chosen, solver, direction, relative, thr, s_max, s_nat, xrtol, threshold, method, block_coupling)
-    if treatment == "auto" and coupling is not None:
-        pass  # the treatment was fixed at the coupling of interest
-    elif treatment == "auto" and chosen == "nondegenerate" and result.status == "found" and isinstance(spec, Pade):
-        pass  # Padé needs a scalar series: no block alternative
-    elif treatment == "auto" and chosen == "nondegenerate" and result.status == "found":
-        s_star = abs(result.coupling)
-        mixed = False
-        for n in target.weights:
-            partners, ratios = mixing_ratios(model, n, s_star)
-            mixed |= bool(partners.size and np.max(ratios) >= threshold)
-        if mixed:
-            blk = _boundary_search(model, target, spec, "block", solver, direction, relative, thr, s_max, s_nat, xrtol, threshold, method, s_star)
-            note = (
-                f"auto: the non-degenerate series fails at |λ| = {s_star:.4g} where a near-degenerate partner's "
-                f"mixing ratio exceeds {threshold:g}; the block treatment was used instead."
-            )
-            result = _replace(blk, notes=blk.notes + (note,))
-    return _replace(result, exact_solves=solver.solves)
+        coupling = val.as_coupling(coupling)
+        _check_coupling_range(model, coupling)
+    if max_coupling is not None:
+        max_coupling = float(val.check_positive(max_coupling, "max_coupling"))
+        _check_coupling_range(model, max_coupling, "max_coupling")
+    settings = CheckSettings(
+        treatment=treatment, backend=backend, threshold=threshold, method=method,
+        coupling=coupling, xrtol=xrtol, max_coupling=max_coupling,
+    )
+    (target,) = _resolve_targets(model, level)
+    solver = ExactSolver(model, backend=settings.backend, n_levels_hint=len(target.weights))
+    result = _boundary(model, target, spec, settings, _Tolerance(thr, relative), direction, solver)
+    return replace(result, exact_solves=solver.solves)
 
 
-def _replace(b: ValidityBoundary, **kw: Any) -> ValidityBoundary:
-    from dataclasses import replace
+def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, tol: _Tolerance, direction: int, solver: ExactSolver) -> ValidityBoundary:
+    """The boundary of the treatment asked for, with suggestions beside it."""
+    s_nat = _search_scale(model, target)
+    s_max = s.max_coupling if s.max_coupling is not None else (100.0 * s_nat if np.isfinite(s_nat) else 1e6)
+    if s.max_coupling is None and s.coupling is not None:
+        s_max = max(s_max, 1.5 * s.coupling)  # the search always reaches past the coupling of interest
+    s_max = min(s_max, _largest_coupling(model))
+    scale = float(max(np.ptp(model.e0), np.max(np.abs(model.e0)) if not hasattr(solver, "shift_at") else 0.0, 1e-300))
+    if not tol.relative and tol.value < 1e-12 * scale:
+        warnings.warn(
+            f"tol={tol.value:g} is below ~1e-12 of the energy scale ({scale:.3g}); the boundary will be set by rounding noise",
+            AccuracyWarning,
+            stacklevel=3,
+        )
+    if s.treatment in ("block", "auto") and s.coupling is None:
+        # judge clusters where the standard series itself expects to fail (no exact solves)
+        std = expansion_map(model, list(target.weights), required_order(spec) + 3, settings=s.replace(treatment="standard"))
+        probe = _ErrorFunction(model, target, std, spec, solver, direction, tol.relative)
+        try:
+            guess = _first_guess(probe, spec, tol.value, min(1e-6 * s_nat, s_max * 1e-6), s_max)
+        except PadeUnavailableError:
+            guess = s_nat if np.isfinite(s_nat) else 1.0
+        s = s.replace(coupling=guess)
+    result = _boundary_search(model, target, spec, s, tol, direction, solver, s_max, s_nat)
+    sugg = _boundary_suggestions(model, target, spec, s, tol, direction, solver, s_max, s_nat, result)
+    if sugg:
+        result = replace(result, suggestions=tuple(sugg), notes=result.notes + tuple(g.text for g in sugg))
+    return result
 
-    return replace(b, **kw)
+
+def _largest_coupling(model: Model) -> float:
+    scale = float(max(np.max(np.abs(model.e0)), np.ptp(model.e0), 1.0))
+    return MAX_COUPLING_ENERGY * scale / model.norm_v if model.norm_v > 0 else math.inf
 
 
-def _boundary_search(model, target, spec, treatment, solver, direction, relative, thr, s_max, s_nat, xrtol, threshold, method, coupling=None):
+def _boundary_suggestions(model, target, spec, s, tol, direction, solver, s_max, s_nat, result) -> list[Suggestion]:
+    if s.treatment in ("block", "auto"):
+        return []
+    at = s.coupling
+    if at is None:
+        if result.status != "found":
+            return []
+        at = abs(result.coupling)
+    out = []
+    exps = expansion_map(model, list(target.weights), required_order(spec), settings=s)
+    seen: set[frozenset] = set()
+    block_result: dict[str, tuple] = {}
+    for n in target.weights:
+        e = exps[n]
+        lim = limiting_partner(model, n, e.group, at, s.threshold)
+        if lim is None or frozenset((n, lim[0])) in seen:
+            continue
+        seen.add(frozenset((n, lim[0])))
+        blk = smallest_block(model, n, at, s.threshold)
+        if blk is None:
+            continue
+        exact = whole_sector(model, blk)
+        if exact:
+            b_coupling, status = math.nan, "exact_in_sector"
+        elif "block" in block_result:  # the target's boundary with the block treatment: one search serves all
+            b_coupling, status = block_result["block"]
+        else:
+            try:
+                b = _boundary_search(model, target, spec, s.replace(treatment="block", coupling=at), tol, direction, solver, s_max, s_nat)
+                b_coupling, status = b.coupling, b.status
+            except (ValueError, ArithmeticError) as exc:
+                b_coupling, status = math.nan, f"error: {exc}"
+            block_result["block"] = (b_coupling, status)
+        out.append(_make_suggestion(model, target.name, n, lim[0], lim[1], at, s.threshold, blk, exact, b_coupling, status))
+    return out
+
+
+def _boundary_search(
+    model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, tol: _Tolerance, direction: int,
+    solver: ExactSolver, s_max: float, s_nat: float,
+) -> ValidityBoundary:
     needed = list(target.weights)
-    exps = dict(zip(needed, expansions(
-        model, needed, required_order(spec) + 3,
-        treatment=treatment, coupling=coupling, threshold=threshold, method=method,
-    )))
-    kinds = {e.treatment for e in exps.values()}
-    tname = kinds.pop() if len(kinds) == 1 else "mixed"
-    ef = _ErrorFunction(model, target, exps, spec, solver, direction, relative)
+    exps = expansion_map(model, needed, required_order(spec) + 3, settings=s)
+    tname = _combined_treatment(exps, target)
+    reason = _combined_reason(model, exps, target)
+    for n in needed:
+        if isinstance(spec, Pade) and exps[n].treatment != NONDEGENERATE:
+            exps[n].shift(0.0, spec)  # raises PadeUnavailableError naming the level and the treatment
+    ef = _ErrorFunction(model, target, exps, spec, solver, direction, tol.relative)
+    thr = tol.value
     notes: list[str] = [TRUNCATION_NOTE]
 
     def done(coupling, status, bracket, err, extra=()):
+        amb = sorted(x for x in ef.ambiguous if x <= max(bracket[-1], 0) or not np.isfinite(bracket[-1]))
+        more = ()
+        if amb:
+            more = (
+                f"The pairing of perturbative and exact states is ambiguous from |λ| ≈ {amb[0]:.4g}; the order is "
+                "counted as failing where the pairing is ambiguous.",
+            )
         return ValidityBoundary(
-            target=target.name, order=spec, treatment=tname, tol=None if relative else thr, rtol=thr if relative else None,
-            direction=direction, coupling=coupling, status=status, exact_solves=solver.solves, bracket=tuple(bracket),
-            error_at_boundary=float(err), max_coupling=s_max, notes=tuple(notes) + tuple(extra),
+            target=target.name, order=spec, treatment=tname, tol=None if tol.relative else thr,
+            rtol=thr if tol.relative else None, direction=direction, coupling=coupling, status=status,
+            exact_solves=solver.solves, bracket=tuple(bracket), error_at_boundary=float(err), max_coupling=s_max,
+            notes=tuple(notes) + tuple(extra) + more, reason=reason,
         )
 
+    if _exact_in_sector(exps, target):
+        return done(math.nan, "exact_in_sector", (math.nan, math.nan), 0.0, (
+            f"{target.name} is {EXACT_IN_SECTOR} with the {tname} treatment: the block is a whole invariant sector, so "
+            "its 'orders' are exact diagonalisation; no order is judged against the tolerance.",))
     if not np.isfinite(s_nat):  # V = 0: every order is exact
         return done(direction * np.inf, "not_reached", (s_max, np.inf), 0.0, ("V is zero: the perturbative result is exact.",))
 
     s_lo = min(1e-6 * s_nat, s_max * 1e-6)
-    g = lambda s: ef(s) - thr  # noqa: E731
-    s = min(max(_first_guess(ef, spec, thr, s_lo, s_max), s_lo), s_max)
-    # walk down until within tolerance
-    below = None
-    above = None
-    if g(s) > 0:
-        above = s
+    g = lambda x: ef(x) - thr  # noqa: E731
+
+    def walk_down(above: float) -> tuple[float | None, float]:
+        """Halve from a failing point until within tolerance: (below or None, smallest failing)."""
+        x = above
         while True:
-            s /= 2.0
-            if s < s_lo:
-                return done(0.0, "fails_at_zero", (0.0, above), ef(above), (
-                    f"The error exceeds the tolerance already at |λ| = {s_lo:.3g}: this order does not meet it at any "
-                    "nonzero coupling searched (for a relative tolerance, order 0 always fails).",))
-            if g(s) <= 0:
-                below = s
-                break
-            above = s
+            x /= 2.0
+            if x < s_lo:
+                return None, above
+            if g(x) <= 0:
+                return x, above
+            above = x
+
+    def fails_at_zero(above: float) -> ValidityBoundary:
+        return done(0.0, "fails_at_zero", (0.0, above), ef(above), (
+            f"The error exceeds the tolerance already at |λ| = {s_lo:.3g}: this order does not meet it at any "
+            "nonzero coupling searched (for a relative tolerance, order 0 always fails).",))
+
+    s0 = min(max(_first_guess(ef, spec, thr, s_lo, s_max), s_lo), s_max)
+    if g(s0) > 0:
+        below, above = walk_down(s0)
+        if below is None:
+            return fails_at_zero(above)
     else:
-        below = s
+        below, x = s0, s0
         while True:
-            s_next = min(s * 2.0, s_max)
-            if g(s_next) > 0:
-                above = s_next
+            x_next = min(x * 2.0, s_max)
+            if g(x_next) > 0:
+                above = x_next
                 break
-            below = s_next
-            if s_next >= s_max:
-                return done(direction * np.inf, "not_reached", (s_max, np.inf), ef(s_max), (
-                    f"The error stays within tolerance up to the search limit |λ| = {s_max:.4g}.",))
-            s = s_next
+            below = x_next
+            if x_next >= s_max:
+                above = None
+                break
+            x = x_next
+    # the coupling of interest: the first crossing must not lie beyond it while the error there fails
+    lam0 = s.coupling
+    if lam0 is not None and s_lo < lam0 <= s_max and (above is None or above > lam0) and g(lam0) > 0:
+        below, above = walk_down(lam0)
+        if below is None:
+            return fails_at_zero(above)
+    if above is None:
+        return done(direction * np.inf, "not_reached", (s_max, np.inf), ef(s_max), (
+            f"The error stays within tolerance up to the search limit |λ| = {s_max:.4g}.",))
     # guard the *first* crossing: exact checks below the bracket
     for frac in (0.25, 0.5, 0.8):
         sc = frac * below
         if sc > s_lo and g(sc) > 0:
-            above, below = sc, None
-            s = sc
-            while True:
-                s /= 2.0
-                if s < s_lo:
-                    return done(0.0, "fails_at_zero", (0.0, above), ef(above))
-                if g(s) <= 0:
-                    below = s
-                    break
-                above = s
+            below, above = walk_down(sc)
+            if below is None:
+                return fails_at_zero(above)
             break
     # Brent on the bracket (every evaluation is one tracked exact point)
-    root = brentq(g, below, above, xtol=xrtol * below, rtol=4 * np.finfo(float).eps, maxiter=60)
+    root = brentq(g, below, above, xtol=s.xrtol * below, rtol=4 * np.finfo(float).eps, maxiter=60)
     # smallest evaluated point above tolerance that is >= root defines the reported side
     hi = min((x for x, (e, _) in ef.seen.items() if e > thr and x >= root), default=above)
-    extra: list[str] = []
-    if relative:
+    if tol.relative:
         # A relative error is meaningless where its reference (exact shift or value) passes through 0:
         # flag the boundary when the reference changes sign up to 1.5 x the boundary, or has already
         # shrunk to a tenth of its largest size before it.
@@ -769,4 +1108,4 @@ def _boundary_search(model, target, spec, treatment, solver, direction, relative
             return done(np.nan, "ill_defined", (below, hi), ef(hi), (
                 f"The exact reference of the relative error passes through (or close to) zero near |λ| ≈ {hi:.4g}; "
                 "a relative error is meaningless there. Use an absolute tolerance (tol=...) instead.",))
-    return done(direction * float(root), "found", (float(root), float(hi)), ef(hi), extra)
+    return done(direction * float(root), "found", (float(root), float(hi)), ef(hi))

@@ -35,10 +35,12 @@ given (for a truncated basis: the truncated model).
 
 Limits
 ------
-* The EP search is dense (one N x N eigenvalue problem per step); with
+* The EP search is dense (one N x N LU factorisation per step); with
   ``ep_search="auto"`` it runs for N <= :data:`EP_DENSE_LIMIT` and is skipped
   with a note above that (and for asymptotic series, whose truncated-basis
-  singularities only describe the truncation).
+  singularities only describe the truncation).  ``ep_search="always"`` runs
+  it above the limit too: for a sparse V as a search in a reduced basis
+  refined until each EP's full-space residual is small.
 * The search starts from guesses (two-level estimates, real-axis avoided
   crossings, Padé poles); it can miss an EP.  A miss shows up as
   ``agreement == 'disagree'`` and the smaller radius is reported.
@@ -64,18 +66,18 @@ from __future__ import annotations
 import contextlib
 import html
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
 
 from . import _validation as val
-from ._exceptional import EPCandidate, ExceptionalPointSearch
+from ._exceptional import EPCandidate, ExceptionalPointSearch, ReducedExceptionalPointSearch, branch_point_guesses
 from ._radius import CoefficientAnalysis, analyse
 from .model import Model
 from .degeneracy import DEFAULT_MIXING_THRESHOLD
 from .quantities import Quantity
-from .treatment import TREATMENTS, expansions
+from .treatment import DEFAULT_TREATMENT, DEGENERATE, NONDEGENERATE, CheckSettings, expansions, require_model
 
 __all__ = [
     "ConvergenceResult",
@@ -87,11 +89,13 @@ __all__ = [
     "AGREEMENT_RTOL",
 ]
 
-#: Largest basis for which ``ep_search="auto"`` runs the (dense, O(N³) per
-#: step) exceptional-point search.  Larger models skip it with a note; force
-#: it with ``ep_search="always"``.  Rough cost on an idle 2-core machine with
-#: one BLAS thread: N = 50: 0.5 s, N = 100: 4 s, N = 200: 25 s per level.
-EP_DENSE_LIMIT = 120
+#: Largest basis for which ``ep_search="auto"`` runs the dense exceptional-point
+#: search (one LU factorisation of an N x N complex matrix per continuation
+#: step).  Larger models skip it with a note; force it with
+#: ``ep_search="always"``.  Cost with one BLAS thread: about 1 s at N = 120 and
+#: 3-5 s at N = 400 per level, i.e. the time of 15-30 dense complex
+#: eigenvalue computations of the same matrix (``benchmarks/bench_exceptional.py``).
+EP_DENSE_LIMIT = 400
 
 #: Coefficient and singularity radii "agree" when they differ by at most this
 #: fraction of the singularity radius.  The coefficient radius is the median of
@@ -219,7 +223,20 @@ class ConvergenceResult:
     notes : tuple of str
         Numerical remarks.
     energy_coefficients : (order + 1,) ndarray, read-only
-        The coefficients analysed (energy units).
+        The coefficients analysed (energy units); empty when the norms of a
+        block's effective-Hamiltonian coefficients were analysed instead.
+    treatment : str
+        Treatment whose series was analysed (``"nondegenerate"``,
+        ``"degenerate"``, ``"near-degenerate block"``, or ``"mixed"`` for a
+        quantity).
+    target : str
+        Quantity name (or the level label).
+    limiting_level : int or None
+        For a quantity: the level whose radius limits it.
+    level_radii : tuple of (str, float)
+        For a quantity: each level's radius.
+    reason : str
+        Why that treatment (:mod:`ptcheck.treatment`).
     """
 
     level: int
@@ -246,6 +263,7 @@ class ConvergenceResult:
     target: str = ""
     limiting_level: int | None = None
     level_radii: tuple = ()
+    reason: str = ""
 
     def __repr__(self) -> str:
         ep = f", nearest EP {self.exceptional_points[0]:.4g}" if self.exceptional_points.size else ""
@@ -277,6 +295,7 @@ class ConvergenceResult:
             "notes": list(self.notes),
             "energy_coefficients": [float(c) for c in self.energy_coefficients],
             "treatment": self.treatment,
+            "reason": self.reason,
             "target": self.target or self.label,
             "limiting_level": self.limiting_level,
             "level_radii": [[lab, _jf(r)] for lab, r in self.level_radii],
@@ -322,11 +341,20 @@ def _dense_v(model: Model) -> np.ndarray:
     return v.toarray() if hasattr(v, "toarray") else np.asarray(v)
 
 
+def _ep_search(model: Model) -> ExceptionalPointSearch | ReducedExceptionalPointSearch:
+    """The EP search for this model: dense up to EP_DENSE_LIMIT (or for dense V), reduced-basis above for sparse V."""
+    if model.n > EP_DENSE_LIMIT and model.is_sparse:
+        return ReducedExceptionalPointSearch(model.e0, model.v)
+    return ExceptionalPointSearch(model.e0, _dense_v(model))
+
+
 def _ep_guesses(
-    search: ExceptionalPointSearch, level: int, ca: CoefficientAnalysis, reach: float, extra: list[tuple[complex, complex]]
+    search: ExceptionalPointSearch, level: int, ca: CoefficientAnalysis, reach: float, extra: list[tuple[complex, complex]],
+    coefficients: np.ndarray,
 ) -> list[tuple[complex, complex | None]]:
     guesses: list[tuple[complex, complex | None]] = []
     guesses += [(z, None) for z in ca.pade_poles]  # energy: found by continuing the branch
+    guesses += [(z, None) for z in branch_point_guesses(coefficients)]
     guesses += search.pair_guesses(level)
     guesses += search.crossing_guesses(level, reach, points=60 if search.n <= 50 else 25)
     guesses += extra
@@ -393,18 +421,24 @@ def _analyse_level(
     elif model.n >= 2 and not run_ep:
         notes.append(
             f"exceptional-point search skipped (N = {model.n} > {EP_DENSE_LIMIT} for ep_search='auto'; "
-            "pass ep_search='always' to force the dense search)"
+            "pass ep_search='always' to run it: a reduced-basis search for a sparse V, the dense search otherwise)"
             if ep_search == "auto"
             else "exceptional-point search skipped (ep_search='never')"
         )
     if run_ep:
         if search is None:
-            search = ExceptionalPointSearch(model.e0, _dense_v(model))
+            search = _ep_search(model)
         base = r_coef if np.isfinite(r_coef) else (4.0 * kato if np.isfinite(kato) else 1.0)
         reach = 2.5 * max(base, kato if np.isfinite(kato) else 0.0)
         with _one_blas_thread():  # many small dense eigenproblems: threads only add overhead
-            guesses = _ep_guesses(search, level, ca, reach, extra_guesses)
-            eps, n_verified = search.search(level, guesses)
+            guesses = _ep_guesses(search, level, ca, reach, extra_guesses, c)
+            eps, n_verified = search.search(level, guesses, seeds=series.state_coefficients)
+        if isinstance(search, ReducedExceptionalPointSearch):
+            notes.append(
+                f"exceptional points searched in a reduced basis (N = {model.n} with sparse V): each one is verified by "
+                "its full-space residual and the path from λ = 0 is checked at four points; a nearer exceptional point "
+                "that the reduced basis never represented can be missed"
+            )
         unsure = [e for e in eps if e.connected is None]
         if unsure:
             notes.append(
@@ -583,7 +617,7 @@ def convergence(
     *,
     coupling: float | None = None,
     ep_search: str = "auto",
-    treatment: str = "auto",
+    treatment: str = DEFAULT_TREATMENT,
     threshold: float = DEFAULT_MIXING_THRESHOLD,
 ) -> ConvergenceResult:
     """Radius of convergence, exceptional points and growth class of a level's series.
@@ -600,11 +634,18 @@ def convergence(
         Coupling λ at which the optimal truncation order and smallest term
         are reported (and placed relative to the radius in ``summary``).
     ep_search : {'auto', 'always', 'never'}
-        Exceptional-point search: 'auto' runs it for N <= :data:`EP_DENSE_LIMIT`.
-    treatment : {'auto', 'nondegenerate', 'block'}
-        'auto' analyses the block effective Hamiltonian (root test on
-        ‖H_eff^(k)‖, Kato's bound for the block) for exactly degenerate levels
-        and for levels in a near-degenerate cluster at ``coupling``.
+        Exceptional-point search: 'auto' runs it for N <= :data:`EP_DENSE_LIMIT`
+        (dense); 'always' also above, as a reduced-basis search when V is
+        stored sparse (only products with V; tens of seconds for a
+        2^14-state chain) and densely otherwise.
+    treatment : {'standard', 'nondegenerate', 'block', 'auto'}, default 'standard'
+        Which series is analysed (:mod:`ptcheck.treatment`): by default the
+        Rayleigh–Schrödinger series of a non-degenerate level, and for a level
+        in an exactly degenerate group the Taylor series of its branch of the
+        group's effective Hamiltonian (good states at the splitting order).
+        'block'/'auto' analyse a near-degenerate block's effective Hamiltonian
+        (root test on ‖H_eff^(k)‖, Kato's bound for the block) for a level in
+        a near-degenerate cluster at ``coupling``.
     threshold : float
         Mixing-ratio threshold for clusters (:mod:`ptcheck.degeneracy`).
 
@@ -630,93 +671,99 @@ def convergence(
     >>> np.round(r.exceptional_points.imag, 6)       # closed form: λ = ±iΔ/(2|v|)
     array([ 2., -2.])
     """
-    if not isinstance(m, Model):
-        raise TypeError(f"m must be a ptcheck Model; got {type(m).__name__}")
-    order = val.check_int(order, "order", minimum=2)
+    require_model(m, "convergence")
+    order = val.check_order(order, n=m.n, minimum=2)
     if coupling is not None:
         coupling = val.as_coupling(coupling)
     ep_search = val.check_choice(ep_search, "ep_search", EP_SEARCH)
-    treatment = val.check_choice(treatment, "treatment", TREATMENTS)
-    threshold = float(val.check_positive(threshold, "threshold"))
+    settings = CheckSettings(treatment=treatment, threshold=threshold, coupling=coupling)
     if isinstance(level, Quantity):
-        return _analyse_quantity(m, level, order, coupling, ep_search, treatment, threshold)
+        return _analyse_quantity(m, level, order, coupling, ep_search, settings.treatment, settings.threshold)
     n = m.level_index(level)
-    if _uses_block(m, n, coupling, treatment, threshold):
-        return _analyse_block(m, n, order, coupling, threshold)
-    return _analyse_level(m, n, order, coupling, ep_search, None, [])
+    if settings.treatment == "nondegenerate":
+        return _analyse_level(m, n, order, coupling, ep_search, None, [])  # DegenerateLevelError for a degenerate level
+    (e,) = expansions(m, [n], order, settings=settings)
+    if e.treatment == NONDEGENERATE:
+        return replace(_analyse_level(m, n, order, coupling, ep_search, None, []), reason=e.reason)
+    return _analyse_effective(m, n, order, coupling, e)
 
 
-def _uses_block(m: Model, n: int, coupling: float | None, treatment: str, threshold: float) -> bool:
-    if treatment == "block":
-        return True
-    if treatment == "nondegenerate":
-        return False  # an exactly degenerate level raises in the series
-    if m.degenerate_group_of(n) is not None:
-        return True
-    if coupling is None:
-        return False
-    (e,) = expansions(m, [n], 1, treatment="auto", coupling=coupling, threshold=threshold)
-    return e.treatment == "block"
+def _analyse_effective(m: Model, n: int, order: int, coupling: float | None, e: Any) -> ConvergenceResult:
+    """A level treated with an effective Hamiltonian (degenerate group or near-degenerate block).
 
-
-def _analyse_block(m: Model, n: int, order: int, coupling: float | None, threshold: float) -> ConvergenceResult:
-    """Radius of the block effective-Hamiltonian series: root test on ‖H_eff^(k)‖, Kato's bound for the block."""
-    from .blocks import block_series, find_blocks
-
-    (blk,) = find_blocks(m, 0.0 if coupling is None else abs(coupling), threshold, levels=[n])
-    levels = list(blk.levels)
-    bs = block_series(m, levels, order)
-    norms = np.array([np.linalg.norm(h, 2) for h in bs.coefficients])
+    Degenerate group with a resolved branch: the coefficient tests on the
+    branch's Taylor series.  Otherwise: the root test on ‖H_eff^(k)‖.  Kato's
+    bound is that of the group/block as a whole (its total projection), not
+    of one branch inside it.
+    """
+    levels = list(e.group)
     inside = np.isin(np.arange(m.n), levels)
     e_in, e_out = m.e0[inside], m.e0[~inside]
     d = float(np.min(np.abs(e_out[:, None] - e_in[None, :]))) if e_out.size else math.inf
     kato = _kato(d, m.norm_v)
-    ca = analyse(norms, d if np.isfinite(d) else 1.0)
     label = m.label(n)
+    names = ", ".join(m.label(i) for i in levels)
+    branch = e.treatment == DEGENERATE and e.energy_coefficients is not None
+    if branch:
+        c = np.asarray(e.energy_coefficients, dtype=float)
+        ca = analyse(c, d if np.isfinite(d) else 1.0)
+        what = f"the Taylor series of its branch of the degenerate group ({names})"
+    else:
+        c = np.array([np.linalg.norm(e.term(1.0, k)) for k in range(order + 1)])
+        ca = analyse(c, d if np.isfinite(d) else 1.0)
+        what = f"the effective Hamiltonian of the {e.treatment} ({names}) (root test on ‖H_eff^(k)‖)"
+    ests = np.array([ca.root, ca.domb_sykes] + ([ca.pade] if branch else []))
     if ca.kind == "terminating":
         radius = math.inf
+    elif ca.kind == "asymptotic":
+        radius = 0.0
     else:
-        radius = _median_finite(np.array([ca.root, ca.domb_sykes]))
-    spread = float(np.nanmax(np.abs(np.array([ca.root, ca.domb_sykes]) - radius))) if np.isfinite(radius) else 0.0
-    k = np.arange(order + 1)
-    smallest, opt = math.nan, None
-    if coupling is not None and ca.kind == "asymptotic":
-        terms = norms[1:] * abs(coupling) ** k[1:]
-        j = int(np.argmin(terms))
-        opt, smallest = j + 1, float(terms[j])
-    names = ", ".join(m.label(i) for i in levels)
-    where = (
-        "" if coupling is None or not np.isfinite(radius)
-        else f" λ = {coupling:g} lies {'inside' if abs(coupling) < radius else 'outside'} that disc."
-    )
+        radius = _median_finite(ests)
+    fin = ests[np.isfinite(ests)]
+    spread = 0.5 * float(np.ptp(fin)) if fin.size >= 2 and ca.kind == "convergent" else math.nan
+    opt, smallest = None, math.nan
+    note = None
+    if coupling is not None:
+        if branch:
+            opt, smallest, note = _optimal_truncation(c, coupling, ca)
+        elif ca.kind == "asymptotic":
+            k = np.arange(order + 1)
+            terms = c[1:] * abs(coupling) ** k[1:]
+            j = int(np.argmin(terms))
+            opt, smallest = j + 1, float(terms[j])
     if ca.kind == "asymptotic":
-        body = (f"The block effective Hamiltonian of ({names}) grows factorially with the order: an asymptotic "
-                "series; adding orders helps only up to the optimal order.")
+        body = (f"Level {label}: {what} grows factorially with the order: an asymptotic series (radius 0); adding "
+                "orders helps only up to the optimal order.")
+        if opt is not None:
+            body += f" At λ = {coupling:g} the smallest term is at order {opt} (size {smallest:.3g})."
     elif ca.kind == "terminating":
-        body = f"The block effective Hamiltonian of ({names}) terminates: no radius limit."
+        body = f"Level {label}: {what} terminates: no radius limit."
+    elif np.isfinite(radius):
+        body = f"Level {label}: {what} gives a radius ≈ {radius:.4g}."
+        if coupling is not None:
+            body += f" λ = {coupling:g} lies {'inside' if abs(coupling) < radius else 'outside'} that disc."
     else:
-        body = (f"Level {label} is treated in the block ({names}); the root test on ‖H_eff^(k)‖ gives a radius "
-                f"≈ {radius:.4g}.{where}")
+        body = f"Level {label}: no radius could be estimated from {what} at order {order}."
     summary = (
-        body + f" Kato's rigorous bound for the block (gap {d:.3g} to the other levels) guarantees convergence "
-        f"for |λ| < {kato:.4g}. The exceptional-point search runs for non-degenerate levels only. These are "
-        "numerical estimates: confirm them with your own convergence checks (more orders, a larger basis)."
+        body + f" Kato's rigorous bound for the group/block as a whole (gap {d:.3g} to the other levels) guarantees "
+        f"convergence of its effective Hamiltonian for |λ| < {kato:.4g}. The exceptional-point search runs for "
+        "non-degenerate levels only. These are numerical estimates: confirm them with your own convergence checks "
+        "(more orders, a larger basis)."
     )
-    est = RadiusEstimates(ratio=ca.ratio, root=ca.root, domb_sykes=ca.domb_sykes)
+    est = RadiusEstimates(ratio=ca.ratio, root=ca.root, domb_sykes=ca.domb_sykes, pade=ca.pade if branch else math.nan)
+    notes = tuple(ca.notes) + ((note,) if note else ())
     return ConvergenceResult(
         level=n, label=label, order=order, kind=ca.kind, radius=float(radius), radius_uncertainty=spread,
         estimates=est, exceptional_points=_ro(np.zeros(0, complex)), partners=_ro(np.zeros(0, int)),
         ep_energies=_ro(np.zeros(0, complex)), kato_bound=float(kato), isolation=float(d), period=int(ca.period),
         coupling=coupling, optimal_order=opt, smallest_term=smallest, agreement="unavailable", summary=summary,
-        notes=tuple(ca.notes), energy_coefficients=_ro(np.zeros(0)), treatment="block",
+        notes=notes, energy_coefficients=_ro(c if branch else np.zeros(0)), treatment=e.treatment, reason=e.reason,
     )
 
 
 def _analyse_quantity(m: Model, q: Quantity, order: int, coupling: float | None, ep_search: str,
                       treatment: str, threshold: float) -> ConvergenceResult:
     """A derived quantity converges where all its levels do: radius = the smallest of theirs."""
-    from dataclasses import replace
-
     levels = list(q.resolve(m))
     if not levels:
         raise ValueError(f"quantity {q.name!r} has no level with a nonzero weight")
@@ -872,7 +919,7 @@ def divergence_map(
     idx = [m.level_index(k) for k in keys]
     if len(set(idx)) != len(idx):
         raise ValueError(f"levels contains duplicates: {list(keys)!r}")
-    order = val.check_int(order, "order", minimum=2)
+    order = val.check_order(order, n=m.n, minimum=2)
     ep_search = val.check_choice(ep_search, "ep_search", EP_SEARCH)
     specs: tuple = ()
     if orders is not None:
@@ -888,7 +935,7 @@ def divergence_map(
     grid = None if couplings is None else val.as_couplings(couplings)
 
     run_ep = m.n >= 2 and (ep_search == "always" or (ep_search == "auto" and m.n <= EP_DENSE_LIMIT))
-    search = ExceptionalPointSearch(m.e0, _dense_v(m)) if run_ep else None
+    search = _ep_search(m) if run_ep else None
     results: list[ConvergenceResult] = []
     known: list[tuple[complex, complex]] = []
     for n in idx:

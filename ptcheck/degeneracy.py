@@ -7,6 +7,10 @@ two-level radius ``Δ/(2|v|)``), and the second-order shift is within 1 % of
 the exact one at ratio 0.1: that is the default threshold
 (:data:`DEFAULT_MIXING_THRESHOLD`).  Exactly degenerate pairs have ratio
 ``inf``.
+
+Pairs are judged inside a symmetry sector (:mod:`ptcheck.sectors`): ``V`` is
+exactly zero between sectors and exactly degenerate groups are groups of one
+sector, so levels of different sectors never pair, whatever their energies.
 """
 
 from __future__ import annotations
@@ -83,7 +87,7 @@ def _pair_elements(model: Model, rows: np.ndarray | None = None) -> tuple[np.nda
 
 
 def _ratios(model: Model, i: np.ndarray, j: np.ndarray, d: np.ndarray, coupling: float) -> tuple[np.ndarray, np.ndarray]:
-    gap = np.abs(model.e0[i] - model.e0[j])
+    gap = np.abs(model.e0_relative[i] - model.e0_relative[j])
     with np.errstate(divide="ignore", invalid="ignore"):
         r = np.where(gap <= model.degeneracy_tol, np.inf, abs(coupling) * d / np.where(gap > 0, gap, 1.0))
     return r, gap
@@ -138,6 +142,8 @@ def near_degenerate_pairs(
     >>> from ptcheck import Model
     >>> m = Model(np.diag([0.0, 1.0, 1.05]), [[0, .1, 0], [.1, 0, .1], [0, .1, 0]])
     >>> [(p.l, p.n) for p in near_degenerate_pairs(m, 0.5)]
+    [(1, 2)]
+    >>> [(p.l, p.n) for p in near_degenerate_pairs(m, 0.5, 0.04)]
     [(1, 2), (0, 1)]
     """
     lam = val.as_coupling(coupling)
@@ -157,7 +163,7 @@ def near_degenerate_pairs(
         for a in grp:
             for b in grp:
                 if a < b and (wanted is None or a in wanted or b in wanted) and (a, b) not in pairs:
-                    pairs[(a, b)] = (np.inf, abs(model.e0[a] - model.e0[b]), float(abs(model.v[a, b])))
+                    pairs[(a, b)] = (np.inf, abs(model.e0_relative[a] - model.e0_relative[b]), float(abs(model.v[a, b])))
     out = [
         NearDegeneratePair(a, b, rr, g, dd, (model.label(a), model.label(b)))
         for (a, b), (rr, g, dd) in pairs.items()

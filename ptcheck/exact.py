@@ -62,6 +62,8 @@ from typing import Any
 import numpy as np
 import scipy.sparse as sp
 
+from scipy.optimize import minimize_scalar
+
 from . import _validation as val
 from ._eigensolvers import inner, make_backend
 from ._tracking import (
@@ -73,7 +75,7 @@ from ._tracking import (
     overlaps,
     parabolic_minimum,
 )
-from .errors import TrackingWarning
+from .errors import BasisTooLargeError, TrackingWarning
 from .model import DENSE_LIMIT, Model
 
 __all__ = [
@@ -174,6 +176,10 @@ class ExactSweep:
         Work-basis indices of the tracked levels (L of them).
     energies : (L, C) ndarray, read-only
         Exact energy of each tracked level at each coupling (energy units).
+    shifts : (L, C) ndarray, read-only
+        Exact shift ``E(λ) − E0`` of each tracked level (energy units),
+        computed from offset-free energies (``model.e0_relative``), so it does
+        not carry the rounding of a large constant in ``H0``.
     states : (L, C, N) ndarray or None, read-only
         Normalised exact states in the work basis, phase fixed so that
         ⟨e_n|ψ_n⟩ is real and >= 0 where it is not tiny (|.| > 1e-6), and
@@ -193,6 +199,7 @@ class ExactSweep:
     couplings: np.ndarray
     levels: tuple[int, ...]
     energies: np.ndarray
+    shifts: np.ndarray
     states: np.ndarray | None
     avoided_crossings: tuple[AvoidedCrossing, ...]
     backend: str
@@ -211,6 +218,10 @@ class ExactSweep:
         """Energies of one tracked level (work index or label), shape (C,)."""
         return self.energies[self._row(level)]
 
+    def shift(self, level: Any) -> np.ndarray:
+        """Shifts ``E(λ) − E0`` of one tracked level (work index or label), shape (C,)."""
+        return self.shifts[self._row(level)]
+
     def state(self, level: Any) -> np.ndarray:
         """States of one tracked level, shape (C, N); raises if states were not kept."""
         if self.states is None:
@@ -224,6 +235,7 @@ class ExactSweep:
             "levels": list(self.levels),
             "labels": list(self.labels),
             "energies": self.energies.tolist(),
+            "shifts": self.shifts.tolist(),
             "has_states": self.states is not None,
             "avoided_crossings": [a.to_dict() for a in self.avoided_crossings],
             "backend": self.backend,
@@ -278,46 +290,13 @@ class _StepCheck:
     problems: list  # (level, partner_id, kind)
 
 
-class ExactSolver:
-    """Exact eigenpairs and tracked levels of one model, with a cache of path points.
+class _SectorSolver:
+    """Tracked exact levels of one sector's offset-free sub-model (private; inputs trusted).
 
-    Parameters
-    ----------
-    model : Model
-    backend : {'auto', 'dense', 'sparse', 'qutip'}, default 'auto'
-        See the module docstring for the ``'auto'`` rule.
-    n_levels_hint : int, optional
-        How many levels the caller will follow (accepted for sizing; windows
-        are sized from the levels actually requested).
-    rtol : float, default 1e-8
-        Residual tolerance of the iterative solvers relative to the spectral
-        scale ``max|E0| + |λ| ‖V‖``: ``‖Hψ - Eψ‖ <= rtol x scale``.  Energies are
-        then accurate to about ``(rtol x scale)² / gap``.
-    max_depth : int, default 16
-        Largest number of step halvings when refining an ambiguous step.
-    cache_mb : float, default 256
-        Memory budget of the path-point cache (least recently used points are
-        dropped first).
-
-    Attributes
-    ----------
-    solves : int
-        Running count of exact diagonalisations.
-    backend : str
-        The resolved backend.
-    notes : list of str
-        Tracking remarks accumulated by :meth:`level_at` (crossings too narrow
-        to resolve); :meth:`track` reports its own in the result.
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from ptcheck import Model
-    >>> m = Model(np.diag([0.0, 1.0, 3.0]), 0.2 * np.ones((3, 3)))
-    >>> s = ExactSolver(m)
-    >>> e, psi = s.level_at(1, 0.5)
-    >>> psi.shape
-    (3,)
+    All the tracking machinery of this module (module docstring) runs here, on
+    ``model.restrict(s)._offset_free()``; :class:`ExactSolver` delegates each
+    level to the solver of its sector and maps indices, energies and states
+    back.
     """
 
     MIN_OVERLAP = 0.8
@@ -329,27 +308,21 @@ class ExactSolver:
     #: eigenvector residual, so narrower ones are followed diabatically as exact crossings.
     EXACT_CROSSING_DEPTH = 1
 
-    def __init__(
-        self,
-        model: Model,
-        *,
-        backend: str = "auto",
-        n_levels_hint: int | None = None,
-        rtol: float = 1e-8,
-        max_depth: int = 16,
-        cache_mb: float = 256.0,
-    ) -> None:
-        if not isinstance(model, Model):
-            raise TypeError(f"model must be a ptcheck.Model; got {type(model).__name__}")
-        val.check_choice(backend, "backend", BACKENDS)
-        if n_levels_hint is not None:
-            n_levels_hint = val.check_int(n_levels_hint, "n_levels_hint", minimum=1, maximum=model.n)
-        self.rtol = float(val.check_positive(rtol, "rtol"))
-        self.max_depth = val.check_int(max_depth, "max_depth", minimum=0)
-        self._cache_budget = float(val.check_positive(cache_mb, "cache_mb")) * 2**20
+    #: couplings beyond LADDER_START x (span of E0) / ‖V‖ are reached over a geometric ladder
+    #: of intermediate couplings (ratio 2): there the spectrum is dominated by λV and
+    #: eigenvectors turn slowly, but a single step from small λ would skip the whole
+    #: region where H0 and λV compete (halving alone cannot bridge a ratio of 1e8).
+    LADDER_START = 64.0
+    #: a step longer than GAP_LADDER x (distance of a tracked level to its nearest level) / ‖V‖
+    #: goes over a geometric ladder from that coupling scale (halving alone reaches only 2^-16 of it)
+    GAP_LADDER = 1024.0
+
+    def __init__(self, model: Model, *, backend: str, rtol: float, max_depth: int, cache_bytes: float) -> None:
+        self.rtol = rtol
+        self.max_depth = max_depth
+        self._cache_budget = cache_bytes
         self.model = model
-        self.n_levels_hint = n_levels_hint
-        self.backend = auto_backend(model) if backend == "auto" else backend
+        self.backend = backend
         self._rng = np.random.default_rng(20240607)
         self._impl = make_backend(self.backend, model, rtol=self.rtol, rng=self._rng)
         self.solves = 0
@@ -359,9 +332,10 @@ class ExactSolver:
         self._cache_used: dict[int, int] = {}
         self._anon = -1
         self.notes: list[str] = []
+        self._ladder_scale: float | None = None
 
     def __repr__(self) -> str:
-        return f"ExactSolver({self.model!r}, backend={self.backend!r}, solves={self.solves})"
+        return f"_SectorSolver({self.model!r}, backend={self.backend!r}, solves={self.solves})"
 
     # ------------------------------------------------------------------ basics
     def _scale(self, coupling: float) -> float:
@@ -388,14 +362,10 @@ class ExactSolver:
         energies : (k,) ndarray, ascending (energy units)
         vectors : (N, k) ndarray, orthonormal columns
         """
-        lam = val.as_coupling(coupling)
-        k = val.check_int(k, "k", minimum=1, maximum=self.model.n)
-        if sigma is not None:
-            sigma = val.as_coupling(sigma, "sigma")
         self.solves += 1
         if sigma is None:
-            return self._impl.lowest(lam, k)
-        return self._impl.nearest(lam, sigma, k)
+            return self._impl.lowest(coupling, k)
+        return self._impl.nearest(coupling, sigma, k)
 
     # ------------------------------------------------------------------ windows
     def _pad(self) -> int:
@@ -442,17 +412,24 @@ class ExactSolver:
         lies in a degenerate group.
         """
         model = self.model
+        # runs of exactly equal E0 inside the tracked levels' degenerate groups (a wide user
+        # degeneracy_tol may group levels with a real splitting: those keep their own states)
         groups = []
         for g in model.degenerate_groups:
-            if any(t in g for t in tracked) and g not in groups:
-                groups.append(g)
+            if not any(t in g for t in tracked):
+                continue
+            e = model.e0[list(g)]
+            for val_ in np.unique(e):
+                run = tuple(int(x) for x, ee in zip(g, e) if ee == val_)
+                if len(run) > 1 and any(t in run for t in tracked) and run not in groups:
+                    groups.append(run)
         if not groups or model.norm_v == 0.0:
             return None
         factor = 1e-2 if self._impl.iterative else 1e-4
         eps = np.inf
         for g in groups:
             d = np.abs(model.e0 - model.e0[g[0]])
-            d = d[d > model.degeneracy_tol]
+            d = d[d > 0]
             eps = min(eps, factor * (d.min() if d.size else 1.0) / model.norm_v)
         eps = float(min(eps, 0.5 * first))
         lam = ray * eps
@@ -644,8 +621,54 @@ class ExactSolver:
             check = _StepCheck(ok=False, lost=True, problems=check.problems + [(t, None, "lost") for t in tracked])
         return b, check, raw
 
+    def _ladder(self, start: float, target: float, tracked: frozenset) -> list[float]:
+        """Couplings from ``start`` to ``target`` (same ray): a geometric ladder (ratio 2) where the step is huge.
+
+        Two scales: beyond ``LADDER_START x span(E0) / ‖V‖`` (V dominates, see
+        the class attribute), and beyond ``GAP_LADDER x δ / ‖V‖`` with δ the
+        distance of a tracked level to its nearest other unperturbed level
+        (a step that large would hide the level's own avoided crossings
+        below the reach of ``max_depth`` halvings).
+        """
+        model = self.model
+        nv = model.norm_v
+        if self._ladder_scale is None:
+            span = float(np.ptp(model.e0)) if model.n else 0.0
+            self._ladder_scale = self.LADDER_START * span / nv if (span > 0 and nv > 0) else np.inf
+        a, b = abs(start), abs(target)
+        lo = self._ladder_scale
+        if nv > 0 and model.n > 1:
+            e0 = model.e0
+            gaps = []
+            for t in tracked:
+                d = np.abs(e0 - e0[t])
+                d = d[d > 0]
+                if d.size:
+                    gaps.append(float(d.min()))
+            if gaps and b > self.GAP_LADDER * max(a, min(gaps) / nv):
+                lo = min(lo, min(gaps) / nv)
+        if not np.isfinite(lo) or b <= 2.0 * max(a, lo):
+            return [target]
+        sign = 1.0 if target > 0 else -1.0
+        pts = [] if a >= lo else [sign * lo]
+        x = 2.0 * max(a, lo)
+        while x < b / 1.5:
+            pts.append(sign * x)
+            x *= 2.0
+        return pts + [target]
+
     def _advance(self, a: PathPoint, target: float, tracked: frozenset, notes: list) -> list[PathPoint]:
         """Path points from ``a`` to ``target`` (same ray), refining where ambiguous."""
+        out: list[PathPoint] = []
+        cur = a
+        for stop in self._ladder(a.coupling, target, tracked):
+            pts = self._advance_step(cur, stop, tracked, notes)
+            out.extend(pts)
+            cur = pts[-1]
+        return out
+
+    def _advance_step(self, a: PathPoint, target: float, tracked: frozenset, notes: list) -> list[PathPoint]:
+        """Path points from ``a`` to ``target``, halving ambiguous steps (module docstring)."""
         out: list[PathPoint] = []
         stack: list[tuple[float, int, _Raw | None]] = [(target, 0, None)]
         cur = a
@@ -674,16 +697,68 @@ class ExactSolver:
                     )
                 else:
                     who = self._name(partner) if partner is not None else "a neighbouring level"
-                    msg = (
-                        f"level {self.model.label(t)}: crossing with {who} between λ={cur.coupling:.6g} and "
-                        f"λ={lam:.6g} is narrower than resolvable (step {abs(lam - cur.coupling):.2g} after "
-                        f"{depth} halvings); followed diabatically"
-                    )
+                    real, gap, where = self._check_crossing(cur, b, t, partner)
+                    if real:
+                        msg = (
+                            f"level {self.model.label(t)}: crossing with {who} between λ={cur.coupling:.6g} and "
+                            f"λ={lam:.6g} is narrower than resolvable (step {abs(lam - cur.coupling):.2g} after "
+                            f"{depth} halvings; checked: gap {gap:.2g} near λ={where:.6g}); followed diabatically"
+                        )
+                    else:
+                        msg = (
+                            f"level {self.model.label(t)}: ambiguous step between λ={cur.coupling:.6g} and "
+                            f"λ={lam:.6g} after {depth} halvings, but no crossing with {who} there (smallest gap "
+                            f"{gap:.2g}); continued with the state of largest overlap"
+                        )
                 if msg not in notes:
                     notes.append(msg)
             out.append(b)
             cur = b
         return out
+
+    def _check_crossing(self, a: PathPoint, b: PathPoint, t: int, partner: int | None) -> tuple[bool, float, float]:
+        """Is there really a narrow crossing of ``t`` with ``partner`` between ``a`` and ``b``?
+
+        The gap between the two exact levels that carry the pair's states is
+        minimised over the step (bounded Brent search, at most 8 solves).  The
+        crossing is real when that minimum lies well below the gaps at both
+        ends (< 1/2 of the smaller one) or below the solver's resolution.
+        Returns ``(real, min gap, coupling of the minimum)``.
+        """
+        ca = a.column(t)
+        cp = a.column(partner) if partner is not None and partner >= 0 else None
+        cb_t, cb_p = b.column(t), (b.column(partner) if partner is not None and partner >= 0 else None)
+        if ca is None or cb_t is None:
+            return True, np.nan, 0.5 * (a.coupling + b.coupling)
+        if cp is None or cb_p is None:
+            # nearest neighbour of t in energy at a
+            e = a.energies
+            cand = [c for c in (ca - 1, ca + 1) if 0 <= c < e.size]
+            if not cand:
+                return True, np.nan, 0.5 * (a.coupling + b.coupling)
+            cp = min(cand, key=lambda c: abs(e[c] - e[ca]))
+            pid = int(a.ids[cp])
+            cb_p = b.column(pid)
+            if cb_p is None:
+                return True, np.nan, 0.5 * (a.coupling + b.coupling)
+        ends = min(abs(a.energies[ca] - a.energies[cp]), abs(b.energies[cb_t] - b.energies[cb_p]))
+        pair = a.vectors[:, [ca, cp]]
+        spec = ("rank", b.lo, b.lo + b.energies.size) if b.lo is not None else self._spec(b, frozenset({t}), self._pad())
+
+        def gap(lam: float) -> float:
+            raw = self._solve(float(lam), spec, b.vectors, b.coupling)
+            w = raw.energies
+            if w.size < 2:
+                return np.inf
+            weight = np.sum(np.abs(inner(raw.vectors, pair)) ** 2, axis=1)
+            best = int(np.argmax(weight[:-1] + weight[1:]))
+            return float(w[best + 1] - w[best])
+
+        lo, hi = sorted((a.coupling, b.coupling))
+        res = minimize_scalar(gap, bounds=(lo, hi), method="bounded", options={"maxiter": 8, "xatol": 1e-3 * (hi - lo)})
+        g = float(res.fun)
+        floor = 10.0 * max(a.res_tol, b.res_tol)
+        return bool(g < 0.5 * ends or g <= floor), g, float(res.x)
 
     def _name(self, pid: int) -> str:
         return self.model.label(pid) if pid >= 0 else "an untracked level"
@@ -729,7 +804,7 @@ class ExactSolver:
             raise ValueError(f"levels must be distinct; got {list(seq)!r} (work indices {list(out)})")
         return out
 
-    def level_at(self, level: Any, coupling: float) -> tuple[float, np.ndarray]:
+    def level_at(self, level: Any, coupling: float, stacklevel: int = 3) -> tuple[float, np.ndarray]:
         """Tracked exact energy and state of one level at one coupling.
 
         The level is followed from the nearest cached path point below |λ| on
@@ -771,24 +846,20 @@ class ExactSolver:
                 start = start_pt
         pts += self._advance(start, lam, tracked, notes)
         self._cache_add(ray, pts)
-        self._warn(notes)
+        self._warn(notes, stacklevel)
         p = pts[-1]
         c = p.column(n)
         return float(p.energies[c]), p.vectors[:, c].copy()
 
-    def _warn(self, notes: list[str]) -> None:
+    def _warn(self, notes: list[str], stacklevel: int) -> None:
         fresh = [m for m in notes if m not in self.notes]
         self.notes.extend(fresh)
         if notes:
             warnings.warn(
                 "exact level tracking: " + "; ".join(notes[:3]) + (f" (+{len(notes) - 3} more)" if len(notes) > 3 else ""),
                 TrackingWarning,
-                stacklevel=3,
+                stacklevel=stacklevel + 1,
             )
-
-    def track(self, levels: Any, couplings: Any, *, keep_states: bool = True, find_crossings: bool = True) -> ExactSweep:
-        """Follow levels over couplings; see :func:`track`."""
-        return self._track(levels, couplings, keep_states=keep_states, find_crossings=find_crossings, stacklevel=3)
 
     def _track(self, levels: Any, couplings: Any, *, keep_states: bool, find_crossings: bool, stacklevel: int) -> ExactSweep:
         lv = self._resolve_levels(levels)
@@ -839,8 +910,8 @@ class ExactSolver:
         if fb:
             notes.append(f"the warm-started sparse solver fell back to ARPACK {fb} time(s)")
         crossings = _dedupe(crossings)
-        if any("narrower than resolvable" in m or "lost from" in m for m in notes):
-            tracking_notes = [m for m in notes if "narrower than resolvable" in m or "lost from" in m]
+        if any(_is_tracking_problem(m) for m in notes):
+            tracking_notes = [m for m in notes if _is_tracking_problem(m)]
             warnings.warn(
                 "exact level tracking: "
                 + "; ".join(tracking_notes[:3])
@@ -852,6 +923,7 @@ class ExactSolver:
             couplings=_readonly(lam.copy()),
             levels=lv,
             energies=_readonly(energies),
+            shifts=_readonly(energies - self.model.e0[list(lv)][:, None]),
             states=_readonly(states) if states is not None else None,
             avoided_crossings=tuple(sorted(crossings, key=lambda a: (a.coupling, a.levels))),
             backend=self.backend,
@@ -917,6 +989,10 @@ class ExactSolver:
         return guess, self.model.label(guess) + "?"
 
 
+def _is_tracking_problem(note: str) -> bool:
+    return "narrower than resolvable" in note or "lost from" in note or "ambiguous step" in note
+
+
 def _dedupe(crossings: list[AvoidedCrossing]) -> list[AvoidedCrossing]:
     """One entry per pair and position (a crossing of two tracked levels is found from both)."""
     out: list[AvoidedCrossing] = []
@@ -928,6 +1004,290 @@ def _dedupe(crossings: list[AvoidedCrossing]) -> list[AvoidedCrossing]:
         elif a.min_gap < out[same].min_gap:
             out[same] = a
     return out
+
+
+# ============================================================================ public solver
+class ExactSolver:
+    """Exact eigenpairs and tracked levels of one model, sector by sector.
+
+    Each tracked level is followed by a solver of its symmetry sector
+    (:meth:`ptcheck.model.Model.restrict`, with the model's energy offset
+    removed); indices, energies and states are mapped back to the model
+    (states embedded as N-vectors, zero outside the sector).  Levels of
+    different sectors therefore never mix: their crossings are true
+    crossings, never refined and never reported as avoided.  A sector of one
+    level is solved in closed form (``E = E0 + λ V_nn``, no solve).  Energies
+    are absolute (``model.e0`` scale); :meth:`shift_at` and
+    :attr:`ExactSweep.shifts` give ``E(λ) − E0`` without the rounding of the
+    offset.
+
+    Parameters
+    ----------
+    model : Model
+    backend : {'auto', 'dense', 'sparse', 'qutip'}, default 'auto'
+        ``'auto'`` applies the rule of the module docstring to each sector's
+        sub-model; an explicit name is used for every sector.
+    n_levels_hint : int, optional
+        How many levels the caller will follow (accepted for sizing; windows
+        are sized from the levels actually requested).
+    rtol : float, default 1e-8
+        Residual tolerance of the iterative solvers relative to the spectral
+        scale ``max|E0 − c| + |λ| ‖V‖`` of the sector (c = energy offset):
+        ``‖Hψ - Eψ‖ <= rtol x scale``.  Energies are then accurate to about
+        ``(rtol x scale)² / gap``.
+    max_depth : int, default 16
+        Largest number of step halvings when refining an ambiguous step.
+    cache_mb : float, default 256
+        Memory budget of the path-point caches (shared by the sectors in
+        proportion to their size; least recently used points are dropped first).
+
+    Attributes
+    ----------
+    solves : int
+        Running count of exact diagonalisations (all sectors).
+    backend : str
+        The backend ``'auto'`` resolves to for the whole model (sweeps report
+        the backends their sectors actually used).
+    notes : list of str
+        Tracking remarks accumulated by :meth:`level_at` (crossings too narrow
+        to resolve); :meth:`track` reports its own in the result.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from ptcheck import Model
+    >>> m = Model(np.diag([0.0, 1.0, 3.0]), 0.2 * np.ones((3, 3)))
+    >>> s = ExactSolver(m)
+    >>> e, psi = s.level_at(1, 0.5)
+    >>> psi.shape
+    (3,)
+    """
+
+    def __init__(
+        self,
+        model: Model,
+        *,
+        backend: str = "auto",
+        n_levels_hint: int | None = None,
+        rtol: float = 1e-8,
+        max_depth: int = 16,
+        cache_mb: float = 256.0,
+    ) -> None:
+        if not isinstance(model, Model):
+            raise TypeError(f"model must be a ptcheck.Model; got {type(model).__name__}")
+        val.check_choice(backend, "backend", BACKENDS)
+        if n_levels_hint is not None:
+            n_levels_hint = val.check_int(n_levels_hint, "n_levels_hint", minimum=1, maximum=model.n)
+        self.rtol = float(val.check_positive(rtol, "rtol"))
+        self.max_depth = val.check_int(max_depth, "max_depth", minimum=0)
+        self._cache_budget = float(val.check_positive(cache_mb, "cache_mb")) * 2**20
+        self.model = model
+        self.n_levels_hint = n_levels_hint
+        self._requested = backend
+        self.backend = auto_backend(model) if backend == "auto" else backend
+        self._sizes = np.bincount(model.level_sectors)
+        if backend == "dense" and int(self._sizes.max()) > DENSE_LIMIT:
+            s = int(np.argmax(self._sizes))
+            raise BasisTooLargeError(
+                f"backend 'dense' needs a dense matrix of each sector, but sector {s} of {model.name!r} has "
+                f"N = {int(self._sizes[s])} > DENSE_LIMIT = {DENSE_LIMIT} states (model N = {model.n}). "
+                "Use backend='sparse' (or 'auto'), or reduce the basis."
+            )
+        if backend == "qutip":
+            import qutip  # noqa: F401  (fail early with ImportError if missing)
+        self._solvers: dict[int, _SectorSolver] = {}
+        self._centre: dict[int, float] = {}  # sector energy centre (relative to model.energy_offset)
+        self._levels_of: dict[int, np.ndarray] = {}
+        self._full: _SectorSolver | None = None
+
+    def __repr__(self) -> str:
+        return f"ExactSolver({self.model!r}, backend={self.backend!r}, solves={self.solves})"
+
+    @property
+    def solves(self) -> int:
+        """Exact diagonalisations so far (all sectors)."""
+        return sum(s.solves for s in self._solvers.values()) + (self._full.solves if self._full is not None else 0)
+
+    @property
+    def notes(self) -> list[str]:
+        """Tracking remarks of :meth:`level_at` calls (all sectors)."""
+        out: list[str] = []
+        for s in self._solvers.values():
+            out.extend(m for m in s.notes if m not in out)
+        return out
+
+    # ------------------------------------------------------------------ sectors
+    def _where(self, level: int) -> tuple[int, int]:
+        """(sector, index inside the sector) of a work index."""
+        s = int(self.model.level_sectors[level])
+        if s not in self._levels_of:
+            self._levels_of[s] = np.flatnonzero(self.model.level_sectors == s)
+        return s, int(np.searchsorted(self._levels_of[s], level))
+
+    def _solver(self, s: int) -> _SectorSolver:
+        """The solver of sector s, on the sector's sub-model with its energy centre removed."""
+        if s not in self._solvers:
+            single = self._sizes.size == 1
+            sub, centre = (self.model if single else self.model.restrict(s))._offset_free()
+            backend = auto_backend(sub) if self._requested == "auto" else self._requested
+            share = self._cache_budget * max(sub.n / self.model.n, 1.0 / 64.0)
+            self._solvers[s] = _SectorSolver(sub, backend=backend, rtol=self.rtol, max_depth=self.max_depth, cache_bytes=share)
+            self._centre[s] = centre
+        return self._solvers[s]
+
+    def _solve_level(self, n: int, lam: float, stacklevel: int) -> tuple[float, float, np.ndarray]:
+        """(absolute energy, shift E − E0, N-vector state) of work level n at λ."""
+        s, k = self._where(n)
+        model = self.model
+        psi = np.zeros(model.n, dtype=model.dtype)
+        if self._sizes[s] == 1:
+            psi[n] = 1.0
+            shift = lam * float(np.real(model.v[n, n]))
+            return float(model.e0[n] + shift), shift, psi
+        solver = self._solver(s)
+        e, sub_psi = solver.level_at(k, lam, stacklevel + 1)
+        psi[self._levels_of[s]] = sub_psi
+        return float(e + (self._centre[s] + model.energy_offset)), float(e - solver.model.e0[k]), psi
+
+    # ------------------------------------------------------------------ public
+    def eigenpairs(self, coupling: float, *, k: int, sigma: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+        """k exact eigenpairs of the whole H(λ) in the work basis (all sectors together).
+
+        Parameters
+        ----------
+        coupling : float
+        k : int
+            Number of eigenpairs, 1 <= k <= N.
+        sigma : float, optional
+            If given, the k eigenvalues closest to ``sigma`` (energy units);
+            otherwise the k lowest.
+
+        Returns
+        -------
+        energies : (k,) ndarray, ascending (energy units)
+        vectors : (N, k) ndarray, orthonormal columns
+        """
+        lam = val.as_coupling(coupling)
+        k = val.check_int(k, "k", minimum=1, maximum=self.model.n)
+        if sigma is not None:
+            sigma = val.as_coupling(sigma, "sigma") - self.model.energy_offset
+        whole, centre = self.model._offset_free()
+        if sigma is not None:
+            sigma -= centre
+        if self._full is None:
+            self._full = _SectorSolver(whole, backend=self.backend, rtol=self.rtol, max_depth=self.max_depth, cache_bytes=self._cache_budget)
+        w, x = self._full.eigenpairs(lam, k=k, sigma=sigma)
+        return np.asarray(w, dtype=float) + (centre + self.model.energy_offset), x
+
+    def level_at(self, level: Any, coupling: float) -> tuple[float, np.ndarray]:
+        """Tracked exact energy and state of one level at one coupling.
+
+        The level is followed inside its sector from the nearest cached path
+        point below |λ| on the same ray (or from λ = 0), refining the step
+        where overlaps are ambiguous; every solved point is cached, so probes
+        in any order (a bisection) stay cheap and consistent.
+
+        Parameters
+        ----------
+        level : int or label
+        coupling : float
+
+        Returns
+        -------
+        energy : float
+            Exact energy of the level (energy units).
+        state : (N,) ndarray
+            Normalised work-basis state, phase as in :class:`ExactSweep`.
+        """
+        n = self.model.level_index(level)
+        lam = val.as_coupling(coupling)
+        e, _, psi = self._solve_level(n, lam, 3)
+        return e, psi
+
+    def shift_at(self, level: Any, coupling: float) -> float:
+        """Exact shift ``E(λ) − E0`` of one level (energy units).
+
+        Computed on the level's sector with the sector's energy centre removed,
+        so it keeps the accuracy of the offset-free problem however large a
+        constant ``H0`` carries.
+        """
+        n = self.model.level_index(level)
+        lam = val.as_coupling(coupling)
+        return self._solve_level(n, lam, 3)[1]
+
+    def track(self, levels: Any, couplings: Any, *, keep_states: bool = True, find_crossings: bool = True) -> ExactSweep:
+        """Follow levels over couplings; see :func:`track`."""
+        return self._track(levels, couplings, keep_states=keep_states, find_crossings=find_crossings, stacklevel=3)
+
+    def _resolve_levels(self, levels: Any) -> tuple[int, ...]:
+        seq = val.as_sequence(levels)
+        if not seq:
+            raise ValueError("levels is empty; give at least one level (energy rank or label)")
+        out = tuple(self.model.level_index(x) for x in seq)
+        if len(set(out)) != len(out):
+            raise ValueError(f"levels must be distinct; got {list(seq)!r} (work indices {list(out)})")
+        return out
+
+    def _track(self, levels: Any, couplings: Any, *, keep_states: bool, find_crossings: bool, stacklevel: int) -> ExactSweep:
+        model = self.model
+        lv = self._resolve_levels(levels)
+        lam = val.as_couplings(couplings)
+        nl, nc, n = len(lv), lam.size, model.n
+        absolute = np.empty((nl, nc))
+        shifts = np.empty((nl, nc))
+        states = np.zeros((nl, nc, n), dtype=model.dtype) if keep_states else None
+        by_sector: dict[int, list[tuple[int, int]]] = {}
+        for row, t in enumerate(lv):
+            s, k = self._where(t)
+            by_sector.setdefault(s, []).append((row, k))
+        notes: list[str] = []
+        crossings: list[AvoidedCrossing] = []
+        backends: list[str] = []
+        solves = 0
+        for s, items in by_sector.items():
+            where = self._levels_of[s]
+            if self._sizes[s] == 1:
+                (row, _), t = items[0], int(where[0])
+                shifts[row] = lam * float(np.real(model.v[t, t]))
+                absolute[row] = model.e0[t] + shifts[row]
+                if states is not None:
+                    states[row, :, t] = 1.0
+                continue
+            solver = self._solver(s)
+            centre = self._centre[s] + model.energy_offset
+            sw = solver._track([k for _, k in items], lam, keep_states=keep_states, find_crossings=find_crossings, stacklevel=stacklevel + 1)
+            solves += sw.solves
+            if sw.backend not in backends:
+                backends.append(sw.backend)
+            for m in sw.notes:
+                if m not in notes:
+                    notes.append(m)
+            for j, (row, k) in enumerate(items):
+                absolute[row] = sw.energies[j] + centre
+                shifts[row] = sw.shifts[j]
+                if states is not None:
+                    states[row][:, where] = sw.states[j]
+            for ac in sw.avoided_crossings:
+                crossings.append(
+                    AvoidedCrossing(
+                        coupling=ac.coupling, min_gap=ac.min_gap, levels=(int(where[ac.levels[0]]), int(where[ac.levels[1]])), labels=ac.labels
+                    )
+                )
+        zero = lam == 0.0
+        absolute[:, zero] = model.e0[list(lv)][:, None]  # exact at λ = 0
+        shifts[:, zero] = 0.0
+        return ExactSweep(
+            couplings=_readonly(lam.copy()),
+            levels=lv,
+            energies=_readonly(absolute),
+            shifts=_readonly(shifts),
+            states=_readonly(states) if states is not None else None,
+            avoided_crossings=tuple(sorted(crossings, key=lambda a: (a.coupling, a.levels))),
+            backend="+".join(backends) if backends else self.backend,
+            solves=solves,
+            notes=tuple(notes),
+            labels=tuple(model.label(t) for t in lv),
+        )
 
 
 # ============================================================================ one-off functions

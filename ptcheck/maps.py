@@ -9,12 +9,19 @@ value is one independent task, run on any :class:`concurrent.futures.Executor`:
 - ``executor=None``: a local :class:`~concurrent.futures.ProcessPoolExecutor`
   with 2 workers (started and shut down inside the call);
 - ``executor="serial"``: in this process, one task after the other;
-- any executor you pass, e.g. a dask cluster's::
+- any executor you pass, e.g. a dask cluster's (a dask ``Client`` itself is
+  accepted too and used through ``client.get_executor()``)::
 
       from dask.distributed import Client
       with Client("tcp://scheduler:8786") as client:     # or Client(LocalCluster(...))
           vm = validity_map("kerr_qubit_resonator", "omega_r", values, level=chi,
                             order=2, rtol=0.01, executor=client.get_executor())
+
+If the call is interrupted (Ctrl-C, or an exception raised by a signal
+handler), the worker processes of the default pool are terminated before the
+exception propagates: no worker outlives the call.  Workers of the default
+pool ignore SIGINT themselves (the caller decides); tasks already sent to an
+executor you passed are cancelled where the executor allows it.
 
 Tasks are the module-level function :func:`_map_task` applied to picklable
 jobs, and every task computes exactly what the serial loop computes, so the
@@ -30,6 +37,7 @@ from __future__ import annotations
 import contextlib
 import html
 import math
+import signal
 import warnings
 from collections.abc import Callable, Mapping, Sequence
 from concurrent.futures import Executor, ProcessPoolExecutor, as_completed
@@ -282,7 +290,7 @@ def validity_map(
     executor: Executor | str | None = None,
     progress: ProgressCallback | None = None,
     direction: int = +1,
-    treatment: str = "auto",
+    treatment: str = "standard",
     backend: str = "auto",
     max_coupling: float | None = None,
 ) -> ValidityMap:
@@ -360,8 +368,15 @@ def validity_map(
     thr = float(val.check_positive(tol if rtol is None else rtol, "tol" if rtol is None else "rtol"))
     tol, rtol = (thr, None) if rtol is None else (None, thr)
     spec = parse_order(order)
-    if direction not in (1, -1):
+    if isinstance(direction, bool) or direction not in (1, -1):
         raise ValueError(f"direction must be +1 or -1; got {direction!r}")
+    from .exact import BACKENDS
+    from .treatment import TREATMENTS
+
+    treatment = val.check_choice(treatment, "treatment", TREATMENTS)
+    backend = val.check_choice(backend, "backend", BACKENDS)
+    max_coupling = val.check_positive(max_coupling, "max_coupling", allow_none=True)
+    executor = _as_executor(executor)
     grid = None if couplings is None else val.as_couplings(couplings)
     if isinstance(level, list):
         raise TypeError("validity_map takes one level or quantity; got a list")
@@ -408,21 +423,67 @@ def validity_map(
     )
 
 
+def _as_executor(executor: Any) -> Executor | str | None:
+    """None, "serial", a concurrent.futures Executor, or a dask Client (its executor)."""
+    if executor is None or (isinstance(executor, str) and executor == "serial"):
+        return executor
+    if isinstance(executor, str):
+        raise ValueError(f"executor must be a concurrent.futures.Executor, 'serial' or None; got {executor!r}")
+    if isinstance(executor, Executor):
+        return executor
+    if callable(getattr(executor, "get_executor", None)):  # a dask.distributed Client
+        return executor.get_executor()
+    raise TypeError(
+        "executor must be a concurrent.futures.Executor (e.g. client.get_executor() of a dask Client), "
+        f"a dask Client, 'serial' or None; got {type(executor).__name__}"
+    )
+
+
+def _worker_init() -> None:
+    """Workers of the default pool leave SIGINT to the caller, who stops them, and end quietly on SIGTERM.
+
+    A forked worker inherits the caller's Python signal handlers (the command
+    line turns SIGTERM into an exception): those are reset here.
+    """
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
+def _stop_pool(pool: ProcessPoolExecutor) -> None:
+    """Terminate the worker processes of a pool now (on an interrupt), then let the pool wind down.
+
+    Its futures are not cancelled first: the pool marks them broken itself
+    once its workers are gone (cancelling them too trips the pool's own
+    bookkeeping on Python 3.11).
+    """
+    kill = getattr(pool, "terminate_workers", None)  # Python >= 3.14
+    if callable(kill):
+        kill()
+        return
+    procs = list((getattr(pool, "_processes", None) or {}).values())
+    for p in procs:
+        if p.is_alive():
+            p.terminate()
+    for p in procs:
+        p.join(timeout=10)
+    pool.shutdown(wait=False)
+    manager = getattr(pool, "_executor_manager_thread", None)
+    if manager is not None:
+        manager.join(timeout=10)
+
+
 def _run(jobs: list[_Job], executor: Executor | str | None, progress: ProgressCallback | None) -> list[_Point]:
     total = len(jobs)
     out: list[_Point | None] = [None] * total
-    if executor == "serial":
+    if isinstance(executor, str):  # "serial"
         for k, job in enumerate(jobs):
             out[job.index] = _map_task(job)
             report_progress(progress, k + 1, total)
         return out  # type: ignore[return-value]
-    if isinstance(executor, str):
-        raise ValueError(f"executor must be a concurrent.futures.Executor, 'serial' or None; got {executor!r}")
     own = executor is None
     if own:
-        executor = ProcessPoolExecutor(max_workers=min(DEFAULT_WORKERS, total))
-    elif not isinstance(executor, Executor) and not hasattr(executor, "submit"):
-        raise TypeError(f"executor must be a concurrent.futures.Executor, 'serial' or None; got {executor!r}")
+        executor = ProcessPoolExecutor(max_workers=min(DEFAULT_WORKERS, total), initializer=_worker_init)
+    futures = []
     try:
         futures = [executor.submit(_map_task, job) for job in jobs]
         done = 0
@@ -431,7 +492,13 @@ def _run(jobs: list[_Job], executor: Executor | str | None, progress: ProgressCa
             out[p.index] = p
             done += 1
             report_progress(progress, done, total)
-    finally:
+    except BaseException:
         if own:
-            executor.shutdown(wait=True, cancel_futures=True)
+            _stop_pool(executor)
+        else:
+            for fut in futures:
+                fut.cancel()
+        raise
+    if own:
+        executor.shutdown(wait=True)
     return out  # type: ignore[return-value]

@@ -1,34 +1,44 @@
-"""The model ``H(λ) = H0 + λ V``: validation, unperturbed basis, level labels.
+"""The model ``H(λ) = H0 + λ V``: validation, symmetry sectors, unperturbed basis, level labels.
 
 All of ptcheck works in the *work basis*: the eigenbasis of ``H0`` sorted by
-unperturbed energy (level 0 = lowest).  Inside a group of exactly degenerate
-unperturbed levels the work basis is rotated to the "good" states that
+unperturbed energy (level 0 = lowest), organised in **symmetry sectors**
+(subspaces that ``H0 + λV`` leaves invariant for every λ; see
+:mod:`ptcheck.sectors`).  Inside a group of exactly degenerate unperturbed
+levels *of one sector* the work basis is rotated to the "good" states that
 diagonalise ``V`` in the group (sorted by their first-order shift), so that
-"level n" names one analytic branch of the exact spectrum.  The transform back
-to the user's basis is kept (:meth:`Model.to_user_basis`).
+"level n" names one analytic branch of the exact spectrum.  Levels of
+different sectors never mix: equal unperturbed energies in different sectors
+are not a degeneracy (``Model.symmetry_degeneracies`` lists them).  The
+transform back to the user's basis is kept (:meth:`Model.to_user_basis`).
 """
 
 from __future__ import annotations
 
+import html
 from collections.abc import Hashable, Sequence
 from typing import Any
 
 import numpy as np
-import scipy.linalg as sla
 import scipy.sparse as sp
 
 from . import _validation as val
-from .errors import AmbiguousLevelError, BasisTooLargeError
+from . import sectors as sec
+from ._labels import LevelNames, hashable
+from .sectors import Sector
 
-__all__ = ["Model", "DENSE_LIMIT"]
+__all__ = ["Model", "DENSE_LIMIT", "MAX_GROUP_ROTATION"]
 
 #: Largest basis for which ptcheck will build and diagonalise a dense matrix
 #: (a dense complex 6000 x 6000 matrix is 0.6 GB; eigh takes minutes on 2 cores).
 DENSE_LIMIT = 6000
 
-#: Largest exactly degenerate group of H0 that is rotated to first-order good
-#: states; levels in larger groups are reported as ambiguous.
+#: Largest exactly degenerate group (inside one sector) that is rotated to
+#: first-order good states; levels in larger groups that V mixes are reported
+#: as ambiguous.
 MAX_GROUP_ROTATION = 256
+
+#: Default degeneracy tolerance relative to the span of the unperturbed spectrum.
+DEGENERACY_RTOL = 1e-9
 
 
 class Model:
@@ -50,13 +60,38 @@ class Model:
     dims : sequence of int, optional
         Subsystem dimensions of a product basis (product must equal N).  If
         ``labels`` is not given, states are labelled by their quantum numbers,
-        e.g. ``(1, 0)``.  Taken from a ``Qobj``'s dims when not given.
+        e.g. ``(1, 0)`` (made on demand from indices).  Taken from a ``Qobj``'s
+        dims when not given.
     hermitian_rtol : float, default 1e-10
-        Largest allowed ``|A - A^H|`` entry relative to ``max|A|``.
+        Largest allowed ``|A[i,j] - conj(A[j,i])|`` relative to the larger of
+        ``|A[i,j]|`` and ``|A[j,i]|`` (each pair on its own scale), beyond
+        rounding noise (see :func:`ptcheck._validation.check_hermitian`).
     degeneracy_tol : float, optional
-        Unperturbed levels closer than this (energy units) count as exactly
-        degenerate.  Default: ``1e-9 x`` the spectral scale of ``H0``
-        (``max(|E0|)``, or the span of E0 if larger).
+        Unperturbed levels *of one sector* closer than this (energy units)
+        count as exactly degenerate for the **perturbative** side (they form
+        one group: a block, good states).  Default: ``1e-9 x`` the span of the
+        unperturbed spectrum (max E0 − min E0; ``max|V|`` if the span is
+        zero), and never less than the round-off of the unperturbed energies
+        (16 ulps of the largest ``|E0|``, plus 1000 ulps of the span when
+        ``h0`` had to be diagonalised), so adding a constant to ``H0``
+        changes nothing.  The tolerance never changes the
+        matrices: levels inside a group keep their true energies and exact
+        solves always use the true ``H0``; states are only rotated inside runs
+        of levels that are equal to roundoff.
+    conserved : sequence or mapping of operators, optional
+        Conserved operators for symmetries the coupling graph cannot see (e.g.
+        the spin-flip parity ``∏σx`` of an Ising chain): a sequence (named
+        ``conserved[i]``) or a mapping ``name -> operator``; each like ``h0``
+        (ndarray, scipy.sparse, qutip.Qobj), Hermitian and commuting with
+        ``h0``, ``v`` and each other (checked, see
+        :data:`ptcheck.sectors.COMMUTATOR_RTOL`; a clear error names the
+        operator and the commutator size).  Sectors are their joint
+        eigenspaces inside the components of the coupling graph.
+    coupling_scale : float, optional
+        Physical value of the coupling at λ = 1, for display (e.g. ``66.0``
+        for g = 66 MHz).  Stored only; λ stays dimensionless everywhere.
+    coupling_unit : str, optional
+        Unit of ``coupling_scale`` (e.g. ``"MHz"``); needs ``coupling_scale``.
 
     Attributes
     ----------
@@ -64,13 +99,42 @@ class Model:
         Basis size N.
     e0 : (N,) ndarray, read-only
         Unperturbed energies, ascending (energy units).
+    energy_offset : float
+        A constant subtracted internally (the lower median of the diagonal of
+        ``h0``): exact solves and series work with ``e0_relative`` so that
+        results keep the accuracy of the offset-free problem.
+    e0_relative : (N,) ndarray, read-only
+        ``e0 - energy_offset``, computed without the offset's rounding.
     v : (N, N) ndarray or scipy.sparse.csr_matrix
-        The perturbation in the work basis.
+        The perturbation in the work basis.  Elements between different
+        sectors are exactly zero (what the commutation check allowed as
+        round-off is set to zero).
+    sectors : tuple of Sector
+        The symmetry sectors (see :class:`ptcheck.sectors.Sector`).
+    level_sectors : (N,) int ndarray, read-only
+        Sector index of every level.
     degenerate_groups : tuple of tuple of int
-        Groups (size >= 2) of exactly degenerate unperturbed levels.
+        Groups (size >= 2) of exactly degenerate unperturbed levels inside one
+        sector (within ``degeneracy_tol``).
+    symmetry_degeneracies : tuple of tuple of int
+        Runs of equal unperturbed energies (within ``degeneracy_tol``) that
+        span several sectors: informative only, they never mix.
     ambiguous_levels : frozenset of int
         Levels whose user label cannot be attached to one perturbed level
-        (a degenerate group in which ``V`` mixes the user's states).
+        (a degenerate group of one sector in which ``V`` mixes the user's
+        states).
+    conserved_names : tuple of str
+        Names of the declared conserved operators.
+    parent_levels : tuple of int or None
+        For a sub-model made by :meth:`restrict`: the parent's work index of
+        each level; ``None`` for a model built from matrices.
+
+    Notes
+    -----
+    Work-basis order: ascending E0; among levels with equal E0 (to
+    round-off), ascending sector index, then ascending first-order shift
+    ⟨V⟩, then the order of the user's basis (so each exactly degenerate group
+    of a sector is a run of consecutive indices).
 
     Examples
     --------
@@ -78,6 +142,8 @@ class Model:
     >>> m = Model(np.diag([0.0, 1.0]), [[0, 0.1], [0.1, 0]], name="two-level")
     >>> m.e0
     array([0., 1.])
+    >>> m.sectors
+    (Sector(0, 'all levels', size=2),)
     """
 
     def __init__(
@@ -90,14 +156,17 @@ class Model:
         dims: Sequence[int] | None = None,
         hermitian_rtol: float = 1e-10,
         degeneracy_tol: float | None = None,
+        conserved: Any = None,
+        coupling_scale: float | None = None,
+        coupling_unit: str | None = None,
     ) -> None:
-        h0m, h0dims = val.as_operator(h0, "h0")
-        vm, vdims = val.as_operator(v, "v")
+        h0m, h0dims = val.as_operator(h0, "h0", max_dense=DENSE_LIMIT)
+        vm, _ = val.as_operator(v, "v", max_dense=DENSE_LIMIT)
         n = val.check_square_pair(h0m, vm)
         hermitian_rtol = float(val.check_positive(hermitian_rtol, "hermitian_rtol"))
         for nm, m in (("h0", h0m), ("v", vm)):
             val.check_finite(m, nm)
-            val.check_hermitian(m, nm, hermitian_rtol)
+            val.check_hermitian(m, nm, hermitian_rtol, scale=max(val.max_abs(h0m), val.max_abs(vm)))
         if dims is None:
             dims = h0dims if (h0dims is not None and len(h0dims) > 1) else None
         if dims is not None:
@@ -108,134 +177,209 @@ class Model:
             labels = list(labels)
             if len(labels) != n:
                 raise ValueError(f"labels must have one entry per basis state ({n}); got {len(labels)}")
-            if len(set(map(_hashable, labels))) != n:
+            if len(set(map(hashable, labels))) != n:
                 raise ValueError("labels must be distinct")
-        self.name = str(name) if name is not None else "model"
-        self.n = n
-        self.dims = dims
-        self.hermitian_rtol = hermitian_rtol
-        self.is_sparse = sp.issparse(vm)
-        self._source_v_sparse = sp.issparse(vm)
+        if degeneracy_tol is not None:
+            degeneracy_tol = float(val.check_positive(degeneracy_tol, "degeneracy_tol"))
+        coupling_scale, coupling_unit = _coupling_display(coupling_scale, coupling_unit)
+        ops = sec.conserved_operators(conserved, n, hermitian_rtol)
 
-        # ---- unperturbed eigenbasis -------------------------------------------------
+        # ---- unperturbed basis per graph component, offset removed ---------------------
         h0_diag = _is_diagonal(h0m)
-        if h0_diag:
-            d = np.real(h0m.diagonal() if sp.issparse(h0m) else np.diag(h0m)).astype(float)
-            perm = np.argsort(d, kind="stable")
-            e0 = d[perm]
-            transform = sp.csr_matrix((np.ones(n), (perm, np.arange(n))), shape=(n, n))
-            v_work = _permute(vm, perm)
-            user_labels = labels
-        else:
-            if n > DENSE_LIMIT:
-                raise BasisTooLargeError(
-                    f"h0 is not diagonal and the basis has N = {n} > {DENSE_LIMIT} states: ptcheck "
-                    "would need a dense eigendecomposition of h0. Pass h0 in its eigenbasis "
-                    "(diagonal, e.g. as a sparse diagonal matrix) or reduce the basis."
-                )
-            h0d = h0m.toarray() if sp.issparse(h0m) else h0m
-            e0, u = sla.eigh(h0d)
-            transform = u
-            vd = vm.toarray() if sp.issparse(vm) else vm
-            v_work = u.conj().T @ vd @ u
-            if sp.issparse(vm):
-                # keep the work-basis V sparse if it really is sparse there
-                v_work = _maybe_sparse(v_work)
-            perm = None
-            user_labels = labels  # labels name eigenstates in energy order
-        self.h0_is_diagonal = h0_diag
-
-        scale = float(max(np.max(np.abs(e0)), np.ptp(e0))) if n else 0.0
+        offset = sec.energy_offset(h0m)
+        sec.check_commutation(ops, h0m, vm, offset)
+        comp = sec.components(h0m, vm, h0_diag)
+        e0_rel, t0 = sec.unperturbed_basis(h0m, offset, comp, h0_diag, DENSE_LIMIT)
+        span = float(np.ptp(e0_rel)) if n else 0.0
+        biggest = float(np.max(np.abs(e0_rel + offset))) if n else 0.0
+        eps = np.finfo(float).eps
+        roundoff = sec.ROUNDOFF_ULPS * eps * biggest + (0.0 if h0_diag else 1e3 * eps * span)
+        cid = sec.roundoff_clusters(e0_rel, roundoff)
+        e0_rel = sec.snap_to_cluster_mean(e0_rel, cid)
         if degeneracy_tol is None:
-            degeneracy_tol = 1e-9 * scale if scale > 0 else 1e-12
-        self.degeneracy_tol = float(val.check_positive(degeneracy_tol, "degeneracy_tol"))
+            scale = span if span > 0 else val.max_abs(vm)
+            degeneracy_tol = max(DEGENERACY_RTOL * scale, roundoff)
+            if degeneracy_tol <= 0:
+                degeneracy_tol = 1e-12
 
-        # ---- exactly degenerate groups: rotate to good states ---------------------
-        groups = _degenerate_groups(e0, self.degeneracy_tol)
-        ambiguous: set[int] = set()
-        order = np.arange(n)
-        rotations: list[tuple[np.ndarray, np.ndarray]] = []
-        vscale = val.max_abs(v_work)
-        for g in groups:
-            idx = np.asarray(g)
-            if len(g) > MAX_GROUP_ROTATION:
-                ambiguous.update(g)  # too large to resolve into good states
-                continue
-            block = _submatrix(v_work, idx)
-            off = block - np.diag(np.diag(block))
-            if np.max(np.abs(off), initial=0.0) <= hermitian_rtol * max(vscale, 1e-300):
-                order[idx] = idx[np.argsort(np.real(np.diag(block)), kind="stable")]
-            else:
-                w, r = np.linalg.eigh(block)
-                rotations.append((idx, r))
-                ambiguous.update(g)
-        src = perm.copy() if perm is not None else np.arange(n)  # work index -> label source
-        if not np.array_equal(order, np.arange(n)):
-            e0 = e0[order]
-            v_work = _permute(v_work, order)
-            transform = transform[:, order]
-            src = src[order]
-        if rotations:
-            rows, cols, vals = [], [], []
-            in_group = np.zeros(n, dtype=bool)
-            for idx, r in rotations:
-                in_group[idx] = True
-                rows.append(np.repeat(idx, len(idx)))
-                cols.append(np.tile(idx, len(idx)))
-                vals.append(r.ravel())
-            rest = np.flatnonzero(~in_group)
-            rows.append(rest), cols.append(rest), vals.append(np.ones(rest.size))
-            rot = sp.csr_matrix(
-                (np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n)
-            )
-            if sp.issparse(v_work):
-                v_work = (rot.conj().T @ v_work @ rot).tocsr()
-            else:
-                v_work = rot.conj().T.toarray() @ v_work @ rot.toarray()
-            transform = sp.csr_matrix(transform @ rot) if sp.issparse(transform) else transform @ rot.toarray()
-
+        # ---- conserved operators: quantum numbers, sectors ---------------------------
+        cons = sec.diagonalise_conserved(ops, t0, comp, cid) if ops else sec.ConservedBasis(values=np.zeros((n, 0)))
+        sector_of, info = sec.sector_ids(comp, cons.values, e0_rel)
+        names = sec.sector_names(info, [nm for nm, _ in ops])
+        # ---- V in the sector basis, good states inside (sector ∩ equal-energy run), order ----
+        if sp.issparse(vm) and t0 is None and (cons.rotation is None or (cons.rep is not None and not cons.general)):
+            v_work, perm, rot3, mixed_groups, big_groups = _sparse_work_v(vm, cons, sector_of, e0_rel, cid, hermitian_rtol, bool(ops))
+        else:
+            vpre = _zero_between_sectors(_v_in_basis(vm, t0, cons), sector_of)
+            vpre, rot3, mixed_groups, big_groups = _good_states(vpre, sector_of, cid, hermitian_rtol)
+            vdiag = np.real(np.asarray(vpre.diagonal() if sp.issparse(vpre) else np.diag(vpre)))
+            vscale = val.max_abs(vpre)
+            shift = np.round(vdiag / (1e-9 * vscale)) if vscale > 0 else np.zeros(n)
+            perm = np.lexsort((np.arange(n), shift, sector_of, e0_rel))
+            v_work = _permute(vpre, perm)
+        inv = np.empty(n, dtype=np.int64)
+        inv[perm] = np.arange(n)
         v_work = _realify(v_work)
         if sp.issparse(v_work):
             v_work = sp.csr_matrix(v_work)
             v_work.eliminate_zeros()
+            v_work.sort_indices()
+        transform = _compose(t0, cons.rotation, rot3, perm, n)
+
+        ambiguous_pos = np.zeros(n, dtype=bool)
+        for idx in mixed_groups + big_groups:
+            ambiguous_pos[idx] = True
+        names_table = _level_names(
+            labels, dims, n, h0_diag, t0, cons, perm, inv, e0_rel, ambiguous_pos, mixed_groups, big_groups, [nm for nm, _ in ops]
+        )
+
+        self._assign(
+            name=str(name) if name is not None else "model",
+            n=n,
+            dims=dims,
+            hermitian_rtol=hermitian_rtol,
+            is_sparse=sp.issparse(vm),
+            h0_is_diagonal=h0_diag,
+            e0_relative=e0_rel[perm],
+            energy_offset=offset,
+            v=v_work,
+            degeneracy_tol=degeneracy_tol,
+            level_sectors=sector_of[perm],
+            sector_info=tuple((q, nm) for (_, q), nm in zip(info, names)),
+            ambiguous=ambiguous_pos[perm],
+            names=names_table,
+            transform=transform,
+            conserved_names=tuple(nm for nm, _ in ops),
+            coupling_scale=coupling_scale,
+            coupling_unit=coupling_unit,
+            parent_levels=None,
+        )
+
+    # ------------------------------------------------------------------ construction
+    def _assign(
+        self,
+        *,
+        name: str,
+        n: int,
+        dims: tuple | None,
+        hermitian_rtol: float,
+        is_sparse: bool,
+        h0_is_diagonal: bool,
+        e0_relative: np.ndarray,
+        energy_offset: float,
+        v: Any,
+        degeneracy_tol: float,
+        level_sectors: np.ndarray,
+        sector_info: tuple,
+        ambiguous: np.ndarray,
+        names: LevelNames,
+        transform: Any,
+        conserved_names: tuple,
+        coupling_scale: float | None,
+        coupling_unit: str | None,
+        parent_levels: tuple | None,
+        e0: np.ndarray | None = None,
+    ) -> None:
+        self.name = name
+        self.n = n
+        self.dims = dims
+        self.hermitian_rtol = hermitian_rtol
+        self.is_sparse = is_sparse
+        self.h0_is_diagonal = h0_is_diagonal
+        e0_relative = np.ascontiguousarray(e0_relative, dtype=float)
+        e0_relative.setflags(write=False)
+        self.e0_relative = e0_relative
+        self.energy_offset = float(energy_offset)
+        if e0 is None:
+            e0 = e0_relative + self.energy_offset
         e0 = np.ascontiguousarray(e0, dtype=float)
         e0.setflags(write=False)
         self.e0 = e0
-        self.v = v_work
+        self.v = v
+        self.degeneracy_tol = float(degeneracy_tol)
+        level_sectors = np.ascontiguousarray(level_sectors, dtype=np.int64)
+        level_sectors.setflags(write=False)
+        self.level_sectors = level_sectors
+        self._sector_info = sector_info
+        self._ambiguous_mask = np.asarray(ambiguous, dtype=bool)
+        self._ambiguous: frozenset | None = None
+        self._names = names
+        self._labels_tuple: tuple | None = None
         self._transform = transform
-        self.degenerate_groups = tuple(tuple(int(i) for i in g) for g in groups)
-        self.ambiguous_levels = frozenset(int(i) for i in ambiguous)
-
-        # ---- labels in work order ---------------------------------------------------
-        if user_labels is None and dims is not None:
-            user_labels = [tuple(int(q) for q in idx) for idx in np.ndindex(*dims)]
-            if not h0_diag:
-                # name each eigenstate of h0 by its dominant product-basis component
-                t = np.abs(np.asarray(transform.toarray() if sp.issparse(transform) else transform)) ** 2
-                dom = np.argmax(t, axis=0)
-                weight = t[dom, np.arange(n)]
-                user_labels = [user_labels[int(d)] if w > 0.5 else None for d, w in zip(dom, weight)]
-                src = np.arange(n)
-        self._labels: list = [None] * n
-        self._label_index: dict = {}
-        self._ambiguous_labels: dict = {}
-        if user_labels is not None:
-            for i in range(n):
-                lab = user_labels[int(src[i])]
-                if lab is None:
-                    continue
-                if i in self.ambiguous_levels:
-                    self._ambiguous_labels[_hashable(lab)] = i
-                else:
-                    self._labels[i] = lab
-                    self._label_index[_hashable(lab)] = i
+        self.conserved_names = conserved_names
+        self.coupling_scale = coupling_scale
+        self.coupling_unit = coupling_unit
+        self.parent_levels = parent_levels
+        self._group_id = _group_ids(self.e0_relative, self.level_sectors, self.degeneracy_tol)
+        self._groups: tuple | None = None
+        self._group_cache: dict[int, tuple[int, ...]] = {}
         self._norm_v: float | None = None
+        self._sectors: tuple[Sector, ...] | None = None
+        self._symmetry_degeneracies: tuple | None = None
+        self._restricted: dict[int, Model] = {}
+        self._offset_free_model: tuple[Model, float] | None = None
+
+    @classmethod
+    def _from_parts(cls, **parts: Any) -> Model:
+        """A model from already validated work-basis parts (no checks; private)."""
+        obj = object.__new__(cls)
+        obj._assign(**parts)
+        return obj
 
     # ------------------------------------------------------------------ basics
     def __repr__(self) -> str:
         kind = "sparse" if self.is_sparse else "dense"
         deg = f", {len(self.degenerate_groups)} degenerate group(s)" if self.degenerate_groups else ""
-        return f"Model({self.name!r}, N={self.n}, {kind}{deg})"
+        return f"Model({self.name!r}, N={self.n}, {kind}, {self._sector_summary()}{deg})"
+
+    def _sector_summary(self) -> str:
+        k = len(self._sector_info)
+        if k == 1:
+            return "1 sector"
+        sizes = np.bincount(self.level_sectors, minlength=k)
+        if k <= 4:
+            return f"{k} sectors (" + ", ".join(f"{nm}: {int(s)}" for (_, nm), s in zip(self._sector_info, sizes)) + ")"
+        return f"{k} sectors, sizes {int(sizes.min())}–{int(sizes.max())}"
+
+    def to_dict(self) -> dict:
+        """JSON-safe summary: size, storage, offset, coupling scale, sectors (count, sizes, names)."""
+        k = len(self._sector_info)
+        sizes = np.bincount(self.level_sectors, minlength=k)
+        listed = min(k, 1000)
+        return {
+            "name": self.name,
+            "n": int(self.n),
+            "dims": list(self.dims) if self.dims is not None else None,
+            "storage": "sparse" if self.is_sparse else "dense",
+            "energy_offset": float(self.energy_offset),
+            "degeneracy_tol": float(self.degeneracy_tol),
+            "conserved": list(self.conserved_names),
+            "coupling_scale": self.coupling_scale,
+            "coupling_unit": self.coupling_unit,
+            "sectors": {
+                "count": int(k),
+                "listed": int(listed),
+                "names": [nm for _, nm in self._sector_info[:listed]],
+                "sizes": [int(s) for s in sizes[:listed]],
+            },
+            "degenerate_groups": len(self.degenerate_groups),
+            "symmetry_degeneracies": len(self.symmetry_degeneracies),
+            "ambiguous_levels": len(self.ambiguous_levels),
+        }
+
+    def _repr_html_(self) -> str:
+        k = len(self._sector_info)
+        sizes = np.bincount(self.level_sectors, minlength=k)
+        rows = "".join(
+            f"<tr><td>{i}</td><td>{html.escape(nm)}</td><td>{int(s)}</td></tr>"
+            for i, ((_, nm), s) in enumerate(zip(self._sector_info[:20], sizes[:20]))
+        )
+        more = f"<p>… {k - 20} more sectors</p>" if k > 20 else ""
+        return (
+            f"<b>Model</b> {html.escape(self.name)}: N = {self.n}, {'sparse' if self.is_sparse else 'dense'}, "
+            f"{len(self.degenerate_groups)} degenerate group(s)"
+            f"<table><tr><th>sector</th><th>name</th><th>levels</th></tr>{rows}</table>{more}"
+        )
 
     @property
     def dtype(self) -> np.dtype:
@@ -244,8 +388,10 @@ class Model:
 
     @property
     def labels(self) -> tuple:
-        """Label of each level in work order (``None`` where no label is known)."""
-        return tuple(self._labels)
+        """Label of each level in work order (``None`` where no label is known); built on first use."""
+        if self._labels_tuple is None:
+            self._labels_tuple = self._names.all_raw()
+        return self._labels_tuple
 
     @property
     def norm_v(self) -> float:
@@ -273,14 +419,18 @@ class Model:
         return np.real(np.asarray(d))
 
     def to_user_basis(self, states: np.ndarray) -> np.ndarray:
-        """Map work-basis vectors (shape ``(..., N)``) to the user's basis."""
+        """Map work-basis vectors (shape ``(..., N)``) to the user's basis.
+
+        For a sub-model (:meth:`restrict`) the result lives in the parent's
+        user basis (last axis: the parent's N).
+        """
         s = np.asarray(states)
         if s.shape[-1] != self.n:
             raise ValueError(f"states must have last axis of length {self.n}; got shape {s.shape}")
         t = self._transform
         flat = s.reshape(-1, self.n)
         out = (t @ flat.T).T
-        return np.asarray(out).reshape(s.shape[:-1] + (self.n,))
+        return np.asarray(out).reshape(s.shape[:-1] + (t.shape[0],))
 
     # ------------------------------------------------------------------ levels
     def level_index(self, key: Any) -> int:
@@ -289,7 +439,8 @@ class Model:
         Raises
         ------
         AmbiguousLevelError
-            The label belongs to a degenerate group mixed by ``V``.
+            The label belongs to a degenerate group mixed by ``V``, or to a
+            user state that a declared conserved operator combines with others.
         ValueError
             Unknown label or rank out of range.
         """
@@ -298,35 +449,152 @@ class Model:
             if not 0 <= k < self.n:
                 raise ValueError(f"level must be in 0..{self.n - 1}; got {k}")
             return k
-        h = _hashable(key)
-        if h in self._ambiguous_labels:
-            grp = next(g for g in self.degenerate_groups if self._ambiguous_labels[h] in g)
-            names = ", ".join(repr(k) for k, i in self._ambiguous_labels.items() if i in grp)
-            raise AmbiguousLevelError(
-                f"level {key!r} is ambiguous: it lies in an exactly degenerate group of H0 "
-                f"({names}) that V mixes, so no single perturbed level belongs to it. "
-                f"Address the group's perturbed levels by energy rank {list(grp)} "
-                "(ordered by first-order shift) or use the block treatment."
-            )
-        if h not in self._label_index:
-            raise ValueError(f"unknown level {key!r}: not an energy rank in 0..{self.n - 1} nor a label of {self.name!r}")
-        return self._label_index[h]
+        return self._names.index(key, self.name, self.n)
 
     def label(self, level: int) -> str:
-        """Printable name of a level: its label if it has one, else ``"n=<rank>"``."""
-        lab = self._labels[level]
-        if lab is None:
-            return f"n={level}"
-        if isinstance(lab, tuple):
-            return "|" + ",".join(str(x) for x in lab) + "⟩"
-        return str(lab)
+        """Printable name of a level: its label if it has one, else ``"n=<rank>"``.
+
+        A level made of two user states by a declared involution is named
+        after both, e.g. ``"|0,0,0⟩+|1,1,1⟩"``.
+        """
+        return self._names.text(level)
+
+    @property
+    def ambiguous_levels(self) -> frozenset:
+        """Levels whose user label cannot be attached to one perturbed level (see class docstring)."""
+        if self._ambiguous is None:
+            self._ambiguous = frozenset(int(i) for i in np.flatnonzero(self._ambiguous_mask))
+        return self._ambiguous
+
+    @property
+    def degenerate_groups(self) -> tuple[tuple[int, ...], ...]:
+        """Groups (size >= 2) of exactly degenerate levels inside one sector, sorted by first level."""
+        if self._groups is None:
+            gid = self._group_id
+            if not np.any(gid >= 0):
+                self._groups = ()
+            else:
+                order = np.argsort(gid, kind="stable")
+                order = order[gid[order] >= 0]
+                bounds = np.flatnonzero(np.diff(gid[order])) + 1
+                parts = np.split(order, bounds)
+                self._groups = tuple(tuple(int(x) for x in p) for p in sorted(parts, key=lambda p: p[0]))
+        return self._groups
 
     def degenerate_group_of(self, level: int) -> tuple[int, ...] | None:
-        """The exactly degenerate group containing ``level``, or ``None``."""
-        for g in self.degenerate_groups:
-            if level in g:
-                return g
-        return None
+        """The exactly degenerate group (inside the level's sector) containing ``level``, or ``None``."""
+        k = int(self._group_id[level])
+        if k < 0:
+            return None
+        if k not in self._group_cache:
+            self._group_cache[k] = tuple(int(x) for x in np.flatnonzero(self._group_id == k))
+        return self._group_cache[k]
+
+    # ------------------------------------------------------------------ sectors
+    @property
+    def sectors(self) -> tuple[Sector, ...]:
+        """The symmetry sectors, ordered as documented in :class:`ptcheck.sectors.Sector`."""
+        if self._sectors is None:
+            k = len(self._sector_info)
+            order = np.argsort(self.level_sectors, kind="stable")
+            bounds = np.searchsorted(self.level_sectors[order], np.arange(k + 1))
+            out = []
+            for i, (q, nm) in enumerate(self._sector_info):
+                lv = order[bounds[i] : bounds[i + 1]]
+                out.append(Sector(index=i, levels=tuple(int(x) for x in lv), quantum_numbers=q, name=nm))
+            self._sectors = tuple(out)
+        return self._sectors
+
+    def sector_of(self, level: Any) -> int:
+        """Sector index of a level (energy rank or label)."""
+        return int(self.level_sectors[self.level_index(level)])
+
+    @property
+    def symmetry_degeneracies(self) -> tuple[tuple[int, ...], ...]:
+        """Runs of equal E0 (within ``degeneracy_tol``) spanning several sectors (information only)."""
+        if self._symmetry_degeneracies is None:
+            out = []
+            for run in _runs(self.e0_relative, self.degeneracy_tol):
+                if np.unique(self.level_sectors[run]).size > 1:
+                    out.append(tuple(int(i) for i in run))
+            self._symmetry_degeneracies = tuple(out)
+        return self._symmetry_degeneracies
+
+    def restrict(self, sector: int) -> Model:
+        """The sub-model of one sector (cached), already in the work basis.
+
+        Its ``e0`` and ``v`` are the parent's sub-array / sub-block, labels and
+        degenerate groups carry over, ``energy_offset`` and ``degeneracy_tol``
+        are the parent's, and ``parent_levels`` maps its indices to the
+        parent's work indices.
+
+        Parameters
+        ----------
+        sector : int
+            Sector index (``model.sectors[i].index``).
+        """
+        k = val.check_int(sector, "sector", minimum=0, maximum=len(self._sector_info) - 1)
+        if k not in self._restricted:
+            levels = np.flatnonzero(self.level_sectors == k)
+            self._restricted[k] = self._subset(levels, k)
+        return self._restricted[k]
+
+    def _subset(self, levels: np.ndarray, k: int) -> Model:
+        v = self.v
+        sub_v = v[levels][:, levels].tocsr() if sp.issparse(v) else np.ascontiguousarray(v[np.ix_(levels, levels)])
+        if sp.issparse(sub_v):
+            sub_v.sort_indices()
+        t = self._transform
+        q, nm = self._sector_info[k]
+        base = self.parent_levels
+        parent = tuple(int(x) for x in levels) if base is None else tuple(base[int(x)] for x in levels)
+        sub = Model._from_parts(
+            name=f"{self.name} [{nm}]" if len(self._sector_info) > 1 else self.name,
+            n=int(levels.size),
+            dims=None,
+            hermitian_rtol=self.hermitian_rtol,
+            is_sparse=self.is_sparse,
+            h0_is_diagonal=self.h0_is_diagonal,
+            e0_relative=self.e0_relative[levels],
+            energy_offset=self.energy_offset,
+            e0=self.e0[levels],
+            v=sub_v,
+            degeneracy_tol=self.degeneracy_tol,
+            level_sectors=np.zeros(levels.size, dtype=np.int64),
+            sector_info=((q, nm),),
+            ambiguous=self._ambiguous_mask[levels],
+            names=self._names.restrict(levels),
+            transform=t[:, levels] if not sp.issparse(t) else t.tocsc()[:, levels].tocsr(),
+            conserved_names=self.conserved_names,
+            coupling_scale=self.coupling_scale,
+            coupling_unit=self.coupling_unit,
+            parent_levels=parent,
+        )
+        return sub
+
+    def _offset_free(self) -> tuple[Model, float]:
+        """This model with its own energy centre removed (exact solvers work on it; private, cached).
+
+        Returns ``(model, c)``: a copy whose ``e0`` is ``e0_relative − c``,
+        with ``c`` the lower median of ``e0_relative`` (for a sub-model: of its
+        sector, so that a sector far from the whole model's offset keeps the
+        accuracy of its own energies).  Absolute energy = energy of the copy
+        + ``c`` + ``energy_offset``.
+        """
+        if self._offset_free_model is None:
+            k = (self.n - 1) // 2
+            c = float(np.partition(self.e0_relative, k)[k]) if self.n else 0.0
+            e0 = np.ascontiguousarray(self.e0_relative - c)
+            e0.setflags(write=False)
+            m = object.__new__(Model)
+            m.__dict__.update(self.__dict__)
+            m.e0 = e0
+            m.e0_relative = e0
+            m.energy_offset = 0.0
+            m._restricted = {}
+            m._offset_free_model = None
+            self._offset_free_model = (m, c)
+        return self._offset_free_model
 
     # ------------------------------------------------------------------ series
     def series(self, level: Any, order: int, **kwargs: Any):
@@ -343,14 +611,17 @@ class Model:
 
 
 # ---------------------------------------------------------------------- helpers
-def _hashable(x: Any) -> Hashable:
-    if isinstance(x, np.integer):
-        return int(x)
-    if isinstance(x, (list, np.ndarray)):
-        return tuple(_hashable(t) for t in x)
-    if isinstance(x, tuple):
-        return tuple(_hashable(t) for t in x)
-    return x
+def _coupling_display(scale: Any, unit: Any) -> tuple[float | None, str | None]:
+    if scale is not None:
+        scale = val.as_real(scale, "coupling_scale")
+        if scale == 0:
+            raise ValueError(f"coupling_scale must be a nonzero finite number (the coupling at λ = 1); got {scale!r}")
+    if unit is not None:
+        if not isinstance(unit, str) or not unit.strip():
+            raise TypeError(f"coupling_unit must be a non-empty string such as 'MHz'; got {unit!r}")
+        if scale is None:
+            raise ValueError(f"coupling_unit={unit!r} needs coupling_scale (the coupling at λ = 1 in that unit)")
+    return scale, unit
 
 
 def _is_diagonal(m: Any) -> bool:
@@ -363,7 +634,13 @@ def _is_diagonal(m: Any) -> bool:
 
 def _permute(m: Any, perm: np.ndarray) -> Any:
     if sp.issparse(m):
-        return sp.csr_matrix(m)[perm][:, perm].tocsr()
+        m = sp.csr_matrix(m)
+        inv = np.empty(perm.size, dtype=np.int64)
+        inv[perm] = np.arange(perm.size)
+        rows = m[perm]
+        out = sp.csr_matrix((rows.data, inv[rows.indices], rows.indptr), shape=m.shape)
+        out.has_sorted_indices = False
+        return out
     return m[np.ix_(perm, perm)]
 
 
@@ -390,15 +667,382 @@ def _realify(m: Any) -> Any:
     return m
 
 
-def _degenerate_groups(e0: np.ndarray, tol: float) -> list[tuple[int, ...]]:
-    groups: list[tuple[int, ...]] = []
-    start = 0
-    for i in range(1, len(e0) + 1):
-        if i == len(e0) or e0[i] - e0[i - 1] > tol:
-            if i - start > 1:
-                groups.append(tuple(range(start, i)))
-            start = i
-    return groups
+def _v_in_basis(v: Any, t0: Any, cons: sec.ConservedBasis) -> Any:
+    """V in the unperturbed basis rotated by the conserved operators' eigenvectors (general path)."""
+    rot = cons.rotation
+    if t0 is None and rot is None:
+        return v.copy()
+    if t0 is None and cons.rep is not None and not cons.general and not sp.issparse(v):
+        # involution pairs: <a|V|b> = c_a <rep_a|V|b> within a sector (P commutes with V)
+        w = v[cons.rep] @ rot.toarray()
+        return w * cons.rep_scale[:, None]
+    if t0 is None:
+        basis = rot
+    elif rot is None:
+        basis = t0
+    else:
+        basis = (t0 @ rot) if sp.issparse(t0) else np.asarray(t0 @ rot)
+    if sp.issparse(basis) and sp.issparse(v):
+        return (basis.conj().T @ v @ basis).tocsr()
+    b = basis.toarray() if sp.issparse(basis) else basis
+    vd = v.toarray() if sp.issparse(v) else v
+    w = b.conj().T @ vd @ b
+    return _maybe_sparse(w) if sp.issparse(v) else w
+
+
+def _zero_between_sectors(v: Any, sector_of: np.ndarray) -> Any:
+    """Set V's elements between different sectors to exactly zero."""
+    if sp.issparse(v):
+        v = sp.csr_matrix(v)
+        rows = np.repeat(np.arange(v.shape[0]), np.diff(v.indptr))
+        keep = sector_of[rows] == sector_of[v.indices]
+        if np.all(keep):
+            return v
+        indptr = np.concatenate([[0], np.cumsum(np.bincount(rows[keep], minlength=v.shape[0]))])
+        return sp.csr_matrix((v.data[keep], v.indices[keep], indptr), shape=v.shape)
+    if np.all(sector_of == sector_of[0]):
+        return v
+    out = np.array(v, copy=True)
+    out[sector_of[:, None] != sector_of[None, :]] = 0.0
+    return out
+
+
+def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) -> tuple[Any, Any, list, list]:
+    """Rotate V's groups (sector ∩ equal-energy run) to good states.
+
+    Returns ``(v, rotation or None, rotated groups, groups too large to rotate)``.
+    """
+    n = sector_of.size
+    key = sector_of * (int(cid.max()) + 1 if n else 1) + cid
+    _, key = np.unique(key, return_inverse=True)
+    counts = np.bincount(key)
+    multi = np.flatnonzero(counts[key] >= 2)
+    if multi.size == 0:
+        return v, None, [], []
+    vscale = val.max_abs(v)
+    tol = rtol * max(vscale, 1e-300)
+    if sp.issparse(v):
+        v = sp.csr_matrix(v)
+        r = np.repeat(np.arange(n), np.diff(v.indptr))
+        cc, d = v.indices, v.data
+        cand = counts[key[r]] >= 2
+        r, cc, d = r[cand], cc[cand], d[cand]
+        sel = (r != cc) & (key[r] == key[cc]) & (np.abs(d) > tol)
+        mixing = np.unique(key[r[sel]])
+    else:
+        sub = np.asarray(v)[np.ix_(multi, multi)]
+        same = key[multi][:, None] == key[multi][None, :]
+        np.fill_diagonal(same, False)
+        hit = same & (np.abs(sub) > tol)
+        mixing = np.unique(key[multi][np.any(hit, axis=1)])
+    if mixing.size == 0:
+        return v, None, [], []
+    order = np.argsort(key, kind="stable")
+    starts = np.searchsorted(key[order], mixing)
+    ends = np.searchsorted(key[order], mixing, side="right")
+    rotated, too_big = [], []
+    rows, cols, data = [], [], []
+    with sec.small_blas():
+        for a, b in zip(starts, ends):
+            idx = np.sort(order[a:b])
+            if idx.size > MAX_GROUP_ROTATION:
+                too_big.append(idx)
+                continue
+            block = _submatrix(v, idx)
+            _, u = np.linalg.eigh(0.5 * (block + block.conj().T))
+            rotated.append(idx)
+            rows.append(np.repeat(idx, idx.size))
+            cols.append(np.tile(idx, idx.size))
+            data.append(u.ravel())
+    if not rotated:
+        return v, None, [], too_big
+    touched = np.zeros(n, dtype=bool)
+    for idx in rotated:
+        touched[idx] = True
+    rest = np.flatnonzero(~touched)
+    rows.append(rest), cols.append(rest), data.append(np.ones(rest.size))
+    dtype = np.result_type(*[x.dtype for x in data], np.float64)
+    rot = sp.csr_matrix((np.concatenate(data).astype(dtype), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
+    if sp.issparse(v):
+        # only rows and columns of rotated groups change: V' = V_rest + R^H V_touched R
+        rows = np.repeat(np.arange(n), np.diff(v.indptr))
+        hit = touched[rows] | touched[v.indices]
+        keep = sp.csr_matrix(
+            (v.data[~hit], v.indices[~hit], np.concatenate([[0], np.cumsum(np.bincount(rows[~hit], minlength=n))])), shape=v.shape
+        )
+        part = sp.csr_matrix(
+            (v.data[hit], v.indices[hit], np.concatenate([[0], np.cumsum(np.bincount(rows[hit], minlength=n))])), shape=v.shape
+        )
+        v = (keep + (rot.conj().T @ part @ rot)).tocsr()
+    else:
+        v = np.array(v, dtype=np.result_type(v.dtype, dtype))
+        for idx in rotated:
+            u = rot[idx][:, idx].toarray()
+            v[:, idx] = v[:, idx] @ u
+            v[idx, :] = u.conj().T @ v[idx, :]
+    return v, rot, rotated, too_big
+
+
+def _selector(cols: np.ndarray, n_rows: int, n_cols: int, data: np.ndarray | None = None) -> sp.csr_matrix:
+    """CSR with one entry per row: row k -> column ``cols[k]`` (rows with ``cols < 0`` empty)."""
+    ok = cols >= 0
+    indptr = np.concatenate([[0], np.cumsum(ok)])
+    vals = np.ones(int(ok.sum())) if data is None else data[ok]
+    return sp.csr_matrix((vals, cols[ok], indptr), shape=(n_rows, n_cols))
+
+
+def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: np.ndarray, cid: np.ndarray, rtol: float, declared: bool) -> tuple:
+    """Work-basis V for a diagonal H0 and sparse V, with compiled sparse kernels only.
+
+    Every step is a sparse product, row selection or sum (no per-element
+    Python or NumPy gathers over V's non-zeros), so a 2^18-state chain is
+    cheap.  Returns ``(V_work, perm, good-state rotation in positions,
+    rotated groups, groups too large to rotate)``.
+    """
+    n = v.shape[0]
+    v = sp.csr_matrix(v)
+    perm0 = np.lexsort((np.arange(n), sector_of, e0))
+    inv0 = np.empty(n, dtype=np.int64)
+    inv0[perm0] = np.arange(n)
+    sec_w = sector_of[perm0]
+    if cons.rep is None:
+        v0 = (v[perm0] @ _selector(inv0, n, n)).tocsr()  # V[perm0][:, perm0]
+        if declared:
+            v0 = _zero_between_sectors(v0, sec_w)
+    else:
+        # involution pairs: <a|V|b> = c_a <rep_a|V|b> for b in a's sector (P commutes with V); the
+        # columns of V fold onto the combination of each pair that lies in the row's half (+1 / -1 / none)
+        rot = sp.csr_matrix(cons.rotation)
+        rot.sort_indices()
+        half = np.sign(np.nan_to_num(cons.values[:, 0], nan=0.0)).astype(np.int64)  # per position
+        per_k = np.diff(rot.indptr)
+        parts, rows = [], []
+        for h in np.unique(half):
+            # column of user state k in half h: the position of its combination with that half
+            col = np.full(n, -1, dtype=np.int64)
+            coef = np.zeros(n, dtype=rot.dtype)
+            for j in range(2):
+                has = per_k > j
+                at = rot.indptr[:-1][has] + j
+                pos = rot.indices[at]
+                mine = half[pos] == h
+                k = np.flatnonzero(has)[mine]
+                col[k] = inv0[pos[mine]]
+                coef[k] = rot.data[at][mine]
+            w_rows = np.flatnonzero(half[perm0] == h)  # work rows of this half
+            src = cons.rep[perm0[w_rows]]
+            scale = cons.rep_scale[perm0[w_rows]]
+            part = v[src] @ _selector(col, n, n, coef)
+            if scale.size and np.all(scale == scale[0]):
+                part.data *= scale[0]  # e.g. every state paired: one factor √2
+            else:
+                part = sp.diags(scale, format="csr") @ part
+            parts.append(part)
+            rows.append(w_rows)
+        order = np.empty(n, dtype=np.int64)
+        order[np.concatenate(rows)] = np.arange(n)
+        v0 = sp.vstack(parts, format="csr")[order]
+    # (sparse products accumulate each row: no duplicate entries to sum here)
+
+    # good states: groups (sector, equal-energy run) that V mixes, found with an indicator product
+    key = cid[perm0] * (int(sec_w.max()) + 1 if n else 1) + sec_w  # ascends along perm0: groups are contiguous
+    _, key = np.unique(key, return_inverse=True)
+    n_groups = int(key.max()) + 1 if n else 0
+    counts = np.bincount(key, minlength=n_groups)
+    rot3_pos, rotated, too_big = None, [], []
+    vscale = float(abs(v0).max()) if v0.nnz else 0.0
+    if np.any(counts >= 2) and v0.nnz:
+        g = _selector(key, n, n_groups)
+        g_t = sp.csr_matrix((np.ones(n), np.arange(n), np.concatenate([[0], np.cumsum(counts)])), shape=(n_groups, n))
+        inside = (g_t @ (abs(v0) @ g)).diagonal() - np.bincount(key, weights=np.abs(v0.diagonal()), minlength=n_groups)
+        mixing = np.flatnonzero(inside > rtol * max(vscale, 1e-300))
+        if mixing.size:
+            starts = np.searchsorted(key, mixing)  # groups are contiguous in this order
+            rows_, cols_, data_ = [], [], []
+            with sec.small_blas():
+                for grp, a in zip(mixing, starts):
+                    idx = np.arange(a, a + counts[grp])
+                    if idx.size > MAX_GROUP_ROTATION:
+                        too_big.append(perm0[idx])
+                        continue
+                    block = v0[idx][:, idx].toarray()
+                    _, u = np.linalg.eigh(0.5 * (block + block.conj().T))
+                    rotated.append(idx)
+                    rows_.append(np.repeat(idx, idx.size))
+                    cols_.append(np.tile(idx, idx.size))
+                    data_.append((u - np.eye(idx.size)).ravel())
+            if rotated:
+                e = sp.csr_matrix((np.concatenate(data_), (np.concatenate(rows_), np.concatenate(cols_))), shape=(n, n))
+                y = v0 @ e  # columns of rotated groups only; (V E)^H = E^H V
+                yh = y.conj().T.tocsr()
+                v0 = _add_on_rows(v0, (y + yh + yh @ e).tocsr())  # R^H V R with R = 1 + E
+                r3 = e + sp.identity(n, format="csr")
+                c3 = sp.coo_matrix(r3)
+                rot3_pos = sp.csr_matrix((c3.data, (perm0[c3.row], perm0[c3.col])), shape=(n, n))
+                rotated = [perm0[idx] for idx in rotated]
+    vdiag = np.real(v0.diagonal())
+    shift = np.round(vdiag / (1e-9 * vscale)) if vscale > 0 else np.zeros(n)
+    perm1 = np.lexsort((np.arange(n), shift, sec_w, e0[perm0]))
+    if np.any(perm1 != np.arange(n)):
+        v0 = _permute(v0, perm1)
+    return v0, perm0[perm1], rot3_pos, rotated, too_big
+
+
+def _add_on_rows(a: sp.csr_matrix, delta: sp.csr_matrix) -> sp.csr_matrix:
+    """``a + delta`` for a ``delta`` with few non-empty rows: only those rows are added, the rest copied."""
+    rows = np.flatnonzero(np.diff(delta.indptr))
+    if rows.size == 0:
+        return a
+    sub = (a[rows] + delta[rows]).tocsr()
+    lengths = np.diff(a.indptr).copy()
+    lengths[rows] = np.diff(sub.indptr)
+    indptr = np.concatenate([[0], np.cumsum(lengths)])
+    dtype = np.result_type(a.dtype, sub.dtype)
+    data = np.empty(int(indptr[-1]), dtype=dtype)
+    indices = np.empty(int(indptr[-1]), dtype=np.result_type(a.indices.dtype, sub.indices.dtype))
+    prev = 0  # copy the untouched stretches of rows in one slice each
+    for k, r in enumerate(rows):
+        lo, hi = a.indptr[prev], a.indptr[r]
+        data[indptr[prev] : indptr[r]] = a.data[lo:hi]
+        indices[indptr[prev] : indptr[r]] = a.indices[lo:hi]
+        data[indptr[r] : indptr[r + 1]] = sub.data[sub.indptr[k] : sub.indptr[k + 1]]
+        indices[indptr[r] : indptr[r + 1]] = sub.indices[sub.indptr[k] : sub.indptr[k + 1]]
+        prev = r + 1
+    data[indptr[prev] :] = a.data[a.indptr[prev] :]
+    indices[indptr[prev] :] = a.indices[a.indptr[prev] :]
+    return sp.csr_matrix((data, indices, indptr), shape=a.shape)
+
+
+def _compose(t0: Any, rot: Any, rot3: Any, perm: np.ndarray, n: int) -> Any:
+    """User-basis columns of the work basis: t0 · rot · rot3, columns permuted."""
+    t = None
+    for f in (t0, rot, rot3):
+        if f is None:
+            continue
+        if t is None:
+            t = f
+        elif sp.issparse(t) and sp.issparse(f):
+            t = (t @ f).tocsr()
+        else:
+            t = np.asarray(t @ f)
+    if t is None:
+        return sp.csr_matrix((np.ones(n), (perm, np.arange(n))), shape=(n, n))
+    if sp.issparse(t):
+        t = sp.csr_matrix(t)
+        inv = np.empty(n, dtype=np.int64)
+        inv[perm] = np.arange(n)
+        return sp.csr_matrix((t.data, inv[t.indices], t.indptr), shape=t.shape)
+    return t[:, perm]
+
+
+def _level_names(
+    labels: list | None,
+    dims: tuple | None,
+    n: int,
+    h0_diag: bool,
+    t0: Any,
+    cons: sec.ConservedBasis,
+    perm: np.ndarray,
+    inv: np.ndarray,
+    e0_rel: np.ndarray,
+    ambiguous_pos: np.ndarray,
+    mixed_groups: list,
+    big_groups: list,
+    op_names: list,
+) -> LevelNames:
+    """Label tables in work order (see :mod:`ptcheck._labels`)."""
+    if h0_diag:
+        pos_src = np.arange(n, dtype=np.int64)
+    elif labels is not None:
+        # user labels name the eigenstates of h0 in ascending energy
+        rank = np.empty(n, dtype=np.int64)
+        rank[np.lexsort((np.arange(n), e0_rel))] = np.arange(n)
+        pos_src = rank
+    elif dims is not None:
+        # name each eigenstate of h0 by its dominant product-basis component
+        t = t0
+        if sp.issparse(t):
+            w = sp.csc_matrix(abs(t).power(2))
+            dom = np.asarray(w.argmax(axis=0)).ravel()
+            weight = np.asarray(w.max(axis=0).toarray()).ravel()
+        else:
+            w = np.abs(np.asarray(t)) ** 2
+            dom = np.argmax(w, axis=0)
+            weight = w[dom, np.arange(n)]
+        pos_src = np.where(weight > 0.5, dom, -1).astype(np.int64)
+    else:
+        pos_src = np.full(n, -1, dtype=np.int64)
+    before = pos_src.copy()
+    if cons.mixed is not None:
+        pos_src[cons.mixed] = -1
+    pair_lo = pair_hi = pair_plus = paired_level = None
+    if cons.pair_lo is not None:
+        lo, hi, sign = cons.pair_lo.copy(), cons.pair_hi.copy(), cons.pair_sign
+        paired = lo >= 0
+        pos_src[paired] = -1
+        lo[ambiguous_pos] = -1
+        hi[ambiguous_pos] = -1
+        pair_lo, pair_hi, pair_plus = lo[perm], hi[perm], (sign > 0)[perm]
+        paired_level = np.where(paired, inv, -1)
+    group_of = np.full(n, -1, dtype=np.int64)
+    group_list: list = []
+    for idx in mixed_groups + big_groups:
+        users = before[idx]
+        ok = users >= 0
+        if cons.pair_lo is not None:
+            ok &= cons.pair_lo[np.maximum(users, 0)] < 0
+        members = users[ok]
+        if members.size:
+            group_of[members] = len(group_list)
+            group_list.append(("mixed", members, np.sort(inv[idx])))
+    if cons.mixed is not None and op_names:
+        kind = "operator " + ", ".join(repr(x) for x in op_names)
+        pos = np.flatnonzero(cons.mixed & (before >= 0))
+        users = before[pos]
+        free = group_of[users] < 0
+        for p, u in zip(pos[free], users[free]):
+            group_of[u] = len(group_list)
+            group_list.append((kind, np.array([u]), np.array([inv[p]])))
+    groups = (group_of, group_list) if group_list else None
+    pos_src[ambiguous_pos] = -1
+    return LevelNames(
+        labels=labels,
+        dims=dims,
+        n_user=n,
+        src=pos_src[perm],
+        ranks=np.arange(n, dtype=np.int64),
+        pair_lo=pair_lo,
+        pair_hi=pair_hi,
+        pair_plus=pair_plus,
+        paired_level=paired_level,
+        groups=groups,
+        pair_operator=op_names[0] if op_names else "",
+    )
+
+
+def _runs(e0: np.ndarray, tol: float) -> list[np.ndarray]:
+    """Runs (size >= 2) of consecutive ascending energies closer than ``tol``."""
+    if e0.size < 2:
+        return []
+    brk = np.flatnonzero(np.diff(e0) > tol) + 1
+    bounds = np.concatenate([[0], brk, [e0.size]])
+    return [np.arange(a, b) for a, b in zip(bounds[:-1], bounds[1:]) if b - a > 1]
+
+
+def _group_ids(e0: np.ndarray, level_sectors: np.ndarray, tol: float) -> np.ndarray:
+    """Degenerate-group id of every level (-1: not degenerate), groups formed inside each sector."""
+    n = e0.size
+    out = np.full(n, -1, dtype=np.int64)
+    if n < 2:
+        return out
+    order = np.lexsort((np.arange(n), level_sectors))  # by sector, ascending level (= ascending energy)
+    s, e = level_sectors[order], e0[order]
+    brk = np.concatenate([[True], (s[1:] != s[:-1]) | (np.diff(e) > tol)])
+    ids = np.cumsum(brk) - 1
+    counts = np.bincount(ids)
+    multi = counts[ids] >= 2
+    out[order[multi]] = ids[multi]
+    return out
 
 
 def _spectral_norm(v: Any) -> float:

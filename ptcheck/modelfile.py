@@ -33,7 +33,7 @@ what to check (all optional here; flags can give or override each entry)::
     orders = [2, 4, "pade2/2"]     # every order listed is judged
     coupling = 1.0                 # the coupling λ you use (dimensionless)
     rtol = 0.01                    # or tol = 1e-3 (absolute, energy units); not both
-    treatment = "auto"             # "auto" | "nondegenerate" | "block"
+    treatment = "standard"         # "standard" (default) | "nondegenerate" | "block" | "auto"
     backend = "auto"               # exact solver
 
 derived quantities, any number of them (linear combinations of levels)::
@@ -42,13 +42,14 @@ derived quantities, any number of them (linear combinations of levels)::
     name = "chi"
     expr = "0.5*(1,1) - 0.5*(1,0) - 0.5*(0,1) + 0.5*(0,0)"
     # or: levels = [[1, 1], [1, 0], [0, 1], [0, 0]]  and  weights = [0.5, -0.5, -0.5, 0.5]
-    relative_to = "value"          # or "shift": denominator of the relative error
-    units = "GHz"
+    relative_to = "value"          # or "shift": the quantity is presented as its shift E(λ) − E(0)
+    units = "GHz"                  #   and its relative error is taken against that shift
 
     [[quantity]]                   # or a ready-made one from ptcheck.quantities:
     kind = "transition_frequency"  # transition_frequency, stark_shift, dispersive_shift,
     upper = [1, 0]                 # zz_coupling, cross_kerr, anharmonicity, exchange;
     lower = [0, 0]                 # the other keys are that constructor's arguments
+    relative_to = "shift"          # accepted with every kind
 
 Level syntax (in files and on the command line): ``3`` is the energy rank 3
 (0 = lowest unperturbed level), ``(1,0)`` or ``|1,0⟩`` the label ``(1, 0)`` of
@@ -57,10 +58,12 @@ a product basis, anything else a string label such as ``g``.
 
 from __future__ import annotations
 
+import contextlib
 import inspect
 import re
 import tomllib
-from collections.abc import Hashable, Mapping
+import zipfile
+from collections.abc import Hashable, Iterator, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
@@ -69,8 +72,9 @@ from typing import Any
 import numpy as np
 import scipy.sparse as sp
 
+from . import _validation as val
 from .approximants import parse_orders
-from .model import Model
+from .model import DENSE_LIMIT, Model
 from .models import BUILDERS
 from .quantities import Quantity
 
@@ -492,36 +496,130 @@ def _quantity_of_kind(q: dict, where: str) -> Quantity:
     fn = getattr(quantities, kind)
     names = [n for n in inspect.signature(fn).parameters if n not in ("closed_form", "closed_form_order")]
     args = {k: v for k, v in q.items() if k != "kind"}
+    # relative_to is accepted with every kind (stark_shift has it fixed to "shift"; asking for it is harmless)
+    rel = args.pop("relative_to", None) if "relative_to" not in names else None
     unknown = sorted(set(args) - set(names))
     if unknown:
-        raise ValueError(f"{where}: {kind} has no argument(s) {', '.join(map(repr, unknown))}; its arguments are {', '.join(names)}")
+        raise ValueError(
+            f"{where}: {kind} has no argument(s) {', '.join(map(repr, unknown))}; its arguments are "
+            f"{', '.join(names + ([] if 'relative_to' in names else ['relative_to']))}"
+        )
     for k in _LEVEL_ARGS:
         if k in args:
             args[k] = parse_level(args[k])
     if isinstance(args.get("axes"), list):
         args["axes"] = tuple(args["axes"])
-    return fn(**args)
+    out = fn(**args)
+    if rel is not None and rel != out.relative_to:
+        from dataclasses import replace as _replace
+
+        if not isinstance(rel, str):
+            raise TypeError(f"{where}: relative_to must be \"value\" or \"shift\"; got {rel!r}")
+        out = _replace(out, relative_to=rel)
+    return out
+
+
+#: What reading a damaged or foreign file can raise (numpy, scipy, zipfile).
+_READ_ERRORS = (OSError, EOFError, ValueError, KeyError, zipfile.BadZipFile)
+
+
+@contextlib.contextmanager
+def _reading(path: Path, what: str, source: Path) -> Iterator[None]:
+    """Turn any failure to read ``path`` into one clear ValueError naming the file."""
+    try:
+        yield
+    except _READ_ERRORS as exc:
+        raise ValueError(
+            f"{source}: cannot read {what} from {path}: not a readable {path.suffix or 'numpy'} file "
+            f"({type(exc).__name__}: {exc})"
+        ) from None
+
+
+def _npy_header(fh: Any) -> tuple[tuple, int] | None:
+    """Shape and item size from the header of an .npy stream (None for a header version not peeked at)."""
+    version = np.lib.format.read_magic(fh)
+    if version == (1, 0):
+        shape, _, dtype = np.lib.format.read_array_header_1_0(fh)
+    elif version == (2, 0):
+        shape, _, dtype = np.lib.format.read_array_header_2_0(fh)
+    else:
+        return None
+    return tuple(int(k) for k in shape), int(dtype.itemsize)
+
+
+def _sized(source: Path, check: Any, *args: Any, **kwargs: Any) -> None:
+    """Run a size check; its message is prefixed with the model file."""
+    try:
+        check(*args, **kwargs)
+    except ValueError as exc:
+        raise ValueError(f"{source}: {exc}") from None
+
+
+def _check_dense_header(head: tuple[tuple, int] | None, name: str, source: Path) -> None:
+    """Refuse a dense array too large for ptcheck from its header, before it is read."""
+    if head is not None and len(head[0]) == 2:
+        _sized(source, val.check_matrix_size, head[0], name, dense=True, max_dense=DENSE_LIMIT, itemsize=head[1])
 
 
 def _load_matrix(path: Path, name: str, source: Path) -> tuple[Any, str]:
     if not path.exists():
         raise FileNotFoundError(f"{source}: matrix file {str(path)!r} ({name}) does not exist")
+    if path.is_dir():
+        raise ValueError(f"{source}: matrix file {str(path)!r} ({name}) is a folder")
     suffix = path.suffix.lower()
-    try:
-        if suffix == ".npy":
+    what = f"{name} ({path.name})"
+    if suffix == ".npy":
+        with _reading(path, name, source), open(path, "rb") as fh:
+            head = _npy_header(fh)
+        _check_dense_header(head, what, source)
+        with _reading(path, name, source):
             return np.load(path, allow_pickle=False), "npy"
-        if suffix == ".npz":
-            with np.load(path, allow_pickle=False) as z:
-                is_sparse = "format" in z.files and "shape" in z.files
-            if not is_sparse:
-                raise ValueError(
-                    f"{path} is not a scipy.sparse .npz (scipy.sparse.save_npz); for dense arrays use .npy files "
-                    "or one archive with `matrices = ...` holding h0 and v"
-                )
+    if suffix == ".npz":
+        shape, nnz = None, None
+        with _reading(path, name, source), zipfile.ZipFile(path) as zf:
+            members = set(zf.namelist())
+            if {"format.npy", "shape.npy"} <= members:
+                with zf.open("shape.npy") as fh:
+                    shape = tuple(int(k) for k in np.lib.format.read_array(fh, allow_pickle=False))
+                if "data.npy" in members:
+                    with zf.open("data.npy") as fh:
+                        head = _npy_header(fh)
+                    nnz = None if head is None else int(np.prod(head[0]))
+        if shape is None:
+            raise ValueError(
+                f"{source}: {path} is not a scipy.sparse .npz (scipy.sparse.save_npz); for dense arrays use .npy "
+                "files or one archive with `matrices = ...` holding h0 and v"
+            )
+        _sized(source, val.check_matrix_size, shape, what, dense=False)
+        if nnz is not None and nnz > val.MAX_NONZEROS:
+            raise ValueError(f"{source}: {what} has {nnz} stored entries; ptcheck accepts at most {val.MAX_NONZEROS}")
+        with _reading(path, name, source):
             return sp.load_npz(path), "sparse-npz"
-    except (OSError, EOFError) as exc:
-        raise ValueError(f"{source}: cannot read {name} from {path} ({exc})") from None
     raise ValueError(f"{source}: {name} file {path.name!r} must end in .npy (numpy.save) or .npz (scipy.sparse.save_npz)")
+
+
+def _load_archive(arch: Path, source: Path) -> tuple[Any, Any]:
+    """h0 and v from one dense numpy.savez archive (sizes checked from the headers first)."""
+    with _reading(arch, "the matrices", source), zipfile.ZipFile(arch) as zf:
+        members = {m[:-4] if m.endswith(".npy") else m for m in zf.namelist()}
+        heads = {}
+        for key in ("h0", "v"):
+            if key in members:
+                with zf.open(f"{key}.npy") as fh:
+                    heads[key] = _npy_header(fh)
+    if {"format", "shape"} <= members:
+        raise ValueError(
+            f"{source}: {arch} is a single scipy.sparse matrix; save h0 and v separately with "
+            "scipy.sparse.save_npz and name them with h0 = ... and v = ..."
+        )
+    missing = sorted({"h0", "v"} - members)
+    if missing:
+        raise ValueError(f"{source}: {arch} has no array(s) {', '.join(missing)} (it has "
+                         f"{', '.join(sorted(members)) or 'none'}); write it with numpy.savez(path, h0=..., v=...)")
+    for key, head in heads.items():
+        _check_dense_header(head, f"{key} ({arch.name})", source)
+    with _reading(arch, "the matrices", source), np.load(arch, allow_pickle=False) as z:
+        return z["h0"], z["v"]
 
 
 def _model_from_matrices(mt: dict, base: Path, source: Path) -> tuple[Model, str]:
@@ -531,22 +629,7 @@ def _model_from_matrices(mt: dict, base: Path, source: Path) -> tuple[Model, str
         arch = base / str(mt["matrices"])
         if not arch.exists():
             raise FileNotFoundError(f"{source}: matrix archive {str(arch)!r} does not exist")
-        try:
-            with np.load(arch, allow_pickle=False) as z:
-                files = set(z.files)
-                if {"format", "shape"} <= files:
-                    raise ValueError(
-                        f"{arch} is a single scipy.sparse matrix; save h0 and v separately with "
-                        "scipy.sparse.save_npz and name them with h0 = ... and v = ..."
-                    )
-                missing = sorted({"h0", "v"} - files)
-                if missing:
-                    raise ValueError(f"{arch} has no array(s) {', '.join(missing)} (it has {', '.join(sorted(files)) or 'none'}); "
-                                     "write it with numpy.savez(path, h0=..., v=...)")
-                h0, v = z["h0"], z["v"]
-        except (OSError, EOFError, ValueError) as exc:
-            msg = str(exc)
-            raise ValueError(msg if str(arch) in msg else f"{source}: cannot read {arch} ({msg})") from None
+        h0, v = _load_archive(arch, source)
         kind = "npz"
     elif "h0" in mt and "v" in mt:
         h0, k0 = _load_matrix(base / str(mt["h0"]), "h0", source)

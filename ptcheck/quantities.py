@@ -52,9 +52,10 @@ from . import _validation as val
 from .approximants import OrderSpec
 from .degeneracy import DEFAULT_MIXING_THRESHOLD
 from .errors import AmbiguousLevelError, DegenerateLevelError
+from ._good_states import group_branches, natural_scales
 from .model import Model
 from .series import rs_series
-from .treatment import TREATMENTS, expansions
+from .treatment import DEFAULT_TREATMENT, CheckSettings, expansions
 
 __all__ = [
     "Quantity",
@@ -812,12 +813,14 @@ class QuantitySeries:
     weights : tuple of float
         Weight of each level (length L).
     treatments : tuple of str
-        ``"nondegenerate"`` or ``"block"`` for each level.
+        Treatment used for each level: ``"nondegenerate"``, ``"degenerate"``
+        or ``"near-degenerate block"`` (:mod:`ptcheck.treatment`).
     coefficients : (order + 1,) ndarray or None, read-only
         Taylor coefficients ``Q^(k)`` of the quantity, ``Q(λ) = Σ_k λ^k Q^(k)``
         (energy units): ``Σ_i w_i E_i^(k)``.  Non-degenerate levels contribute
-        their Rayleigh–Schrödinger coefficients; block-treated levels the
-        Taylor coefficients of their block eigenvalue branch (see Notes).
+        their Rayleigh–Schrödinger coefficients; levels treated with an effective
+        Hamiltonian (degenerate group or near-degenerate block) the Taylor
+        coefficients of their eigenvalue branch (see Notes).
         ``None`` when some level has no scalar series here (``notes`` says
         which and why).
     level_coefficients : (L, order + 1) ndarray, read-only
@@ -841,12 +844,14 @@ class QuantitySeries:
         Value at λ = 0, ``Σ_i w_i E_i^(0)`` (energy units).
     notes : tuple of str
         Plain-language remarks (block levels, cancellations, sources).
+    reasons : tuple of str
+        Why each level got its treatment (:mod:`ptcheck.treatment`).
 
     Notes
     -----
     :meth:`energy` is the value ``compare`` reports as perturbative: the same
-    combination of the levels' truncated expansions (for a block-treated
-    level, the eigenvalue of the truncated effective Hamiltonian -- not the
+    combination of the levels' truncated expansions (for a level treated
+    with an effective Hamiltonian, the eigenvalue of the truncated effective Hamiltonian -- not the
     partial sum of its Taylor series; the two differ at order k + 1).
     """
 
@@ -869,6 +874,7 @@ class QuantitySeries:
     notes: tuple[str, ...]
     quantity: Quantity = field(repr=False)
     _expansions: tuple = field(repr=False)
+    reasons: tuple[str, ...] = ()
 
     # ------------------------------------------------------------------ values
     def energy(self, couplings: Any, order: OrderSpec | None = None) -> np.ndarray:
@@ -949,6 +955,7 @@ class QuantitySeries:
             "labels": list(self.labels),
             "weights": list(self.weights),
             "treatments": list(self.treatments),
+            "reasons": list(self.reasons),
             "coefficients": None if self.coefficients is None else self.coefficients.tolist(),
             "level_coefficients": [[num(x) for x in row] for row in self.level_coefficients],
             "first_nonzero_order": self.first_nonzero_order,
@@ -1001,7 +1008,7 @@ def quantity_series(
     quantity: Quantity,
     order: int,
     *,
-    treatment: str = "auto",
+    treatment: str = DEFAULT_TREATMENT,
     coupling: float | None = None,
     threshold: float = DEFAULT_MIXING_THRESHOLD,
     method: str = "schrieffer-wolff",
@@ -1015,16 +1022,18 @@ def quantity_series(
     quantity : Quantity
     order : int
         Highest order (>= 0).
-    treatment : {"auto", "nondegenerate", "block"}
-        Expansion of each level (:mod:`ptcheck.treatment`).
+    treatment : {"standard", "nondegenerate", "block", "auto"}, default "standard"
+        Expansion of each level (:mod:`ptcheck.treatment`): by default the
+        non-degenerate series, or degenerate perturbation theory for a level
+        in an exactly degenerate group.
     coupling : float, optional
-        Coupling of interest at which ``"auto"`` judges near-degeneracy
-        (default: exact degeneracy only).  Use the coupling you will pass to
-        ``compare`` to get the same treatment it uses.
+        Coupling of interest at which ``"block"``/``"auto"`` judge
+        near-degeneracy (default: exact degeneracy only).  Use the coupling you
+        will pass to ``compare`` to get the same treatment it uses.
     threshold : float
-        Mixing-ratio threshold for ``"auto"``.
+        Mixing-ratio threshold for ``"block"``/``"auto"``.
     method : str
-        Block method for block-treated levels.
+        Method of near-degenerate blocks.
     cancellation_rtol : float, default :data:`CANCELLATION_RTOL`
         Relative tolerance of the cancellation test behind
         :attr:`QuantitySeries.first_nonzero_order`.
@@ -1045,7 +1054,8 @@ def quantity_series(
 
     Notes
     -----
-    Taylor coefficients of a block-treated level: for a level that is not
+    Taylor coefficients of a level treated with an effective Hamiltonian
+    (degenerate group or near-degenerate block): for a level that is not
     exactly degenerate in H0 they are its Rayleigh–Schrödinger coefficients
     (the Taylor series of an analytic level is unique).  For a level in an
     exactly degenerate group they are computed from the group's
@@ -1068,18 +1078,15 @@ def quantity_series(
     (2, 0.01)
     """
     _check_model_quantity(model, quantity)
-    order = val.check_int(order, "order", minimum=0)
-    treatment = val.check_choice(treatment, "treatment", TREATMENTS)
-    if coupling is not None:
-        coupling = val.as_coupling(coupling)
-    threshold = float(val.check_positive(threshold, "threshold"))
+    order = val.check_order(order, n=model.n)
+    settings = CheckSettings(treatment=treatment, threshold=threshold, method=method, coupling=coupling)
     cancellation_rtol = float(val.check_positive(cancellation_rtol, "cancellation_rtol"))
 
     resolved = quantity.resolve(model)
     levels = list(resolved)
     weights = [resolved[n] for n in levels]
     try:
-        exps = expansions(model, levels, order, treatment=treatment, coupling=coupling, threshold=threshold, method=method)
+        exps = expansions(model, levels, order, settings=settings)
     except DegenerateLevelError as exc:
         raise DegenerateLevelError(f"quantity {quantity.name!r}: {exc}", exc.pair) from None
 
@@ -1090,7 +1097,7 @@ def quantity_series(
         if e.energy_coefficients is not None:
             rows.append(np.asarray(e.energy_coefficients, dtype=float))
             continue
-        notes.extend(getattr(e.block, "notes", ()))
+        notes.extend(getattr(getattr(e, "block", None), "notes", ()))
         c, note = _block_level_taylor(model, n, order, group_cache)
         rows.append(c)
         if note:
@@ -1141,6 +1148,7 @@ def quantity_series(
         notes=tuple(dict.fromkeys(notes)),
         quantity=quantity,
         _expansions=tuple(exps),
+        reasons=tuple(e.reason for e in exps),
     )
 
 
@@ -1188,12 +1196,12 @@ def _nonzero_mask(model, levels, weights, level_c, c, rtol) -> np.ndarray:
 
 # ---------------------------------------------------------------------- block Taylor series
 def _block_level_taylor(model: Model, level: int, order: int, cache: dict) -> tuple[np.ndarray | None, str]:
-    """Taylor coefficients of a block-treated level's energy, and a note."""
+    """Taylor coefficients of the energy of a level in a near-degenerate block (or unresolved group), and a note."""
     grp = model.degenerate_group_of(level)
     if grp is None:
         s = rs_series(model, level, order)
         return np.asarray(s.energy_coefficients, dtype=float), (
-            f"Level {model.label(level)} is block-treated; its Taylor coefficients are its Rayleigh–Schrödinger "
+            f"Level {model.label(level)} is in a near-degenerate block; its Taylor coefficients are its Rayleigh–Schrödinger "
             "coefficients, while energy() uses the block eigenvalue (they agree up to the truncation order)."
         )
     if grp not in cache:
@@ -1213,83 +1221,16 @@ def _block_level_taylor(model: Model, level: int, order: int, cache: dict) -> tu
 
 
 def _group_taylor(model: Model, grp: tuple[int, ...], order: int) -> list[np.ndarray | None]:
+    """Taylor coefficients of each branch of an exactly degenerate group (good states at the splitting order)."""
     from .blocks import block_series  # lazy, as in treatment.py
 
     bs = block_series(model, list(grp), order, method="schrieffer-wolff")
     h = np.asarray(bs.coefficients)  # (order + 1, d, d)
-    d = len(grp)
     e0 = float(np.mean(np.real(np.diag(h[0]))))
     if order == 0:
-        return [np.array([e0]) for _ in range(d)]
-    nv = model.norm_v
-    gap = bs.gap if np.isfinite(bs.gap) and bs.gap > 0 else max(nv, np.finfo(float).tiny)
-    with np.errstate(over="ignore"):
-        scales = max(nv, np.finfo(float).tiny) * (nv / gap) ** np.arange(order)  # for H_eff^(1..order)
-    scales[~np.isfinite(scales)] = np.finfo(float).max
-    branches = _branch_series(h[1:], scales)
-    return [None if b is None else np.concatenate([[e0], b]) for b in branches]
-
-
-def _branch_series(p: np.ndarray, scales: np.ndarray) -> list[np.ndarray | None]:
-    """Taylor coefficients of the eigenvalue branches of ``Σ_k λ^k p[k]`` (Hermitian).
-
-    Returns one entry per branch, in ascending order at small positive λ
-    (lexicographic in the coefficients); ``None`` for branches inside a
-    cluster that stays degenerate where its neighbours split.
-    """
-    p0 = 0.5 * (p[0] + p[0].conj().T)
-    a, w = np.linalg.eigh(p0)
-    last = p.shape[0] - 1
-    if last == 0:
-        return [np.array([x]) for x in a]
-    tol = 1e-8 * scales[0]
-    if a[-1] - a[0] <= tol:  # p[0] is a multiple of the identity: split it off, look one order deeper
-        sub = _branch_series(p[1:], scales[1:])
-        mean = float(np.mean(a))
-        return [None if s is None else np.concatenate([[mean], s]) for s in sub]
-    q = np.einsum("ij,kjl,lm->kim", w.conj().T, p, w)
-    out: list[np.ndarray | None] = []
-    start = 0
-    for i in range(1, a.size + 1):
-        if i == a.size or a[i] - a[i - 1] > tol:
-            if i - start == 1:
-                out.append(_simple_branch(q, a, start))
-            else:
-                out.extend(_cluster_branches(q, np.arange(start, i), scales))
-            start = i
-    return out
-
-
-def _cluster_branches(q: np.ndarray, idx: np.ndarray, scales: np.ndarray) -> list[np.ndarray | None]:
-    """Branches of a degenerate cluster of ``q[0]``: resolved only if no order couples it to the rest.
-
-    (The usual case is a symmetry: e.g. the spin triplet of a Hubbard dimer is
-    never coupled to the singlet.)  Otherwise ``None`` for each branch.
-    """
-    rest = np.setdiff1d(np.arange(q.shape[1]), idx)
-    coupling = np.max(np.abs(q[:, idx][:, :, rest]), axis=(1, 2))
-    if np.all(coupling <= 1e-8 * scales):
-        return _branch_series(q[:, idx][:, :, idx], scales)
-    return [None] * idx.size
-
-
-def _simple_branch(q: np.ndarray, a: np.ndarray, n: int) -> np.ndarray:
-    """Rayleigh–Schrödinger for a simple eigenvalue ``a[n]`` of ``q[0] = diag(a)``,
-    perturbation ``Σ_{j≥1} λ^j q[j]`` (intermediate normalisation)."""
-    last = q.shape[0] - 1
-    r = np.zeros(a.size)
-    mask = np.arange(a.size) != n
-    r[mask] = 1.0 / (a[n] - a[mask])
-    x = np.zeros((last + 1, a.size), dtype=complex)
-    x[0, n] = 1.0
-    e = np.zeros(last + 1, dtype=complex)
-    e[0] = a[n]
-    for k in range(1, last + 1):
-        s = sum(q[j] @ x[k - j] for j in range(1, k + 1))
-        e[k] = s[n]
-        rhs = s - sum((e[j] * x[k - j] for j in range(1, k)), np.zeros(a.size, dtype=complex))
-        x[k] = r * rhs
-    return np.real(e)
+        return [np.array([e0]) for _ in grp]
+    branches = group_branches(h, natural_scales(model.norm_v, bs.gap, order))
+    return [None if b.coefficients is None else np.concatenate([[e0], b.coefficients]) for b in branches]
 
 
 # ====================================================================== convergence helper

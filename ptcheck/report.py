@@ -16,8 +16,9 @@ parameter, checks the truncation.  The result is a :class:`CheckReport`.
 - ``report.md``: the verdict in plain words, the cautions, tables, and the
   figures (PNG files beside it).
 
-Every file is written atomically (temporary file + ``os.replace``); a
-different existing report is never overwritten unless ``force=True``.
+The folder is written as a whole (a fresh sibling folder swapped in at the
+end: never a mix of old and new files), one writer at a time; a different
+existing report is never replaced unless ``force=True``.
 """
 
 from __future__ import annotations
@@ -29,17 +30,25 @@ import json
 import math
 import platform
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
 from . import _validation as val
-from ._atomic import ReportExistsError, write_all
+from ._atomic import (
+    ReportBusyError,
+    ReportExistsError,
+    ReportFolderError,
+    check_target,
+    folder_state,
+    write_folder,
+)
 from ._progress import ProgressCallback, report_progress
 from .approximants import Pade, order_name, parse_orders
 from .compare import TRUNCATION_NOTE, ComparisonResult, ValidityBoundary, compare, validity_boundary
+from .treatment import DEFAULT_TREATMENT, EXACT_IN_SECTOR, NEAR_DEGENERATE, CheckSettings, require_model
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, NearDegeneratePair, near_degenerate_pairs
 from .model import Model
 from .modelfile import SIZE_PARAMS
@@ -48,9 +57,15 @@ from .quantities import Quantity
 __all__ = [
     "CheckReport",
     "Verdict",
+    "VERDICT_STATUSES",
     "Figure",
     "FORMATS",
+    "ReportBusyError",
     "ReportExistsError",
+    "ReportFolderError",
+    "check_out_dir",
+    "read_fingerprint",
+    "report_fingerprint",
     "run_check",
     "write_report",
     "default_figures",
@@ -78,9 +93,17 @@ def _version() -> str:
 
 
 # ---------------------------------------------------------------------- result types
+#: Verdict statuses: what a verdict can say about one order of one target.
+VERDICT_STATUSES = ("valid", "not valid", "exact within its sector", "undefined")
+
+
 @dataclass(frozen=True)
 class Verdict:
     """Is one order of one target within tolerance at the coupling asked about?
+
+    The verdict is gated by the validity boundary of the same treatment: valid
+    exactly when |λ| lies below the first coupling at which the error exceeds
+    the tolerance (so it never changes back and forth with λ).
 
     Attributes
     ----------
@@ -96,14 +119,24 @@ class Verdict:
     relative : bool
         Whether ``tolerance`` and ``error`` are relative.
     valid : bool
-        ``error <= tolerance`` (False when ``error`` is NaN).
+        ``status == "valid"``.
     boundary : float
         Signed validity boundary λ* of this order (``inf`` if not reached, NaN
-        if ill defined).
+        if ill defined or exact within its sector).
     boundary_status : str
         ``ValidityBoundary.status``.
     text : str
         The verdict in one plain sentence.
+    status : str
+        One of :data:`VERDICT_STATUSES`: ``"valid"`` (|λ| below the first
+        boundary), ``"not valid"``, ``"exact within its sector"`` (the treatment
+        is exact diagonalisation of a whole invariant sector: no order is
+        judged, never a "valid" verdict), ``"undefined"`` (the error cannot be
+        judged, e.g. a relative error whose reference vanishes).
+    treatment : str
+        Treatment used (:mod:`ptcheck.treatment`).
+    reason : str
+        Why that treatment.
     """
 
     target: str
@@ -116,6 +149,9 @@ class Verdict:
     boundary: float
     boundary_status: str
     text: str
+    status: str = "valid"
+    treatment: str = "nondegenerate"
+    reason: str = ""
 
     def to_dict(self) -> dict:
         return {
@@ -126,6 +162,9 @@ class Verdict:
             "tolerance": self.tolerance,
             "relative": self.relative,
             "valid": self.valid,
+            "status": self.status,
+            "treatment": self.treatment,
+            "reason": self.reason,
             "boundary": _finite_or_str(self.boundary),
             "boundary_status": self.boundary_status,
             "text": self.text,
@@ -177,6 +216,10 @@ class CheckReport:
         Optional additions, e.g. a validity map (``{"validity_map": ValidityMap}``).
     source_model : Model
         The model checked (not serialised; used by figure makers).
+    suggestions : tuple of Suggestion
+        Near-degenerate blocks that would fix a partner limiting a target's
+        series, each with its own validity boundary: beside the verdict, never
+        in its place (the verdict and the exit status judge what was asked).
     """
 
     title: str
@@ -196,6 +239,7 @@ class CheckReport:
     notes: tuple
     extras: dict = field(default_factory=dict)
     source_model: Any = field(default=None, repr=False)
+    suggestions: tuple = ()
 
     @property
     def exit_status(self) -> int:
@@ -231,6 +275,7 @@ class CheckReport:
                 "lowest_valid_order": {k: (None if v is None else order_name(v)) for k, v in self.lowest_valid_order.items()},
             },
             "cautions": list(self.cautions),
+            "suggestions": [g.to_dict() for g in self.suggestions],
             "boundaries": [b.to_dict() for b in self.boundaries],
             "convergence": [None if c is None else c.to_dict() for c in self.convergence],
             "near_degenerate_pairs": [p.to_dict() for p in self.pairs],
@@ -245,7 +290,7 @@ class CheckReport:
     def _repr_html_(self) -> str:
         rows = "".join(
             f"<tr><td>{html.escape(v.target)}</td><td>{html.escape(order_name(v.order))}</td>"
-            f"<td>{_fmt_err(v.error, v.relative)}</td><td>{'✔' if v.valid else '✘'}</td>"
+            f"<td>{_fmt_err(v.error, v.relative)}</td><td>{'✔' if v.valid else ('exact' if v.status == 'exact within its sector' else '✘')}</td>"
             f"<td>{_fmt_lam(v.boundary)}</td></tr>"
             for v in self.verdicts
         )
@@ -289,7 +334,7 @@ def run_check(
     coupling: float,
     tol: float | None = None,
     rtol: float | None = None,
-    treatment: str = "auto",
+    treatment: str = DEFAULT_TREATMENT,
     backend: str = "auto",
     threshold: float = DEFAULT_MIXING_THRESHOLD,
     builder: str | None = None,
@@ -317,11 +362,15 @@ def run_check(
         Absolute tolerance (energy units) or relative tolerance (relative to
         the exact shift of a level / the reference a quantity names).  At most
         one; default ``rtol = 0.01``.
-    treatment : {"auto", "nondegenerate", "block"}
+    treatment : {"standard", "nondegenerate", "block", "auto"}, default "standard"
+        The perturbation theory judged (:mod:`ptcheck.treatment`): by default
+        the textbook series (degenerate perturbation theory inside exactly
+        degenerate groups).  Near-degenerate blocks are suggested beside the
+        verdict, not substituted for what was asked.
     backend : str
         Exact solver backend.
     threshold : float
-        Mixing-ratio threshold for near-degenerate pairs and the "auto" treatment.
+        Mixing-ratio threshold for near-degenerate pairs, blocks and suggestions.
     builder, params : optional
         Name and keyword arguments of the built-in builder that made ``model``
         (enables the truncation check and is recorded in the report).
@@ -340,9 +389,16 @@ def run_check(
     Returns
     -------
     CheckReport
+
+    Notes
+    -----
+    Each verdict is gated by its validity boundary (same treatment, searched
+    with λ as the coupling of interest): an order is valid at λ exactly when
+    |λ| lies below the first coupling where its error exceeds the tolerance.
+    An error that comes back within tolerance beyond that boundary is an
+    accident, reported as NOT valid with a caution.
     """
-    if not isinstance(model, Model):
-        raise TypeError(f"model must be a ptcheck Model; got {type(model).__name__}")
+    require_model(model, "run_check")
     lam0 = val.as_coupling(coupling)
     if tol is not None and rtol is not None:
         raise ValueError(f"give tol or rtol, not both; got tol={tol!r}, rtol={rtol!r}")
@@ -352,6 +408,7 @@ def run_check(
     thr = float(val.check_positive(rtol if relative else tol, "rtol" if relative else "tol"))
     n_points = val.check_int(n_points, "n_points", minimum=3)
     convergence_order = val.check_int(convergence_order, "convergence_order", minimum=2)
+    settings = CheckSettings(treatment=treatment, backend=backend, threshold=threshold, coupling=lam0 if lam0 != 0 else None)
     targets = list(val.as_sequence(levels)) if levels is not None else [0]
     if not targets:
         targets = [0]
@@ -370,7 +427,7 @@ def run_check(
             level_sets.append([n])
     if len(set(names)) != len(names):
         raise ValueError(f"targets must be distinct; got {names}")
-    needed = list(dict.fromkeys(n for s in level_sets for n in s))
+    needed = list(dict.fromkeys(n for s_ in level_sets for n in s_))
 
     do_trunc = builder is not None and any(p in (params or {}) or _has_param(builder, p) for p in SIZE_PARAMS)
     total = 2 + len(targets) * len(specs) + len(needed) + (1 if do_trunc else 0)
@@ -381,19 +438,14 @@ def run_check(
         step += 1
         report_progress(progress, step, total)
 
-    opts = {"treatment": treatment, "backend": backend}
     tolkw = {"rtol": thr} if relative else {"tol": thr}
 
-    # 1. validity boundaries of every order asked for
-    from .exact import BACKENDS
-    from .treatment import TREATMENTS
-
-    val.check_choice(treatment, "treatment", TREATMENTS)
-    val.check_choice(backend, "backend", BACKENDS)
+    # 1. validity boundaries of every order asked for (λ is the coupling of interest: the first
+    #    crossing below it is always found, so the verdict and the boundary agree)
     boundaries = []
     for t, name in zip(targets, names):
-        for s in specs:
-            boundaries.append(_boundary(model, t, name, s, direction, threshold, tolkw, treatment, backend, lam0))
+        for sp_ in specs:
+            boundaries.append(_boundary(model, t, name, sp_, direction, tolkw, settings, lam0))
             tick()
 
     # 2. comparison on a grid reaching past the coupling and the boundaries found
@@ -405,44 +457,49 @@ def run_check(
         reach = min(finite_b) if finite_b else 1.0
     grid = direction * np.linspace(reach / (n_points - 1), reach, n_points - 1)
     grid = np.unique(np.append(grid, lam0)) if lam0 != 0 else np.unique(np.append(grid, 0.0))
-    int_orders = [s for s in specs if not isinstance(s, Pade)]
+    int_orders = [s_ for s_ in specs if not isinstance(s_, Pade)]
     kmax = max(int_orders, default=2)
     context = list(range(1, min(kmax + 2, 40) + 1))
     all_orders = list(dict.fromkeys(list(specs) + context))
-    comp = compare(model, targets, all_orders, grid, coupling=lam0 if lam0 != 0 else None, threshold=threshold, **opts)
+    comp = compare(model, targets, all_orders, grid, coupling=lam0 if lam0 != 0 else None, threshold=threshold,
+                   treatment=settings.treatment, backend=settings.backend)
     tick()
     ci = int(np.argmin(np.abs(comp.couplings - lam0)))
     errs = comp.rel_error if relative else comp.abs_error
 
-    # 3. verdicts
+    # 3. verdicts, gated by the boundaries
     verdicts = []
     bi = 0
     for ti, name in enumerate(comp.targets):
-        for s in specs:
-            oi = comp.orders.index(s)
+        for sp_ in specs:
+            oi = comp.orders.index(sp_)
             e = float(errs[ti, oi, ci])
             b = boundaries[bi]
             bi += 1
-            ok = bool(np.isfinite(e) and e <= thr)
-            text = _verdict_sentence(name, s, lam0, e, thr, relative, ok, b, comp.treatments[ti])
-            verdicts.append(Verdict(name, s, lam0, e, thr, relative, ok, float(b.coupling), b.status, text))
+            status = _verdict_status(b, lam0, e, thr)
+            text = _verdict_sentence(name, sp_, lam0, e, thr, relative, status, b, comp.treatments[ti])
+            verdicts.append(Verdict(name, sp_, lam0, e, thr, relative, status == "valid", float(b.coupling), b.status, text,
+                                    status, comp.treatments[ti], comp.reasons[ti] if comp.reasons else ""))
     lowest: dict[str, Any] = {}
     for ti, name in enumerate(comp.targets):
         lowest[name] = None
+        if comp.exact_in_sector and comp.exact_in_sector[ti]:
+            continue
         for k in sorted(o for o in comp.orders if not isinstance(o, Pade)):
             e = float(errs[ti, comp.orders.index(k), ci])
             if np.isfinite(e) and e <= thr:
                 lowest[name] = k
                 break
 
-    # 4. convergence of each level's series
+    # 4. convergence of each level's series (the same treatment)
     from .convergence import convergence as _convergence  # lazy: heavier module
 
     conv = []
     conv_notes = []
     for n in needed:
         try:
-            conv.append(_convergence(model, n, convergence_order, coupling=lam0))
+            conv.append(_convergence(model, n, convergence_order, coupling=lam0, treatment=settings.treatment,
+                                     threshold=threshold))
         except (ValueError, FloatingPointError) as exc:
             conv.append(None)
             conv_notes.append(f"No convergence diagnosis for level {model.label(n)}: {exc}")
@@ -460,7 +517,9 @@ def run_check(
         trunc, trunc_notes = _truncation_checks(model, builder, dict(params or {}), needed, lam0)
         tick()
 
-    cautions = _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam0, builder, source)
+    suggestions = _report_suggestions(boundaries, comp)
+    cautions = _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam0, builder, source,
+                         suggestions)
     notes = list(comp.notes)
     for b in boundaries:
         notes.extend(b.notes)
@@ -481,16 +540,17 @@ def run_check(
         "source": _json_safe(dict(source)) if source is not None else None,
         "unperturbed_energies": {model.label(n): float(model.e0[n]) for n in needed},
     }
-    settings = {
+    settings_info = {
         "targets": list(comp.targets),
         "levels": [_key_json(t) for t in targets],
-        "orders": [order_name(s) for s in specs],
-        "context_orders": [order_name(s) for s in comp.orders],
+        "orders": [order_name(s_) for s_ in specs],
+        "context_orders": [order_name(s_) for s_ in comp.orders],
         "coupling": lam0,
         "tol": None if relative else thr,
         "rtol": thr if relative else None,
-        "treatment": treatment,
-        "backend": backend,
+        "treatment": settings.treatment,
+        "treatments_used": dict(zip(comp.targets, comp.treatments)),
+        "backend": settings.backend,
         "threshold": threshold,
         "direction": direction,
         "comparison_couplings": [float(x) for x in comp.couplings],
@@ -503,7 +563,7 @@ def run_check(
         description=description,
         invented=bool(invented),
         model=model_info,
-        settings=settings,
+        settings=settings_info,
         valid=all(v.valid for v in verdicts),
         verdicts=tuple(verdicts),
         comparison=comp,
@@ -515,36 +575,52 @@ def run_check(
         cautions=tuple(dict.fromkeys(cautions)),
         notes=tuple(dict.fromkeys(notes)),
         source_model=model,
+        suggestions=suggestions,
     )
 
 
-def _boundary(model, target, name, spec, direction, threshold, tolkw, treatment, backend, lam0) -> ValidityBoundary:
+def _verdict_status(b: ValidityBoundary, lam0: float, error: float, thr: float) -> str:
+    """The verdict of one order at λ0, gated by its validity boundary (one place for that rule)."""
+    if b.status == "exact_in_sector":
+        return "exact within its sector"
+    if b.status == "ill_defined":
+        return "undefined"
+    if b.status == "error":  # no boundary: judge the error at λ0 alone
+        if not np.isfinite(error):
+            return "undefined"
+        return "valid" if error <= thr else "not valid"
+    return "valid" if b.valid_at(lam0) else "not valid"
+
+
+def _report_suggestions(boundaries: Sequence[ValidityBoundary], comp: ComparisonResult) -> tuple:
+    """Suggestions of the boundaries (with the block's boundary), then those only the comparison made."""
+    out: dict[tuple, Any] = {}
+    for b in boundaries:
+        for g in b.suggestions:
+            out.setdefault((g.target, g.level, g.partner), g)
+    for g in comp.suggestions:
+        out.setdefault((g.target, g.level, g.partner), g)
+    return tuple(out.values())
+
+
+def _boundary(model, target, name, spec, direction, tolkw, settings: CheckSettings, lam0) -> ValidityBoundary:
     """validity_boundary, robust to a failure of the search itself (reported, not raised).
 
     Inputs were validated before; a ValueError here is a numerical outcome (e.g.
-    the "auto" treatment meeting a cluster too large for a block).  With
-    "auto" the non-degenerate search is tried instead; if that fails too, a
+    a block treatment meeting a cluster too large for a block, or a Padé
+    approximant asked for a level treated with an effective Hamiltonian).  A
     boundary with status ``"error"`` and the message in ``notes`` is returned.
     """
-    # the coupling of interest makes "auto" choose each level's treatment as the comparison does,
-    # so the boundary and the error curves of the report describe the same approximation
-    kw = dict(direction=direction, threshold=threshold, backend=backend, coupling=lam0 if lam0 != 0 else None, **tolkw)
+    kw = dict(direction=direction, threshold=settings.threshold, backend=settings.backend,
+              coupling=lam0 if lam0 != 0 else None, treatment=settings.treatment, **tolkw)
     try:
-        return validity_boundary(model, target, spec, treatment=treatment, **kw)
+        return validity_boundary(model, target, spec, **kw)
     except (ValueError, ArithmeticError) as exc:
         first = f"{type(exc).__name__}: {exc}"
-    if treatment == "auto":
-        try:
-            b = validity_boundary(model, target, spec, treatment="nondegenerate", **kw)
-            note = (f"auto treatment failed ({first}); the boundary of the non-degenerate series is reported "
-                    "instead.")
-            return replace(b, notes=b.notes + (note,))
-        except (ValueError, ArithmeticError) as exc:
-            first += f"; non-degenerate: {type(exc).__name__}: {exc}"
     rel = "rtol" in tolkw
     thr = tolkw.get("rtol", tolkw.get("tol"))
     return ValidityBoundary(
-        target=name, order=spec, treatment=treatment, tol=None if rel else thr, rtol=thr if rel else None,
+        target=name, order=spec, treatment=settings.treatment, tol=None if rel else thr, rtol=thr if rel else None,
         direction=direction, coupling=math.nan, status="error", exact_solves=0, bracket=(math.nan, math.nan),
         error_at_boundary=math.nan, max_coupling=math.nan, notes=(f"The validity boundary search failed: {first}",),
     )
@@ -585,29 +661,32 @@ def _truncation_checks(model: Model, builder: str, params: dict, needed: list[in
     return out, notes
 
 
-def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam, builder, source):
+def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam, builder, source, suggestions=()):
     out = []
-    # accidental agreement: within tolerance at λ although the error crossed it on the way
-    treat = dict(zip(comp.targets, comp.treatments))
     for v, b in zip(verdicts, boundaries):
-        same = b.treatment == treat.get(v.target)
-        inside = v.boundary_status == "found" and abs(v.boundary) < abs(v.coupling)
-        if v.valid and inside and same:
+        # accidental agreement: within tolerance at λ although the error crossed it on the way
+        if v.status == "not valid" and b.status == "found" and np.isfinite(v.error) and v.error <= v.tolerance:
             out.append(
                 f"{v.target}, {order_name(v.order)}: the error is within tolerance at λ = {v.coupling:g} only by "
-                f"accident — it already exceeds the tolerance at |λ| = {abs(v.boundary):.4g} and comes back; "
-                "do not rely on it."
+                f"accident — it already exceeds the tolerance at |λ| = {abs(b.coupling):.4g} and comes back; "
+                "the verdict is NOT valid, do not rely on it."
             )
-        elif not same and (v.valid == inside or (not v.valid and v.boundary_status == "not_reached")):
+        elif v.status == "valid" and np.isfinite(v.error) and v.error > v.tolerance:
             out.append(
-                f"{v.target}, {order_name(v.order)}: the error at λ = {v.coupling:g} uses the {treat.get(v.target)} "
-                f"treatment chosen there, while the validity boundary λ* = {abs(v.boundary):.4g} was found with the "
-                f"{b.treatment} treatment; the two describe different perturbative formulas."
+                f"{v.target}, {order_name(v.order)}: the comparison grid gives an error {_fmt_err(v.error, v.relative)} "
+                f"at λ = {v.coupling:g}, just above the tolerance, while the boundary search finds λ* = "
+                f"{_fmt_lam(abs(b.coupling))}; the order sits at the edge of the tolerance there."
             )
-        if not np.isfinite(v.error):
+        if v.status == "exact within its sector":
+            out.append(
+                f"{v.target}, {order_name(v.order)}: {EXACT_IN_SECTOR} — the {v.treatment} treatment is exact "
+                "diagonalisation of a whole invariant sector, not perturbation theory; no order is judged "
+                "(not counted as valid)."
+            )
+        if not np.isfinite(v.error) and v.status != "exact within its sector":
             out.append(
                 f"{v.target}, {order_name(v.order)}: the relative error is undefined at λ = {v.coupling:g} (the exact "
-                "reference is ~0); judge it with an absolute tolerance (--tol)."
+                "reference is ~0 or the pairing of states is ambiguous); judge it with an absolute tolerance (--tol)."
             )
     # basis truncation
     bad = [t for t in trunc if not t.converged]
@@ -639,7 +718,7 @@ def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes
             out.append(
                 f"Level {lab}: λ = {lam:g} is beyond the radius of convergence ≈ {c.radius:.3g} of its series "
                 "(nearest exceptional point): low orders may still be accurate, but the series diverges — more "
-                "orders will not help; a Padé approximant or the block treatment might."
+                "orders will not help; a Padé approximant or a near-degenerate block might (see suggestions)."
             )
     # near-degenerate levels
     if pairs:
@@ -650,16 +729,19 @@ def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes
             f"λ = {lam:g}; the largest is {worst.labels[0]}–{worst.labels[1]} (ratio {ratio}). Non-degenerate "
             "formulas are unreliable for these levels."
         )
-    # treatment used
-    blocks = [t for t, tr in zip(comp.targets, comp.treatments) if tr in ("block", "mixed")]
-    if blocks:
-        out.append(
-            f"Block treatment used for {', '.join(blocks)}: the perturbative values come from an effective "
-            "Hamiltonian of a near-degenerate cluster (Schrieffer–Wolff), not from the plain Rayleigh–Schrödinger "
-            "formula; a textbook non-degenerate formula for these would be less accurate."
-        )
+    # treatment used (said plainly when it is not the plain series)
+    for t, tr, why in zip(comp.targets, comp.treatments, comp.reasons or ("",) * len(comp.targets)):
+        if tr == NEAR_DEGENERATE or tr == "mixed" and NEAR_DEGENERATE in why:
+            out.append(
+                f"{t}: {NEAR_DEGENERATE} treatment used, as asked — the perturbative values come from the effective "
+                "Hamiltonian of a near-degenerate cluster, not from the plain Rayleigh–Schrödinger formula."
+            )
+        elif tr in ("degenerate", "mixed"):
+            out.append(f"{t}: degenerate perturbation theory — {why}.")
+    for g in suggestions:
+        out.append("Suggestion: " + g.text)
     for b in boundaries:
-        if b.status == "error" or any(n.startswith("auto treatment failed") for n in b.notes):
+        if b.status == "error":
             out.append(f"{b.target}, {order_name(b.order)}: " + b.notes[-1])
         if b.status == "ill_defined":
             out.append(f"{b.target}, {order_name(b.order)}: validity boundary ill defined — " + (b.notes[-1] if b.notes else ""))
@@ -682,21 +764,26 @@ def _fmt_lam(x: float) -> str:
     return f"{x:.4g}"
 
 
-def _verdict_sentence(name, spec, lam, e, thr, relative, ok, b: ValidityBoundary, treatment_here: str) -> str:
+def _verdict_sentence(name, spec, lam, e, thr, relative, status, b: ValidityBoundary, treatment_here: str) -> str:
     tol = _fmt_err(thr, relative)
     how = "" if treatment_here == "nondegenerate" else f" ({treatment_here} treatment)"
-    what = f"{name}, {order_name(spec)}{how}: error {_fmt_err(e, relative)}"
-    if ok:
+    what = f"{name}, {order_name(spec)}{how}"
+    if status == "exact within its sector":
+        return (f"{what}: {EXACT_IN_SECTOR} — the treatment is exact diagonalisation of a whole invariant sector, "
+                "not a perturbative approximation; no verdict on an order.")
+    what += f": error {_fmt_err(e, relative)}"
+    if status == "valid":
         s = f"{what} ≤ {tol} at λ = {lam:g} — valid."
-    elif np.isfinite(e):
-        s = f"{what} > {tol} at λ = {lam:g} — NOT valid."
-    else:
+    elif status == "undefined":
         s = f"{what} at λ = {lam:g} — cannot be judged with a relative tolerance."
-    other = f" with the {b.treatment} treatment" if b.treatment != treatment_here else ""
+    elif np.isfinite(e) and e <= thr:
+        s = f"{what} ≤ {tol} at λ = {lam:g}, but only by accident (it exceeds the tolerance at smaller |λ|) — NOT valid."
+    else:
+        s = f"{what} > {tol} at λ = {lam:g} — NOT valid."
     if b.status == "found":
-        s += f" It meets the tolerance up to |λ| ≈ {abs(b.coupling):.4g}{other}."
+        s += f" It meets the tolerance up to |λ| ≈ {abs(b.coupling):.4g}."
     elif b.status == "not_reached":
-        s += f" It meets the tolerance over the whole range searched (|λ| ≤ {b.max_coupling:.4g}){other}."
+        s += f" It meets the tolerance over the whole range searched (|λ| ≤ {b.max_coupling:.4g})."
     elif b.status == "fails_at_zero":
         s += " It does not meet the tolerance at any nonzero coupling."
     elif b.status == "error":
@@ -715,11 +802,23 @@ def _verdict_paragraph(r: CheckReport) -> str:
             f"tolerance {tol} for every target checked ({', '.join(r.settings['targets'])})."
         )
     else:
-        bad = [v for v in r.verdicts if not v.valid]
-        which = "; ".join(f"{v.target} at {order_name(v.order)}" for v in bad)
-        head = f"at λ = {lam:g}, the {kind} tolerance {tol} is not met for {which}."
+        bad = [v for v in r.verdicts if not v.valid and v.status == "not valid"]
+        exact = [v for v in r.verdicts if v.status == "exact within its sector"]
+        undef = [v for v in r.verdicts if v.status == "undefined"]
+        parts = []
+        if bad:
+            parts.append(f"the {kind} tolerance {tol} is not met for " + "; ".join(f"{v.target} at {order_name(v.order)}" for v in bad))
+        if exact:
+            parts.append("no order is judged for " + "; ".join(sorted({v.target for v in exact}))
+                         + f" ({EXACT_IN_SECTOR}: its treatment is exact diagonalisation, not perturbation theory)")
+        if undef:
+            parts.append("the error cannot be judged for " + "; ".join(f"{v.target} at {order_name(v.order)}" for v in undef))
+        head = f"at λ = {lam:g}, " + "; ".join(parts) + "."
+    exact_targets = {v.target for v in r.verdicts if v.status == "exact within its sector"}
     low = []
     for t, k in r.lowest_valid_order.items():
+        if t in exact_targets:
+            continue
         if k is None:
             low.append(f"{t}: no truncation order up to {max(o for o in r.comparison.orders if not isinstance(o, Pade))} meets it")
         else:
@@ -800,8 +899,15 @@ def _csv_value(x: Any) -> Any:
 
 
 def comparison_csv(report: CheckReport) -> str:
-    """One row per target × order × coupling (exact, perturbative, errors, infidelity)."""
-    cols = ["target", "order", "treatment", "coupling", "exact", "perturbative", "abs_error", "rel_error", "infidelity"]
+    """One row per target × order × coupling.
+
+    ``presents`` says whether ``exact_presented``/``perturbative_presented``
+    are the shift ``E(λ) − E(0)`` (quantities with ``relative_to="shift"``) or
+    the value; ``unperturbed`` is the value at λ = 0 beside them; ``exact`` and
+    ``perturbative`` are always the values.
+    """
+    cols = ["target", "order", "treatment", "coupling", "presents", "unperturbed", "exact_presented",
+            "perturbative_presented", "exact", "perturbative", "abs_error", "rel_error", "infidelity", "ambiguous"]
     return _csv(report.comparison.to_rows(), cols)
 
 
@@ -812,11 +918,11 @@ def boundaries_csv(report: CheckReport) -> str:
         rows.append({
             "target": v.target, "order": order_name(v.order), "treatment": b.treatment,
             "coupling": v.coupling, "error_at_coupling": v.error, "tolerance": v.tolerance,
-            "tolerance_kind": "relative" if v.relative else "absolute", "valid": v.valid,
+            "tolerance_kind": "relative" if v.relative else "absolute", "valid": v.valid, "verdict": v.status,
             "boundary": b.coupling, "boundary_status": b.status, "exact_solves": b.exact_solves,
         })
     cols = ["target", "order", "treatment", "coupling", "error_at_coupling", "tolerance", "tolerance_kind", "valid",
-            "boundary", "boundary_status", "exact_solves"]
+            "verdict", "boundary", "boundary_status", "exact_solves"]
     return _csv(rows, cols)
 
 
@@ -845,8 +951,16 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
         out += [r.description, ""]
     out += ["## Verdict", "", f"**{'VALID' if r.valid else 'NOT VALID'}:** {_verdict_paragraph(r)}", ""]
     out += [f"- {v.text}" for v in r.verdicts]
+    comp0 = r.comparison
+    out += ["", "## Treatment", "", "The perturbation theory judged for each target, and why.", "",
+            _md_table(["target", "treatment", "reason"], [
+                [t, tr, why] for t, tr, why in zip(comp0.targets, comp0.treatments, comp0.reasons or ("",) * len(comp0.targets))])]
+    if r.suggestions:
+        out += ["", "## Suggestions", "",
+                "Beside the verdict, not in its place: the verdict and the exit status judge the treatment asked for.", ""]
+        out += [f"- {g.text}" for g in r.suggestions]
     out += ["", "## Cautions", ""]
-    out += [f"- {c}" for c in r.cautions] or ["- none"]
+    out += [f"- {c}" for c in r.cautions if not c.startswith("Suggestion: ")] or ["- none"]
     m = r.model
     src = f"built-in `{m['builder']}`" if m.get("builder") else (
         ", ".join(f"{k} = `{v}`" for k, v in (m.get("source") or {}).items()) or "matrices given in Python")
@@ -864,8 +978,8 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
     ])]
     out += ["", "## Validity boundaries", "",
             "λ* is the smallest |λ| at which the order stops meeting the tolerance (searched towards the sign of λ).", "",
-            _md_table(["target", "order", "treatment", f"error at λ = {s['coupling']:g}", "valid", "λ*", "status", "exact solves"], [
-                [v.target, order_name(v.order), b.treatment, _fmt_err(v.error, v.relative), "yes" if v.valid else "no",
+            _md_table(["target", "order", "treatment", f"error at λ = {s['coupling']:g}", "verdict", "λ*", "status", "exact solves"], [
+                [v.target, order_name(v.order), b.treatment, _fmt_err(v.error, v.relative), v.status,
                  _fmt_lam(abs(b.coupling)) if math.isfinite(b.coupling) else _fmt_lam(b.coupling), b.status, b.exact_solves]
                 for v, b in zip(r.verdicts, r.boundaries)])]
     comp = r.comparison
@@ -873,10 +987,14 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
     errs = comp.rel_error if s["rtol"] is not None else comp.abs_error
     rel = s["rtol"] is not None
     cols = sorted(range(len(comp.orders)), key=lambda i: _order_sort_key(comp.orders[i]))
+    pres = comp.presents or ("value",) * len(comp.targets)
+    shown = comp.exact_presented if comp.exact_presented is not None else comp.exact
     out += ["", f"## Error at λ = {s['coupling']:g}, order by order", "",
-            "Orders next to the ones judged are shown for context.", "",
-            _md_table(["target", "exact value"] + [comp.order_names[i] for i in cols], [
-                [t, f"{comp.exact[ti, ci]:.10g}"] + [_fmt_err(float(errs[ti, oi, ci]), rel) for oi in cols]
+            "Orders next to the ones judged are shown for context. A quantity that measures a shift shows its "
+            "shift E(λ) − E(0), with its unperturbed value beside it.", "",
+            _md_table(["target", "exact (shown)", "unperturbed"] + [comp.order_names[i] for i in cols], [
+                [t, f"{shown[ti, ci]:.10g} ({'shift' if pres[ti] == 'shift' else 'value'})", f"{comp.unperturbed[ti]:.10g}"]
+                + [_fmt_err(float(errs[ti, oi, ci]), rel) for oi in cols]
                 for ti, t in enumerate(comp.targets)])]
     convs = [c for c in r.convergence if c is not None]
     if convs:
@@ -1045,6 +1163,90 @@ def _fallback_error_figure(report: CheckReport) -> Figure:
 
 
 # ---------------------------------------------------------------------- writing
+#: Files a report folder of an earlier ptcheck version can hold (no marker file).
+_LEGACY_FILES = ("report.json", "report.md", "comparison.csv", "boundaries.csv")
+#: Files a report holds besides those: written with ``--formula``.
+_FORMULA_FILES = ("formula.tex", "formula.py")
+
+
+def report_fingerprint(report: CheckReport | Mapping[str, Any]) -> str:
+    """Identity of a report: its settings and results, not how it was asked for.
+
+    The SHA-256 of the report's JSON content without the software versions,
+    the figure and file lists and the spelling of the model file's path (the
+    same check run on ``./g.toml`` or ``/home/me/g.toml`` is the same report).
+    Two reports with the same fingerprint say the same thing.
+
+    Parameters
+    ----------
+    report : CheckReport or dict
+        A report, or the content of its ``report.json``.
+
+    Returns
+    -------
+    str
+        64 hexadecimal digits.
+    """
+    import hashlib
+
+    d = report.to_dict() if isinstance(report, CheckReport) else report
+    d = json.loads(json.dumps(d, allow_nan=False))  # a deep copy in JSON form, as report.json holds it
+    for k in ("ptcheck_version", "versions", "figures", "files"):
+        d.pop(k, None)
+    if isinstance(d.get("settings"), dict):
+        d["settings"].pop("ptcheck_version", None)
+    src = (d.get("model") or {}).get("source")
+    if isinstance(src, dict):
+        src.pop("model_file", None)
+    text = json.dumps(d, sort_keys=True, ensure_ascii=True, separators=(",", ":"))
+    return hashlib.sha256(text.encode("ascii")).hexdigest()
+
+
+def _legacy_fingerprint(folder: Path) -> str | None:
+    """Fingerprint of a report written by an earlier version (from its report.json), or None."""
+    try:
+        d = json.loads((folder / "report.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    return report_fingerprint(d) if isinstance(d, dict) else None
+
+
+def _is_report_file(name: str) -> bool:
+    return name in _LEGACY_FILES or name in _FORMULA_FILES or (name.endswith(".png") and not name.startswith("."))
+
+
+def read_fingerprint(out_dir: str | Path) -> str | None:
+    """Fingerprint of the report now in ``out_dir`` (None if there is none)."""
+    try:
+        target = check_target(out_dir)
+        st = folder_state(target, report_file=_is_report_file, legacy_fingerprint=_legacy_fingerprint)
+    except (OSError, ValueError):
+        return None
+    return st.fingerprint if st.kind == "report" else None
+
+
+def check_out_dir(out_dir: str | Path) -> Path:
+    """The absolute report folder, or a clear error before any work is done.
+
+    Refused: an empty name, a file, the current folder (or one containing
+    it), and a folder holding entries that are not part of a ptcheck report
+    (the report folder is replaced as a whole).
+
+    Returns
+    -------
+    Path
+    """
+    target = check_target(out_dir)
+    st = folder_state(target, report_file=_is_report_file, legacy_fingerprint=None)
+    if st.kind == "foreign":
+        names = ", ".join(repr(n) for n in st.foreign[:5]) + (" and more" if len(st.foreign) > 5 else "")
+        raise ReportFolderError(
+            f"the output folder {str(out_dir)!r} holds entries that are not part of a ptcheck report ({names}); "
+            "the report folder is replaced as a whole, so choose another folder or move them away"
+        )
+    return target
+
+
 def write_report(
     report: CheckReport,
     out_dir: str | Path,
@@ -1053,52 +1255,76 @@ def write_report(
     figures: FigureMaker | bool = True,
     force: bool = False,
 ) -> list[Path]:
-    """Write a report directory atomically.
+    """Write a report folder as a whole.
+
+    Every file is written into a fresh folder beside ``out_dir``, which then
+    replaces ``out_dir`` in one step: at any moment ``out_dir`` holds the
+    previous report or the new one, complete (an interrupt, a signal or a
+    failed write leaves the previous one).  Files of the previous report that
+    the new one does not have (figures, after ``figures=False``) are gone.  A
+    second writer into the same folder at the same moment gets
+    :class:`ReportBusyError`.  Folders and files follow the umask.
 
     Parameters
     ----------
     report : CheckReport
     out_dir : str or Path
-        Created if missing.
+        The report folder (created with its parents if missing).  Not the
+        current folder, and not a folder with other files in it.
     formats : sequence of {"json", "md", "csv"}
         Default: all three.
     figures : bool or callable
         ``True``: :func:`default_figures`; ``False``: no figures; a callable
         ``report -> [Figure, ...]`` to make your own.  Figures are written
-        with the Markdown summary (which embeds them).
+        with the Markdown summary (which embeds them).  A report whose
+        ``extras["formulas"]`` holds :class:`~ptcheck.formula_report.ReportFormulas`
+        also gets ``formula.tex``, ``formula.py`` and (unless ``figures`` is
+        False) the formula figures.
     force : bool
-        Replace a *different* existing report.  Without it,
-        :class:`ReportExistsError` is raised and nothing is written.
+        Replace a *different* existing report (another fingerprint: other
+        settings or results, see :func:`report_fingerprint`).  Without it,
+        :class:`ReportExistsError` is raised and nothing is written.  The same
+        report (e.g. with figures added, or the model file named another way)
+        is replaced without ``force``; an identical one is left untouched.
 
     Returns
     -------
     list of Path
-        Files of the report (written or already identical), the JSON last.
+        Files of the report, the JSON last.
+
+    Raises
+    ------
+    ReportExistsError, ReportBusyError, ReportFolderError
     """
     formats = tuple(dict.fromkeys(formats))
     if not formats:
         raise ValueError("formats is empty; give at least one of json, md, csv")
     for f in formats:
         val.check_choice(f, "format", FORMATS)
-    out = Path(out_dir)
-    if out.exists() and not out.is_dir():
-        raise NotADirectoryError(f"output directory {str(out)!r} is a file")
+    out = check_out_dir(out_dir)
     figs: list[Figure] = []
     if "md" in formats and figures:
         maker = default_figures if figures is True else figures
         if not callable(maker):
             raise TypeError(f"figures must be True, False or a callable report -> figures; got {figures!r}")
         figs = list(maker(report))
-    files: dict[Path, str | bytes] = {}
+    formulas = report.extras.get("formulas")  # ReportFormulas (ptcheck check --formula)
+    if formulas is not None and figures is not False:
+        figs += [Figure(name, caption, png) for name, caption, png in formulas.figures()]
+    files: dict[str, str | bytes] = {}
     for f in figs:
-        files[out / f.filename] = f.png
+        files[f.filename] = f.png
     if "csv" in formats:
-        files[out / "comparison.csv"] = comparison_csv(report)
-        files[out / "boundaries.csv"] = boundaries_csv(report)
-    names = [p.name for p in files] + (["report.md"] if "md" in formats else []) + (["report.json"] if "json" in formats else [])
+        files["comparison.csv"] = comparison_csv(report)
+        files["boundaries.csv"] = boundaries_csv(report)
+    if formulas is not None:
+        files.update(dict(formulas.files()))
+    names = list(files) + (["report.md"] if "md" in formats else []) + (["report.json"] if "json" in formats else [])
     if "md" in formats:
-        files[out / "report.md"] = to_markdown(report, figures=figs, files=names)
+        files["report.md"] = to_markdown(report, figures=figs, files=names)
     if "json" in formats:
-        files[out / "report.json"] = to_json(report, figures=figs, files=names)
-    out.mkdir(parents=True, exist_ok=True)
-    return write_all(files, force=force)
+        files["report.json"] = to_json(report, figures=figs, files=names)
+    return write_folder(
+        out, files, fingerprint=report_fingerprint(report), force=force, report_file=_is_report_file,
+        legacy_fingerprint=_legacy_fingerprint,
+    )

@@ -236,21 +236,24 @@ def rs_series(
     array([-0.5,  0. , -1. ,  0. ,  1. ])
     """
     n = model.level_index(level)
-    order = val.check_int(order, "order", minimum=0)
+    order = val.check_order(order, n=model.n)
     if coupling is not None:
         coupling = val.as_coupling(coupling)
     threshold = float(val.check_positive(threshold, "threshold"))
     check_nondegenerate(model, n, coupling, threshold)
 
-    e0 = model.e0
+    # resolvent on the level's own sector (other sectors may hold equal energies; V never reaches
+    # them), from offset-free energies so that H0 -> H0 + c changes nothing
+    e0 = model.e0_relative
+    others = model.level_sectors != model.level_sectors[n]
     with np.errstate(divide="ignore"):
-        r = 1.0 / (e0[n] - e0)
+        r = 1.0 / (e0[n] - np.where(others, np.inf, e0))
     r[n] = 0.0
     dtype = np.result_type(model.dtype, np.float64)
     psi = np.zeros((order + 1, model.n), dtype=dtype)
     psi[0, n] = 1.0
     energies = np.zeros(order + 1, dtype=dtype)
-    energies[0] = e0[n]
+    energies[0] = model.e0[n]
     v = model.v
     for k in range(1, order + 1):
         w = v @ psi[k - 1]

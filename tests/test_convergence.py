@@ -9,6 +9,7 @@ from hypothesis import HealthCheck, given, note, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 from scipy.special import gamma
+from threadpoolctl import threadpool_limits
 
 from conftest import oscillator_power, oscillator_x
 from ptcheck import DegenerateLevelError, Model
@@ -223,7 +224,7 @@ def test_degenerate_level_raises():
     m = Model(np.diag([0.0, 0.0, 1.0]), np.array([[0, 0, 0.1], [0, 0.2, 0.1], [0.1, 0.1, 0]]))
     with pytest.raises(DegenerateLevelError):
         convergence(m, 0, 10, treatment="nondegenerate")
-    assert convergence(m, 0, 10).treatment == "block"  # 'auto' analyses its block instead
+    assert convergence(m, 0, 10).treatment == "degenerate"  # the default analyses its degenerate group instead
 
 
 @pytest.mark.parametrize(
@@ -288,3 +289,99 @@ def test_divergence_map_bad_input():
         divergence_map(m, [0, 0])
     with pytest.raises(ValueError, match="exactly one of tol and rtol"):
         divergence_map(m, [0], orders=[2])
+
+
+# ---------------------------------------------------------------- exceptional points: solvers and sizes
+def random_dense_model(n: int, key: int) -> Model:
+    """Invented random model: spread H0 spectrum, dense real symmetric V."""
+    rng = np.random.default_rng(key)
+    a = rng.standard_normal((n, n))
+    return Model(np.diag(np.sort(rng.uniform(0.0, 10.0, n))), 0.3 * (a + a.T), name="random dense (invented)")
+
+
+def all_guesses(search, model: Model, level: int) -> list:
+    from ptcheck._exceptional import branch_point_guesses
+
+    c = model.series(level, 30).energy_coefficients
+    return search.pair_guesses(level) + search.crossing_guesses(level, 3.0, points=25) + [
+        (z, None) for z in branch_point_guesses(c)]
+
+
+def splitting_ratio(model: Model, lam: complex, energy: complex) -> float:
+    """Brute force with numpy: the two eigenvalues nearest E* split like √η at λ*(1 + η) near an EP2.
+
+    Returns split(η = 1e-6) / split(η = 1e-4), ≈ 0.1 for a square-root branch point (Kato 1966,
+    ch. II §1: Puiseux expansion of the eigenvalues at an exceptional point).
+    """
+    splits = []
+    for eta in (1e-4, 1e-6):
+        w = np.linalg.eigvals(model.e0 * np.eye(model.n) + lam * (1 + eta) * np.asarray(model.v))
+        pair = w[np.argsort(np.abs(w - energy))[:2]]
+        splits.append(abs(pair[0] - pair[1]))
+    return splits[1] / splits[0]
+
+
+@pytest.mark.parametrize("n, key", [(12, 1), (30, 2), (60, 3)])
+def test_inverse_iteration_search_equals_full_eigendecomposition(n, key):
+    # Referee: the same search with a full dense eigendecomposition (scipy.linalg.eig) at every
+    # step instead of shifted inverse iteration (common practice, no source).
+    from ptcheck._exceptional import ExceptionalPointSearch
+
+    m = random_dense_model(n, key)
+    for level in (0, 1):
+        inv = ExceptionalPointSearch(m.e0, m.v, solver="inverse")
+        full = ExceptionalPointSearch(m.e0, m.v, solver="full")
+        guesses = all_guesses(full, m, level)
+        with threadpool_limits(limits=1, user_api="blas"):  # many tiny dense problems: as convergence() runs them
+            a, _ = inv.search(level, guesses)
+            b, _ = full.search(level, guesses)
+        assert len(a) == len(b) > 0, ([(c.coupling, c.partner) for c in a], [(c.coupling, c.partner) for c in b])
+        for x, y in zip(a, b):
+            assert_allclose(x.coupling, y.coupling, rtol=1e-9)
+            assert_allclose(x.energy, y.energy, rtol=1e-6)
+            assert (x.connected, x.partner) == (y.connected, y.partner)
+            assert 0.05 < splitting_ratio(m, x.coupling, x.energy) < 0.2
+        assert inv.eig_calls == 0  # no full eigendecomposition on the inverse-iteration path
+
+
+def test_two_level_closed_form_inside_a_large_model_runs_by_default():
+    # Two-level block (levels 0, 1) inside N = 300 > the former limit of 120 states; the other
+    # levels are far and only coupled among themselves.  Closed form of the 2x2 eigenvalues
+    # (common practice): branch points at λ = ±iΔ/(2|v|).  ep_search='auto' now runs the search.
+    delta, v, n = 1.0, 0.25, 300
+    e0 = np.concatenate([[0.0, delta], 20.0 + np.arange(n - 2) * 0.5])
+    vv = np.zeros((n, n))
+    vv[0, 1] = vv[1, 0] = v
+    idx = np.arange(2, n - 1)
+    vv[idx, idx + 1] = vv[idx + 1, idx] = 0.1
+    m = Model(np.diag(e0), vv, name="embedded two-level (invented)")
+    r = convergence(m, 0, 30)
+    assert not any("skipped" in s for s in r.notes)
+    expected = delta / (2 * abs(v))
+    assert_allclose(np.sort_complex(r.exceptional_points), [-1j * expected, 1j * expected], atol=1e-9 * expected)
+    assert list(r.partners) == [1, 1]
+    assert_allclose(r.radius, expected, rtol=1e-9)
+
+
+@pytest.mark.slow
+def test_reduced_basis_search_equals_dense_search_on_a_small_chain():
+    # The sparse variant (reduced basis refined by full-space residuals) against the dense search
+    # on a 5-spin transverse-field Ising chain with invented site fields (N = 32): same nearest EP.
+    from ptcheck._exceptional import ExceptionalPointSearch, ReducedExceptionalPointSearch
+    from ptcheck.models import spin_chain
+
+    m = spin_chain(n_spins=5, kind="transverse_ising", h_z=[0.1, 0.13, 0.16, 0.19, 0.22])
+    seeds = m.series(0, 40).state_coefficients
+    dense = ExceptionalPointSearch(m.e0, m.v.toarray())
+    reduced = ReducedExceptionalPointSearch(m.e0, m.v)
+    guesses = all_guesses(dense, m, 0)
+    reduced.crossing_guesses(0, 3.0)
+    with threadpool_limits(limits=1, user_api="blas"):
+        a, _ = dense.search(0, guesses)
+        b, _ = reduced.search(0, guesses, seeds=seeds)
+    a = [c for c in a if c.connected]
+    b = [c for c in b if c.connected]
+    assert a and b
+    assert_allclose(b[0].coupling, a[0].coupling, rtol=1e-9)
+    assert b[0].partner == a[0].partner
+    assert 0.05 < splitting_ratio(m, b[0].coupling, b[0].energy) < 0.2

@@ -1,4 +1,4 @@
-"""Convergence of block-treated levels and of derived quantities."""
+"""Convergence of levels treated with an effective Hamiltonian, and of derived quantities."""
 
 import numpy as np
 import pytest
@@ -9,21 +9,27 @@ from ptcheck import Model, convergence, models
 
 def test_hubbard_block_radius_from_dimer_branch_points():
     # singlet E(λ) = (U - sqrt(U^2 + 16 t^2 λ^2))/2 (closed form of the two-site Hubbard model at half
-    # filling) has branch points at λ = ±iU/(4t): the block series converges for |λ| < U/(4t)
+    # filling) has branch points at λ = ±iU/(4t): the singlet branch of the degenerate group converges for |λ| < U/(4t)
     t, u = 1.0, 8.0
     m = models.hubbard_dimer(t=t, u=u)
     r = convergence(m, 0, 20)
-    assert r.treatment == "block" and r.kind == "convergent"
+    assert r.treatment == "degenerate" and r.kind == "convergent"
     assert r.radius == pytest.approx(u / (4 * t), rel=0.02)
     assert r.kato_bound <= r.radius * (1 + 1e-9)
-    assert "Kato" in r.summary and "block" in r.summary
+    assert "Kato" in r.summary and "degenerate group" in r.summary
+    # the near-degenerate block on request at λ = 1 ties in the ionic states: that block is the whole (4-state)
+    # half-filled S_z = 0 space, so its effective Hamiltonian is λV itself and terminates at order 1
+    rb = convergence(m, 0, 20, treatment="block", coupling=1.0)
+    assert rb.treatment == "near-degenerate block" and rb.kind == "terminating"
+    assert "exact within its sector" in rb.reason
 
 
 def test_exactly_degenerate_pair_terminates():
-    # H0 = 0 on a degenerate pair, V = σx: the whole space is the block, H_eff = λV exactly
+    # H0 = 0 on a degenerate pair, V = σx: the whole space is the group, H_eff = λV exactly
     m = Model(np.zeros((2, 2)), [[0, 1.0], [1.0, 0]])
     r = convergence(m, 0, 10)
-    assert r.treatment == "block" and r.kind == "terminating" and np.isinf(r.radius)
+    assert r.treatment == "degenerate" and r.kind == "terminating" and np.isinf(r.radius)
+    assert "exact within its sector" in r.reason
 
 
 def test_quantity_radius_is_the_smallest_level_radius():

@@ -368,12 +368,21 @@ def test_unknown_backend_lists_the_names():
 
 def test_dense_methods_refuse_a_huge_basis():
     n = DENSE_LIMIT + 1
-    m = Model(sp.diags(np.arange(n, dtype=float)).tocsr(), sp.csr_matrix((n, n)), name="huge diagonal")
+    chain = sp.diags([np.ones(n - 1), np.ones(n - 1)], [-1, 1], format="csr")  # one sector of N states
+    m = Model(sp.diags(np.arange(n, dtype=float)).tocsr(), chain, name="huge chain")
     with pytest.raises(BasisTooLargeError, match=f"N = {n} > DENSE_LIMIT"):
         ExactSolver(m, backend="dense")
     with pytest.raises(BasisTooLargeError, match="DENSE_LIMIT"):
         eigenpairs(m, 0.1, backend="sparse")  # all N eigenpairs need a dense solve
     assert ExactSolver(m).backend == "sparse"
+    # the dense backend works sector by sector: N uncoupled states are N sectors of one state
+    free = Model(sp.diags(np.arange(n, dtype=float)).tocsr(), sp.diags(np.full(n, 0.5)).tocsr(), name="huge diagonal")
+    sw = ExactSolver(free, backend="dense").track([0, 7], [0.2])
+    # E = E0 + λ V_nn for a diagonal V (common practice, no source); the shift carries no offset rounding
+    assert_allclose(sw.shifts[:, 0], [0.1, 0.1], rtol=1e-15)
+    assert_allclose(sw.energies[:, 0], [0.1, 7.1], atol=1e-12)
+    with pytest.raises(BasisTooLargeError, match="DENSE_LIMIT"):
+        eigenpairs(free, 0.1, backend="sparse")
 
 
 def test_bad_couplings_levels_and_k():
@@ -392,3 +401,33 @@ def test_bad_couplings_levels_and_k():
         eigenpairs(m, 0.1, k=4)
     with pytest.raises(TypeError, match="model must be a ptcheck.Model"):
         track(np.eye(3), [0], [0.1])
+
+
+# ----------------------------------------------------------------------------- shifts and sectors
+def test_shifts_are_energy_minus_unperturbed_and_free_of_the_offset():
+    m = crossing_model(0.01)
+    lam = np.linspace(0.0, 0.6, 7)
+    sw = track(m, [0, 1, 2], lam)
+    assert_allclose(sw.shifts, sw.energies - m.e0[:, None], atol=1e-14)
+    lower, upper, _ = pair_branches(0.01, lam)  # closed form of the pair (Cohen-Tannoudji et al.)
+    assert_allclose(sw.shift(1), lower - 1.0, atol=1e-12)
+    # the same model with a large constant in H0: the shifts are those of the stored matrix minus the
+    # constant (subtracted exactly here), to the accuracy of the offset-free problem
+    h_big = m.hamiltonian(0.0).toarray() + 2.0**40 * np.eye(3)
+    big = Model(h_big, m.v.toarray(), name="offset")
+    ref = Model(h_big - 2.0**40 * np.eye(3), m.v.toarray(), name="offset removed")
+    assert ExactSolver(big).shift_at(1, 0.35) == pytest.approx(ExactSolver(ref).shift_at(1, 0.35), abs=1e-14)
+    assert_allclose(track(big, [0, 1, 2], lam).shifts, track(ref, [0, 1, 2], lam).shifts, atol=1e-14)
+    assert json.loads(json.dumps(sw.to_dict()))["shifts"][1][0] == 0.0
+
+
+def test_levels_of_different_sectors_are_solved_apart():
+    # level 0 is alone in its sector (V_00 only): closed form E0 + λ V_00 and no solve at all
+    m = crossing_model(0.01)
+    solver = ExactSolver(m)
+    e, psi = solver.level_at(0, 0.4)
+    assert e == pytest.approx(0.04, abs=1e-15) and solver.solves == 0
+    assert_allclose(psi, [1.0, 0.0, 0.0])
+    sw = solver.track([0, 1], [0.2, 0.4])
+    assert sw.states.shape == (2, 2, 3)
+    assert np.all(sw.states[1][:, 0] == 0.0)  # level 1 never has weight in level 0's sector

@@ -9,6 +9,7 @@ ENGINE = [
     "ptcheck.series",
     "ptcheck.blocks",
     "ptcheck.exact",
+    "ptcheck.formula",
     "ptcheck.compare",
     "ptcheck.convergence",
     "ptcheck.degeneracy",

@@ -128,3 +128,39 @@ def test_bad_input():
         validity_map("two_level", "delta", [1.0], level=0, order=2, rtol=RTOL, executor="threads")
     with pytest.raises(ValueError, match="empty"):
         validity_map("two_level", "delta", [], level=0, order=2, rtol=RTOL)
+
+
+def slow_two_level(*, delta):
+    """Module-level builder (picklable) that takes a while, so that workers are busy when the call is stopped."""
+    import time
+
+    time.sleep(0.5)
+    return two_level(delta=delta, v=V)
+
+
+def test_interrupt_terminates_the_default_pool():
+    psutil = pytest.importorskip("psutil")
+    me = psutil.Process()
+    before = {p.pid for p in me.children(recursive=True)}
+    seen = []
+
+    def stop(done, total):  # Ctrl-C as soon as the first value is done
+        seen.extend(p for p in me.children(recursive=True) if p.pid not in before)
+        raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        validity_map(slow_two_level, "delta", [1.0 + 0.1 * k for k in range(8)], level=0, order=2, rtol=RTOL,
+                     treatment="nondegenerate", progress=stop)
+    assert len(seen) >= 1  # the pool's workers were running
+    _, alive = psutil.wait_procs(seen, timeout=10)
+    assert alive == []
+    assert {p.pid for p in me.children(recursive=True)} <= before
+
+
+def test_executor_choices():
+    distributed = pytest.importorskip("distributed")
+    with pytest.raises(TypeError, match="executor must be a concurrent.futures.Executor"):
+        validity_map("two_level", "delta", [1.0], level=0, order=2, rtol=RTOL, executor=object())
+    with distributed.Client(processes=False, n_workers=1, threads_per_worker=1, dashboard_address=None) as client:
+        vm = validity_map("two_level", "delta", DELTAS, executor=client, **KW)  # the Client itself is accepted
+    np.testing.assert_allclose(vm.boundary, [closed_form_boundary(d) for d in DELTAS], rtol=2e-3)

@@ -113,3 +113,39 @@ def test_norm_v_matches_dense(rng):
     v = a + a.T
     m = Model(np.diag(np.arange(30.0)), v)
     assert m.norm_v == pytest.approx(np.max(np.abs(np.linalg.eigvalsh(v))), rel=1e-10)
+
+
+# ----------------------------------------------------------------------------- sectors and tolerances
+def test_graph_components_are_sectors_and_v_is_exactly_zero_between_them():
+    # two blocks coupled by nothing: components of the graph of H0 and V (common practice, no source)
+    h0 = np.diag([0.0, 1.0, 2.0, 3.0])
+    v = np.array([[0.0, 0.1, 0.0, 0.0], [0.1, 0.0, 0.0, 0.0], [0.0, 0.0, 0.0, 0.2], [0.0, 0.0, 0.2, 0.0]])
+    m = Model(h0, v)
+    assert [s.levels for s in m.sectors] == [(0, 1), (2, 3)]
+    assert [s.name for s in m.sectors] == ["component 0", "component 1"]
+    assert m.sector_of(3) == 1 and list(m.level_sectors) == [0, 0, 1, 1]
+    # a declared operator whose commutator with a rotated V is only round-off: V's cross elements are set to 0
+    rng = np.random.default_rng(4)
+    q, _ = np.linalg.qr(rng.normal(size=(2, 2)))
+    rot = np.kron(np.eye(2), q)
+    p = rot @ np.kron(np.eye(2), np.diag([1.0, -1.0])) @ rot.T
+    a = rng.normal(size=(2, 2))
+    vv = rot @ (np.kron(a + a.T, np.eye(2)) + np.kron(np.eye(2), np.diag([0.3, -0.1]))) @ rot.T
+    h = rot @ np.kron(np.diag([0.0, 1.0]), np.eye(2)) @ rot.T
+    m = Model(h, vv, conserved={"P": p})
+    cross = m.level_sectors[:, None] != m.level_sectors[None, :]
+    assert np.all(np.asarray(m.v)[cross] == 0.0)
+    assert_eigs = np.linalg.eigvalsh(m.hamiltonian(0.6))
+    np.testing.assert_allclose(assert_eigs, np.linalg.eigvalsh(h + 0.6 * vv), atol=1e-12)
+
+
+def test_default_degeneracy_tolerance_follows_the_spacing_not_the_offset():
+    v = 0.01 * np.ones((3, 3))
+    for c in (0.0, 1e6, -1e8):  # 1e-6 is still > 16 ulps of 1e8 (the round-off floor)
+        m = Model(np.diag([0.0, 1e-6, 1.0]) + c * np.eye(3), v)
+        assert m.degenerate_groups == ()  # a 1e-6 splitting on a span of 1 is a real splitting
+        assert m.degeneracy_tol < 1e-6
+        assert m.energy_offset == pytest.approx(c + 1e-6, abs=1e-6 + 1e-15 * abs(c))
+    # a span of zero: V sets the scale
+    m = Model(np.zeros((2, 2)), [[0.0, 0.5], [0.5, 0.0]])
+    assert m.degenerate_groups == ((0, 1),) and 0 < m.degeneracy_tol <= 1e-9

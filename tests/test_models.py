@@ -49,6 +49,7 @@ NAMES = {
     "anharmonic_oscillator": "quartic oscillator (λ x⁴)",
     "charge_qubit": "charge qubit",
     "planar_rotor": "planar rotor",
+    "linear_rotor": "linear rotor in a field",
     "spin_chain": "transverse-field Ising chain",
     "hubbard_dimer": "Hubbard dimer",
 }
@@ -67,8 +68,9 @@ def test_builder_contract(key):
     h = m.hamiltonian(0.7)
     hd = h.toarray() if sp.issparse(h) else h
     assert np.max(np.abs(hd - hd.conj().T)) <= 1e-12 * np.max(np.abs(hd))
-    # every level is labelled, except those of a degenerate group that V mixes (Model's rule)
-    assert all(lab is not None or i in m.ambiguous_levels for i, lab in enumerate(m.labels))
+    # every level is labelled, except those of a degenerate group that V mixes (Model's rule); a pair of
+    # states combined by a declared involution is named after both states
+    assert all(lab is not None or i in m.ambiguous_levels or "+" in m.label(i) or "−" in m.label(i) for i, lab in enumerate(m.labels))
     if m.dims is not None:
         assert int(np.prod(m.dims)) == m.n
         assert all(len(lab) == len(m.dims) for lab in m.labels if lab is not None)
@@ -311,10 +313,14 @@ def test_transverse_ising_ground_energy_free_fermions(h):
 
 def test_transverse_ising_standard_split_degenerate_doublet():
     # common practice, no source: H0 = −J Σ σz σz has the ground doublet all-↑ / all-↓ (energy −N J)
+    # with h_z = 0 the spin-flip parity Π σx is conserved: the doublet members (|↑…↑⟩ ± |↓…↓⟩)/√2 lie in
+    # different sectors, so they are no degeneracy for perturbation theory
     m = spin_chain(n_spins=6, j=0.5)
-    assert m.degenerate_groups[0] == (0, 1)
+    assert m.symmetry_degeneracies[0] == (0, 1)
+    assert m.sector_of(0) != m.sector_of(1)
+    assert all(0 not in g and 1 not in g for g in m.degenerate_groups)
     assert_allclose(m.e0[:2], [-3.0, -3.0])
-    assert {m.labels[0], m.labels[1]} == {(0,) * 6, (1,) * 6}
+    assert (m.label(0), m.label(1)) == ("|0,0,0,0,0,0⟩+|1,1,1,1,1,1⟩", "|0,0,0,0,0,0⟩−|1,1,1,1,1,1⟩")
     # a longitudinal field makes all-↑ the unique H0 ground state (energy −N J − N h_z)
     f = spin_chain(n_spins=6, j=0.5, h_z=0.1)
     assert f.labels[0] == (0,) * 6 and f.e0[1] - f.e0[0] > 0.1

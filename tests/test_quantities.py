@@ -116,10 +116,12 @@ def test_validity_boundary_of_chi_with_absolute_and_relative_tolerance():
 def test_block_treated_levels_keep_the_taylor_coefficients_of_the_closed_form():
     # at a large coupling of interest "auto" puts |1,1⟩ and |0,2⟩ (mixing ratio > 0.1) in a block; the Taylor
     # series of χ is unique, so the coefficients are still those of the Jaynes–Cummings closed form
-    s = quantity_series(jc(), dispersive_shift(), 6, coupling=2.0)
-    assert "block" in s.treatments and "nondegenerate" in s.treatments
+    s = quantity_series(jc(), dispersive_shift(), 6, coupling=2.0, treatment="auto")
+    assert "near-degenerate block" in s.treatments and "nondegenerate" in s.treatments
     assert_allclose(s.coefficients, jc_chi_taylor(6), atol=1e-15)
-    assert any("block-treated" in n for n in s.notes)
+    assert any("near-degenerate block" in n for n in s.notes)
+    # the default answers the question asked: the plain series of every level, whatever the coupling of interest
+    assert quantity_series(jc(), dispersive_shift(), 6, coupling=2.0).treatments == ("nondegenerate",) * 4
     # the block value (eigenvalue of the truncated H_eff) is a resummation: close to the closed form
     assert abs(s.energy(2.0, order=2) - jc_chi_exact(2.0)) < abs(G**2 * 4 / DELTA - jc_chi_exact(2.0))
 
@@ -228,7 +230,7 @@ def test_hubbard_exchange_is_4t2_over_u_and_matches_the_dimer_closed_form():
     m = hubbard_dimer(t=t, u=u)
     j = exchange(1, 0)  # S_z = 0 sector: the singlet is the lower branch of the degenerate pair (rank 0)
     s = quantity_series(m, j, 8)
-    assert s.treatments == ("block", "block")
+    assert s.treatments == ("degenerate", "degenerate")
     assert s.first_nonzero_order == 2
     want = np.zeros(9)
     for k in range(1, 5):
@@ -259,7 +261,7 @@ def test_resonant_jc_vacuum_rabi_splitting_from_block_levels():
     # Jaynes & Cummings (1963) at Δ = 0: the n = 0 doublet splits as ω ± gλ, exactly linear in λ
     m = jaynes_cummings(omega_q=5.0, omega_r=5.0, g=G, n_photons=4)
     s = quantity_series(m, transition_frequency(2, 1, name="vacuum Rabi"), 6)
-    assert s.treatments == ("block", "block")
+    assert s.treatments == ("degenerate", "degenerate")
     assert_allclose(s.coefficients, [0, 2 * G, 0, 0, 0, 0, 0], atol=1e-13)
     assert s.first_nonzero_order == 1 and s.leading_term == "vacuum Rabi ≈ 0.2 λ (order 1)"
     # the labels of the resonant doublet are ambiguous: reported naming the quantity, not guessed

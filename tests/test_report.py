@@ -136,20 +136,180 @@ def test_overwrite_rules(report, tmp_path):
     assert json.loads((out / "report.json").read_text())["settings"]["coupling"] == 0.25
 
 
-def test_interrupted_write_leaves_no_partial_file(report, tmp_path, monkeypatch):
+def snapshot(folder):
+    """Every entry of a folder and its bytes."""
+    return {p.name: p.read_bytes() for p in sorted(folder.iterdir())}
+
+
+def strays(parent):
+    """Temporary folders, lock files or set-aside reports left beside the report."""
+    return sorted(p.name for p in parent.iterdir() if ".ptcheck-" in p.name)
+
+
+def signal_at_file(monkeypatch, k):
+    """Send SIGINT to this process while the k-th report file is being written (counting from 1)."""
+    import signal
+
+    real = os.fsync
+    calls = {"n": 0}
+
+    def fsync(fd):
+        calls["n"] += 1
+        if calls["n"] == k:
+            os.kill(os.getpid(), signal.SIGINT)
+        return real(fd)
+
+    monkeypatch.setattr("ptcheck._atomic.os.fsync", fsync)
+    return calls
+
+
+@pytest.mark.parametrize("k", [1, 3])
+def test_interrupt_while_writing_leaves_the_previous_report(report, tmp_path, monkeypatch, k):
     out = tmp_path / "r"
-    real_replace = os.replace
-
-    def interrupted(src, dst):
-        if str(dst).endswith("report.json"):
-            raise KeyboardInterrupt  # interrupted just before the final rename
-        real_replace(src, dst)
-
-    monkeypatch.setattr("ptcheck._atomic.os.replace", interrupted)
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    write_report(other, out, formats=["json", "csv", "md"], figures=False)
+    before = snapshot(out)
+    signal_at_file(monkeypatch, k)
     with pytest.raises(KeyboardInterrupt):
-        write_report(report, out, formats=["json", "csv"])
-    assert not (out / "report.json").exists()
-    assert not [p for p in out.iterdir() if p.name.startswith(".")]  # temp files removed
+        write_report(report, out, formats=["json", "csv", "md"], figures=False, force=True)
+    assert snapshot(out) == before  # the previous report, complete and untouched
+    assert strays(tmp_path) == []
+
+
+def test_interrupt_during_the_swap_is_delivered_after_it(report, tmp_path, monkeypatch):
+    out = tmp_path / "r"
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    write_report(other, out, formats=["json", "csv"], figures=False)
+    import signal
+
+    from ptcheck import _atomic
+
+    real_swap = _atomic._swap_in
+
+    def swap(new, target):  # the signal arrives in the middle of the swap
+        os.kill(os.getpid(), signal.SIGINT)
+        return real_swap(new, target)
+
+    monkeypatch.setattr(_atomic, "_swap_in", swap)
+    with pytest.raises(KeyboardInterrupt):
+        write_report(report, out, formats=["json", "csv"], figures=False, force=True)
+    d = json.loads((out / "report.json").read_text())
+    assert d["settings"]["coupling"] == 0.45  # the new report, complete
+    assert sorted(p.name for p in out.iterdir()) == [".ptcheck-report", "boundaries.csv", "comparison.csv", "report.json"]
+    assert rp.read_fingerprint(out) == rp.report_fingerprint(report)
+    assert strays(tmp_path) == []
+
+
+def test_a_failing_file_leaves_the_previous_report(report, tmp_path, monkeypatch):
+    out = tmp_path / "r"
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    write_report(other, out, formats=["json", "csv"], figures=False)
+    before = snapshot(out)
+    real = os.fsync
+    calls = {"n": 0}
+
+    def disk_full(fd):
+        calls["n"] += 1
+        if calls["n"] == 2:
+            raise OSError(28, "No space left on device")
+        return real(fd)
+
+    monkeypatch.setattr("ptcheck._atomic.os.fsync", disk_full)
+    with pytest.raises(OSError, match="No space left"):
+        write_report(report, out, formats=["json", "csv"], figures=False, force=True)
+    assert snapshot(out) == before and strays(tmp_path) == []
+
+
+def test_force_replaces_the_whole_folder(report, tmp_path):
+    out = tmp_path / "r"
+    write_report(report, out, figures=lambda r: [Figure("old.png", "old figure", b"png")])
+    assert (out / "old.png").exists()
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    write_report(other, out, figures=False, force=True)
+    assert not (out / "old.png").exists()  # nothing of the previous report stays behind
+    assert json.loads((out / "report.json").read_text())["settings"]["coupling"] == 0.25
+
+
+def test_same_report_with_figures_added_needs_no_force(report, tmp_path):
+    out = tmp_path / "r"
+    write_report(report, out, figures=False)
+    write_report(report, out, figures=lambda r: [Figure("x.png", "mine", b"png!")])  # same settings and results
+    assert (out / "x.png").read_bytes() == b"png!"
+
+
+def test_fingerprint_is_content_not_spelling(report):
+    d = report.to_dict()
+    d["model"]["source"] = {"model_file": "./g.toml", "kind": "builtin"}
+    e = json.loads(json.dumps(d))
+    e["model"]["source"]["model_file"] = "/somewhere/else/g.toml"
+    e["versions"]["numpy"] = "0.0"
+    assert rp.report_fingerprint(d) == rp.report_fingerprint(e)
+    e["settings"]["coupling"] = 0.5
+    assert rp.report_fingerprint(d) != rp.report_fingerprint(e)
+
+
+def test_files_follow_the_umask(report, tmp_path):
+    old = os.umask(0o027)
+    try:
+        write_report(report, tmp_path / "r", formats=["json"])
+    finally:
+        os.umask(old)
+    assert (tmp_path / "r").stat().st_mode & 0o777 == 0o750
+    assert (tmp_path / "r" / "report.json").stat().st_mode & 0o777 == 0o640
+
+
+@pytest.mark.parametrize("bad", ["", "   "])
+def test_empty_output_folder_is_refused(report, bad):
+    with pytest.raises(ValueError, match="output folder name is empty"):
+        write_report(report, bad)
+
+
+def test_unusable_output_folders_are_refused(report, tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    with pytest.raises(ValueError, match="is the current folder or contains it"):
+        write_report(report, ".")
+    with pytest.raises(ValueError, match="is the current folder or contains it"):
+        write_report(report, tmp_path.parent)
+    (tmp_path / "f").write_text("x")
+    with pytest.raises(ValueError, match="is a file"):
+        write_report(report, tmp_path / "f")
+    mine = tmp_path / "mine"
+    mine.mkdir()
+    (mine / "notes.txt").write_text("keep me")
+    with pytest.raises(ValueError, match=r"not part of a ptcheck report \('notes.txt'\)"):
+        write_report(report, mine, force=True)
+    assert (mine / "notes.txt").read_text() == "keep me"
+
+
+def test_report_of_an_earlier_version_is_recognised(report, tmp_path):
+    out = tmp_path / "r"
+    write_report(report, out, formats=["json", "csv"])
+    (out / ".ptcheck-report").unlink()  # as written by an earlier version: no marker
+    write_report(report, out, formats=["json", "csv"])  # same content: recognised from report.json, no force
+    other = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="nondegenerate")
+    (out / ".ptcheck-report").unlink()
+    with pytest.raises(ReportExistsError, match="force"):
+        write_report(other, out, formats=["json"])
+
+
+def test_a_second_writer_fails_cleanly_while_the_first_holds_the_folder(report, tmp_path, monkeypatch):
+    from ptcheck import _atomic
+
+    out = tmp_path / "r"
+    real = os.fsync
+    seen = {}
+
+    def nested(fd):  # while the first writer writes, a second one tries the same folder
+        if not seen:
+            with pytest.raises(rp.ReportBusyError, match="another ptcheck process is writing"):
+                seen["busy"] = True
+                _atomic.write_folder(out, {"a.txt": "x"}, fingerprint="other")
+        return real(fd)
+
+    monkeypatch.setattr("ptcheck._atomic.os.fsync", nested)
+    write_report(report, out, formats=["json"])
+    assert seen == {"busy": True}
+    assert json.loads((out / "report.json").read_text())["settings"]["coupling"] == 0.45
 
 
 def test_serializer_failure_writes_nothing(report, tmp_path, monkeypatch):
@@ -184,10 +344,12 @@ def test_failed_boundary_search_is_reported_not_raised(monkeypatch):
 
     monkeypatch.setattr(rp, "validity_boundary", auto_fails)
     r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5)
-    (b,) = r.boundaries
+    (b,) = r.boundaries  # the default treatment is not 'auto': unaffected
     assert b.status == "found" and b.treatment == "nondegenerate"
     assert b.coupling == pytest.approx(closed_form_boundary(2, 1e-5), rel=2e-3)  # closed form, as above
-    assert any("auto treatment failed" in c for c in r.cautions)
+    # asked for 'auto', a failing search is reported as such, never swapped for another treatment
+    r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.25, tol=1e-5, treatment="auto")
+    assert r.boundaries[0].status == "error" and any("search failed" in c for c in r.cautions)
 
     def always_fails(*a, **k):
         raise ValueError("no luck")
@@ -198,3 +360,35 @@ def test_failed_boundary_search_is_reported_not_raised(monkeypatch):
     assert r.verdicts[0].valid  # the error at λ is still judged from the comparison
     assert any("search failed" in c for c in r.cautions)
     json.loads(to_json(r), parse_constant=lambda c: pytest.fail(c))
+
+
+def test_suggestions_sit_beside_a_verdict_on_what_was_asked():
+    # two-level system at λ = 0.9 (mixing ratio λv/Δ = 0.18 > 0.1): the order-2 series fails (closed form above),
+    # the block of both levels would be exact; the verdict and exit status still judge the order-2 series
+    r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.9, tol=1e-5, convergence_order=10, n_points=9)
+    assert r.verdicts[0].treatment == "nondegenerate" and not r.valid and r.exit_status == 1
+    (g,) = r.suggestions
+    assert g.partner == 1 and g.exact_in_sector and g.mixing_ratio == pytest.approx(0.9 * V / DELTA)
+    md = rp.to_markdown(r)
+    assert "## Suggestions" in md and "## Treatment" in md
+    d = json.loads(to_json(r))
+    assert d["suggestions"][0]["partner"] == 1 and d["verdict"]["per_target"][0]["status"] == "not valid"
+
+
+def test_shift_quantity_is_presented_as_a_shift_in_every_report_file():
+    from ptcheck import Model
+    from ptcheck.quantities import stark_shift
+
+    m = Model(np.diag([0.0, 1.0, 2.3]), [[0, 0.1, 0.05], [0.1, 0, 0.2], [0.05, 0.2, 0]])
+    q = stark_shift(1, 0, name="Lamb")
+    r = run_check(m, [q], [2], coupling=0.5, rtol=0.05, convergence_order=10, n_points=9)
+    # brute force: eigvalsh difference minus the unperturbed transition (1.0)
+    ev = np.linalg.eigvalsh(m.hamiltonian(0.5))
+    shift = ev[1] - ev[0] - 1.0
+    rows = list(csv.DictReader(io.StringIO(rp.comparison_csv(r))))
+    at = [row for row in rows if float(row["coupling"]) == 0.5 and row["order"] == "order 2"]
+    assert at[0]["presents"] == "shift" and float(at[0]["exact_presented"]) == pytest.approx(shift, abs=1e-12)
+    assert float(at[0]["unperturbed"]) == pytest.approx(1.0)
+    assert f"{shift:.10g} (shift)" in rp.to_markdown(r)
+    d = json.loads(to_json(r))
+    assert d["comparison"]["presents"] == ["shift"]

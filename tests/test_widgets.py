@@ -106,7 +106,7 @@ def test_errors_panel_tolerance_and_boundaries(jc):
 def test_treatment_and_backend_reach_the_engine(jc):
     p = LevelsPanel(jc, levels=[(1, 0)], treatment="block", **OPTS)
     try:
-        assert p.result.treatments == ("block",)
+        assert p.result.treatments == ("near-degenerate block",)
         p.controls.treatment.value = "nondegenerate"
         assert p.result.treatments == ("nondegenerate",)
         p.controls.backend.value = "dense"
@@ -134,7 +134,7 @@ def test_degenerate_level_with_nondegenerate_treatment_is_a_message():
         assert "DegenerateLevelError" in p.message.value
         assert "Traceback" not in p.message.value
         p.controls.treatment.value = "block"  # the fix clears the message
-        assert p.message.value == "" and p.result.treatments == ("block",)
+        assert p.message.value == "" and p.result.treatments == ("degenerate",)
     finally:
         p.close()
     with pytest.raises(DegenerateLevelError):
@@ -178,7 +178,8 @@ def test_export_writes_figure_and_numbers(levels_panel, tmp_path, fmt):
     assert [p.suffix for p in paths] == [f".{fmt}", ".csv", ".json"]
     assert all(p.exists() and p.stat().st_size > 0 for p in paths)
     header = paths[1].read_text(encoding="utf-8").splitlines()[0]
-    assert header == "target,order,treatment,coupling,exact,perturbative,abs_error,rel_error,infidelity"
+    assert header == ("target,order,treatment,coupling,presents,unperturbed,exact_presented,perturbative_presented,"
+                      "exact,perturbative,abs_error,rel_error,infidelity,ambiguous")
     data = json.loads(paths[2].read_text(encoding="utf-8"))
     assert data["settings"]["orders"] == ["order 1", "order 2"]
     assert data["comparison"]["exact"] == levels_panel.result.exact.tolist()

@@ -19,6 +19,7 @@ from .charge import charge_qubit, planar_rotor
 from .hubbard import hubbard_dimer
 from .kerr import coupled_kerr_qubits, kerr_qubit_resonator
 from .oscillator import anharmonic_oscillator
+from .rotor import linear_rotor
 from .spin_chain import spin_chain
 from .truncation import TruncationCheck, truncation_check
 from .two_level import two_level
@@ -32,6 +33,7 @@ __all__ = [
     "hubbard_dimer",
     "jaynes_cummings",
     "kerr_qubit_resonator",
+    "linear_rotor",
     "planar_rotor",
     "rabi",
     "spin_chain",
@@ -50,6 +52,7 @@ BUILDERS: Mapping[str, Callable[..., Model]] = MappingProxyType(
         "anharmonic_oscillator": anharmonic_oscillator,
         "charge_qubit": charge_qubit,
         "planar_rotor": planar_rotor,
+        "linear_rotor": linear_rotor,
         "spin_chain": spin_chain,
         "hubbard_dimer": hubbard_dimer,
     }

@@ -17,6 +17,11 @@ from .. import _validation as val
 #: basis is larger than this (``sparse=None``); dense ndarrays otherwise.
 SPARSE_AUTO_SIZE = 512
 
+#: Largest basis a built-in builder makes (2^20 ≈ 10^6 states, as the largest
+#: spin chain): each size parameter and the product of all of them are capped,
+#: so that a mistyped size fails at once instead of exhausting the memory.
+MAX_STATES = 2**20
+
 
 def real(x: Any, name: str) -> float:
     """A finite real number (ints accepted; bool, complex and strings refused)."""
@@ -39,9 +44,30 @@ def nonnegative(x: Any, name: str) -> float:
     return f
 
 
-def size(x: Any, name: str, minimum: int, maximum: int | None = None) -> int:
-    """A truncation size or count (int within bounds)."""
-    return val.check_int(x, name, minimum=minimum, maximum=maximum)
+def size(x: Any, name: str, minimum: int, maximum: int = MAX_STATES) -> int:
+    """A truncation size or count: an int from ``minimum`` to ``maximum``.
+
+    The default cap is :data:`MAX_STATES`; the message names the parameter and
+    the cap.
+    """
+    k = val.check_int(x, name, minimum=minimum)
+    if k > maximum:
+        raise ValueError(f"{name} must be an int <= {maximum}; got {k} (the size cap of this built-in model)")
+    return k
+
+
+def basis_size(**sizes: int) -> int:
+    """Product of the subsystem sizes, refused above :data:`MAX_STATES` before anything is built."""
+    total = 1
+    for k in sizes.values():
+        total *= int(k)
+    if total > MAX_STATES:
+        what = " x ".join(f"{name} {k}" for name, k in sizes.items())
+        raise ValueError(
+            f"the basis would have {total} states ({what}), above the cap of {MAX_STATES} states of the "
+            "built-in models; reduce one of them"
+        )
+    return total
 
 
 def flag(x: Any, name: str) -> bool:

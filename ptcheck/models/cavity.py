@@ -20,7 +20,7 @@ def _qubit_resonator(omega_q: float, omega_r: float, g: float, n_photons: int, s
     wq = c.positive(omega_q, "omega_q")
     wr = c.positive(omega_r, "omega_r")
     gg = c.real(g, "g")
-    nph = c.size(n_photons, "n_photons", minimum=2)
+    nph = c.size(n_photons, "n_photons", minimum=2, maximum=c.MAX_STATES // 2)
     sparse = c.sparse_choice(sparse)
     a = c.lowering(nph)
     eye_r = sp.identity(nph, format="csr")
@@ -60,7 +60,8 @@ def jaynes_cummings(
     g : float, default 0.1
         Qubit–resonator coupling g (energy units).
     n_photons : int, default 10
-        Number of resonator Fock states kept (n = 0 … n_photons − 1), >= 2.
+        Number of resonator Fock states kept (n = 0 … n_photons − 1), >= 2; at
+        most 2^19 (the basis of a built-in model is capped at 2^20 states).
         Truncation: the top state ``|1, n_photons − 1⟩`` loses its partner
         ``|0, n_photons⟩``, so the highest level is not a true JC level.  The
         low-lying levels are exact because V conserves q + n.

@@ -31,7 +31,11 @@ import scipy.sparse as sp
 from ..model import Model
 from . import _common as c
 
-__all__ = ["charge_qubit", "planar_rotor"]
+__all__ = ["charge_qubit", "planar_rotor", "MAX_CHARGE"]
+
+#: Largest n_max / m_max built (20 001 states; every pair ±n is degenerate in H0,
+#: and resolving 10⁴ pairs already takes seconds).
+MAX_CHARGE = 10_000
 
 
 def _cosine_model(b: float, v0: float, offset: float, n_max: int, sparse: bool | None, name: str) -> Model:
@@ -73,7 +77,8 @@ def charge_qubit(
     n_g : float, default 0.0
         Offset charge n_g (Cooper pairs, dimensionless).
     n_max : int, default 10
-        Charge states kept: n = −n_max … n_max (2 n_max + 1 states), >= 1.
+        Charge states kept: n = −n_max … n_max (2 n_max + 1 states), 1 …
+        :data:`MAX_CHARGE` (10 000).
         The truncation error of the low levels falls off faster than
         exponentially in n_max once 4 E_C n_max² ≫ E_J; check with
         ``truncation_check(charge_qubit, "n_max", [5, 10, 15], coupling=1.0)``
@@ -98,7 +103,7 @@ def charge_qubit(
     ec = c.positive(e_c, "e_c")
     ej = c.positive(e_j, "e_j")
     ng = c.real(n_g, "n_g")
-    nmax = c.size(n_max, "n_max", minimum=1)
+    nmax = c.size(n_max, "n_max", minimum=1, maximum=MAX_CHARGE)
     return _cosine_model(4 * ec, ej, ng, nmax, c.sparse_choice(sparse), "charge qubit")
 
 
@@ -119,7 +124,8 @@ def planar_rotor(*, b: float = 1.0, v0: float = 1.0, m_max: int = 10, sparse: bo
     v0 : float, default 1.0
         Potential amplitude V0 > 0 (energy units).
     m_max : int, default 10
-        Angular momenta kept: m = −m_max … m_max, >= 1.
+        Angular momenta kept: m = −m_max … m_max, 1 … :data:`MAX_CHARGE`
+        (10 000).
     sparse : bool or None, default None
         Return scipy.sparse matrices (None: only when the basis exceeds 512).
 
@@ -133,5 +139,5 @@ def planar_rotor(*, b: float = 1.0, v0: float = 1.0, m_max: int = 10, sparse: bo
     """
     bb = c.positive(b, "b")
     v = c.positive(v0, "v0")
-    mmax = c.size(m_max, "m_max", minimum=1)
+    mmax = c.size(m_max, "m_max", minimum=1, maximum=MAX_CHARGE)
     return _cosine_model(bb, v, 0.0, mmax, c.sparse_choice(sparse), "planar rotor")

@@ -15,7 +15,11 @@ import scipy.sparse as sp
 from ..model import Model
 from . import _common as c
 
-__all__ = ["kerr_qubit_resonator", "coupled_kerr_qubits", "kerr_ladder"]
+__all__ = ["kerr_qubit_resonator", "coupled_kerr_qubits", "kerr_ladder", "MAX_LEVELS_PER_QUBIT"]
+
+#: Largest n_levels of :func:`coupled_kerr_qubits` (65 536 states, with many
+#: exact degeneracies of H0 to resolve: seconds already).
+MAX_LEVELS_PER_QUBIT = 256
 
 
 def kerr_ladder(omega: float, alpha: float, n_levels: int) -> np.ndarray:
@@ -58,7 +62,8 @@ def kerr_qubit_resonator(
     n_qubit : int, default 4
         Qubit levels kept (j = 0 … n_qubit − 1), >= 2.
     n_photons : int, default 10
-        Resonator Fock states kept (n = 0 … n_photons − 1), >= 2.
+        Resonator Fock states kept (n = 0 … n_photons − 1), >= 2.  The basis
+        n_qubit x n_photons is capped at 2^20 states.
     rotating_wave : bool, default False
         Drop the counter-rotating terms ``b a`` and ``b† a†``.
     sparse : bool or None, default None
@@ -89,6 +94,7 @@ def kerr_qubit_resonator(
     gg = c.real(g, "g")
     nq = c.size(n_qubit, "n_qubit", minimum=2)
     nph = c.size(n_photons, "n_photons", minimum=2)
+    c.basis_size(n_qubit=nq, n_photons=nph)
     rwa = c.flag(rotating_wave, "rotating_wave")
     sparse = c.sparse_choice(sparse)
     b = c.lowering(nq)
@@ -134,7 +140,8 @@ def coupled_kerr_qubits(
     j : float, default 0.02
         Exchange coupling J (energy units).
     n_levels : int, default 4
-        Levels kept per qubit (k = 0 … n_levels − 1), >= 2.  ZZ at second
+        Levels kept per qubit (k = 0 … n_levels − 1), 2 …
+        :data:`MAX_LEVELS_PER_QUBIT` (256).  ZZ at second
         order needs n_levels >= 3; higher orders need more.
     sparse : bool or None, default None
         Return scipy.sparse matrices (None: only when the basis exceeds 512).
@@ -157,7 +164,7 @@ def coupled_kerr_qubits(
     w2 = c.positive(omega2, "omega2")
     a2 = c.real(alpha2, "alpha2")
     jj = c.real(j, "j")
-    n = c.size(n_levels, "n_levels", minimum=2)
+    n = c.size(n_levels, "n_levels", minimum=2, maximum=MAX_LEVELS_PER_QUBIT)
     sparse = c.sparse_choice(sparse)
     b = c.lowering(n)
     eye = sp.identity(n)

@@ -56,7 +56,8 @@ def anharmonic_oscillator(*, kind: str = "quartic", n_basis: int = 60, sparse: b
     ----------
     kind : {"quartic", "cubic", "quadratic", "linear"}, default "quartic"
     n_basis : int, default 60
-        Number of oscillator states kept (n = 0 … n_basis − 1), >= k + 1.
+        Number of oscillator states kept (n = 0 … n_basis − 1), >= k + 1
+        and at most 2^20 (the size cap of the built-in models).
     sparse : bool or None, default None
         Return scipy.sparse matrices (None: only when n_basis > 512).
 

@@ -54,12 +54,16 @@ def spin_chain(
 
     so that ``H = −J Σ σz σz − h Σ σx − Σ h_i σz`` with **λ = h/J** (the
     transverse field in units of J; the critical point of the uniform chain
-    is λ = 1).  With ``h_z = 0`` (the standard split) H0 has a degenerate
-    ground doublet (all ↑ / all ↓) and degenerate domain-wall manifolds: use
-    the block treatment.  A longitudinal field ``h_z > 0`` makes the H0 ground
-    state (all ↑) non-degenerate; site-dependent fields (a sequence, e.g. the
-    invented ``h_z = [0.1, 0.13, 0.17, …]``) also lift the degeneracies of
-    the excited manifolds.
+    is λ = 1).  With ``h_z = 0`` (the standard split) the model declares the
+    conserved spin-flip parity ``P = Π σx`` (sectors ``"parity +1"`` and
+    ``"parity -1"``): the H0 ground doublet (all ↑ / all ↓) becomes the pair
+    ``(|↑…↑⟩ ± |↓…↓⟩)/√2``, one level in each sector (split only at order
+    N), and each is non-degenerate in its sector; the domain-wall manifolds
+    stay degenerate inside each sector.  A longitudinal field ``h_z > 0``
+    breaks the parity and makes the H0 ground state (all ↑) non-degenerate;
+    site-dependent fields (a sequence, e.g. the invented
+    ``h_z = [0.1, 0.13, 0.17, …]``) also lift the degeneracies of the excited
+    manifolds.
 
     ``kind="xxz"`` (antiferromagnetic for J > 0)::
 
@@ -69,7 +73,11 @@ def spin_chain(
     λ multiplies the transverse (flip-flop) exchange: λ = 1 with
     ``anisotropy`` Δ = 1 is the isotropic Heisenberg chain J Σ σ·σ.
     H0 is the Ising chain, whose Néel ground state is doubly degenerate
-    unless fields break the symmetry.
+    unless fields break the symmetry.  The flip-flop exchange conserves
+    ``Σ σz``, so each magnetisation is a component of the coupling graph (a
+    sector); with ``h_z = 0`` the spin-flip parity ``Π σx`` is declared too:
+    it splits the zero-magnetisation sector (Néel pair) into ``"parity ±1"``
+    and has no value on the others (it maps magnetisation m to −m).
 
     Parameters
     ----------
@@ -96,13 +104,16 @@ def spin_chain(
     -------
     Model
         Named ``"transverse-field Ising chain"`` or ``"XXZ chain"``,
-        ``dims = (2,) * N``, labels ``(s_0, …, s_{N−1})``; sparse.
+        ``dims = (2,) * N``, labels ``(s_0, …, s_{N−1})`` (a parity pair is
+        named after both states, e.g. ``"|0,0,0,0⟩+|1,1,1,1⟩"``); sparse.
 
     Examples
     --------
     >>> m = spin_chain(n_spins=4)
-    >>> m.n, m.is_sparse, m.degenerate_groups[0]
-    (16, True, (0, 1))
+    >>> m.n, m.is_sparse, [s.name for s in m.sectors], m.symmetry_degeneracies[0]
+    (16, True, ['parity +1', 'parity -1'], (0, 1))
+    >>> m.label(0)
+    '|0,0,0,0⟩+|1,1,1,1⟩'
     """
     kind = val.check_choice(kind, "kind", SPIN_CHAIN_KINDS)
     boundary = val.check_choice(boundary, "boundary", ("periodic", "open"))
@@ -131,24 +142,28 @@ def spin_chain(
             diag -= fields[i] * z[i]
     h0 = sp.diags(diag, format="csr")
 
-    rows, cols, vals = [], [], []
+    conserved = {}
     if kind == "transverse_ising":
-        for i in range(n):
-            rows.append(states)
-            cols.append(states ^ (1 << shift[i]))
-            vals.append(np.full(dim, -jj))
+        # every state has n single flips: CSR built directly (sorted columns, no duplicates)
+        cols = states[:, None] ^ (np.int64(1) << np.arange(n, dtype=np.int64))[None, :]
+        cols.sort(axis=1)
+        v = sp.csr_matrix((np.full(dim * n, -jj), cols.ravel(), np.arange(0, dim * n + 1, n)), shape=(dim, dim))
         name = "transverse-field Ising chain"
     else:
+        rows, cols, vals = [], [], []
         for i, k in bonds:
             flip = bits[i] != bits[k]
             src = states[flip]
             rows.append(src)
             cols.append(src ^ ((1 << shift[i]) | (1 << shift[k])))
             vals.append(np.full(src.size, 2.0 * jj))
+        v = sp.csr_matrix(
+            (np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))), shape=(dim, dim)
+        )
+        v.sum_duplicates()
+        v.eliminate_zeros()
         name = "XXZ chain"
-    v = sp.csr_matrix(
-        (np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))), shape=(dim, dim)
-    )
-    v.sum_duplicates()
-    v.eliminate_zeros()
-    return Model(h0, v, dims=(2,) * n, name=name)
+    if not np.any(fields):
+        # spin-flip parity Π σx: |s⟩ -> |s̄⟩ (all bits flipped); a longitudinal field breaks it
+        conserved["parity"] = sp.csr_matrix((np.ones(dim), (states, states ^ (dim - 1))), shape=(dim, dim))
+    return Model(h0, v, dims=(2,) * n, name=name, conserved=conserved or None)

@@ -13,6 +13,8 @@ is built from the Okabe–Ito colour-universal-design set (see :mod:`._style`).
   discs, Kato bound, real-axis regimes.
 - :func:`plot_pairs` (+ :func:`mixing_map`): mixing ratios among levels at one
   coupling, flagged pairs, blocks chosen.
+- :func:`plot_formula`: an exported formula above its error curve, valid
+  ranges shaded.
 - :func:`save`: slide export (PNG/SVG/PDF, 16:9, legible fonts).
 """
 
@@ -20,6 +22,7 @@ from ._style import OKABE_ITO, ORDER_COLORS, SCREEN_SIZE, SLIDE_SIZE, style
 from .divergence import DivergenceArtists, plot_divergence
 from .errors import ErrorArtists, plot_errors
 from .export import FORMATS, SavedFigure, save
+from .formula import FormulaArtists, plot_formula
 from .levels import LevelArtists, plot_levels
 from .pairs import MixingMap, PairArtists, mixing_map, plot_pairs
 
@@ -31,6 +34,7 @@ __all__ = [
     "FORMATS",
     "DivergenceArtists",
     "ErrorArtists",
+    "FormulaArtists",
     "LevelArtists",
     "MixingMap",
     "PairArtists",
@@ -38,6 +42,7 @@ __all__ = [
     "mixing_map",
     "plot_divergence",
     "plot_errors",
+    "plot_formula",
     "plot_levels",
     "plot_pairs",
     "save",

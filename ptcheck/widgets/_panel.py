@@ -20,11 +20,13 @@ from typing import Any
 
 import numpy as np
 
-from ..approximants import order_name, parse_order
+from ..approximants import Pade, order_name, parse_order
 from ..degeneracy import DEFAULT_MIXING_THRESHOLD
+from ..formula import formula
+from ..formula_report import collect
 from ..model import Model
 from ..models import BUILDERS
-from ..plots import save
+from ..plots import SLIDE_SIZE, plot_formula, save
 from ..plots._common import caption_text, nearest_index
 from ..quantities import Quantity
 from ._session import Session, Settings
@@ -107,6 +109,9 @@ class Controls:
         self.export_format = w.Dropdown(options=EXPORT_FORMATS, value="png", description="figure as", style=style,
                                         layout=w.Layout(width="150px"))
         self.export_button = w.Button(description="export figure + numbers", icon="download", layout=w.Layout(width="220px"))
+        self.formula_button = w.Button(description="export formula", icon="download", layout=w.Layout(width="160px"),
+                                       tooltip="formula of the level shown ('error of') at the highest integer order "
+                                               "selected, with where it meets the tolerance: .tex, .py and figure")
         w.link((self.coupling, "value"), (self.coupling_text, "value"))
 
 
@@ -245,6 +250,7 @@ class Panel:
         c.model_params.observe(self._on_model, names="value")
         c.shift.observe(self._on_shift, names="value")
         c.export_button.on_click(lambda _b: self._export_clicked())
+        c.formula_button.on_click(lambda _b: self._export_clicked(formula_files=True))
         if self.model is not None:
             self.refresh()
 
@@ -313,6 +319,65 @@ class Panel:
         write_numbers(rows, data, folder / f"{stem}.csv", folder / f"{stem}.json")
         view.redraw()
         return (fig_path, folder / f"{stem}.csv", folder / f"{stem}.json")
+
+    def export_formula(self, folder: str | Path | None = None, *, order: int | None = None,
+                       fmt: str | None = None) -> tuple[Path, Path, Path]:
+        """Write the formula of the level shown ("error of") with where it meets the panel's tolerance.
+
+        :func:`ptcheck.formula` with the panel's target, tolerance, treatment,
+        exact solver, threshold and coupling range (searched as the panel
+        searches its validity boundaries, so the ranges are the same numbers);
+        the error curve is drawn on the panel's couplings.
+
+        Parameters
+        ----------
+        folder : str or Path, optional
+            Default: the panel's export folder.
+        order : int, optional
+            Default: the highest integer order selected.
+        fmt : {"png", "svg", "pdf"}, optional
+            Format of the figure (default: the panel's "figure as").
+
+        Returns
+        -------
+        (Path, Path, Path)
+            ``.tex`` (equation and ranges), ``.py`` (a self-contained function)
+            and the slide figure.
+        """
+        s = self.settings
+        if s is None or self.model is None:
+            raise ValueError("nothing to export yet: no model and settings (see the message above)")
+        fmt = (fmt or self.controls.export_format.value).lower()
+        if fmt not in EXPORT_FORMATS:
+            raise ValueError(f"export format must be one of {list(EXPORT_FORMATS)}; got {fmt!r}")
+        if order is None:
+            ints = [o for o in s.orders if not isinstance(o, Pade)]
+            if not ints:
+                raise ValueError("a formula is a truncated series: select an integer order (Padé approximants are not "
+                                 f"exported); selected: {', '.join(order_name(o) for o in s.orders)}")
+            order = max(ints)
+        reach = max(abs(s.coupling_min), abs(s.coupling_max))
+        f = self.session._call(
+            formula, self.model, self._error_target_key(), order, **s.tolerance_kwargs(), directions=Session._directions(s),
+            treatment=s.treatment, backend=s.backend, threshold=s.threshold, coupling=reach, max_coupling=reach,
+            couplings=s.couplings, params=parse_params(self.controls.model_params.value) if self._builder_name else None,
+        )
+        self._show_notes()
+        kind = "relative" if s.relative else "absolute"
+        fx = collect([f], title=f"a panel of {self.model.name} ({kind} tolerance {s.tol:g}, treatment {s.treatment!r}, "
+                                f"coupling range {s.coupling_min:g} to {s.coupling_max:g})")
+        folder = Path(folder if folder is not None else self.controls.folder.value).expanduser()
+        folder.mkdir(parents=True, exist_ok=True)
+        stem = f"ptcheck_formula_{_slug(self.model.name)}_{_slug(f.target)}_order{f.order}"
+        tex, py, fig_path = folder / f"{stem}.tex", folder / f"{stem}.py", folder / f"{stem}.{fmt}"
+        tex.write_text(fx.latex(), encoding="utf-8")
+        py.write_text(fx.python(), encoding="utf-8")
+        from matplotlib.figure import Figure  # no pyplot: no global state
+
+        fig = Figure(figsize=SLIDE_SIZE, layout="constrained")
+        plot_formula(f, ax=fig.add_subplot())
+        save(fig, fig_path)
+        return (tex, py, fig_path)
 
     def close(self) -> None:
         """Close this panel's widgets (controls, canvases, containers); other widgets are left alone."""
@@ -589,9 +654,9 @@ class Panel:
         if self.model is not None:
             self.refresh()
 
-    def _export_clicked(self) -> None:
+    def _export_clicked(self, *, formula_files: bool = False) -> None:
         with self._guard():
-            paths = self.export()
+            paths = self.export_formula() if formula_files else self.export()
             self.message.value = ("<div style='border-left:4px solid #009E73;padding:4px 8px'>written: "
                                   + ", ".join(html.escape(str(p)) for p in paths) + "</div>")
 
@@ -609,7 +674,7 @@ class Panel:
         if "levels" in names:
             right.append(c.shift)
         settings_row = w.HBox([c.levels, c.orders, w.VBox(right)])
-        export_row = w.HBox([c.folder, c.export_format, c.export_button])
+        export_row = w.HBox([c.folder, c.export_format, c.export_button, c.formula_button])
         body = self._body()
         return w.VBox([model_row, coupling_row, settings_row, self.progress, self.message, body, self.readout,
                        self.notes, export_row])
