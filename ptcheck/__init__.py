@@ -25,7 +25,8 @@ from .errors import (
 )
 from .exact import AvoidedCrossing, ExactSolver, ExactSweep, track
 from .formula import Formula, ValidityRange, formula
-from .model import Model
+from .model import Model, MultiCouplingError
+from .multiseries import MultiSeriesResult, multi_series
 from .products import product_model
 from .quantities import (
     Quantity,
@@ -65,6 +66,8 @@ __all__ = [
     "ExactSweep",
     "Formula",
     "Model",
+    "MultiCouplingError",
+    "MultiSeriesResult",
     "NearDegeneratePair",
     "NearDegenerateWarning",
     "Pade",
@@ -93,6 +96,7 @@ __all__ = [
     "find_blocks",
     "formula",
     "models",
+    "multi_series",
     "near_degenerate_pairs",
     "parse_order",
     "product_model",

@@ -1,18 +1,25 @@
 """Multivariate Rayleigh–Schrödinger recursion (private numerics of :mod:`ptcheck.multiseries`).
 
-For ``H = H0 + Σ_i λ_i V_i`` and a level n that is non-degenerate in its
-sector, with multi-index coefficients ``E^α`` and ``|ψ^α⟩`` (α = (a_1, …, a_m),
-``E(λ) = Σ_α E^α λ^α``) in intermediate normalisation (⟨n|ψ^α⟩ = 0 for α ≠ 0),
-collecting the terms of ``H ψ = E ψ`` with the monomial λ^α gives
+For ``H = H0 + Σ_i λ_i V_i`` (H0 diagonal) and a level ``n`` non-degenerate
+inside the states the reduced resolvent keeps, the energy and state are
+expanded in monomials ``λ^α = Π_i λ_i^{α_i}``::
 
-    E^α = Σ_i ⟨n| V_i |ψ^{α − e_i}⟩
-    ψ^α = R_n [ Σ_i V_i ψ^{α − e_i} − Σ_{0 < β < α} E^β ψ^{α − β} ],   R_n = Q_n / (E_n − H0)
+    E(λ) = Σ_α E^α λ^α,    |ψ(λ)⟩ = Σ_α λ^α |ψ^α⟩,   ⟨n|ψ^α⟩ = δ_{α0}.
 
-(terms with a negative index are absent; β < α componentwise, β ≠ α because
-``R_n ψ^0 = 0``).  For one coupling this is the usual recursion (Kato,
-*Perturbation Theory for Linear Operators*, 1966, ch. II).  Each ``ψ^β`` is
-multiplied once by each ``V_i``, so the cost is m mat-vecs per coefficient plus
-the convolution's vector work.
+Collecting the coefficient of ``λ^α`` in ``(H0 + Σ_i λ_i V_i − E) ψ = 0`` gives, with ``e_i`` the unit multi-index and ``R = Σ_{m≠n} |m⟩⟨m| / (E^0_n − E^0_m)``::
+
+    w^α  = Σ_{i: α_i > 0} V_i ψ^{α − e_i}
+    E^α  = ⟨n| w^α
+    ψ^α  = R (w^α − Σ_{0 < β < α} E^β ψ^{α − β})
+
+(componentwise ``β <= α``, ``β ≠ 0, α``).  This is the one-coupling recursion
+with the Cauchy product taken over multi-indices; for one coupling it is the
+textbook one.  Every coefficient of total degree k depends only on lower
+degrees, so one degree is computed at a time: one product of each ``V_i`` with
+the block of the previous degree's states (each ``V_i ψ^β`` is made once), and
+the Cauchy sums of the whole degree as one matrix product.  The number of
+products with ``V`` is ``m × C(K − 1 + m, m)`` — one per coefficient and
+coupling — and the vector work is that of the Cauchy sums.
 """
 
 from __future__ import annotations
@@ -22,8 +29,9 @@ from itertools import combinations_with_replacement
 from typing import Any
 
 import numpy as np
+import scipy.sparse as sp
 
-__all__ = ["graded_indices", "rs_multi"]
+__all__ = ["graded_indices", "rs_multi", "cauchy_terms"]
 
 
 def graded_indices(m: int, order: int) -> list[tuple[int, ...]]:
@@ -45,6 +53,14 @@ def graded_indices(m: int, order: int) -> list[tuple[int, ...]]:
     return out
 
 
+def cauchy_terms(indices: Sequence[tuple[int, ...]]) -> int:
+    """Number of terms ``E^β ψ^{α−β}`` (0 < β < α) summed over all α: the minimal vector work."""
+    total = 0
+    for a in indices:
+        total += int(np.prod([x + 1 for x in a])) - (2 if any(a) else 1)
+    return total
+
+
 def rs_multi(
     e0: np.ndarray,
     vs: Sequence[Any],
@@ -58,7 +74,7 @@ def rs_multi(
     Parameters
     ----------
     e0 : (N,) ndarray
-        Unperturbed energies (work basis, H0 diagonal).
+        Unperturbed energies (work basis, H0 diagonal), offset-free.
     vs : sequence of m (N, N) ndarrays or sparse matrices
         Perturbations in the same basis.
     n : int
@@ -74,17 +90,22 @@ def rs_multi(
     indices : list of m-tuples
         Multi-indices in graded order (length P = C(K + m, m)).
     energies : (P,) ndarray
-        ``E^α`` in the order of ``indices`` (complex dtype if V is complex).
+        ``E^α`` in the order of ``indices`` (``E^0 = e0[n]``; complex dtype
+        if a V is complex).
     states : (P, N) ndarray
         ``ψ^α`` in the same order.
+
+    Raises
+    ------
+    FloatingPointError
+        A coefficient overflows float64.
     """
     m = len(vs)
     nn = e0.size
-    with np.errstate(divide="ignore"):
-        r = 1.0 / (e0[n] - e0)
     keep = np.ones(nn, dtype=bool) if resolvent_mask is None else np.asarray(resolvent_mask, dtype=bool).copy()
     keep[n] = False
-    r = np.where(keep, r, 0.0)
+    with np.errstate(divide="ignore"):
+        r = np.where(keep, 1.0 / np.where(keep, e0[n] - e0, 1.0), 0.0)
     dtype = np.result_type(*(v.dtype for v in vs), np.float64)
     idx = graded_indices(m, order)
     pos = {a: i for i, a in enumerate(idx)}
@@ -93,45 +114,59 @@ def rs_multi(
     energies = np.zeros(p, dtype=dtype)
     psi[0, n] = 1.0
     energies[0] = e0[n]
-    vpsi: list[dict[int, np.ndarray]] = [dict() for _ in range(m)]  # V_i ψ^β, computed once
-
-    def vmul(i: int, b: int) -> np.ndarray:
-        got = vpsi[i].get(b)
-        if got is None:
-            got = np.asarray(vs[i] @ psi[b])
-            vpsi[i][b] = got
-        return got
-
-    for k in range(1, p):
-        a = idx[k]
-        w = np.zeros(nn, dtype=dtype)
-        for i in range(m):
-            if a[i] == 0:
-                continue
-            prev = list(a)
-            prev[i] -= 1
-            w += vmul(i, pos[tuple(prev)])
-        energies[k] = w[n]
-        # convolution over 0 < β < α (componentwise), β != α
-        lo: list[int] = []
-        hi: list[int] = []
-        for b in _below(a):
-            lo.append(pos[b])
-            hi.append(pos[tuple(x - y for x, y in zip(a, b))])
-        if lo:
-            w = w - energies[lo] @ psi[hi]
-        psi[k] = r * w
-        if not (np.isfinite(energies[k]) and np.all(np.isfinite(psi[k]))):
-            raise FloatingPointError(f"multivariate Rayleigh–Schrödinger coefficients overflow float64 at {a}")
-        # drop products no later coefficient needs (β with |β| = K): none are computed lazily
+    starts = [0]
+    for k in range(order + 1):
+        starts.append(starts[-1] + _count(m, k))
+    for k in range(1, order + 1):
+        lo, hi = starts[k - 1], starts[k]  # previous degree
+        block = psi[lo:hi]
+        # V_i ψ^β for every β of degree k − 1: one product per coupling and coefficient
+        prods = [_times(v, block) for v in vs]  # each (hi - lo, N)
+        a0, a1 = starts[k], starts[k + 1]
+        w = np.zeros((a1 - a0, nn), dtype=dtype)
+        for j in range(a0, a1):
+            a = idx[j]
+            for i in range(m):
+                if a[i]:
+                    prev = list(a)
+                    prev[i] -= 1
+                    w[j - a0] += prods[i][pos[tuple(prev)] - lo]
+        energies[a0:a1] = w[:, n]
+        if k > 1:
+            # Σ_{0<β<α} E^β ψ^{α−β} for the whole degree: coefficient matrix (α, γ = α − β) times ψ^γ
+            c = np.zeros((a1 - a0, a0), dtype=dtype)
+            for j in range(a0, a1):
+                a = idx[j]
+                for g in _strictly_below(a):
+                    c[j - a0, pos[g]] = energies[pos[tuple(x - y for x, y in zip(a, g))]]
+            w -= c[:, 1:] @ psi[1:a0]
+        psi[a0:a1] = w * r
+        if not (np.all(np.isfinite(energies[a0:a1])) and np.all(np.isfinite(psi[a0:a1]))):
+            raise FloatingPointError(
+                f"multivariate Rayleigh–Schrödinger coefficients overflow float64 at total degree {k}: the series "
+                "diverges fast; ask for a lower order"
+            )
     return idx, energies, psi
 
 
-def _below(a: tuple[int, ...]):
-    """Multi-indices β with 0 <= β <= a componentwise, β != 0 and β != a."""
-    ranges = [range(x + 1) for x in a]
+def _count(m: int, k: int) -> int:
+    """Number of multi-indices of m components with total degree exactly k."""
+    from math import comb
+
+    return comb(k + m - 1, m - 1)
+
+
+def _times(v: Any, block: np.ndarray) -> np.ndarray:
+    """``(V @ block.T).T`` for a block of row vectors."""
+    if sp.issparse(v):
+        return np.asarray((v @ block.T).T)
+    return block @ v.T
+
+
+def _strictly_below(a: tuple[int, ...]):
+    """Multi-indices γ with 0 < γ < a componentwise (γ ≠ 0, γ ≠ a)."""
     total = sum(a)
-    for b in np.ndindex(*[len(rg) for rg in ranges]):
-        s = sum(b)
+    for g in np.ndindex(*[x + 1 for x in a]):
+        s = sum(g)
         if 0 < s < total:
-            yield tuple(int(x) for x in b)
+            yield tuple(int(x) for x in g)

@@ -302,6 +302,7 @@ class Model:
         vs: tuple | None = None,
         coupling_names: tuple[str, ...] = ("λ",),
         direction: np.ndarray | None = None,
+        ray_levels: np.ndarray | None = None,
     ) -> None:
         self.name = name
         self.n = n
@@ -322,6 +323,7 @@ class Model:
         self._vs = vs
         self.coupling_names = tuple(coupling_names)
         self.direction = direction
+        self._ray_levels = ray_levels
         self._norms_v: tuple[float, ...] | None = None
         self.degeneracy_tol = float(degeneracy_tol)
         level_sectors = np.ascontiguousarray(level_sectors, dtype=np.int64)
@@ -511,8 +513,19 @@ class Model:
             direction=_frozen(d),
             coupling_scale=None,
             coupling_unit=None,
+            ray_levels=perm if perm is not None else np.arange(self.n),
         )
         return Model._from_parts(**parts)
+
+    def _ray_level(self, level: int) -> int:
+        """Work index on this ray model of the parent model's ``level`` (private; rays only).
+
+        Levels of unmixed degenerate groups keep their state (the ray sorts them
+        by its own first-order shift); elsewhere the index is unchanged.
+        """
+        if self._ray_levels is None:
+            return int(level)
+        return int(np.flatnonzero(self._ray_levels == level)[0])
 
     def _parts(self) -> dict:
         """The keyword arguments of :meth:`_assign` that rebuild this model (private)."""
@@ -540,6 +553,7 @@ class Model:
             vs=self._vs,
             coupling_names=self.coupling_names,
             direction=self.direction,
+            ray_levels=self._ray_levels,
         )
 
     @property
