@@ -27,7 +27,7 @@ what :func:`ptcheck.region.validity_region` uses.
 from __future__ import annotations
 
 import html
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from math import comb
 from typing import Any
 
@@ -49,6 +49,7 @@ __all__ = [
     "MAX_MULTI_ORDER",
     "MULTI_TREATMENTS",
     "target_name",
+    "ray_target",
 ]
 
 #: Highest total degree of a multivariate series (C(K + m, m) coefficients).
@@ -83,6 +84,22 @@ def target_name(model: Model, target: Any) -> str:
     if isinstance(target, Quantity):
         return target.name
     return model.label(model.level_index(target))
+
+
+def ray_target(model: Model, ray: Model, target: Any) -> Any:
+    """The target of ``model`` as a target of ``ray = model.along(d)`` (same states, the ray's indices).
+
+    A level becomes its work index on the ray; a quantity keeps its keys unless
+    the ray reorders one of its levels (an unmixed degenerate group sorted by
+    the ray's shifts), then its weights are given by the ray's indices.
+    """
+    if isinstance(target, Quantity):
+        resolved = target.resolve(model)
+        moved = {ray._ray_level(n): w for n, w in resolved.items()}
+        if all(ray._ray_level(n) == n for n in resolved):
+            return target
+        return replace(target, weights=moved)
+    return ray._ray_level(model.level_index(target))
 
 
 def as_coupling_points(couplings: Any, m: int, name: str = "couplings") -> np.ndarray:
@@ -340,7 +357,7 @@ def multi_series(model: Model, target: Any, order: int, *, treatment: str = "sta
     >>> from ptcheck import Model
     >>> m = Model(np.diag([0.0, 1.0]), [[[0, .1], [.1, 0]], [[.2, 0], [0, -.2]]], names=("g", "E"))
     >>> s = multi_series(m, 0, 2)
-    >>> float(s.energy_coefficients[2, 0])       # -g²/Δ of the two-level system
+    >>> round(float(s.energy_coefficients[2, 0]), 12)       # -g²/Δ of the two-level system
     -0.01
     """
     check_multi(model, "multi_series")

@@ -15,6 +15,12 @@ Angles are measured in the plane of *scaled* couplings
 directions when their natural sizes differ (default ``s_i`` = isolation
 distance of the target's levels / ‖V_i‖).  Every result also gives the
 boundary points in the couplings themselves.
+
+The region is what each ray says: a feature narrower than the angular
+spacing of the rays (a thin sliver where an avoided crossing cuts in) can be
+missed between two rays; ``notes`` says when the refinement stopped early,
+and the boundary through the coupling point you use (``point=``) is always
+computed on its own ray.
 """
 
 from __future__ import annotations
@@ -29,16 +35,28 @@ import numpy as np
 from . import _validation as val
 from .compare import ValidityBoundary, validity_boundary
 from .convergence import ConvergenceResult, convergence
+from .degeneracy import DEFAULT_MIXING_THRESHOLD
 from .model import Model
-from .multiseries import as_coupling_points, check_multi
+from .multiseries import as_coupling_points, check_multi, ray_target, target_name
 from .quantities import Quantity
+from .treatment import DEFAULT_TREATMENT
 
-__all__ = ["ValidityRegion", "RayConvergence", "validity_region", "ray_convergence", "DEFAULT_DIRECTIONS"]
+__all__ = [
+    "ValidityRegion",
+    "RayConvergence",
+    "validity_region",
+    "ray_convergence",
+    "default_scales",
+    "DEFAULT_DIRECTIONS",
+    "MAX_DIRECTIONS",
+]
 
 #: Directions searched before refinement (evenly spread over the full circle).
 DEFAULT_DIRECTIONS = 16
-#: Largest number of directions after refinement.
+#: Default largest number of directions after refinement.
 MAX_DIRECTIONS = 64
+#: Neighbouring rays closer than this (radians) are never split further.
+_MIN_ANGLE = 1e-3
 
 
 def _ro(a: Any, dtype: Any = float) -> np.ndarray:
@@ -62,30 +80,34 @@ class ValidityRegion:
     order : int
         Total degree of the multivariate series judged.
     tol, rtol : float or None
-        The tolerance asked for.
+        The tolerance asked for (absolute in energy units, or relative).
     coupling_names : tuple of str
         Names of the two couplings.
     scales : (2,) ndarray
         ``s_i``: the angle θ is measured in the plane ``(λ₁/s₁, λ₂/s₂)``.
     angles : (D,) ndarray
-        Directions searched (radians, in the scaled plane), ascending.
+        Directions searched (radians in [0, 2π), scaled plane), ascending.
     directions : (D, 2) ndarray
         The coupling vectors ``d = (s₁ cos θ, s₂ sin θ)`` of the rays.
     boundary : (D,) ndarray
         ``t*`` along each ray (the boundary point is ``t* d``); ``inf`` where
         the tolerance holds up to the search limit, 0 where it fails at once,
-        NaN where the boundary is ill defined.
+        NaN where the boundary is ill defined or the target is exact in its sector.
     points : (D, 2) ndarray
-        Boundary points ``t* d`` in the couplings themselves.
+        Boundary points ``t* d`` in the couplings themselves (inf / NaN as above).
     status : tuple of str
         The one-coupling boundary status per ray (``"found"``, ``"not_reached"``,
-        ``"fails_at_zero"``, ``"ill_defined"``).
+        ``"fails_at_zero"``, ``"ill_defined"``, ``"exact_in_sector"``).
     boundaries : tuple of ValidityBoundary
         The one-coupling results per ray.
     full_circle : bool
         The directions cover the whole circle (the curve is closed).
     exact_solves : int
         Exact diagonalisations used in all.
+    point : (2,) ndarray or None
+        The coupling point asked about (``point=``), if any.
+    point_ray : int or None
+        Index of the ray through ``point`` in :attr:`angles`.
     notes : tuple of str
     """
 
@@ -103,6 +125,8 @@ class ValidityRegion:
     boundaries: tuple[ValidityBoundary, ...] = field(repr=False)
     full_circle: bool
     exact_solves: int
+    point: np.ndarray | None = None
+    point_ray: int | None = None
     notes: tuple[str, ...] = ()
 
     def curve(self) -> tuple[np.ndarray, np.ndarray]:
@@ -121,21 +145,43 @@ class ValidityRegion:
             x, y = np.append(x, x[0]), np.append(y, y[0])
         return x, y
 
+    def boundary_at(self, angle: float) -> float:
+        """``t*`` at any angle (scaled plane), interpolated linearly between the neighbouring rays."""
+        th = float(angle) % (2 * math.pi)
+        ang, t = np.asarray(self.angles), np.asarray(self.boundary)
+        if self.full_circle:
+            ang = np.concatenate([ang[-1:] - 2 * math.pi, ang, ang[:1] + 2 * math.pi])
+            t = np.concatenate([t[-1:], t, t[:1]])
+        if th < ang[0] or th > ang[-1]:
+            return math.nan
+        i = int(np.searchsorted(ang, th))
+        if i < ang.size and ang[i] == th:
+            return float(t[i])
+        a, b = t[i - 1], t[i]
+        if math.isnan(a) or math.isnan(b):
+            return math.nan
+        if not (math.isfinite(a) and math.isfinite(b)):
+            return float(min(a, b))
+        w = (th - ang[i - 1]) / (ang[i] - ang[i - 1])
+        return float(a + w * (b - a))
+
     def contains(self, point: Any) -> bool:
-        """Is the coupling point inside the region (interpolating t* in the angle)?"""
+        """Is the coupling point inside the region (``t*`` interpolated in the angle)?
+
+        On the ray of :attr:`point` the answer is that ray's own result.
+        """
         p = as_coupling_points(point, 2, "point")
+        if p.ndim != 1:
+            raise ValueError(f"point must be one pair of couplings; got shape {p.shape}")
         z = p / self.scales
         r = float(np.hypot(*z))
         if r == 0.0:
             return True
         th = math.atan2(z[1], z[0]) % (2 * math.pi)
-        t = self.boundary
-        ang = self.angles
-        if self.full_circle:
-            ang = np.append(ang, ang[0] + 2 * math.pi)
-            t = np.append(t, t[0])
-        tt = float(np.interp(th, ang, t, left=np.nan, right=np.nan)) if np.all(np.isfinite(t)) else _interp_inf(th, ang, t)
-        return bool(r < tt)
+        hit = np.flatnonzero(np.abs(np.asarray(self.angles) - th) < 1e-12)
+        if hit.size:
+            return self.boundaries[int(hit[0])].valid_at(r)
+        return bool(r < self.boundary_at(th))
 
     def __repr__(self) -> str:
         tl = f"tol={self.tol:g}" if self.tol is not None else f"rtol={self.rtol:g}"
@@ -159,6 +205,8 @@ class ValidityRegion:
             "status": list(self.status),
             "full_circle": self.full_circle,
             "exact_solves": self.exact_solves,
+            "point": None if self.point is None else self.point.tolist(),
+            "point_ray": self.point_ray,
             "notes": list(self.notes),
         }
 
@@ -168,25 +216,16 @@ class ValidityRegion:
             f"<tr><td>{math.degrees(a):.1f}°</td><td>{p[0]:.4g}</td><td>{p[1]:.4g}</td><td>{html.escape(s)}</td></tr>"
             for a, p, s in zip(self.angles, self.points, self.status)
         )
+        notes = "".join(f"<li>{html.escape(n)}</li>" for n in self.notes)
         return (
             f"<b>Validity region</b> of {html.escape(self.target)}, order {self.order} "
             f"({self.exact_solves} exact solves)<table><tr><th>θ</th><th>{html.escape(n1)}*</th>"
-            f"<th>{html.escape(n2)}*</th><th>status</th></tr>{rows}</table>"
+            f"<th>{html.escape(n2)}*</th><th>status</th></tr>{rows}</table>" + (f"<ul>{notes}</ul>" if notes else "")
         )
 
 
-def _interp_inf(th: float, ang: np.ndarray, t: np.ndarray) -> float:
-    i = int(np.searchsorted(ang, th))
-    i = min(max(i, 1), ang.size - 1)
-    a, b = t[i - 1], t[i]
-    if not (np.isfinite(a) and np.isfinite(b)):
-        return float(min(a, b)) if not (np.isnan(a) or np.isnan(b)) else float("nan")
-    w = (th - ang[i - 1]) / (ang[i] - ang[i - 1])
-    return float(a + w * (b - a))
-
-
 def default_scales(model: Model, target: Any) -> np.ndarray:
-    """``s_i`` = smallest isolation distance of the target's levels / ‖V_i‖ (1 where V_i = 0)."""
+    """``s_i`` = smallest isolation distance of the target's levels / ‖V_i‖ (1 where V_i = 0), shape (2,)."""
     weights = target.resolve(model) if isinstance(target, Quantity) else {model.level_index(target): 1.0}
     gaps = []
     for n in weights:
@@ -195,24 +234,34 @@ def default_scales(model: Model, target: Any) -> np.ndarray:
         if d.size:
             gaps.append(float(d.min()))
     gap = min(gaps) if gaps else 1.0
-    out = []
-    for nv in model.norms_v:
-        out.append(gap / nv if nv > 0 else 1.0)
-    return np.asarray(out, dtype=float)
+    return np.asarray([gap / nv if nv > 0 else 1.0 for nv in model.norms_v], dtype=float)
+
+
+def _scales(model: Model, target: Any, scales: Any) -> np.ndarray:
+    if scales is None:
+        return default_scales(model, target)
+    s = as_coupling_points(scales, 2, "scales")
+    if s.ndim != 1 or np.any(s <= 0):
+        raise ValueError(f"scales must be two positive numbers; got {scales!r}")
+    return s
 
 
 def _angles_of(directions: Any, scales: np.ndarray) -> tuple[np.ndarray, bool]:
+    """Starting angles (ascending, in [0, 2π)) and whether they stand for the whole circle."""
     if directions is None:
         directions = DEFAULT_DIRECTIONS
     if isinstance(directions, (int, np.integer)) and not isinstance(directions, bool):
-        k = val.check_int(directions, "directions", minimum=3, maximum=MAX_DIRECTIONS)
+        k = val.check_int(directions, "directions", minimum=3, maximum=1024)
         return np.linspace(0.0, 2 * math.pi, k, endpoint=False), True
-    a = np.asarray(directions, dtype=float)
+    try:
+        a = np.asarray(directions, dtype=float)
+    except (TypeError, ValueError):
+        raise TypeError(f"directions must be an int, angles (radians) or (D, 2) vectors; got {directions!r}") from None
     if a.ndim == 1:
         ang = np.mod(a, 2 * math.pi)
     elif a.ndim == 2 and a.shape[1] == 2:
         if np.any(np.hypot(a[:, 0], a[:, 1]) == 0):
-            raise ValueError("directions must be non-zero vectors; got a zero row")
+            raise ValueError(f"directions must be non-zero vectors; got {directions!r}")
         ang = np.mod(np.arctan2(a[:, 1] / scales[1], a[:, 0] / scales[0]), 2 * math.pi)
     else:
         raise ValueError(
@@ -224,12 +273,16 @@ def _angles_of(directions: Any, scales: np.ndarray) -> tuple[np.ndarray, bool]:
 
 
 def _needs_split(a: ValidityBoundary, b: ValidityBoundary, rtol: float) -> bool:
-    ta, tb = abs(a.coupling), abs(b.coupling)
     if a.status != b.status:
         return True
+    ta, tb = abs(a.coupling), abs(b.coupling)
     if not (math.isfinite(ta) and math.isfinite(tb)):
         return False
     return abs(ta - tb) > rtol * max(min(ta, tb), 1e-300)
+
+
+def _direction(theta: float, s: np.ndarray) -> np.ndarray:
+    return np.array([s[0] * math.cos(theta), s[1] * math.sin(theta)])
 
 
 def validity_region(
@@ -241,12 +294,16 @@ def validity_region(
     rtol: float | None = None,
     directions: Any = None,
     scales: Any = None,
+    point: Any = None,
     refine_rtol: float = 0.1,
     max_directions: int = MAX_DIRECTIONS,
     max_coupling: float | None = None,
-    **boundary_options: Any,
+    treatment: str = DEFAULT_TREATMENT,
+    backend: str = "auto",
+    xrtol: float = 1e-3,
+    threshold: float = DEFAULT_MIXING_THRESHOLD,
 ) -> ValidityRegion:
-    """Where the order-``order`` multivariate series meets a tolerance, along rays.
+    """Where the order-``order`` multivariate series meets a tolerance, along rays from the origin.
 
     Parameters
     ----------
@@ -263,16 +320,20 @@ def validity_region(
         (scaled plane), or coupling vectors of shape (D, 2).
     scales : (2,) array_like, optional
         ``s_i`` of the scaled plane (default: isolation distance / ‖V_i‖).
+    point : (2,) array_like, optional
+        The coupling point you use: its ray is searched too, with the
+        guarantee of :func:`~ptcheck.compare.validity_boundary` for a coupling
+        of interest (the first crossing below it is found).
     refine_rtol : float, default 0.1
         A pair of neighbouring directions whose boundaries differ by more than
         this fraction (or whose status differs) gets the direction between
         them, until ``max_directions``.
     max_directions : int, default 64
     max_coupling : float, optional
-        Largest ``t`` searched along a ray (in units of the direction vector).
-    **boundary_options
-        Passed on to :func:`ptcheck.compare.validity_boundary` (treatment,
-        backend, ...).
+        Largest ``t`` searched along a ray (in units of the direction vector;
+        default that of :func:`~ptcheck.compare.validity_boundary` on the ray).
+    treatment, backend, xrtol, threshold
+        As in :func:`~ptcheck.compare.validity_boundary`, on every ray.
 
     Returns
     -------
@@ -291,60 +352,81 @@ def validity_region(
     check_multi(model, "validity_region")
     if model.n_couplings != 2:
         raise ValueError(f"validity_region draws regions of two couplings; model {model.name!r} has {model.n_couplings}")
-    order = val.check_int(order, "order", minimum=0)
-    if isinstance(target, list):
-        raise TypeError("validity_region takes one level or quantity; got a list")
+    order = val.check_order(order, n=model.n)
+    if isinstance(target, (list, set, range, np.ndarray)):
+        raise TypeError(f"validity_region takes one level or quantity; got {target!r}")
     if (tol is None) == (rtol is None):
         raise ValueError(f"give exactly one of tol (absolute) or rtol (relative); got tol={tol!r}, rtol={rtol!r}")
     refine_rtol = float(val.check_positive(refine_rtol, "refine_rtol"))
-    max_directions = val.check_int(max_directions, "max_directions", minimum=3, maximum=1024)
-    s = default_scales(model, target) if scales is None else as_coupling_points(scales, 2, "scales")
-    if s.ndim != 1 or np.any(s <= 0):
-        raise ValueError(f"scales must be two positive numbers; got {scales!r}")
+    max_directions = val.check_int(max_directions, "max_directions", minimum=1, maximum=1024)
+    if max_coupling is not None:
+        max_coupling = float(val.check_positive(max_coupling, "max_coupling"))
+    name = target_name(model, target)
+    s = _scales(model, target, scales)
     angles, full = _angles_of(directions, s)
-    name = target.name if isinstance(target, Quantity) else model.label(model.level_index(target))
-
+    p = None
+    theta_p = t_p = None
+    if point is not None:
+        p = as_coupling_points(point, 2, "point")
+        if p.ndim != 1:
+            raise ValueError(f"point must be one pair of couplings; got shape {p.shape}")
+        if np.any(p != 0):
+            z = p / s
+            theta_p, t_p = math.atan2(z[1], z[0]) % (2 * math.pi), float(np.hypot(*z))
+    options = dict(tol=tol, rtol=rtol, max_coupling=max_coupling, treatment=treatment, backend=backend, xrtol=xrtol,
+                   threshold=threshold)
     results: dict[float, ValidityBoundary] = {}
 
-    def run(theta: float) -> ValidityBoundary:
-        d = np.array([s[0] * math.cos(theta), s[1] * math.sin(theta)])
-        ray = model.along(d)
-        b = validity_boundary(ray, target, order, tol=tol, rtol=rtol, max_coupling=max_coupling, **boundary_options)
-        results[theta] = b
-        return b
+    def run(theta: float, coupling: float | None = None) -> None:
+        ray = model.along(_direction(theta, s))
+        results[theta] = validity_boundary(ray, ray_target(model, ray, target), order, coupling=coupling, **options)
 
+    if theta_p is not None:
+        run(theta_p, t_p)
     for th in angles:
-        run(float(th))
-    while len(results) < max_directions:
+        if theta_p is None or abs(float(th) - theta_p) > 1e-12:
+            run(float(th))
+    stopped = False
+    while True:
         ang = sorted(results)
         pairs = list(zip(ang[:-1], ang[1:]))
         if full and len(ang) > 1:
             pairs.append((ang[-1], ang[0] + 2 * math.pi))
-        todo = []
-        for a, b in pairs:
-            if b - a < 1e-3:
-                continue
-            if _needs_split(results[a], results[b % (2 * math.pi) if b >= 2 * math.pi else b], refine_rtol):
-                todo.append(0.5 * (a + b) % (2 * math.pi))
+        todo = [
+            (0.5 * (a + b)) % (2 * math.pi)
+            for a, b in pairs
+            if b - a >= _MIN_ANGLE and _needs_split(results[a], results[b % (2 * math.pi) if b >= 2 * math.pi else b], refine_rtol)
+        ]
         if not todo:
             break
-        for th in todo[: max_directions - len(results)]:
+        room = max_directions - len(results)
+        if room <= 0:
+            stopped = True
+            break
+        if len(todo) > room:
+            stopped = True
+        for th in todo[:room]:
             run(float(th))
     ang = np.array(sorted(results))
     bs = tuple(results[a] for a in ang)
     dirs = np.stack([s[0] * np.cos(ang), s[1] * np.sin(ang)], axis=1)
-    t = np.array([abs(b.coupling) if b.status != "ill_defined" else np.nan for b in bs])
-    t = np.where([b.status == "fails_at_zero" for b in bs], 0.0, t)
+    t = np.array([_t_star(b) for b in bs])
     with np.errstate(invalid="ignore"):
         pts = t[:, None] * dirs
+    pts[t == 0] = 0.0
     notes = []
-    if len(results) >= max_directions:
-        notes.append(f"the angle refinement stopped at max_directions={max_directions}; the curve may miss narrow features")
+    if stopped:
+        notes.append(
+            f"the angle refinement stopped at max_directions={max_directions} with neighbouring rays still differing by "
+            f"more than refine_rtol={refine_rtol:g}: the curve may miss narrow features between rays"
+        )
     if any(b.status == "ill_defined" for b in bs):
         notes.append("on some rays the relative error is ill defined (the exact reference passes through zero); use tol=")
+    if any(b.status == "exact_in_sector" for b in bs):
+        notes.append("on some rays the target is exact within its symmetry sector: no order is judged there")
     for b in bs:
         for nt in b.notes:
-            if nt not in notes and "exact for the matrices given" in nt:
+            if nt not in notes:
                 notes.append(nt)
     return ValidityRegion(
         target=name,
@@ -361,8 +443,18 @@ def validity_region(
         boundaries=bs,
         full_circle=full,
         exact_solves=int(sum(b.exact_solves for b in bs)),
+        point=None if p is None else _ro(p),
+        point_ray=None if theta_p is None else int(np.argmin(np.abs(ang - theta_p))),
         notes=tuple(notes),
     )
+
+
+def _t_star(b: ValidityBoundary) -> float:
+    if b.status == "fails_at_zero":
+        return 0.0
+    if b.status in ("ill_defined", "exact_in_sector"):
+        return math.nan
+    return abs(b.coupling)
 
 
 @dataclass(frozen=True, repr=False, eq=False)
@@ -372,17 +464,21 @@ class RayConvergence:
     Attributes
     ----------
     target : str
+    coupling_names : tuple of str
+    scales : (2,) ndarray
+        As in :class:`ValidityRegion`.
     angles : (D,) ndarray
-        Directions (radians, scaled plane as in :class:`ValidityRegion`).
+        Directions (radians, scaled plane).
     directions : (D, 2) ndarray
+        Coupling vectors d of the rays.
     radius : (D,) ndarray
-        Radius in t on each ray (``inf`` terminating, 0 asymptotic).
+        Radius in t on each ray (``inf``: terminating series, 0: asymptotic).
     points : (D, 2) ndarray
         ``radius × d``: where each ray leaves the disc of convergence.
     kind : tuple of str
         Growth class per ray.
     exceptional_points : tuple of (P,) complex ndarray
-        Exceptional points of the ray's complex line (in t), per ray.
+        Exceptional points of the ray's complex line (values of t), per ray.
     results : tuple of ConvergenceResult
     """
 
@@ -398,12 +494,15 @@ class RayConvergence:
     results: tuple[ConvergenceResult, ...] = field(repr=False)
 
     def __repr__(self) -> str:
-        return f"RayConvergence({self.target}, {self.angles.size} directions, radius {np.nanmin(self.radius):.4g}..{np.nanmax(self.radius):.4g})"
+        finite = self.radius[np.isfinite(self.radius)]
+        span = f"{finite.min():.4g}..{finite.max():.4g}" if finite.size else "unbounded"
+        return f"RayConvergence({self.target}, {self.angles.size} directions, radius {span})"
 
     def to_dict(self) -> dict:
         return {
             "target": self.target,
             "coupling_names": list(self.coupling_names),
+            "scales": self.scales.tolist(),
             "angles": self.angles.tolist(),
             "directions": self.directions.tolist(),
             "radius": [_jf(x) for x in self.radius],
@@ -412,7 +511,14 @@ class RayConvergence:
         }
 
     def _repr_html_(self) -> str:
-        return html.escape(repr(self))
+        rows = "".join(
+            f"<tr><td>{math.degrees(a):.1f}°</td><td>{r:.4g}</td><td>{html.escape(k)}</td></tr>"
+            for a, r, k in zip(self.angles, self.radius, self.kind)
+        )
+        return (
+            f"<b>Radius of convergence per ray</b> of {html.escape(self.target)}"
+            f"<table><tr><th>θ</th><th>radius (t)</th><th>kind</th></tr>{rows}</table>"
+        )
 
 
 def ray_convergence(
@@ -422,9 +528,9 @@ def ray_convergence(
     directions: Any = None,
     scales: Any = None,
     order: int = 40,
-    **options: Any,
+    ep_search: str = "auto",
 ) -> RayConvergence:
-    """Radius of convergence along each ray (one-variable series of ``model.along(d)``).
+    """Radius of convergence along each ray (the one-variable series of ``model.along(d)``).
 
     Parameters
     ----------
@@ -435,29 +541,37 @@ def ray_convergence(
         As in :func:`validity_region` (no refinement here).
     order : int, default 40
         Order of the one-variable series analysed on each ray.
-    **options
-        Passed on to :func:`ptcheck.convergence.convergence`.
+    ep_search : str, default "auto"
+        Passed on to :func:`ptcheck.convergence.convergence` (exceptional
+        points of the ray's complex line).
 
     Returns
     -------
     RayConvergence
     """
     check_multi(model, "ray_convergence")
-    s = default_scales(model, target) if scales is None else as_coupling_points(scales, 2, "scales")
+    if model.n_couplings != 2:
+        raise ValueError(f"ray_convergence takes a model with two couplings; model {model.name!r} has {model.n_couplings}")
+    order = val.check_order(order, n=model.n)
+    s = _scales(model, target, scales)
     angles, _ = _angles_of(directions, s)
     dirs = np.stack([s[0] * np.cos(angles), s[1] * np.sin(angles)], axis=1)
-    res = tuple(convergence(model.along(d), target, order, **options) for d in dirs)
+    res = []
+    for d in dirs:
+        ray = model.along(d)
+        res.append(convergence(ray, ray_target(model, ray, target), order, ep_search=ep_search))
     rad = np.array([r.radius for r in res], dtype=float)
-    name = target.name if isinstance(target, Quantity) else model.label(model.level_index(target))
+    with np.errstate(invalid="ignore"):
+        pts = rad[:, None] * dirs
     return RayConvergence(
-        target=name,
+        target=target_name(model, target),
         coupling_names=tuple(model.coupling_names),
         scales=_ro(s),
         angles=_ro(angles),
         directions=_ro(dirs),
         radius=_ro(rad),
-        points=_ro(rad[:, None] * dirs),
+        points=_ro(pts),
         kind=tuple(r.kind for r in res),
         exceptional_points=tuple(r.exceptional_points for r in res),
-        results=res,
+        results=tuple(res),
     )
