@@ -26,8 +26,10 @@ from .errors import (
 from .exact import AvoidedCrossing, ExactSolver, ExactSweep, track
 from .formula import Formula, ValidityRange, formula
 from .model import Model, MultiCouplingError
+from .multiexact import GridSweep, track_grid
 from .multiseries import MultiSeriesResult, multi_series
 from .products import product_model
+from .region import RayConvergence, ValidityRegion, ray_convergence, validity_region
 from .quantities import (
     Quantity,
     QuantitySeries,
@@ -65,6 +67,7 @@ __all__ = [
     "ExactSolver",
     "ExactSweep",
     "Formula",
+    "GridSweep",
     "Model",
     "MultiCouplingError",
     "MultiSeriesResult",
@@ -74,6 +77,7 @@ __all__ = [
     "PtcheckWarning",
     "Quantity",
     "QuantitySeries",
+    "RayConvergence",
     "Sector",
     "SeriesResult",
     "Suggestion",
@@ -82,6 +86,7 @@ __all__ = [
     "TruncationWarning",
     "ValidityBoundary",
     "ValidityRange",
+    "ValidityRegion",
     "anharmonicity",
     "block_series",
     "certified_boundary",
@@ -101,10 +106,13 @@ __all__ = [
     "parse_order",
     "product_model",
     "quantity_series",
+    "ray_convergence",
     "rs_series",
     "stark_shift",
     "track",
+    "track_grid",
     "transition_frequency",
     "validity_boundary",
+    "validity_region",
     "zz_coupling",
 ]

@@ -845,6 +845,7 @@ def validity_boundary(
     threshold: float = DEFAULT_MIXING_THRESHOLD,
     method: str = "schrieffer-wolff",
     coupling: float | None = None,
+    suggestions: bool = True,
 ) -> ValidityBoundary:
     """Smallest |λ| along ``direction`` where the error first exceeds the tolerance.
 
@@ -924,11 +925,12 @@ def validity_boundary(
     )
     (target,) = _resolve_targets(model, level)
     solver = ExactSolver(model, backend=settings.backend, n_levels_hint=len(target.weights))
-    result = _boundary(model, target, spec, settings, _Tolerance(thr, relative), direction, solver)
+    result = _boundary(model, target, spec, settings, _Tolerance(thr, relative), direction, solver, bool(suggestions))
     return replace(result, exact_solves=solver.solves)
 
 
-def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, tol: _Tolerance, direction: int, solver: ExactSolver) -> ValidityBoundary:
+def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, tol: _Tolerance, direction: int, solver: ExactSolver,
+              suggestions: bool = True) -> ValidityBoundary:
     """The boundary of the treatment asked for, with suggestions beside it."""
     s_nat = _search_scale(model, target)
     s_max = s.max_coupling if s.max_coupling is not None else (100.0 * s_nat if np.isfinite(s_nat) else 1e6)
@@ -952,6 +954,8 @@ def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, 
             guess = s_nat if np.isfinite(s_nat) else 1.0
         s = s.replace(coupling=guess)
     result = _boundary_search(model, target, spec, s, tol, direction, solver, s_max, s_nat)
+    if not suggestions:
+        return result
     sugg = _boundary_suggestions(model, target, spec, s, tol, direction, solver, s_max, s_nat, result)
     if sugg:
         result = replace(result, suggestions=tuple(sugg), notes=result.notes + tuple(g.text for g in sugg))

@@ -48,6 +48,7 @@ __all__ = [
     "ray_convergence",
     "default_scales",
     "DEFAULT_DIRECTIONS",
+    "DEFAULT_MAX_T",
     "MAX_DIRECTIONS",
 ]
 
@@ -55,6 +56,9 @@ __all__ = [
 DEFAULT_DIRECTIONS = 16
 #: Default largest number of directions after refinement.
 MAX_DIRECTIONS = 64
+#: Default largest t searched on a ray (units of the scaled direction: t = 1 is where
+#: the couplings reach their natural scales s_i, mixing ratios of order one).
+DEFAULT_MAX_T = 10.0
 #: Neighbouring rays closer than this (radians) are never split further.
 _MIN_ANGLE = 1e-3
 
@@ -109,6 +113,8 @@ class ValidityRegion:
     point_ray : int or None
         Index of the ray through ``point`` in :attr:`angles`.
     notes : tuple of str
+    model_name : str
+        Name of the model (for captions).
     """
 
     target: str
@@ -128,6 +134,7 @@ class ValidityRegion:
     point: np.ndarray | None = None
     point_ray: int | None = None
     notes: tuple[str, ...] = ()
+    model_name: str = ""
 
     def curve(self) -> tuple[np.ndarray, np.ndarray]:
         """Boundary curve (λ₁, λ₂), closed when the directions cover the circle.
@@ -208,6 +215,7 @@ class ValidityRegion:
             "point": None if self.point is None else self.point.tolist(),
             "point_ray": self.point_ray,
             "notes": list(self.notes),
+            "model_name": self.model_name,
         }
 
     def _repr_html_(self) -> str:
@@ -330,8 +338,10 @@ def validity_region(
         them, until ``max_directions``.
     max_directions : int, default 64
     max_coupling : float, optional
-        Largest ``t`` searched along a ray (in units of the direction vector;
-        default that of :func:`~ptcheck.compare.validity_boundary` on the ray).
+        Largest ``t`` searched along a ray, in units of the direction vector
+        ``d = (s₁ cos θ, s₂ sin θ)`` (default :data:`DEFAULT_MAX_T`: ten times
+        the natural scale of each coupling).  The ray through ``point`` always
+        reaches past it.
     treatment, backend, xrtol, threshold
         As in :func:`~ptcheck.compare.validity_boundary`, on every ray.
 
@@ -359,8 +369,7 @@ def validity_region(
         raise ValueError(f"give exactly one of tol (absolute) or rtol (relative); got tol={tol!r}, rtol={rtol!r}")
     refine_rtol = float(val.check_positive(refine_rtol, "refine_rtol"))
     max_directions = val.check_int(max_directions, "max_directions", minimum=1, maximum=1024)
-    if max_coupling is not None:
-        max_coupling = float(val.check_positive(max_coupling, "max_coupling"))
+    max_coupling = DEFAULT_MAX_T if max_coupling is None else float(val.check_positive(max_coupling, "max_coupling"))
     name = target_name(model, target)
     s = _scales(model, target, scales)
     angles, full = _angles_of(directions, s)
@@ -379,10 +388,13 @@ def validity_region(
 
     def run(theta: float, coupling: float | None = None) -> None:
         ray = model.along(_direction(theta, s))
-        results[theta] = validity_boundary(ray, ray_target(model, ray, target), order, coupling=coupling, **options)
+        results[theta] = validity_boundary(ray, ray_target(model, ray, target), order, coupling=coupling,
+                                           suggestions=coupling is not None, **options)
 
     if theta_p is not None:
-        run(theta_p, t_p)
+        options_p = dict(options, max_coupling=max(max_coupling, 1.5 * t_p))
+        ray = model.along(_direction(theta_p, s))
+        results[theta_p] = validity_boundary(ray, ray_target(model, ray, target), order, coupling=t_p, **options_p)
     for th in angles:
         if theta_p is None or abs(float(th) - theta_p) > 1e-12:
             run(float(th))
@@ -446,6 +458,7 @@ def validity_region(
         point=None if p is None else _ro(p),
         point_ray=None if theta_p is None else int(np.argmin(np.abs(ang - theta_p))),
         notes=tuple(notes),
+        model_name=model.name,
     )
 
 

@@ -20,6 +20,9 @@ ENGINE = [
     "ptcheck.maps",
     "ptcheck.modelfile",
     "ptcheck._atomic",
+    "ptcheck.multiseries",
+    "ptcheck.multiexact",
+    "ptcheck.region",
 ]
 
 

@@ -13,6 +13,8 @@ is built from the Okabe–Ito colour-universal-design set (see :mod:`._style`).
   discs, Kato bound, real-axis regimes.
 - :func:`plot_pairs` (+ :func:`mixing_map`): mixing ratios among levels at one
   coupling, flagged pairs, blocks chosen.
+- :func:`plot_region`: nested regions of two couplings where each order meets
+  the tolerance, with the radius of convergence per ray.
 - :func:`plot_formula`: an exported formula above its error curve, valid
   ranges shaded.
 - :func:`save`: slide export (PNG/SVG/PDF, 16:9, legible fonts).
@@ -25,6 +27,7 @@ from .export import FORMATS, SavedFigure, save
 from .formula import FormulaArtists, plot_formula
 from .levels import LevelArtists, plot_levels
 from .pairs import MixingMap, PairArtists, mixing_map, plot_pairs
+from .region import RegionArtists, plot_region
 
 __all__ = [
     "OKABE_ITO",
@@ -38,6 +41,7 @@ __all__ = [
     "LevelArtists",
     "MixingMap",
     "PairArtists",
+    "RegionArtists",
     "SavedFigure",
     "mixing_map",
     "plot_divergence",
@@ -45,6 +49,7 @@ __all__ = [
     "plot_formula",
     "plot_levels",
     "plot_pairs",
+    "plot_region",
     "save",
     "style",
 ]
