@@ -436,10 +436,7 @@ def validity_region(
         notes.append("on some rays the relative error is ill defined (the exact reference passes through zero); use tol=")
     if any(b.status == "exact_in_sector" for b in bs):
         notes.append("on some rays the target is exact within its symmetry sector: no order is judged there")
-    for b in bs:
-        for nt in b.notes:
-            if nt not in notes:
-                notes.append(nt)
+    notes.extend(_ray_notes(bs, dirs))
     return ValidityRegion(
         target=name,
         order=order,
@@ -460,6 +457,22 @@ def validity_region(
         notes=tuple(notes),
         model_name=model.name,
     )
+
+
+def _ray_notes(bs: tuple, dirs: np.ndarray) -> list[str]:
+    """The rays' own notes, each once; a note of some rays only says on how many and gives one of them."""
+    where: dict[str, list[int]] = {}
+    for i, b in enumerate(bs):
+        for nt in b.notes:
+            where.setdefault(nt, []).append(i)
+    out = []
+    for nt, rays in where.items():
+        if len(rays) == len(bs):
+            out.append(nt)
+        else:
+            d = dirs[rays[0]]
+            out.append(f"on {len(rays)} of {len(bs)} rays (e.g. towards ({d[0]:.3g}, {d[1]:.3g})): {nt}")
+    return out
 
 
 def _t_star(b: ValidityBoundary) -> float:
