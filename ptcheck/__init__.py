@@ -27,6 +27,7 @@ from .exact import AvoidedCrossing, ExactSolver, ExactSweep, track
 from .formula import Formula, ValidityRange, formula
 from .model import Model, MultiCouplingError
 from .multiexact import GridSweep, track_grid
+from .multiformula import MultiFormula, multi_formula
 from .multiseries import MultiSeriesResult, multi_series
 from .products import product_model
 from .region import RayConvergence, ValidityRegion, ray_convergence, validity_region
@@ -70,6 +71,7 @@ __all__ = [
     "GridSweep",
     "Model",
     "MultiCouplingError",
+    "MultiFormula",
     "MultiSeriesResult",
     "NearDegeneratePair",
     "NearDegenerateWarning",
@@ -101,6 +103,7 @@ __all__ = [
     "find_blocks",
     "formula",
     "models",
+    "multi_formula",
     "multi_series",
     "near_degenerate_pairs",
     "parse_order",

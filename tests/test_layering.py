@@ -23,6 +23,8 @@ ENGINE = [
     "ptcheck.multiseries",
     "ptcheck.multiexact",
     "ptcheck.region",
+    "ptcheck.multiformula",
+    "ptcheck.region_report",
 ]
 
 
