@@ -25,7 +25,7 @@ coupling — and the vector work is that of the Cauchy sums.
 from __future__ import annotations
 
 from collections.abc import Sequence
-from itertools import combinations_with_replacement
+from itertools import combinations_with_replacement, product
 from typing import Any
 
 import numpy as np
@@ -119,28 +119,23 @@ def rs_multi(
         starts.append(starts[-1] + _count(m, k))
     for k in range(1, order + 1):
         lo, hi = starts[k - 1], starts[k]  # previous degree
-        block = psi[lo:hi]
-        # V_i ψ^β for every β of degree k − 1: one product per coupling and coefficient
-        prods = [_times(v, block) for v in vs]  # each (hi - lo, N)
         a0, a1 = starts[k], starts[k + 1]
+        block = psi[lo:hi]
         w = np.zeros((a1 - a0, nn), dtype=dtype)
-        for j in range(a0, a1):
-            a = idx[j]
-            for i in range(m):
-                if a[i]:
-                    prev = list(a)
-                    prev[i] -= 1
-                    w[j - a0] += prods[i][pos[tuple(prev)] - lo]
+        for i, v in enumerate(vs):
+            # V_i ψ^β for every β of degree k − 1 (one product per coupling and coefficient), added to every
+            # α = β + e_i of degree k
+            dst, src = _predecessors(idx, pos, a0, a1, lo, i)
+            prod = _times(v, block)
+            if dst.size == a1 - a0:
+                w += prod[src]
+            else:
+                w[dst] += prod[src]
         energies[a0:a1] = w[:, n]
         if k > 1:
             # Σ_{0<β<α} E^β ψ^{α−β} for the whole degree: coefficient matrix (α, γ = α − β) times ψ^γ
-            c = np.zeros((a1 - a0, a0), dtype=dtype)
-            for j in range(a0, a1):
-                a = idx[j]
-                for g in _strictly_below(a):
-                    c[j - a0, pos[g]] = energies[pos[tuple(x - y for x, y in zip(a, g))]]
-            w -= c[:, 1:] @ psi[1:a0]
-        psi[a0:a1] = w * r
+            w -= _cauchy_matrix(idx, pos, energies, a0, a1) @ psi[1:a0]
+        np.multiply(w, r, out=psi[a0:a1])
         if not (np.all(np.isfinite(energies[a0:a1])) and np.all(np.isfinite(psi[a0:a1]))):
             raise FloatingPointError(
                 f"multivariate Rayleigh–Schrödinger coefficients overflow float64 at total degree {k}: the series "
@@ -157,16 +152,33 @@ def _count(m: int, k: int) -> int:
 
 
 def _times(v: Any, block: np.ndarray) -> np.ndarray:
-    """``(V @ block.T).T`` for a block of row vectors."""
+    """``V`` applied to each row of ``block``: rows ``V ψ_β``, C-contiguous (b, N)."""
     if sp.issparse(v):
-        return np.asarray((v @ block.T).T)
+        return np.ascontiguousarray((v @ block.T).T)
     return block @ v.T
 
 
-def _strictly_below(a: tuple[int, ...]):
-    """Multi-indices γ with 0 < γ < a componentwise (γ ≠ 0, γ ≠ a)."""
-    total = sum(a)
-    for g in np.ndindex(*[x + 1 for x in a]):
-        s = sum(g)
-        if 0 < s < total:
-            yield tuple(int(x) for x in g)
+def _predecessors(idx: list, pos: dict, a0: int, a1: int, lo: int, i: int) -> tuple[np.ndarray, np.ndarray]:
+    """For the α of one degree (rows a0..a1) with α_i > 0: their row and the row of α − e_i in the previous degree."""
+    dst, src = [], []
+    for j in range(a0, a1):
+        a = idx[j]
+        if a[i]:
+            prev = list(a)
+            prev[i] -= 1
+            dst.append(j - a0)
+            src.append(pos[tuple(prev)] - lo)
+    return np.asarray(dst, dtype=np.intp), np.asarray(src, dtype=np.intp)
+
+
+def _cauchy_matrix(idx: list, pos: dict, energies: np.ndarray, a0: int, a1: int) -> np.ndarray:
+    """``C[α, γ] = E^(α−γ)`` for 0 < γ < α (componentwise), rows α of one degree, columns γ = 1..a0−1."""
+    c = np.zeros((a1 - a0, a0 - 1), dtype=energies.dtype)
+    for j in range(a0, a1):
+        a = idx[j]
+        total = sum(a)
+        for g in product(*[range(x + 1) for x in a]):
+            s = sum(g)
+            if 0 < s < total:
+                c[j - a0, pos[g] - 1] = energies[pos[tuple(x - y for x, y in zip(a, g))]]
+    return c

@@ -60,7 +60,8 @@ MULTI_TREATMENTS = ("standard", "nondegenerate")
 
 
 def _readonly(a: Any) -> np.ndarray:
-    a = np.array(a)
+    """Read-only array; one this module made itself is frozen in place (no copy)."""
+    a = np.asarray(a) if isinstance(a, np.ndarray) and a.flags.owndata and a.base is None else np.array(a)
     a.setflags(write=False)
     return a
 
