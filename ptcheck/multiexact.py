@@ -63,6 +63,9 @@ class GridSweep:
         Exact diagonalisations used in all.
     notes : tuple of str
         Tracking remarks of the rays (each once).
+    keys : tuple
+        The model's labels of the tracked levels (e.g. ``(0, 0)``; None where
+        a level has none): :meth:`energy` accepts them too.
     """
 
     coupling_names: tuple[str, str]
@@ -75,12 +78,15 @@ class GridSweep:
     rays: int
     solves: int
     notes: tuple[str, ...] = ()
+    keys: tuple = ()
 
     def _row(self, level: Any) -> int:
         if isinstance(level, (int, np.integer)) and not isinstance(level, bool) and int(level) in self.levels:
             return self.levels.index(int(level))
         if isinstance(level, str) and level in self.labels:
             return self.labels.index(level)
+        if level is not None and level in self.keys:
+            return self.keys.index(level)
         raise ValueError(f"level {level!r} was not tracked on this grid; tracked levels: {list(self.levels)}")
 
     def energy(self, level: Any) -> np.ndarray:
@@ -229,4 +235,5 @@ def track_grid(
         rays=len(rays),
         solves=int(solves),
         notes=tuple(notes),
+        keys=tuple(model.labels[i] for i in idx),
     )

@@ -362,8 +362,8 @@ def _polynomial(c: np.ndarray, rationals: tuple, zero: np.ndarray, k: int, texs:
     return "".join(tex), "".join(py)
 
 
-def _axis_reach(r: ValidityRegion, angle: float) -> str | None:
-    """Where the ray at ``angle`` stops meeting the tolerance (t*·|d|), or its search limit; None if not searched."""
+def _axis_reach(r: ValidityRegion, angle: float) -> tuple[str, float] | None:
+    """(status, reach) of the ray at ``angle``: reach t*·|d| or the search limit; None if not searched."""
     hit = np.flatnonzero(np.abs(np.asarray(r.angles) - angle) < 1e-12)
     if not hit.size:
         return None
@@ -371,9 +371,18 @@ def _axis_reach(r: ValidityRegion, angle: float) -> str | None:
     b = r.boundaries[i]
     norm = float(np.hypot(*r.directions[i]))
     if b.status == "not_reached":
-        return f"{b.max_coupling * norm:.3g} (search limit)"
-    t = float(r.boundary[i])
-    return "?" if math.isnan(t) else f"{t * norm:.3g}"
+        return b.status, b.max_coupling * norm
+    return b.status, float(r.boundary[i]) * norm
+
+
+def _axis_words(name: str, down: tuple[str, float], up: tuple[str, float]) -> str:
+    if "fails_at_zero" in (down[0], up[0]) or any(st in ("ill_defined", "exact_in_sector") for st, _ in (down, up)):
+        sides = {"fails_at_zero": "fails at once", "ill_defined": "undefined", "exact_in_sector": "exact in its sector"}
+        lo = sides.get(down[0], f"to −{down[1]:.3g}")
+        hi = sides.get(up[0], f"to {up[1]:.3g}")
+        return f"along the {name} axis: {lo} (negative side), {hi} (positive side)"
+    lim = lambda st, x: f"{x:.3g}" + (" (search limit)" if st == "not_reached" else "")  # noqa: E731
+    return f"−{lim(*down)} < {name} < {lim(*up)} on its axis"
 
 
 def _range_sentence(r: ValidityRegion, names: Sequence[str], tex: bool = False) -> str:
@@ -381,23 +390,32 @@ def _range_sentence(r: ValidityRegion, names: Sequence[str], tex: bool = False) 
     words = f"{100 * r.rtol:.3g} %" if r.rtol is not None else f"within {r.tol:.3g}"
     if tex:
         words = f"${100 * r.rtol:.3g}\\,\\%$" if r.rtol is not None else f"within ${_tex_float(r.tol, 3)}$"
-    ok = np.isfinite(r.boundary)
+    t = np.asarray(r.boundary)
+    parts = []
+    ok = np.isfinite(t) & (t > 0)
     if np.any(ok):
-        dist = np.hypot(*np.asarray(r.points)[ok].T)
-        i = int(np.argmin(dist))
-        near = np.asarray(r.points)[ok][i]
-        nearest = f"nearest boundary point ({near[0]:.3g}, {near[1]:.3g})"
-    else:
-        nearest = "no boundary found within the search limit"
-    axes = []
+        pts = np.asarray(r.points)[ok]
+        near = pts[int(np.argmin(np.hypot(*pts.T)))]
+        parts.append(f"nearest boundary point {_pair(near)}")
+    elif not np.any(t == 0):
+        parts.append("no boundary found within the search limit")
+    zero = np.flatnonzero(t == 0)
+    if zero.size:
+        d = r.directions[zero[0]]
+        parts.append(f"fails at any nonzero coupling on {zero.size} of {t.size} rays (e.g. towards {_pair(d)})")
     for ax, (lo, hi) in enumerate(((math.pi, 0.0), (1.5 * math.pi, 0.5 * math.pi))):
         up, down = _axis_reach(r, hi), _axis_reach(r, lo)
         if up is None or down is None:
             continue
-        nm = f"${names[ax]}$" if tex else names[ax]
-        axes.append(f"−{down} < {nm} < {up} on its axis")
-    where = "; ".join([nearest] + axes)
-    return f"valid to {words} inside the region searched ({r.angles.size} rays): {where}"
+        parts.append(_axis_words(f"${names[ax]}$" if tex else names[ax], down, up))
+    return f"valid to {words} inside the region searched ({r.angles.size} rays): " + "; ".join(parts)
+
+
+def _pair(p: np.ndarray) -> str:
+    """A point as text, components below 1e-12 of its length (rounding of cos π/2) shown as 0."""
+    big = float(np.max(np.abs(p))) if p.size else 0.0
+    q = [0.0 if abs(x) <= 1e-12 * big else float(x) for x in p]
+    return "(" + ", ".join(f"{x:.3g}" for x in q) + ")"
 
 
 def _function_name(target: str, is_quantity: bool) -> str:
