@@ -166,3 +166,27 @@ def test_degenerate_level_energy_is_the_rays_degenerate_treatment(rng):
         heff = sum(np.prod(point ** np.asarray(a)) * h for a, h in zip(s.indices, s.effective_hamiltonians[0]))
         assert np.min(np.abs(np.linalg.eigvalsh(heff) - s.energy(point))) < 1e-12
     assert s.energy((0.0, 0.0)) == pytest.approx(1.0)
+
+
+def test_dispersive_shift_on_a_two_coupling_qubit_resonator():
+    # qubit (|g⟩, |e⟩) ⊗ resonator (N photons): H0 = ω_q |e⟩⟨e| + ω_r a†a, V1 = a σ+ + a† σ− (coupling g), V2 = a + a†
+    # (a resonator drive ε).  χ = (E11 − E10 − E01 + E00)/2 = g²/Δ at order g² (Blais et al., Phys. Rev. A 69,
+    # 062320 (2004)); the drive alone displaces the resonator and shifts every level by −ε²/ω_r (completing the
+    # square), so χ has no ε² term.
+    from ptcheck import dispersive_shift
+    from ptcheck.region import validity_region
+
+    nr, wq, wr = 12, 5.0, 6.0
+    a = np.diag(np.sqrt(np.arange(1, nr)), 1)
+    sp_ = np.array([[0.0, 0.0], [1.0, 0.0]])  # σ+ = |e⟩⟨g| in the basis (g, e)
+    h0 = np.kron(np.diag([0.0, wq]), np.eye(nr)) + np.kron(np.eye(2), wr * a.T @ a)
+    v1 = np.kron(sp_, a) + np.kron(sp_.T, a.T)
+    v2 = np.kron(np.eye(2), a + a.T)
+    m = Model(h0, [v1, v2], dims=(2, nr), names=("g", "eps"))
+    chi = dispersive_shift()
+    s = multi_series(m, chi, 4)
+    assert s.energy_coefficients[2, 0] == pytest.approx(1.0 / (wq - wr), rel=1e-12)
+    assert s.energy_coefficients[0, 2] == pytest.approx(0.0, abs=1e-12)
+    assert s.energy_coefficients[0, 0] == pytest.approx(0.0, abs=1e-12)
+    r = validity_region(m, chi, 2, rtol=0.05, directions=4, max_directions=4)
+    assert r.target == "chi" and len(r.status) == 4
