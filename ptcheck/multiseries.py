@@ -39,6 +39,7 @@ from ._multi_numerics import graded_indices, rs_multi
 from .model import Model
 from .quantities import Quantity
 from .series import check_nondegenerate
+from .blocks import block_series
 from .treatment import CheckSettings, expansions
 
 __all__ = [
@@ -55,8 +56,9 @@ __all__ = [
 #: Highest total degree of a multivariate series (C(K + m, m) coefficients).
 MAX_MULTI_ORDER = 60
 #: Treatments :func:`multi_series` accepts: "standard" (degenerate perturbation
-#: theory inside exactly degenerate groups) or "nondegenerate" (scalar series only).
-MULTI_TREATMENTS = ("standard", "nondegenerate")
+#: theory inside exactly degenerate groups), "nondegenerate" (scalar series
+#: only) or "block" (the effective Hamiltonian of a block of levels you name).
+MULTI_TREATMENTS = ("standard", "nondegenerate", "block")
 
 
 def _readonly(a: Any) -> np.ndarray:
@@ -151,10 +153,12 @@ class MultiSeriesResult:
         ``|ψ^α⟩`` (work basis, intermediate normalisation) for a level with a
         scalar series; ``None`` otherwise.
     treatment : str
-        ``"nondegenerate"`` or ``"degenerate"`` (some level of the target is in
-        an exactly degenerate group).
+        ``"nondegenerate"``, ``"degenerate"`` (some level of the target is in
+        an exactly degenerate group) or ``"near-degenerate block"`` (the block
+        asked for).
     groups : tuple of tuple of int
-        The exactly degenerate groups involved (empty for ``"nondegenerate"``).
+        The exactly degenerate groups (or the block) involved (empty for
+        ``"nondegenerate"``).
     effective_hamiltonians : tuple of (P, g, g) ndarray
         Schrieffer–Wolff coefficients ``H^α`` of each group (in the order of
         :attr:`indices`; ``H^0`` holds the unperturbed energies), in the
@@ -175,6 +179,7 @@ class MultiSeriesResult:
     effective_hamiltonians: tuple[np.ndarray, ...] = field(default=(), repr=False)
     _scalar: dict = field(default_factory=dict, repr=False)
     _rays: dict = field(default_factory=dict, repr=False)
+    _block: tuple | None = field(default=None, repr=False)
 
     @property
     def n_couplings(self) -> int:
@@ -229,13 +234,17 @@ class MultiSeriesResult:
         return out.reshape(pts.shape[:-1])
 
     def _ray_expansion(self, n: int, d: np.ndarray) -> Any:
+        """The one-coupling treatment of level n on the ray of d: ``.energy(t, order=k)``."""
         key = (n, d.tobytes())
         e = self._rays.get(key)
         if e is None:
             if len(self._rays) > 256:
                 self._rays.clear()
             ray = self.model.along(d)
-            (e,) = expansions(ray, [ray._ray_level(n)], self.order, settings=CheckSettings())
+            if self._block is not None:
+                e = _BlockLevel(block_series(ray, [ray._ray_level(b) for b in self._block], self.order), ray._ray_level(n))
+            else:
+                (e,) = expansions(ray, [ray._ray_level(n)], self.order, settings=CheckSettings())
             self._rays[key] = e
         return e
 
@@ -327,7 +336,18 @@ class MultiSeriesResult:
         return head + f"<table><tr><th>monomial</th><th>coefficient</th></tr>{rows}</table>"
 
 
-def multi_series(model: Model, target: Any, order: int, *, treatment: str = "standard") -> MultiSeriesResult:
+class _BlockLevel:
+    """One level of a one-coupling block series: ``energy(t, order=k)`` (private)."""
+
+    def __init__(self, series: Any, level: int) -> None:
+        self.series = series
+        self.row = list(series.levels).index(level)
+
+    def energy(self, t: np.ndarray, order: int) -> np.ndarray:
+        return np.asarray(self.series.energies(t, order=order))[self.row]
+
+
+def multi_series(model: Model, target: Any, order: int, *, treatment: str = "standard", block: Any = None) -> MultiSeriesResult:
     """Multivariate perturbation series of a level or quantity to total order ``order``.
 
     Parameters
@@ -338,10 +358,16 @@ def multi_series(model: Model, target: Any, order: int, *, treatment: str = "sta
         Energy rank, label, or a :class:`~ptcheck.quantities.Quantity`.
     order : int
         Highest total degree K (every ``E^α`` with ``|α| <= K``).
-    treatment : {"standard", "nondegenerate"}, default "standard"
+    treatment : {"standard", "nondegenerate", "block"}, default "standard"
         "standard": Rayleigh–Schrödinger for non-degenerate levels, degenerate
         perturbation theory (effective Hamiltonian of the group) inside an
         exactly degenerate group.  "nondegenerate": refuse degenerate levels.
+        "block": the Schrieffer–Wolff effective Hamiltonian of ``block``; each
+        level's energy is its branch along the ray through the point (the
+        one-coupling :func:`~ptcheck.blocks.block_series` of ``model.along(d)``).
+    block : sequence of level keys, optional
+        The levels of the block (``treatment="block"`` only); one symmetry
+        sector, containing every level of the target.
 
     Returns
     -------
@@ -383,7 +409,12 @@ def multi_series(model: Model, target: Any, order: int, *, treatment: str = "sta
     scalar: dict[int, np.ndarray] = {}
     states = None
     groups: list[tuple[int, ...]] = []
+    blk = _check_block(model, block, treatment, weights)
+    if blk is not None:
+        groups.append(blk)
     for n in weights:
+        if blk is not None:
+            continue
         grp = model.degenerate_group_of(n)
         if grp is not None and treatment == "standard":
             if tuple(grp) not in groups:
@@ -413,11 +444,32 @@ def multi_series(model: Model, target: Any, order: int, *, treatment: str = "sta
         coefficients=coeffs,
         state_coefficients=_readonly(states) if states is not None else None,
         model=model,
-        treatment="degenerate" if groups else "nondegenerate",
+        treatment="near-degenerate block" if blk is not None else ("degenerate" if groups else "nondegenerate"),
         groups=tuple(groups),
         effective_hamiltonians=heffs,
         _scalar=scalar,
+        _block=blk,
     )
+
+
+def _check_block(model: Model, block: Any, treatment: str, weights: dict) -> tuple[int, ...] | None:
+    """The block's work indices (sorted), or None without the block treatment; checked at the edge."""
+    if treatment != "block":
+        if block is not None:
+            raise ValueError(f"block= is for treatment='block'; got treatment={treatment!r}")
+        return None
+    if block is None or isinstance(block, (str, bytes)) or not hasattr(block, "__iter__"):
+        raise ValueError(f"treatment='block' needs block=[levels...] (two or more levels of one sector); got {block!r}")
+    levels = tuple(sorted({model.level_index(x) for x in block}))
+    if len(levels) < 2:
+        raise ValueError(f"a block needs at least two distinct levels; got {block!r}")
+    sectors = {model.sector_of(x) for x in levels}
+    if len(sectors) > 1:
+        raise ValueError(f"the block {list(block)!r} spans several symmetry sectors {sorted(sectors)}; V never couples them")
+    missing = [model.label(n) for n in weights if n not in levels]
+    if missing:
+        raise ValueError(f"the block {list(block)!r} must contain every level of the target; missing {missing}")
+    return levels
 
 
 def _sector_mask(model: Model, n: int) -> np.ndarray:

@@ -190,3 +190,27 @@ def test_dispersive_shift_on_a_two_coupling_qubit_resonator():
     assert s.energy_coefficients[0, 0] == pytest.approx(0.0, abs=1e-12)
     r = validity_region(m, chi, 2, rtol=0.05, directions=4, max_directions=4)
     assert r.target == "chi" and len(r.status) == 4
+
+
+def test_block_treatment_is_the_rays_block_series(rng):
+    # a near-degenerate pair {1, 2} (splitting 0.05) treated as a block: the effective Hamiltonian's H^(1,0), H^(0,1)
+    # are the block of V1, V2 (first order of any effective Hamiltonian: P V P), and the energy at a point is the
+    # one-coupling block series of the ray through it
+    from ptcheck.blocks import block_series
+
+    e = np.array([0.0, 1.0, 1.05, 2.3, 3.1])
+    v1, v2 = random_hermitian(rng, 5) * 0.3, random_hermitian(rng, 5) * 0.3
+    m = Model(np.diag(e), [v1, v2], names=("a", "b"))
+    s = multi_series(m, 1, 4, treatment="block", block=[1, 2])
+    assert s.treatment == "near-degenerate block" and s.groups == ((1, 2),)
+    h = dict(zip(s.indices, s.effective_hamiltonians[0]))
+    np.testing.assert_allclose(h[(1, 0)], m.vs[0][1:3, 1:3], atol=1e-12)
+    np.testing.assert_allclose(h[(0, 1)], m.vs[1][1:3, 1:3], atol=1e-12)
+    d = np.array([0.6, -0.8])
+    t = np.array([0.05, 0.2])
+    ref = block_series(m.along(d), [1, 2], 4).energies(t, order=3)[0]
+    np.testing.assert_allclose(s.energy(t[:, None] * d, order=3), ref, rtol=1e-12)
+    with pytest.raises(ValueError, match="must contain every level"):
+        multi_series(m, 0, 2, treatment="block", block=[1, 2])
+    with pytest.raises(ValueError, match="needs block"):
+        multi_series(m, 1, 2, treatment="block")
