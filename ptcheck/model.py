@@ -46,15 +46,23 @@ MAX_COUPLINGS = 8
 
 
 class Model:
-    """A perturbed Hamiltonian ``H(λ) = H0 + λ V``.
+    """A perturbed Hamiltonian ``H(λ) = H0 + λ V``, or ``H0 + Σ_i λ_i V_i`` with several couplings.
 
     Parameters
     ----------
     h0 : (N, N) array_like, scipy.sparse matrix or qutip.Qobj
         Unperturbed Hamiltonian (Hermitian).  Energies are in the user's units;
         every energy ptcheck reports is in the same units (ħ = 1).
-    v : (N, N) array_like, scipy.sparse matrix or qutip.Qobj
-        Perturbation (Hermitian).  The coupling λ is dimensionless.
+    v : (N, N) array_like, scipy.sparse matrix or qutip.Qobj, or a list of them
+        Perturbation (Hermitian).  The coupling λ is dimensionless.  A list
+        (or tuple) of matrices, or an (m, N, N) array, gives a model with m
+        couplings ``H0 + Σ_i λ_i V_i`` (a nested list of numbers is one
+        matrix).  Its sectors come from the union of the couplings' graphs,
+        declared conserved operators must commute with every ``V_i``, and its
+        work basis inside a degenerate group is that of a generic combination
+        of the ``V_i``; functions of one coupling need a direction first
+        (:meth:`along`); :mod:`ptcheck.multiseries`, :mod:`ptcheck.region`
+        and :mod:`ptcheck.multiexact` take it as it is.
     labels : sequence of hashable, length N, optional
         Names of the unperturbed states.  If ``h0`` is diagonal they name its
         basis states in the order given; otherwise they name the eigenstates
@@ -96,6 +104,9 @@ class Model:
         for g = 66 MHz).  Stored only; λ stays dimensionless everywhere.
     coupling_unit : str, optional
         Unit of ``coupling_scale`` (e.g. ``"MHz"``); needs ``coupling_scale``.
+    names : sequence of str, optional
+        Names of the couplings, one per ``V_i`` (e.g. ``("g", "E")``; default
+        ``("λ",)`` for one coupling, ``("λ1", "λ2", ...)`` for several).
 
     Attributes
     ----------
@@ -112,7 +123,17 @@ class Model:
     v : (N, N) ndarray or scipy.sparse.csr_matrix
         The perturbation in the work basis.  Elements between different
         sectors are exactly zero (what the commutation check allowed as
-        round-off is set to zero).
+        round-off is set to zero).  With several couplings, reading it raises
+        :class:`MultiCouplingError` (a function of one coupling was given a
+        model of several: see :meth:`along`).
+    vs : tuple of (N, N) ndarray or csr_matrix
+        Every coupling's perturbation in the work basis (``(v,)`` for one).
+    n_couplings : int
+    coupling_names : tuple of str
+    norms_v : tuple of float
+        Spectral norms ``‖V_i‖``.
+    direction : (m,) ndarray or None
+        For a ray model made by :meth:`along`: the direction ``d``.
     sectors : tuple of Sector
         The symmetry sectors (see :class:`ptcheck.sectors.Sector`).
     level_sectors : (N,) int ndarray, read-only
