@@ -4,6 +4,7 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 import sympy as sy
+from hypothesis import given, settings, strategies as st
 
 from ptcheck import Model, transition_frequency
 from ptcheck.errors import DegenerateLevelError
@@ -214,3 +215,26 @@ def test_block_treatment_is_the_rays_block_series(rng):
         multi_series(m, 0, 2, treatment="block", block=[1, 2])
     with pytest.raises(ValueError, match="needs block"):
         multi_series(m, 1, 2, treatment="block")
+
+
+@settings(max_examples=15, deadline=None)
+@given(seed=st.integers(0, 10_000), shift=st.floats(-50.0, 50.0))
+def test_invariances_swap_sign_and_constant(seed, shift):
+    # what must not change the answer (common practice, no source): swapping the couplings transposes the
+    # coefficients; V1 → −V1 multiplies E^(a,b) by (−1)^a; H0 → H0 + c·1 changes only E^(0,0), by c
+    from hypothesis import assume
+
+    r = np.random.default_rng(seed)
+    e0 = np.sort(r.uniform(0.0, 4.0, 6))
+    assume(np.min(np.diff(e0)) > 0.2)
+    v1, v2 = random_hermitian(r, 6), random_hermitian(r, 6)
+    base = multi_series(Model(np.diag(e0), [v1, v2]), 2, 5).energy_coefficients
+    swapped = multi_series(Model(np.diag(e0), [v2, v1]), 2, 5).energy_coefficients
+    np.testing.assert_allclose(swapped, base.T, rtol=1e-10, atol=1e-10 * np.max(np.abs(base)))
+    flipped = multi_series(Model(np.diag(e0), [-v1, v2]), 2, 5).energy_coefficients
+    sign = (-1.0) ** np.arange(6)[:, None]
+    np.testing.assert_allclose(flipped, sign * base, rtol=1e-10, atol=1e-10 * np.max(np.abs(base)))
+    moved = multi_series(Model(np.diag(e0 + shift), [v1, v2]), 2, 5).energy_coefficients
+    expect = base.copy()
+    expect[0, 0] += shift
+    np.testing.assert_allclose(moved, expect, rtol=1e-9, atol=1e-9 * np.max(np.abs(base[1:])))
