@@ -29,6 +29,7 @@ from .model import Model, MultiCouplingError
 from .multiexact import GridSweep, track_grid
 from .multiformula import MultiFormula, multi_formula
 from .multiseries import MultiSeriesResult, multi_series
+from .photons import PhotonBoundaries, photon_boundaries
 from .products import product_model
 from .region import RayConvergence, ValidityRegion, ray_convergence, validity_region
 from .quantities import (
@@ -76,6 +77,7 @@ __all__ = [
     "NearDegeneratePair",
     "NearDegenerateWarning",
     "Pade",
+    "PhotonBoundaries",
     "PtcheckWarning",
     "Quantity",
     "QuantitySeries",
@@ -107,6 +109,7 @@ __all__ = [
     "multi_series",
     "near_degenerate_pairs",
     "parse_order",
+    "photon_boundaries",
     "product_model",
     "quantity_series",
     "ray_convergence",

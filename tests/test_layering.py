@@ -18,6 +18,8 @@ ENGINE = [
     "ptcheck.models",
     "ptcheck.products",
     "ptcheck.maps",
+    "ptcheck.photons",
+    "ptcheck._format",
     "ptcheck.modelfile",
     "ptcheck._atomic",
     "ptcheck.multiseries",

@@ -8,8 +8,8 @@ from typing import Any
 
 import numpy as np
 
-from ._common import add_caption, caption_text, new_axes, style_axes
-from ._style import EXACT_COLOR, FLAG_COLOR, FONT_SIZES, MARKER_COLOR, order_style, style
+from ._common import add_caption, add_legend, caption_text, new_axes, style_axes
+from ._style import EXACT_COLOR, FLAG_COLOR, MARKER_COLOR, order_style, style
 
 __all__ = ["RegionArtists", "plot_region"]
 
@@ -169,7 +169,7 @@ def plot_region(
         ax.set_ylabel(f"coupling {n2}")
         _limits(ax, items, point)
         style_axes(ax, scale)
-        legend = ax.legend(loc="best", fontsize=FONT_SIZES["legend"] * scale)
+        legend = add_legend(ax, scale)
         if caption is None:
             extra = ["filled: tolerance met on the straight path from the origin",
                      "hollow dots: still met at the search limit"]
