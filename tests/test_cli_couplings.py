@@ -127,3 +127,12 @@ def test_bad_input_is_one_line(files, capsys):
     one.write_text('[model]\nbuiltin = "two_level"\n[check]\ncouplings = [0.1, 0.2]\n')
     assert main(["check", str(one), "--out", str(tmp / "o4")]) == 2
     assert "is for models with several couplings" in capsys.readouterr().err
+
+
+def test_one_coupling_only_flags_are_refused(files, capsys):
+    tmp, toml = files
+    f = toml((0.1, 0.1))
+    assert main(["check", str(f), "--reference", "bounds", "--out", str(tmp / "o5")]) == 2
+    assert "--reference bounds: not available for a model with several couplings" in capsys.readouterr().err
+    assert main(["check", str(f), "--rtol", "0.01", "0.05", "--out", str(tmp / "o6")]) == 2
+    assert "give one tolerance for a model with several couplings" in capsys.readouterr().err
