@@ -32,7 +32,7 @@ if str(HERE) not in sys.path:
 
 from _harness import Row, header, markdown  # noqa: E402
 
-SCRIPTS = ("bench_boundary", "bench_exact", "bench_exceptional", "bench_series", "bench_maps", "bench_widgets")
+SCRIPTS = ("bench_boundary", "bench_exact", "bench_exceptional", "bench_series", "bench_multi", "bench_maps", "bench_widgets")
 
 
 def main(argv: list[str] | None = None) -> int:

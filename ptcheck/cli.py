@@ -106,6 +106,10 @@ model file (TOML; see also `python -c "import ptcheck.modelfile as m; help(m)"`)
   treatment = "standard"
   backend = "auto"
 
+  # two couplings: v = ["v1.npy", "v2.npy"] (or builtin = "polar_molecule"),
+  # coupling_names = ["E", "B"] in [model], and couplings = [0.8, 0.3] in [check]
+  # (or --couplings 0.8 0.3): verdict at that point, boundary on its ray, region map
+
   [[quantity]]                           # derived quantities, any number
   name = "chi"
   expr = "0.5*(1,1) - 0.5*(1,0) - 0.5*(0,1) + 0.5*(0,0)"
@@ -191,6 +195,8 @@ def build_parser() -> argparse.ArgumentParser:
     tg.add_argument("--rtol", type=float, nargs="+", metavar="X",
                     help="relative tolerance (default 0.01: 1 %% of the exact shift); e.g. --rtol 0.01 0.05")
     c.add_argument("--coupling", type=float, metavar="λ", help="the coupling you use (dimensionless); required here or in MODEL")
+    c.add_argument("--couplings", type=float, nargs=2, metavar=("λ1", "λ2"),
+                   help="the point (λ1, λ2) you use, for a model with two couplings (or couplings = [λ1, λ2] in MODEL)")
     c.add_argument("--treatment", choices=TREATMENTS,
                    help="perturbation theory judged (default: standard = the textbook series; degenerate perturbation "
                         "theory inside exactly degenerate groups); block/auto ask for near-degenerate blocks")
@@ -338,6 +344,10 @@ def _cmd_check(a: argparse.Namespace, run: _Run) -> int:
     out = run.out = _prepare_output(given)
     mf = load_model_file(a.model)
     model = mf.model
+    if model.n_couplings > 1:
+        return _cmd_check_couplings(a, out, given, mf)
+    if a.couplings is not None:
+        raise ValueError(f"--couplings is for models with several couplings; {a.model} has one: use --coupling λ")
     levels: list[Any] = [parse_level(x) for x in a.levels] if a.levels else list(mf.levels)
     quantities = [parse_quantity(q) for q in a.quantity] if a.quantity else list(mf.quantities)
     targets = levels + quantities
@@ -373,6 +383,66 @@ def _cmd_check(a: argparse.Namespace, run: _Run) -> int:
     files = _write(report, out, formats=a.format or ("json", "md", "csv"), figures=_figures(a), force=a.force)
     _print_summary(report, files, Path(given))
     return report.exit_status
+
+
+def _cmd_check_couplings(a: argparse.Namespace, out: _Output, given: str, mf: Any) -> int:
+    """``check`` of a model with several couplings: verdict at the point, boundary on its ray, region map."""
+    from .approximants import parse_orders
+    from .modelfile import parse_level, parse_quantity
+    from .region_report import run_region_check, write_region_report
+    from .report import report_fingerprint
+
+    model = mf.model
+    names = ", ".join(model.coupling_names)
+    if a.coupling is not None:
+        raise ValueError(f"{a.model} has {model.n_couplings} couplings ({names}): give the point with --couplings, "
+                         "not --coupling")
+    point = tuple(a.couplings) if a.couplings is not None else mf.couplings
+    if point is None:
+        raise ValueError(f"no coupling point given: the model has couplings ({names}); pass --couplings λ1 λ2 or set "
+                         "couplings = [λ1, λ2] in the [check] table of the model file")
+    levels: list[Any] = [parse_level(x) for x in a.levels] if a.levels else list(mf.levels)
+    quantities = [parse_quantity(q) for q in a.quantity] if a.quantity else list(mf.quantities)
+    orders = parse_orders(_split(a.orders)) if a.orders else (mf.orders or None)
+    if orders is not None and not all(isinstance(o, int) for o in orders):
+        raise ValueError(f"with several couplings the orders are total degrees (integers); got {[str(o) for o in orders]}")
+    if a.formula:
+        raise ValueError("--formula is not available for models with several couplings in the command line; "
+                         "use ptcheck.formula in Python")
+    unsupported = [flag for flag, given_ in (
+        ("--reference bounds", a.reference == "bounds"), ("--bounds-above", a.bounds_above is not None),
+        ("--gap", a.gap is not None), ("--sweep", a.sweep is not None), ("--threshold", a.threshold is not None),
+        (f"--figure-format {a.figure_format}", a.figure_format != "png"),
+    ) if given_]
+    if unsupported:
+        raise ValueError(f"{', '.join(unsupported)}: not available for a model with several couplings (exact reference, "
+                         "region map in PNG)")
+    if a.tol is not None or a.rtol is not None:
+        tol, rtol = _one_tolerance(a.tol, "--tol"), _one_tolerance(a.rtol, "--rtol")
+    else:
+        tol, rtol = mf.tol, mf.rtol
+    conv = {} if a.convergence_order is None else {"convergence_order": a.convergence_order}
+    with _progress_bar("checking") as bar:
+        report = run_region_check(
+            model, (levels + quantities) or None, orders, couplings=point, tol=tol, rtol=rtol,
+            treatment=a.treatment or mf.treatment or DEFAULT_TREATMENT, backend=a.backend or mf.backend or "auto",
+            title=mf.title, source={"model_file": str(a.model), "kind": mf.kind, "builder": mf.builder},
+            progress=bar, **conv,
+        )
+    out.fingerprint = report_fingerprint(report.to_dict())
+    files = write_region_report(report, out.target, formats=a.format or ("json", "md", "csv"),
+                                figures=not a.no_figures, force=a.force)
+    _print_summary(report, files, Path(given))
+    return report.exit_status
+
+
+def _one_tolerance(x: Any, flag: str) -> float | None:
+    """One tolerance of a check with several couplings (each tolerance is a region search per order)."""
+    if x is None or not isinstance(x, (list, tuple)):
+        return x
+    if len(x) != 1:
+        raise ValueError(f"{flag}: give one tolerance for a model with several couplings; got {len(x)} ({x})")
+    return x[0]
 
 
 def _bounds_options(a: argparse.Namespace) -> dict:

@@ -1126,6 +1126,7 @@ def validity_boundary(
     reference: str = "exact",
     gap: str | float = "auto",
     trial_order: int | None = None,
+    suggestions: bool = True,
 ) -> ValidityBoundary:
     """Smallest |λ| along ``direction`` where the error first exceeds the tolerance.
 
@@ -1182,6 +1183,9 @@ def validity_boundary(
     trial_order : int, optional
         ``reference="bounds"`` only: order of the trial states (default
         ``max(12, order + 10)``).
+    suggestions : bool, default True
+        Look for a near-degenerate block that would do better (extra searches);
+        ``False`` skips them (e.g. for the many rays of a validity region).
 
     Returns
     -------
@@ -1231,7 +1235,7 @@ def validity_boundary(
         opts = bounds_options(gap, trial_order, spec)
         return _certified_boundary(model, target, spec, settings, _Tolerance(thr, relative), direction, opts)
     solver = ExactSolver(model, backend=settings.backend, n_levels_hint=len(target.weights))
-    result = _boundary(model, target, spec, settings, _Tolerance(thr, relative), direction, solver)
+    result = _boundary(model, target, spec, settings, _Tolerance(thr, relative), direction, solver, bool(suggestions))
     return replace(result, exact_solves=solver.solves)
 
 
@@ -1308,7 +1312,8 @@ def _certified_boundary(
     )
 
 
-def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, tol: _Tolerance, direction: int, solver: ExactSolver) -> ValidityBoundary:
+def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, tol: _Tolerance, direction: int, solver: ExactSolver,
+              suggestions: bool = True) -> ValidityBoundary:
     """The boundary of the treatment asked for, with suggestions beside it."""
     s_nat = _search_scale(model, target)
     s_max = s.max_coupling if s.max_coupling is not None else (100.0 * s_nat if np.isfinite(s_nat) else 1e6)
@@ -1332,6 +1337,8 @@ def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, 
             guess = s_nat if np.isfinite(s_nat) else 1.0
         s = s.replace(coupling=guess)
     result = _boundary_search(model, target, spec, s, tol, direction, solver, s_max, s_nat)
+    if not suggestions:
+        return result
     sugg = _boundary_suggestions(model, target, spec, s, tol, direction, solver, s_max, s_nat, result)
     if sugg:
         result = replace(result, suggestions=tuple(sugg), notes=result.notes + tuple(g.text for g in sugg))

@@ -22,6 +22,11 @@ ENGINE = [
     "ptcheck._format",
     "ptcheck.modelfile",
     "ptcheck._atomic",
+    "ptcheck.multiseries",
+    "ptcheck.multiexact",
+    "ptcheck.region",
+    "ptcheck.multiformula",
+    "ptcheck.region_report",
 ]
 
 

@@ -15,6 +15,8 @@ is built from the Okabe–Ito colour-universal-design set (see :mod:`._style`).
   discs, Kato bound, real-axis regimes.
 - :func:`plot_pairs` (+ :func:`mixing_map`): mixing ratios among levels at one
   coupling, flagged pairs, blocks chosen.
+- :func:`plot_region`: nested regions of two couplings where each order meets
+  the tolerance, with the radius of convergence per ray.
 - :func:`plot_formula`: an exported formula above its error curve, valid
   ranges shaded.
 - :func:`plot_pairs` (+ :func:`mixing_map`, :func:`update_pairs`): level
@@ -35,6 +37,7 @@ from .formula import FormulaArtists, plot_formula
 from .levels import LevelArtists, plot_levels
 from .pairs import MatrixArtists, MixingMap, PairArtists, mixing_map, plot_mixing_matrix, plot_pairs, update_pairs
 from .photons import PhotonArtists, plot_photon_boundaries
+from .region import RegionArtists, plot_region
 
 __all__ = [
     "FORMATS",
@@ -52,6 +55,7 @@ __all__ = [
     "MixingMap",
     "PairArtists",
     "PhotonArtists",
+    "RegionArtists",
     "SavedFigure",
     "mixing_map",
     "order_color",
@@ -64,6 +68,7 @@ __all__ = [
     "plot_mixing_matrix",
     "plot_pairs",
     "plot_photon_boundaries",
+    "plot_region",
     "save",
     "style",
     "update_pairs",
