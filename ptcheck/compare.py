@@ -1060,7 +1060,8 @@ class _ErrorFunction:
             return _AMBIGUOUS_ERROR
         err = abs(float(self.pert_shift(np.array([s]))[0]) - ex)
         if self.relative:
-            err = err / abs(ref_val) if ref_val != 0 else np.inf
+            # a zero reference: undefined relative error, a failure -- unless the order reproduces it exactly
+            err = err / abs(ref_val) if ref_val != 0 else (0.0 if err == 0.0 else np.inf)
         err = min(err, _AMBIGUOUS_ERROR)
         self.seen[s] = (err, ref_val)
         return err

@@ -63,6 +63,12 @@ DEFAULT_MAX_T = 10.0
 _MIN_ANGLE = 1e-3
 
 
+
+def _unit(c: Any) -> Any:
+    """cos/sin of an angle with the round-off of exact axes removed (cos 90° is 0, not 6e-17): a ray along an
+    axis must not pick up a 1e-17 share of the other coupling."""
+    return np.where(np.abs(c) < 1e-12, 0.0, c) if isinstance(c, np.ndarray) else (0.0 if abs(c) < 1e-12 else c)
+
 def _ro(a: Any, dtype: Any = float) -> np.ndarray:
     a = np.array(a, dtype=dtype)
     a.setflags(write=False)
@@ -290,7 +296,7 @@ def _needs_split(a: ValidityBoundary, b: ValidityBoundary, rtol: float) -> bool:
 
 
 def _direction(theta: float, s: np.ndarray) -> np.ndarray:
-    return np.array([s[0] * math.cos(theta), s[1] * math.sin(theta)])
+    return np.array([s[0] * _unit(math.cos(theta)), s[1] * _unit(math.sin(theta))])
 
 
 def validity_region(
@@ -421,7 +427,7 @@ def validity_region(
             run(float(th))
     ang = np.array(sorted(results))
     bs = tuple(results[a] for a in ang)
-    dirs = np.stack([s[0] * np.cos(ang), s[1] * np.sin(ang)], axis=1)
+    dirs = np.stack([s[0] * _unit(np.cos(ang)), s[1] * _unit(np.sin(ang))], axis=1)
     t = np.array([_t_star(b) for b in bs])
     with np.errstate(invalid="ignore"):
         pts = t[:, None] * dirs
@@ -581,7 +587,7 @@ def ray_convergence(
     order = val.check_order(order, n=model.n)
     s = _scales(model, target, scales)
     angles, _ = _angles_of(directions, s)
-    dirs = np.stack([s[0] * np.cos(angles), s[1] * np.sin(angles)], axis=1)
+    dirs = np.stack([s[0] * _unit(np.cos(angles)), s[1] * _unit(np.sin(angles))], axis=1)
     res = []
     for d in dirs:
         ray = model.along(d)

@@ -129,3 +129,17 @@ def test_radius_per_ray_two_level_closed_form():
         ref = sorted([0.5 * delta * (d[1] + 1j * d[0]), 0.5 * delta * (d[1] - 1j * d[0])], key=lambda z: -z.imag)
         np.testing.assert_allclose(np.sort_complex(eps), np.sort_complex(np.array(ref)), atol=1e-8)
     np.testing.assert_allclose(np.hypot(*rc.points.T), delta / 2, rtol=1e-6)
+
+
+def test_a_ray_along_an_axis_has_no_share_of_the_other_coupling():
+    # level 0 is coupled only by V1; along the V2 axis its exact energy stays E0 (eigvalsh below), so the ray at
+    # θ = 90° must meet a relative tolerance everywhere -- a 6e-17 share of V1 (cos 90° in floating point) would
+    # make the relative error 0/0 and fail at once (common practice, no source)
+    h0 = np.diag([0.0, 1.0, 2.5])
+    v1 = np.array([[0, .3, 0], [.3, 0, .2], [0, .2, 0]])
+    v2 = np.diag([0.0, 0.2, -0.1]) + np.array([[0, 0, 0], [0, 0, .1], [0, .1, 0]])
+    assert all(np.min(np.abs(np.linalg.eigvalsh(h0 + x * v2))) == 0.0 for x in (0.5, 5.0))
+    m = Model(h0, [v1, v2], names=("g", "E"))
+    r = validity_region(m, 0, 2, rtol=0.01, directions=[0.0, math.pi / 2], max_directions=2)
+    (i,) = np.flatnonzero(np.isclose(r.angles, math.pi / 2))
+    assert r.directions[i, 0] == 0.0 and r.status[i] == "not_reached"

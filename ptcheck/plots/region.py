@@ -13,8 +13,25 @@ from ._style import EXACT_COLOR, FLAG_COLOR, MARKER_COLOR, order_style, style
 
 __all__ = ["RegionArtists", "plot_region"]
 
-#: Opacity of the filled region of one order (the nested fills add up).
+#: Strength of the light tint of an order's colour that fills its region.  The tints are opaque and the
+#: larger regions are drawn underneath, so nested regions never mix into a brown-grey.
 FILL_ALPHA = 0.16
+
+
+def _tint(color: str, strength: float = FILL_ALPHA) -> tuple[float, float, float]:
+    """``color`` mixed with white: an opaque light tint."""
+    from matplotlib.colors import to_rgb
+
+    r, g, b = to_rgb(color)
+    return (1 - strength * (1 - r), 1 - strength * (1 - g), 1 - strength * (1 - b))
+
+
+def _area(pts: np.ndarray) -> float:
+    """Area of a polygon (shoelace formula); 0 for fewer than three vertices."""
+    if pts.shape[0] < 3:
+        return 0.0
+    x, y = pts[:, 0], pts[:, 1]
+    return float(0.5 * abs(np.dot(x, np.roll(y, 1)) - np.dot(y, np.roll(x, 1))))
 
 
 @dataclass(frozen=True)
@@ -126,12 +143,15 @@ def plot_region(
     fills, outlines, opens = [], [], []
     from matplotlib.patches import Polygon
 
+    areas = [_area(_vertices(r)) for r in items]
+    depth = {i: k for k, i in enumerate(sorted(range(len(items)), key=lambda i: -areas[i]))}  # largest underneath
     with style(scale):
-        for r in items:
+        for i, r in enumerate(items):
             st = order_style(r.order)
             pts = _vertices(r)
             if pts.shape[0] >= 3:
-                fill = Polygon(pts, closed=True, facecolor=st["color"], alpha=FILL_ALPHA, edgecolor="none", zorder=1)
+                fill = Polygon(pts, closed=True, facecolor=_tint(st["color"]), edgecolor="none",
+                               zorder=1 + 0.01 * depth[i])
                 ax.add_patch(fill)
             else:
                 fill = None
