@@ -42,7 +42,7 @@ from .model import DENSE_LIMIT, Model
 
 __all__ = [
     "make_backend", "BACKEND_CLASSES", "DenseBackend", "SparseBackend", "QutipBackend", "ProbeBasis",
-    "davidson_lowest", "inner", "combine",
+    "davidson_lowest", "davidson_rows", "inner", "combine",
 ]
 
 #: Below this basis size the sparse backend hands requests to LAPACK (a dense
@@ -317,9 +317,18 @@ class ProbeBasis:
     def __init__(self, rows: np.ndarray, h0_rows: np.ndarray, v_rows: np.ndarray, h0_proj: np.ndarray, v_proj: np.ndarray) -> None:
         self.rows, self.h0_rows, self.v_rows = rows, h0_rows, v_rows
         self.h0_proj, self.v_proj = h0_proj, v_proj
+        self._images = np.empty_like(h0_rows)  # reused: a fresh (b, N) array costs page faults each probe
 
     def at(self, coupling: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        return self.rows, self.h0_rows + coupling * self.v_rows, self.h0_proj + coupling * self.v_proj
+        """Rows, their images under H(λ) (a buffer overwritten by the next call) and the projected matrix."""
+        np.multiply(self.v_rows, coupling, out=self._images)
+        self._images += self.h0_rows
+        return self.rows, self._images, self.h0_proj + coupling * self.v_proj
+
+
+def davidson_rows(k: int, fixed: int = 0) -> int:
+    """Largest search space of :func:`davidson_lowest` for k wanted pairs and ``fixed`` subspace rows."""
+    return max(20, 4 * (k + 1), fixed + 2 * (k + 1) + 4)
 
 
 def davidson_lowest(
@@ -332,6 +341,7 @@ def davidson_lowest(
     rng: np.random.Generator | None,
     max_matvecs: int | None = None,
     subspace: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+    workspace: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, np.ndarray] | None:
     """The k lowest eigenpairs of a Hermitian ``h`` by block Davidson, or None.
 
@@ -368,6 +378,10 @@ def davidson_lowest(
         Orthonormal rows, their images under ``h`` and the projected matrix,
         put in the search space before ``start`` at no product cost (e.g. the
         perturbative corrections of the tracked level: :class:`ProbeBasis`).
+    workspace : two (M, N) ndarrays, optional
+        Scratch rows for the search space and its images, reused from call to
+        call (used when M >= :func:`davidson_rows` and the dtype fits; a fresh
+        pair of arrays otherwise).
 
     Returns
     -------
@@ -376,10 +390,13 @@ def davidson_lowest(
     n = diag.size
     dtype = np.result_type(start.dtype, getattr(h, "dtype", np.float64), np.float64)
     fixed = 0 if subspace is None else subspace[0].shape[0]
-    max_dim = max(20, 4 * (k + 1), fixed + 2 * (k + 1) + 4)
+    max_dim = davidson_rows(k, fixed)
     max_matvecs = max_matvecs if max_matvecs is not None else 40 * k + 160
-    basis = np.empty((max_dim, n), dtype=dtype)  # orthonormal rows q_j
-    hbasis = np.empty((max_dim, n), dtype=dtype)  # rows (h q_j)^T
+    if workspace is not None and workspace[0].shape[0] >= max_dim and workspace[0].dtype == dtype:
+        basis, hbasis = workspace  # rows q_j; rows (h q_j)^T
+    else:
+        basis = np.empty((max_dim, n), dtype=dtype)  # orthonormal rows q_j
+        hbasis = np.empty((max_dim, n), dtype=dtype)  # rows (h q_j)^T
     proj = np.zeros((max_dim, max_dim), dtype=dtype)  # q_i^H h q_j
     j = 0
     if subspace is not None:
@@ -482,6 +499,7 @@ class SparseBackend:
         self._last_guards: np.ndarray | None = None  # guard vectors of the previous solve
         self._history: list[tuple[float, np.ndarray]] = []  # (coupling, converged block) of recent solves
         self.fallbacks = 0
+        self._work: tuple[np.ndarray, np.ndarray] | None = None  # probe scratch rows, reused
 
     # ---------------------------------------------------------------- helpers
     @property
@@ -584,7 +602,24 @@ class SparseBackend:
         diag = self.e0 + coupling * self._vdiag
         h = _DiagonalPlus(self.v, coupling, self.e0)
         sub = None if basis is None else basis.at(coupling)
-        return davidson_lowest(h, diag, k, np.asarray(start), tols=tols, rng=None, subspace=sub)
+        start = np.asarray(start)
+        dtype = np.result_type(start.dtype, self.v.dtype, np.float64)
+        rows = davidson_rows(k, 0 if sub is None else sub[0].shape[0])
+        return davidson_lowest(h, diag, k, start, tols=tols, rng=None, subspace=sub, workspace=self._workspace(rows, dtype))
+
+    #: largest scratch (bytes) the probe solver keeps between calls; above it each probe allocates its own
+    PROBE_WORKSPACE_BYTES = 64 * 2**20
+
+    def _workspace(self, rows: int, dtype: Any) -> tuple[np.ndarray, np.ndarray] | None:
+        """Scratch rows kept between probes (fresh large arrays cost page faults at every call)."""
+        n = self.model.n
+        w = self._work
+        if w is not None and w[0].shape[0] >= rows and w[0].dtype == dtype:
+            return w
+        if 2 * rows * n * np.dtype(dtype).itemsize > self.PROBE_WORKSPACE_BYTES:
+            return None
+        self._work = (np.empty((rows, n), dtype=dtype), np.empty((rows, n), dtype=dtype))
+        return self._work
 
     # ---------------------------------------------------------------- ARPACK
     def _start_vector(self, start: Any) -> np.ndarray | None:
