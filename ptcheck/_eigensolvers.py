@@ -246,19 +246,38 @@ def combine(a: np.ndarray, c: np.ndarray) -> np.ndarray:
     return out
 
 
-def svqb(x: np.ndarray, drop: float = 1e-10) -> np.ndarray:
-    """Orthonormal basis of the columns of ``x`` (dependent directions dropped)."""
+def _svqb_pass(x: np.ndarray, drop: float) -> tuple[np.ndarray, float]:
+    """One SVQB pass: (basis, squared condition number of the column-scaled block among the kept directions)."""
     g = inner(x, x)
     d = np.sqrt(np.abs(np.real(np.diag(g))))
     d[d == 0] = 1.0
     w, u = np.linalg.eigh(g / d[:, None] / d[None, :])
-    keep = w > drop * max(float(w[-1]), 1e-300)
-    return combine(x, u[:, keep] / d[:, None] / np.sqrt(w[keep]))
+    top = max(float(w[-1]), 1e-300)
+    keep = w > drop * top
+    spread = top / float(w[keep][0]) if np.any(keep) else 1.0
+    return combine(x, u[:, keep] / d[:, None] / np.sqrt(w[keep])), spread
 
 
-def _rayleigh_ritz(op: _Operator, q: np.ndarray, passes: int = 2) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    for _ in range(passes):
-        q = svqb(q)
+def svqb(x: np.ndarray, drop: float = 1e-10) -> np.ndarray:
+    """Orthonormal basis of the columns of ``x`` (dependent directions dropped).
+
+    One pass leaves the columns orthonormal to about machine epsilon x the
+    squared condition number of the column-scaled block (Stathopoulos & Wu
+    2002); a second pass runs when that exceeds :data:`SVQB_SECOND_PASS`.
+    """
+    q, spread = _svqb_pass(x, drop)
+    if spread > SVQB_SECOND_PASS:
+        q, _ = _svqb_pass(q, drop)
+    return q
+
+
+#: squared condition number above which :func:`svqb` repeats its pass (loss of orthogonality
+#: of one pass: about 1e-16 x this)
+SVQB_SECOND_PASS = 1e4
+
+
+def _rayleigh_ritz(op: _Operator, q: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    q = svqb(q)
     hq = op.apply(q)
     t = inner(q, hq)
     th, u = np.linalg.eigh((t + t.conj().T) * 0.5)
@@ -568,7 +587,7 @@ class SparseBackend:
         it enters every later probe's search space at no product cost, since
         ``H(λ) Q = H0 Q + λ V Q``.
         """
-        rows = np.ascontiguousarray(svqb(svqb(np.asarray(vectors))).T)  # (b, N) orthonormal rows (twice: the corrections are far from orthogonal)
+        rows = np.ascontiguousarray(svqb(np.asarray(vectors)).T)  # (b, N) orthonormal rows
         h0_rows = rows * self.e0[None, :]
         v_rows = np.ascontiguousarray((self.v @ rows.T).T)
         return ProbeBasis(rows, h0_rows, v_rows, rows.conj() @ h0_rows.T, rows.conj() @ v_rows.T)
@@ -686,6 +705,28 @@ class SparseBackend:
                 out += weight * combine(x, u @ vh)
         return out
 
+    def _filter_degree(self, th: np.ndarray, k: int, upper: float, worst: float, tol: float) -> tuple[int, float] | None:
+        """(degree, gain per degree) of the filter that brings residuals ``worst`` below ``tol``.
+
+        ``th`` are the block's Ritz values (ascending; ``th[-2]`` is the cut above which
+        the filter damps).  None when the wanted values are not below the cut.
+        """
+        cut = float(th[-2])
+        e = (upper - cut) / 2.0
+        c = (upper + cut) / 2.0
+        y_want = abs((th[k - 1] - c) / e)
+        y_low = abs((th[0] - c) / e)
+        if not (y_want > 1.0 and upper > cut):
+            return None
+        gain = float(np.arccosh(y_want))
+        need = np.arccosh(max(3.0 * worst / tol, 1.0 + 1e-12))
+        # keep the block well conditioned: the lowest Ritz vector leaks into the others
+        # at about residual / gap, and the filter enlarges that leak by the ratio of
+        # amplifications; allow at most 1e7 after the leak
+        leak = min(1.0, worst / max(float(th[1] - th[0]), 1e-300))
+        cap = max(4, int(np.arccosh(1e7 / max(leak, 1e-6)) / np.arccosh(y_low)))
+        return int(np.clip(np.ceil(need / (gain * self._efficiency)), 4, min(80, cap))), gain
+
     def _chebyshev(self, coupling: float, k: int, start: np.ndarray, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray] | None:
         n = self.model.n
         op = _Operator(self.e0, self._pattern, coupling)
@@ -716,36 +757,29 @@ class SparseBackend:
         tol = self.rtol * scale
         upper = float(np.max(self.e0)) + abs(coupling) * self.model.norm_v
         upper += 1e-6 * scale  # strict upper bound of the spectrum (Weyl)
-        th, x, hx = _rayleigh_ritz(op, block, passes=1)
+        th, x, hx = _rayleigh_ritz(op, block)
+        res = None
         for _ in range(self.MAX_ROUNDS):
             if th.size < k + 2:
                 return None
-            res = _column_norms(hx[:, :k] - x[:, :k] * th[:k])
+            if res is None:
+                res = _column_norms(hx[:, :k] - x[:, :k] * th[:k])
             worst = float(np.max(res))
             if worst <= tol:
                 self._last_guards = x[:, k:m].copy()
                 self._history.append((coupling, x[:, :k].copy()))
                 del self._history[: -self.HISTORY]
                 return th[:k].copy(), x[:, :k].copy()
-            cut = float(th[-2])
-            e = (upper - cut) / 2.0
-            c = (upper + cut) / 2.0
-            y_want = abs((th[k - 1] - c) / e)
-            y_low = abs((th[0] - c) / e)
-            if not (y_want > 1.0 and upper > cut):
+            step = self._filter_degree(th, k, upper, worst, tol)
+            if step is None:
                 return None
-            gain = np.arccosh(y_want)
-            need = np.arccosh(max(3.0 * worst / tol, 1.0 + 1e-12))
-            # keep the block well conditioned: the lowest Ritz vector leaks into the others
-            # at about residual / gap, and the filter enlarges that leak by the ratio of
-            # amplifications; allow at most 1e7 after the leak
-            leak = min(1.0, worst / max(float(th[1] - th[0]), 1e-300))
-            cap = max(4, int(np.arccosh(1e7 / max(leak, 1e-6)) / np.arccosh(y_low)))
-            degree = int(np.clip(np.ceil(need / (gain * self._efficiency)), 4, min(80, cap)))
-            y = op.filter(x, degree, float(th[0]), cut, upper)
+            degree, gain = step
+            y = op.filter(x, degree, float(th[0]), float(th[-2]), upper)
             th, x, hx = _rayleigh_ritz(op, y)
-            if th.size:
-                new_worst = float(np.max(_column_norms(hx[:, :k] - x[:, :k] * th[:k]))) if th.size >= k else worst
+            res = None
+            if th.size >= k:
+                res = _column_norms(hx[:, :k] - x[:, :k] * th[:k])  # also the next round's convergence test
+                new_worst = float(np.max(res))
                 if new_worst > 0 and worst > new_worst:
                     achieved = np.log(worst / new_worst) / max(np.log(np.cosh(degree * gain)), 1e-12)
                     self._efficiency = float(np.clip(0.7 * self._efficiency + 0.3 * achieved, 0.3, 1.5))
