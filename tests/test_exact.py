@@ -434,7 +434,7 @@ def test_levels_of_different_sectors_are_solved_apart():
 
 
 # ----------------------------------------------------------------------------- probe path
-def two_sector_model(n: int, key: int = 5) -> tuple[Model, np.ndarray, np.ndarray]:
+def two_block_random_model(n: int, key: int = 5) -> tuple[Model, np.ndarray, np.ndarray, np.ndarray]:
     """Invented random model of two uncoupled blocks of n states (two sectors, both iterative-sized).
 
     Returns the model, the dense user-basis matrices H0 and V (the referee diagonalises their blocks)
@@ -460,7 +460,7 @@ def test_probe_path_equals_tracking_and_dense_eigvalsh_per_sector():
     # model and couplings avoid anticrossings narrower than ~1e-5: there the tracked path itself
     # depends on where it is sampled.)
     n = 110  # above SMALL_DENSE: the sparse backend iterates
-    m, h0, v, work = two_sector_model(n)
+    m, h0, v, work = two_block_random_model(n)
     picks = [(b, r) for b in (0, 1) for r in (0, 3, 10)]  # (block, energy rank inside the block)
     levels = [int(work[b * n + r]) for b, r in picks]
     lams = [0.3, 0.1, 0.2, 0.25, 0.05, -0.03]  # bisection-like order, both rays
