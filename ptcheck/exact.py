@@ -44,8 +44,12 @@ on that ray.
 Avoided crossings met on the way are reported for each tracked level: interior
 local minima of the gap to its nearest neighbouring eigenvalue along the path
 (sampled couplings plus refinement points) whose neighbour keeps its identity
-through the minimum, refined by successive parabolic interpolation of the
-squared gap with a few extra exact solves.
+through the minimum.  A *narrow* minimum (the parabola through the three
+sampled squared gaps dips below half the smallest sample) is refined by
+successive parabolic interpolation of the squared gap with a few extra exact
+solves; a broad one, whose samples already bracket the bottom of the well, is
+placed at that parabola's vertex with no solve (the squared gap of an isolated
+two-level anticrossing is exactly quadratic in λ).
 
 Backends (``BACKENDS``) and the ``'auto'`` rule (:func:`auto_backend`):
 
@@ -1041,11 +1045,22 @@ class _SectorSolver:
         )
 
     # ------------------------------------------------------------------ avoided crossings
+    #: a sampled gap minimum is *narrow* (refined with extra solves) when the parabola through the
+    #: three sampled squared gaps puts the minimum below this fraction of the smallest sampled
+    #: squared gap; otherwise the samples already bracket the bottom of the well and the
+    #: parabola's vertex is reported without a solve
+    NARROW_GAP2 = 0.5
+
     def _crossings(self, path: list[PathPoint], levels: tuple[int, ...]) -> list[AvoidedCrossing]:
         out = []
+        seen: set[tuple[frozenset, int]] = set()
         scale = self._scale(abs(path[-1].coupling))
         for t in levels:
             for gm in gap_minima(path, t, scale):
+                key = (frozenset((gm.level, gm.partner_id)), gm.index)
+                if gm.partner_id >= 0 and key in seen:
+                    continue  # the same minimum seen from the partner (both tracked): refined once
+                seen.add(key)
                 out.append(self._refine_crossing(path, gm))
         return out
 
@@ -1078,8 +1093,12 @@ class _SectorSolver:
             gaps.append(float((q.energies[c + gm.side] - q.energies[c]) ** 2))
         if xs[0] > xs[2]:
             xs, gaps = xs[::-1], gaps[::-1]
-        xtol = 1e-6 * max(abs(xs[2] - xs[0]), 1e-300) + 1e-12
-        lam_min, g2, _ = parabolic_minimum(gap2, xs, tuple(gaps), max_evals=4, xtol=xtol)
+        vertex = _parabola_vertex(xs, gaps)
+        if vertex is not None and vertex[1] >= self.NARROW_GAP2 * min(gaps):
+            lam_min, g2 = vertex  # broad: the samples resolve the minimum (no solve)
+        else:
+            xtol = 1e-6 * max(abs(xs[2] - xs[0]), 1e-300) + 1e-12
+            lam_min, g2, _ = parabolic_minimum(gap2, xs, tuple(gaps), max_evals=4, xtol=xtol)
         partner, plabel = self._partner(gm.partner_id, p.vectors[:, cp], exclude=set(int(i) for i in p.ids if i >= 0))
         a, b = (gm.level, partner), (self.model.label(gm.level), plabel)
         if gm.partner_id >= 0 and partner < gm.level:  # both identities known: lower index first
@@ -1095,6 +1114,23 @@ class _SectorSolver:
             weight[np.fromiter(exclude, dtype=int)] = -1.0
         guess = int(np.argmax(weight))
         return guess, self.model.label(guess) + "?"
+
+
+def _parabola_vertex(xs: tuple, fs: list) -> tuple[float, float] | None:
+    """(x, f) of the minimum of the parabola through three points, if it opens upward and lies between them."""
+    (x0, x1, x2), (f0, f1, f2) = xs, fs
+    if not x0 < x1 < x2:
+        return None
+    curv = (f2 - f1) / (x2 - x1) - (f1 - f0) / (x1 - x0)
+    if curv <= 0:
+        return None
+    den = (x1 - x0) * (f1 - f2) - (x1 - x2) * (f1 - f0)
+    num = (x1 - x0) ** 2 * (f1 - f2) - (x1 - x2) ** 2 * (f1 - f0)
+    x = x1 - 0.5 * num / den
+    if not x0 <= x <= x2:
+        return None
+    f = float(np.polyval(np.polyfit([x0, x1, x2], [f0, f1, f2], 2), x))
+    return float(x), max(f, 0.0)
 
 
 def _is_tracking_problem(note: str) -> bool:
@@ -1345,7 +1381,8 @@ class ExactSolver:
         nl, nc, n = len(lv), lam.size, model.n
         absolute = np.empty((nl, nc))
         shifts = np.empty((nl, nc))
-        states = np.zeros((nl, nc, n), dtype=model.dtype) if keep_states else None
+        whole = self._sizes.size == 1 and n > 1  # one sector: its states are the model's, no copy
+        states = np.zeros((nl, nc, n), dtype=model.dtype) if keep_states and not whole else None
         by_sector: dict[int, list[tuple[int, int]]] = {}
         for row, t in enumerate(lv):
             s, k = self._where(t)
@@ -1377,6 +1414,8 @@ class ExactSolver:
                 shifts[row] = sw.shifts[j]
                 if states is not None:
                     states[row][:, where] = sw.states[j]
+            if whole and keep_states:
+                states = sw.states  # rows in the order asked for (one sector: items follow lv)
             for ac in sw.avoided_crossings:
                 crossings.append(
                     AvoidedCrossing(

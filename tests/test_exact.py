@@ -510,3 +510,20 @@ def test_probes_on_a_chain_with_site_fields_equal_dense_eigvalsh():
     assert solver.solves > before + 1  # refused probe, then the tracked path
     assert e == pytest.approx(sweep.energy(2)[-1], abs=1e-9)
     assert_allclose(psi, sweep.state(2)[-1], atol=1e-6)
+
+
+def test_broad_avoided_crossing_is_placed_from_the_samples_without_extra_solves():
+    # Squared gap of the pair of crossing_model: 4 [((λ − 0.2)/2)² + w²λ²], exactly quadratic in λ
+    # (closed form of the two-level eigenvalues, Cohen-Tannoudji et al., Complement B_IV), so the
+    # parabola through three samples is exact: minimum at λ* = 0.2 / (1 + 4w²).
+    w = 0.1
+    m = crossing_model(w, 200)
+    lam = np.linspace(0.0, 0.6, 13)
+    sw = track(m, [1, 2], lam, backend="sparse")
+    (ac,) = sw.avoided_crossings
+    star = 0.2 / (1 + 4 * w**2)
+    assert ac.levels == (1, 2)
+    assert ac.coupling == pytest.approx(star, abs=1e-9)
+    assert ac.min_gap == pytest.approx(2 * np.sqrt(((star - 0.2) / 2) ** 2 + (w * star) ** 2), abs=1e-9)
+    plain = track(m, [1, 2], lam, backend="sparse", find_crossings=False)
+    assert sw.solves == plain.solves  # nothing spent on locating the crossing
