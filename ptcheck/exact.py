@@ -348,6 +348,7 @@ class _SectorSolver:
         self._anon = -1
         self.notes: list[str] = []
         self._ladder_scale: float | None = None
+        self._isolation_cache: dict[frozenset, float] = {}
         self._probe_bases: dict[int, tuple[Any, Any] | None] = {}  # level -> (RS series, ProbeBasis) or None
         self._probes: dict[tuple[int, int], list[tuple[float, float, np.ndarray]]] = {}  # (ray, level) -> (|λ|, E, window)
         self._probe_failed: dict[tuple[int, int], float] = {}  # (ray, level) -> smallest |λ| that failed
@@ -566,9 +567,13 @@ class _SectorSolver:
                 continue
             # energy-order swaps with coupled states: a skipped avoided crossing
             ea_t, eb_t = a.energies[r], w[c]
-            for c2 in range(kb):
-                if c2 == c:
-                    continue
+            # matched states first, vectorised: only those whose order relative to t flipped go on
+            db_all = eb_t - w
+            da_all = ea_t - a.energies[np.maximum(match, 0)]
+            flipped = (da_all * db_all < 0) & (np.abs(da_all) > ctol) & (np.abs(db_all) > ctol)
+            suspects = np.flatnonzero((flipped | (match < 0)) & (np.arange(kb) != c))
+            for c2 in suspects:
+                c2 = int(c2)
                 r2 = match[c2]
                 if r2 >= 0:
                     ea_q = a.energies[r2]
@@ -656,15 +661,9 @@ class _SectorSolver:
         a, b = abs(start), abs(target)
         lo = self._ladder_scale
         if nv > 0 and model.n > 1:
-            e0 = model.e0
-            gaps = []
-            for t in tracked:
-                d = np.abs(e0 - e0[t])
-                d = d[d > 0]
-                if d.size:
-                    gaps.append(float(d.min()))
-            if gaps and b > self.GAP_LADDER * max(a, min(gaps) / nv):
-                lo = min(lo, min(gaps) / nv)
+            gap = self._isolation(tracked)
+            if np.isfinite(gap) and b > self.GAP_LADDER * max(a, gap / nv):
+                lo = min(lo, gap / nv)
         if not np.isfinite(lo) or b <= 2.0 * max(a, lo):
             return [target]
         sign = 1.0 if target > 0 else -1.0
@@ -674,6 +673,20 @@ class _SectorSolver:
             pts.append(sign * x)
             x *= 2.0
         return pts + [target]
+
+    def _isolation(self, tracked: frozenset) -> float:
+        """Smallest distance of a tracked level to its nearest other unperturbed level (inf if none); cached."""
+        gap = self._isolation_cache.get(tracked)
+        if gap is None:
+            e0 = self.model.e0
+            gaps = [np.inf]
+            for t in tracked:
+                d = np.abs(e0 - e0[t])
+                d = d[d > 0]
+                if d.size:
+                    gaps.append(float(d.min()))
+            gap = self._isolation_cache[tracked] = min(gaps)
+        return gap
 
     def _advance(self, a: PathPoint, target: float, tracked: frozenset, notes: list) -> list[PathPoint]:
         """Path points from ``a`` to ``target`` (same ray), refining where ambiguous."""
