@@ -200,12 +200,35 @@ class _Operator:
         a2 = self.pattern.build(2.0 * self.coupling / e, 2.0 * (self.e0 - c) / e)  # 2 (H - c) / e
         y = a2 @ x
         y *= 0.5
-        prev = x
-        for _ in range(2, degree + 1):
-            yn = a2 @ y
-            yn -= prev
-            prev, y = y, yn
-        return y
+        if degree < 2:
+            return y
+        # T_{j+1} = A T_j - T_{j-1} written over T_{j-1}'s storage (elementwise in T_{j-1}):
+        # two blocks in all, no fresh array per degree
+        prev = a2 @ y
+        prev -= x
+        for _ in range(3, degree + 1):
+            np.negative(y, out=y)
+            _accumulate_product(a2, prev, y)  # y <- A prev - y
+            prev, y = y, prev
+        return prev
+
+
+try:  # scipy's CSR kernel that adds A @ X into a given block (what ``A @ X`` calls after allocating)
+    from scipy.sparse._sparsetools import csr_matvecs as _csr_matvecs
+except ImportError:  # pragma: no cover - depends on the scipy build
+    _csr_matvecs = None
+
+
+def _accumulate_product(a: Any, x: np.ndarray, out: np.ndarray) -> None:
+    """``out += a @ x`` for a CSR or dense ``a`` and C-contiguous blocks of one dtype."""
+    if (
+        _csr_matvecs is not None and sp.isspmatrix_csr(a) and x.ndim == 2 and x.flags.c_contiguous
+        and out.flags.c_contiguous and a.dtype == x.dtype == out.dtype
+    ):
+        n_row, n_col = a.shape
+        _csr_matvecs(n_row, n_col, x.shape[1], a.indptr, a.indices, a.data, x.ravel(), out.ravel())
+    else:
+        out += a @ x
 
 
 #: Largest M*N*K of one matrix product below which OpenBLAS stays single-threaded
