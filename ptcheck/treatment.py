@@ -49,7 +49,7 @@ from . import _block_numerics as num
 from . import _validation as val
 from ._good_states import Branch, group_branches, natural_scales
 from .approximants import OrderSpec, Pade, order_name, parse_order
-from .blocks import HERMITICITY_RTOL, MAX_BLOCK_SIZE, METHODS, BlockWarning, block_series, find_blocks
+from .blocks import HERMITICITY_RTOL, MAX_BLOCK_SIZE, METHODS, BlockWarning, _Space, block_series, find_blocks
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, mixing_ratios
 from .errors import NearDegenerateWarning
 from .exact import BACKENDS
@@ -423,8 +423,11 @@ class _DegenerateGroup:
         self.model = model
         self.levels = levels
         idx = np.asarray(levels, dtype=int)
-        e0 = model.e0
-        sw = num.sw_coefficients(e0, model.v, idx, order)
+        # the group lies in one sector: the numerics run on that sector alone, offset-free (other sectors
+        # never couple to it, and their equal energies are no degeneracy)
+        self.space = space = _Space.of(model, idx)
+        e0 = space.e0
+        sw = num.sw_coefficients(e0, space.v, space.block, order)
         if sw.finite_order < order:
             raise FloatingPointError(
                 f"the effective Hamiltonian of the degenerate group {[model.label(i) for i in levels]} overflows "
@@ -440,18 +443,18 @@ class _DegenerateGroup:
                 stacklevel=4,
             )
         self.sw = sw
-        ep = e0[idx]
+        ep = e0[space.block]
         ref = float(np.mean(ep))
         self.offsets = ref - ep  # shift of level i = eigenvalue of H_eff − ref + offsets[i]
         hs = np.array(sw.heff)
         hs[0] = np.diag(ep - ref).astype(hs.dtype)
         self.hs = hs
-        in_q = np.ones(model.n, dtype=bool)
-        in_q[idx] = False
+        in_q = np.ones(e0.size, dtype=bool)
+        in_q[space.block] = False
         self.gap = float(np.min(np.abs(e0[in_q][:, None] - ep[None, :]))) if np.any(in_q) else math.inf
-        self.branches: list[Branch] = group_branches(np.asarray(sw.heff), natural_scales(model.norm_v, self.gap, order))
+        nv = model.norm_v if space.levels is None else model.restrict(int(model.level_sectors[idx[0]])).norm_v
+        self.branches: list[Branch] = group_branches(np.asarray(sw.heff), natural_scales(nv, self.gap, order))
         self.guess = np.column_stack([b.vector for b in self.branches]).astype(np.result_type(hs.dtype, float))
-        nv = model.norm_v
         lam_scale = (self.gap / (2 * nv) if np.isfinite(self.gap) else 1.0 / nv) if nv > 0 else 1.0
         self.guess_coupling = 1e-6 * lam_scale
         self.scale = float(max(nv, np.finfo(float).tiny))
@@ -480,9 +483,9 @@ class _DegenerateGroup:
     def states(self, lam: np.ndarray, k: int) -> np.ndarray:
         """(p, C, N) normalised perturbative states at order k (work basis)."""
         tr = self.solve(lam, k)
-        ul = num.isometry_at(self.sw, k, lam)  # (C, N, p)
+        ul = num.isometry_at(self.sw, k, lam)  # (C, M, p) on the group's sector
         psi = np.einsum("cnp,cpi->icn", ul, tr.vectors)
-        return psi / np.linalg.norm(psi, axis=2, keepdims=True)
+        return self.space.embed(psi / np.linalg.norm(psi, axis=2, keepdims=True))
 
 
 @dataclass(frozen=True, repr=False, eq=False)
@@ -519,6 +522,7 @@ class GroupExpansion:
         """(order + 1, d, d) read-only: ``H_eff^(k)`` of the group (Schrieffer–Wolff, energy units) in the
         work basis of :attr:`group`; the level's energy is the eigenvalue of ``Σ_k λ^k H_eff^(k)`` on its branch."""
         h = np.array(self._group.sw.heff)
+        h[0] += self._group.space.offset * np.eye(h.shape[1], dtype=h.dtype)  # the numerics are offset-free
         h.setflags(write=False)
         return h
 
