@@ -43,7 +43,6 @@ from dataclasses import asdict, dataclass, field, replace
 from typing import Any, Protocol
 
 import numpy as np
-import scipy.sparse as sp
 
 from . import _block_numerics as num
 from . import _validation as val
@@ -299,7 +298,9 @@ class LevelExpansion(Protocol):
     without ``E^(0)``; ``state`` is the normalised perturbative state in the work
     basis; ``term`` the size of the order-k contribution; ``pairing_order`` the
     truncation order whose states pair the level with an exact state inside its
-    group (:mod:`ptcheck.pairing`).
+    group (:mod:`ptcheck.pairing`); ``starts_on_good_states`` says whether the
+    group's unperturbed work states are already its good states (else its exact
+    partners are found in a window of eigenpairs).
     """
 
     level: int
@@ -311,6 +312,7 @@ class LevelExpansion(Protocol):
     exact_in_sector: bool
     pairing_order: int
     energy_coefficients: np.ndarray | None
+    starts_on_good_states: bool
 
     def energy(self, couplings: Any, order: Any = None) -> np.ndarray: ...
 
@@ -367,6 +369,10 @@ class SeriesExpansion:
     @property
     def exact_in_sector(self) -> bool:
         return False
+
+    @property
+    def starts_on_good_states(self) -> bool:
+        return True
 
     @property
     def energy_coefficients(self) -> np.ndarray:
@@ -608,6 +614,11 @@ class BlockExpansion:
     def exact_in_sector(self) -> bool:
         return self.choice.exact_in_sector
 
+    @property
+    def starts_on_good_states(self) -> bool:
+        """A block's levels are followed from their own unperturbed states (no window of eigenpairs)."""
+        return True
+
     def _k(self, order: Any) -> int:
         spec = _spec(order, self.order)
         _no_pade(spec, self.label, self.treatment)
@@ -617,7 +628,7 @@ class BlockExpansion:
         return self.inner.energy(couplings, self._k(order))
 
     def shift(self, couplings: Any, order: Any = None) -> np.ndarray:
-        return self.energy(couplings, order) - self.inner.block.model.e0[self.level]
+        return self.inner.shift(couplings, self._k(order))
 
     def state(self, couplings: Any, order: Any = None) -> np.ndarray:
         return self.inner.state(couplings, self._k(order))
@@ -635,27 +646,12 @@ def _names(model: Model, levels: Sequence[int]) -> str:
 
 
 def whole_sector(model: Model, levels: Sequence[int]) -> bool:
-    """True when ``levels`` (two or more) span whole invariant sectors of ``H0 + λV``."""
-    levels = sorted({int(i) for i in levels})
+    """True when ``levels`` (two or more) span whole invariant sectors of ``H0 + λV`` (``model.sectors``)."""
+    levels = {int(i) for i in levels}
     if len(levels) < 2:
         return False
-    if len(levels) == model.n:
-        return True
-    sectors = getattr(model, "sectors", None)
-    if sectors:
-        touched = [s for s in sectors if set(getattr(s, "levels", ())) & set(levels)]
-        return bool(touched) and set().union(*(set(s.levels) for s in touched)) == set(levels)
-    v = model.v
-    idx = np.asarray(levels)
-    if sp.issparse(v):
-        cols = sp.csc_matrix(v)[:, idx].tocoo()
-        outside = ~np.isin(cols.row, idx)
-        leak = float(np.max(np.abs(cols.data[outside]), initial=0.0))
-    else:
-        mask = np.ones(model.n, dtype=bool)
-        mask[idx] = False
-        leak = float(np.max(np.abs(v[np.ix_(mask, idx)]), initial=0.0))
-    return leak <= 1e-12 * max(val.max_abs(v), np.finfo(float).tiny)
+    touched = np.unique(model.level_sectors[sorted(levels)])
+    return int(np.isin(model.level_sectors, touched).sum()) == len(levels)
 
 
 def _exact_note(model: Model, levels: Sequence[int]) -> str:
