@@ -26,7 +26,7 @@ from . import sectors as sec
 from ._labels import LevelNames, hashable
 from .sectors import Sector
 
-__all__ = ["Model", "DENSE_LIMIT", "MAX_GROUP_ROTATION"]
+__all__ = ["Model", "DENSE_LIMIT", "MAX_GROUP_ROTATION", "coupling_display", "physical_coupling_text"]
 
 #: Largest basis for which ptcheck will build and diagonalise a dense matrix
 #: (a dense complex 6000 x 6000 matrix is 0.6 GB; eigh takes minutes on 2 cores).
@@ -92,6 +92,10 @@ class Model:
         for g = 66 MHz).  Stored only; λ stays dimensionless everywhere.
     coupling_unit : str, optional
         Unit of ``coupling_scale`` (e.g. ``"MHz"``); needs ``coupling_scale``.
+    coupling_name : str, optional
+        Name of the physical coupling ``λ x coupling_scale`` (e.g. ``"g"``),
+        for display beside λ ("λ* = 0.8 (g = 52.8 MHz)"); needs
+        ``coupling_scale``.  See :meth:`physical_coupling`.
 
     Attributes
     ----------
@@ -159,6 +163,7 @@ class Model:
         conserved: Any = None,
         coupling_scale: float | None = None,
         coupling_unit: str | None = None,
+        coupling_name: str | None = None,
     ) -> None:
         h0m, h0dims = val.as_operator(h0, "h0", max_dense=DENSE_LIMIT)
         vm, _ = val.as_operator(v, "v", max_dense=DENSE_LIMIT)
@@ -181,7 +186,7 @@ class Model:
                 raise ValueError("labels must be distinct")
         if degeneracy_tol is not None:
             degeneracy_tol = float(val.check_positive(degeneracy_tol, "degeneracy_tol"))
-        coupling_scale, coupling_unit = _coupling_display(coupling_scale, coupling_unit)
+        coupling_scale, coupling_unit, coupling_name = coupling_display(coupling_scale, coupling_unit, coupling_name)
         ops = sec.conserved_operators(conserved, n, hermitian_rtol)
 
         # ---- unperturbed basis per graph component, offset removed ---------------------
@@ -252,6 +257,7 @@ class Model:
             conserved_names=tuple(nm for nm, _ in ops),
             coupling_scale=coupling_scale,
             coupling_unit=coupling_unit,
+            coupling_name=coupling_name,
             parent_levels=None,
         )
 
@@ -279,6 +285,7 @@ class Model:
         coupling_unit: str | None,
         parent_levels: tuple | None,
         e0: np.ndarray | None = None,
+        coupling_name: str | None = None,
     ) -> None:
         self.name = name
         self.n = n
@@ -309,6 +316,7 @@ class Model:
         self.conserved_names = conserved_names
         self.coupling_scale = coupling_scale
         self.coupling_unit = coupling_unit
+        self.coupling_name = coupling_name
         self.parent_levels = parent_levels
         self._group_id = _group_ids(self.e0_relative, self.level_sectors, self.degeneracy_tol)
         self._groups: tuple | None = None
@@ -356,6 +364,7 @@ class Model:
             "conserved": list(self.conserved_names),
             "coupling_scale": self.coupling_scale,
             "coupling_unit": self.coupling_unit,
+            "coupling_name": self.coupling_name,
             "sectors": {
                 "count": int(k),
                 "listed": int(listed),
@@ -399,6 +408,17 @@ class Model:
         if self._norm_v is None:
             self._norm_v = _spectral_norm(self.v)
         return self._norm_v
+
+    def physical_coupling(self, coupling: float) -> str:
+        """The physical coupling at λ, for display: ``"g = 52.8 MHz"`` (``""`` without ``coupling_scale``).
+
+        Examples
+        --------
+        >>> m = Model(np.diag([0.0, 1.0]), [[0, 1], [1, 0]], coupling_scale=66.0, coupling_unit="MHz", coupling_name="g")
+        >>> m.physical_coupling(0.8)
+        'g = 52.8 MHz'
+        """
+        return physical_coupling_text(coupling, self.coupling_scale, self.coupling_unit, self.coupling_name)
 
     def hamiltonian(self, coupling: float) -> np.ndarray | sp.csr_matrix:
         """``H0 + λ V`` in the work basis, shape (N, N), same storage as ``v``."""
@@ -568,6 +588,7 @@ class Model:
             conserved_names=self.conserved_names,
             coupling_scale=self.coupling_scale,
             coupling_unit=self.coupling_unit,
+            coupling_name=self.coupling_name,
             parent_levels=parent,
         )
         return sub
@@ -611,17 +632,31 @@ class Model:
 
 
 # ---------------------------------------------------------------------- helpers
-def _coupling_display(scale: Any, unit: Any) -> tuple[float | None, str | None]:
+def coupling_display(scale: Any, unit: Any, name: Any = None) -> tuple[float | None, str | None, str | None]:
+    """Validate ``coupling_scale``, ``coupling_unit`` and ``coupling_name`` (see :class:`Model`)."""
     if scale is not None:
         scale = val.as_real(scale, "coupling_scale")
         if scale == 0:
             raise ValueError(f"coupling_scale must be a nonzero finite number (the coupling at λ = 1); got {scale!r}")
-    if unit is not None:
-        if not isinstance(unit, str) or not unit.strip():
-            raise TypeError(f"coupling_unit must be a non-empty string such as 'MHz'; got {unit!r}")
+    for what, x, example in (("coupling_unit", unit, "'MHz'"), ("coupling_name", name, "'g'")):
+        if x is None:
+            continue
+        if not isinstance(x, str) or not x.strip():
+            raise TypeError(f"{what} must be a non-empty string such as {example}; got {x!r}")
         if scale is None:
-            raise ValueError(f"coupling_unit={unit!r} needs coupling_scale (the coupling at λ = 1 in that unit)")
-    return scale, unit
+            raise ValueError(f"{what}={x!r} needs coupling_scale (the physical coupling at λ = 1)")
+    return scale, unit, name
+
+
+def physical_coupling_text(coupling: float, scale: float | None, unit: str | None, name: str | None) -> str:
+    """``"g = 52.8 MHz"`` for λ = ``coupling`` (4 significant digits); ``""`` when ``scale`` is None.
+
+    The one place that formats a physical coupling beside λ (reports, figures, panels).
+    """
+    if scale is None or coupling is None or not np.isfinite(coupling):
+        return ""
+    value = f"{coupling * scale:.4g}" + (f" {unit}" if unit else "")
+    return f"{name} = {value}" if name else value
 
 
 def _is_diagonal(m: Any) -> bool:
