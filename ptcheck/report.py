@@ -933,7 +933,12 @@ def comparison_csv(report: CheckReport) -> str:
 
 
 def boundaries_csv(report: CheckReport) -> str:
-    """One row per target × order asked for: error at λ, verdict and validity boundary."""
+    """One row per target × order asked for: error at λ, verdict and validity boundary.
+
+    ``coupling_physical`` / ``boundary_physical`` are λ x the model's ``coupling_scale`` (in its
+    ``coupling_unit``; empty when the model names no physical coupling).
+    """
+    scale = report.model.get("coupling_scale")
     rows = []
     for v, b in zip(report.verdicts, report.boundaries):
         rows.append({
@@ -941,9 +946,11 @@ def boundaries_csv(report: CheckReport) -> str:
             "coupling": v.coupling, "error_at_coupling": v.error, "tolerance": v.tolerance,
             "tolerance_kind": "relative" if v.relative else "absolute", "valid": v.valid, "verdict": v.status,
             "boundary": b.coupling, "boundary_status": b.status, "exact_solves": b.exact_solves,
+            "coupling_physical": None if scale is None else v.coupling * scale,
+            "boundary_physical": None if scale is None else b.coupling * scale,
         })
     cols = ["target", "order", "treatment", "coupling", "error_at_coupling", "tolerance", "tolerance_kind", "valid",
-            "verdict", "boundary", "boundary_status", "exact_solves"]
+            "verdict", "boundary", "boundary_status", "exact_solves", "coupling_physical", "boundary_physical"]
     return _csv(rows, cols)
 
 

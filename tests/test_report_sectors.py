@@ -8,6 +8,8 @@ parity sectors of an Ising ring are built here from the parity matrix Π σx its
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 import re
 
@@ -19,7 +21,7 @@ from ptcheck import Model, dispersive_shift, track
 from ptcheck.cli import main
 from ptcheck.modelfile import load_model_file
 from ptcheck.models import jaynes_cummings, kerr_qubit_resonator, linear_rotor
-from ptcheck.report import run_check, to_json, to_markdown
+from ptcheck.report import boundaries_csv, run_check, to_json, to_markdown
 
 J_MAX = 6
 
@@ -64,6 +66,9 @@ def test_physical_coupling_is_shown_beside_lambda():
     assert "| physical coupling at λ = 1 | g = 0.066 |" in md
     d = json.loads(to_json(r))["model"]
     assert (d["coupling_scale"], d["coupling_name"], d["coupling_unit"]) == (g, "g", None)
+    (row,) = list(csv.DictReader(io.StringIO(boundaries_csv(r))))
+    assert float(row["boundary_physical"]) == pytest.approx(b.coupling * g, rel=1e-12)
+    assert float(row["coupling_physical"]) == pytest.approx(lam * g, rel=1e-12)
 
 
 def test_builders_name_their_physical_coupling_and_none_when_it_is_zero():
