@@ -354,6 +354,7 @@ def _cmd_demo(a: argparse.Namespace, run: _Run) -> int:
     out = run.out = _prepare_output(given)
     model = kerr_qubit_resonator(**DEMO_PARAMS)
     model.name = "Q-17 qubit + readout resonator (invented)"
+    model.coupling_unit = "GHz"  # the builder names g (λ = 1 is g); the demo's energies are in GHz
     lamb = stark_shift((1, 0), (0, 0), name="qubit Lamb shift", units="GHz")
     chi = dispersive_shift(name="chi", units="GHz")
     p = DEMO_PARAMS
