@@ -7,23 +7,29 @@ order 30.  Both are timed as CPU time of this process (best of ``repeat``), and 
 build is split into the builder's matrices, ``Model`` validation and the rest of
 ``Model`` (sectors, work basis, labels).
 
-Run: ``python benchmarks/bench_model.py [n_spins]`` (default 18).
+Run: ``python benchmarks/bench_model.py [n_spins]`` (default 18).  ``rows()`` gives the same
+job as one row of ``run_all.py``'s table (wall-clock, interleaved, min / median of repeats).
 """
 
 from __future__ import annotations
 
-import sys
-import time
-from pathlib import Path
+import os
+
+for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):  # before numpy loads
+    os.environ[_var] = os.environ.get("PTCHECK_BENCH_THREADS", "1")
+
+import sys  # noqa: E402
+import time  # noqa: E402
+from pathlib import Path  # noqa: E402
 
 try:  # run from a checkout without installing: use the package beside this folder
     import ptcheck  # noqa: F401
 except ImportError:
     sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from ptcheck import _validation as val
-from ptcheck.models import spin_chain
-from ptcheck.series import rs_series
+from ptcheck import _validation as val  # noqa: E402
+from ptcheck.models import spin_chain  # noqa: E402
+from ptcheck.series import rs_series  # noqa: E402
 
 
 def _best(fn, repeat: int = 3) -> float:
@@ -42,6 +48,25 @@ def run(n_spins: int = 18) -> dict:
     checks = _best(lambda: val.check_hermitian(m.v, "v", 1e-10))  # one Hermiticity check of V (work basis)
     series = _best(lambda: rs_series(m, 0, 30))
     return {"n_spins": n_spins, "N": m.n, "build_s": build, "hermitian_check_of_v_s": checks, "rs30_s": series, "model": repr(m)}
+
+
+def rows(repeats: int = 3, only_ours: bool = False, n_spins: int = 18) -> list:
+    """The build-vs-series job as a row of the common table (``run_all.py``)."""
+    from _harness import Row, interleaved
+
+    spin_chain(n_spins=6)  # warm imports
+    m = spin_chain(n_spins=n_spins)
+    t_build, t_series, built, series, ld = interleaved(
+        lambda: spin_chain(n_spins=n_spins), lambda: rs_series(m, 0, 30), repeats
+    )
+    row = Row(
+        job=f"model build, transverse-field Ising chain L = {n_spins} (N = {built.n}, parity declared)",
+        ours=t_build, ours_note="builder + Model (sectors, work basis)",
+        baseline_name="its RS series to order 30 (level 0)", baseline=t_series,
+        target="> 1× (build cheaper than the series)", load=ld,
+    )
+    row.check = f"build {'cheaper' if row.ratio > 1 else 'DEARER'} than the series; E^(2) = {series.energy_coefficients[2]:.6g}"
+    return [row]
 
 
 if __name__ == "__main__":

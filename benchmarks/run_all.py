@@ -5,9 +5,9 @@
 BLAS is limited to one thread (``PTCHECK_BENCH_THREADS`` to change it) in
 this process's environment before numpy loads, so it holds for every
 benchmark and for the worker processes of the map benchmark.  Each
-``bench_*.py`` has ``run(repeats, only_ours) -> list of rows`` and is imported
-as a module (registered in ``sys.modules``, so worker processes can unpickle
-its functions).  The table has one row per job: ptcheck min / median, the
+``bench_*.py`` has ``rows(repeats, only_ours)`` (or ``run(repeats, only_ours)``)
+returning a list of rows and is imported as a module (registered in
+``sys.modules``, so worker processes can unpickle its functions).  The table has one row per job: ptcheck min / median, the
 strongest plain baseline and its min / median, the ratio, the load average
 during the job and the job's own check.  These are measurements, not tests:
 they never fail, a benchmark that raises is reported in its row.
@@ -32,7 +32,10 @@ if str(HERE) not in sys.path:
 
 from _harness import Row, header, markdown  # noqa: E402
 
-SCRIPTS = ("bench_boundary", "bench_exact", "bench_exceptional", "bench_series", "bench_maps", "bench_widgets")
+SCRIPTS = (
+    "bench_boundary", "bench_exact", "bench_exceptional", "bench_series", "bench_multi", "bench_maps", "bench_widgets",
+    "bench_model", "bench_bounds",
+)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -47,13 +50,15 @@ def main(argv: list[str] | None = None) -> int:
     t0 = time.perf_counter()
     for name in a.only or SCRIPTS:
         try:
-            rows.extend(importlib.import_module(name).run(repeats=a.repeats, only_ours=a.only_ours))
+            module = importlib.import_module(name)
+            rows.extend(getattr(module, "rows", module.run)(repeats=a.repeats, only_ours=a.only_ours))
         except Exception as exc:  # a benchmark that breaks is reported, the others still run
             rows.append(Row(job=name, ours=[], check=f"FAILED: {type(exc).__name__}: {exc}"))
     print(header())
     print()
     print(markdown(rows))
-    print(f"\ntotal {time.perf_counter() - t0:.0f} s")
+    print(f"\ntotal {time.perf_counter() - t0:.0f} s; load average at the end {os.getloadavg()[0]:.2f}" if hasattr(os, "getloadavg")
+          else f"\ntotal {time.perf_counter() - t0:.0f} s")
     return 0
 
 

@@ -25,8 +25,13 @@ from .errors import (
 )
 from .exact import AvoidedCrossing, ExactSolver, ExactSweep, track
 from .formula import Formula, ValidityRange, formula
-from .model import Model
+from .model import Model, MultiCouplingError
+from .multiexact import GridSweep, track_grid
+from .multiformula import MultiFormula, multi_formula
+from .multiseries import MultiSeriesResult, multi_series
+from .photons import PhotonBoundaries, photon_boundaries
 from .products import product_model
+from .region import RayConvergence, ValidityRegion, ray_convergence, validity_region
 from .quantities import (
     Quantity,
     QuantitySeries,
@@ -64,13 +69,19 @@ __all__ = [
     "ExactSolver",
     "ExactSweep",
     "Formula",
+    "GridSweep",
     "Model",
+    "MultiCouplingError",
+    "MultiFormula",
+    "MultiSeriesResult",
     "NearDegeneratePair",
     "NearDegenerateWarning",
     "Pade",
+    "PhotonBoundaries",
     "PtcheckWarning",
     "Quantity",
     "QuantitySeries",
+    "RayConvergence",
     "Sector",
     "SeriesResult",
     "Suggestion",
@@ -79,6 +90,7 @@ __all__ = [
     "TruncationWarning",
     "ValidityBoundary",
     "ValidityRange",
+    "ValidityRegion",
     "anharmonicity",
     "block_series",
     "certified_boundary",
@@ -93,14 +105,20 @@ __all__ = [
     "find_blocks",
     "formula",
     "models",
+    "multi_formula",
+    "multi_series",
     "near_degenerate_pairs",
     "parse_order",
+    "photon_boundaries",
     "product_model",
     "quantity_series",
+    "ray_convergence",
     "rs_series",
     "stark_shift",
     "track",
+    "track_grid",
     "transition_frequency",
     "validity_boundary",
+    "validity_region",
     "zz_coupling",
 ]

@@ -42,7 +42,7 @@ from .model import DENSE_LIMIT, Model
 
 __all__ = [
     "make_backend", "BACKEND_CLASSES", "DenseBackend", "SparseBackend", "QutipBackend", "ProbeBasis",
-    "davidson_lowest", "inner", "combine",
+    "davidson_lowest", "davidson_rows", "inner", "combine",
 ]
 
 #: Below this basis size the sparse backend hands requests to LAPACK (a dense
@@ -200,12 +200,35 @@ class _Operator:
         a2 = self.pattern.build(2.0 * self.coupling / e, 2.0 * (self.e0 - c) / e)  # 2 (H - c) / e
         y = a2 @ x
         y *= 0.5
-        prev = x
-        for _ in range(2, degree + 1):
-            yn = a2 @ y
-            yn -= prev
-            prev, y = y, yn
-        return y
+        if degree < 2:
+            return y
+        # T_{j+1} = A T_j - T_{j-1} written over T_{j-1}'s storage (elementwise in T_{j-1}):
+        # two blocks in all, no fresh array per degree
+        prev = a2 @ y
+        prev -= x
+        for _ in range(3, degree + 1):
+            np.negative(y, out=y)
+            _accumulate_product(a2, prev, y)  # y <- A prev - y
+            prev, y = y, prev
+        return prev
+
+
+try:  # scipy's CSR kernel that adds A @ X into a given block (what ``A @ X`` calls after allocating)
+    from scipy.sparse._sparsetools import csr_matvecs as _csr_matvecs
+except ImportError:  # pragma: no cover - depends on the scipy build
+    _csr_matvecs = None
+
+
+def _accumulate_product(a: Any, x: np.ndarray, out: np.ndarray) -> None:
+    """``out += a @ x`` for a CSR or dense ``a`` and C-contiguous blocks of one dtype."""
+    if (
+        _csr_matvecs is not None and sp.isspmatrix_csr(a) and x.ndim == 2 and x.flags.c_contiguous
+        and out.flags.c_contiguous and a.dtype == x.dtype == out.dtype
+    ):
+        n_row, n_col = a.shape
+        _csr_matvecs(n_row, n_col, x.shape[1], a.indptr, a.indices, a.data, x.ravel(), out.ravel())
+    else:
+        out += a @ x
 
 
 #: Largest M*N*K of one matrix product below which OpenBLAS stays single-threaded
@@ -246,19 +269,38 @@ def combine(a: np.ndarray, c: np.ndarray) -> np.ndarray:
     return out
 
 
-def svqb(x: np.ndarray, drop: float = 1e-10) -> np.ndarray:
-    """Orthonormal basis of the columns of ``x`` (dependent directions dropped)."""
+def _svqb_pass(x: np.ndarray, drop: float) -> tuple[np.ndarray, float]:
+    """One SVQB pass: (basis, squared condition number of the column-scaled block among the kept directions)."""
     g = inner(x, x)
     d = np.sqrt(np.abs(np.real(np.diag(g))))
     d[d == 0] = 1.0
     w, u = np.linalg.eigh(g / d[:, None] / d[None, :])
-    keep = w > drop * max(float(w[-1]), 1e-300)
-    return combine(x, u[:, keep] / d[:, None] / np.sqrt(w[keep]))
+    top = max(float(w[-1]), 1e-300)
+    keep = w > drop * top
+    spread = top / float(w[keep][0]) if np.any(keep) else 1.0
+    return combine(x, u[:, keep] / d[:, None] / np.sqrt(w[keep])), spread
 
 
-def _rayleigh_ritz(op: _Operator, q: np.ndarray, passes: int = 2) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    for _ in range(passes):
-        q = svqb(q)
+def svqb(x: np.ndarray, drop: float = 1e-10) -> np.ndarray:
+    """Orthonormal basis of the columns of ``x`` (dependent directions dropped).
+
+    One pass leaves the columns orthonormal to about machine epsilon x the
+    squared condition number of the column-scaled block (Stathopoulos & Wu
+    2002); a second pass runs when that exceeds :data:`SVQB_SECOND_PASS`.
+    """
+    q, spread = _svqb_pass(x, drop)
+    if spread > SVQB_SECOND_PASS:
+        q, _ = _svqb_pass(q, drop)
+    return q
+
+
+#: squared condition number above which :func:`svqb` repeats its pass (loss of orthogonality
+#: of one pass: about 1e-16 x this)
+SVQB_SECOND_PASS = 1e4
+
+
+def _rayleigh_ritz(op: _Operator, q: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    q = svqb(q)
     hq = op.apply(q)
     t = inner(q, hq)
     th, u = np.linalg.eigh((t + t.conj().T) * 0.5)
@@ -317,9 +359,18 @@ class ProbeBasis:
     def __init__(self, rows: np.ndarray, h0_rows: np.ndarray, v_rows: np.ndarray, h0_proj: np.ndarray, v_proj: np.ndarray) -> None:
         self.rows, self.h0_rows, self.v_rows = rows, h0_rows, v_rows
         self.h0_proj, self.v_proj = h0_proj, v_proj
+        self._images = np.empty_like(h0_rows)  # reused: a fresh (b, N) array costs page faults each probe
 
     def at(self, coupling: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        return self.rows, self.h0_rows + coupling * self.v_rows, self.h0_proj + coupling * self.v_proj
+        """Rows, their images under H(λ) (a buffer overwritten by the next call) and the projected matrix."""
+        np.multiply(self.v_rows, coupling, out=self._images)
+        self._images += self.h0_rows
+        return self.rows, self._images, self.h0_proj + coupling * self.v_proj
+
+
+def davidson_rows(k: int, fixed: int = 0) -> int:
+    """Largest search space of :func:`davidson_lowest` for k wanted pairs and ``fixed`` subspace rows."""
+    return max(20, 4 * (k + 1), fixed + 2 * (k + 1) + 4)
 
 
 def davidson_lowest(
@@ -332,6 +383,7 @@ def davidson_lowest(
     rng: np.random.Generator | None,
     max_matvecs: int | None = None,
     subspace: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+    workspace: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, np.ndarray] | None:
     """The k lowest eigenpairs of a Hermitian ``h`` by block Davidson, or None.
 
@@ -368,6 +420,10 @@ def davidson_lowest(
         Orthonormal rows, their images under ``h`` and the projected matrix,
         put in the search space before ``start`` at no product cost (e.g. the
         perturbative corrections of the tracked level: :class:`ProbeBasis`).
+    workspace : two (M, N) ndarrays, optional
+        Scratch rows for the search space and its images, reused from call to
+        call (used when M >= :func:`davidson_rows` and the dtype fits; a fresh
+        pair of arrays otherwise).
 
     Returns
     -------
@@ -376,10 +432,13 @@ def davidson_lowest(
     n = diag.size
     dtype = np.result_type(start.dtype, getattr(h, "dtype", np.float64), np.float64)
     fixed = 0 if subspace is None else subspace[0].shape[0]
-    max_dim = max(20, 4 * (k + 1), fixed + 2 * (k + 1) + 4)
+    max_dim = davidson_rows(k, fixed)
     max_matvecs = max_matvecs if max_matvecs is not None else 40 * k + 160
-    basis = np.empty((max_dim, n), dtype=dtype)  # orthonormal rows q_j
-    hbasis = np.empty((max_dim, n), dtype=dtype)  # rows (h q_j)^T
+    if workspace is not None and workspace[0].shape[0] >= max_dim and workspace[0].dtype == dtype:
+        basis, hbasis = workspace  # rows q_j; rows (h q_j)^T
+    else:
+        basis = np.empty((max_dim, n), dtype=dtype)  # orthonormal rows q_j
+        hbasis = np.empty((max_dim, n), dtype=dtype)  # rows (h q_j)^T
     proj = np.zeros((max_dim, max_dim), dtype=dtype)  # q_i^H h q_j
     j = 0
     if subspace is not None:
@@ -482,6 +541,7 @@ class SparseBackend:
         self._last_guards: np.ndarray | None = None  # guard vectors of the previous solve
         self._history: list[tuple[float, np.ndarray]] = []  # (coupling, converged block) of recent solves
         self.fallbacks = 0
+        self._work: tuple[np.ndarray, np.ndarray] | None = None  # probe scratch rows, reused
 
     # ---------------------------------------------------------------- helpers
     @property
@@ -550,7 +610,7 @@ class SparseBackend:
         it enters every later probe's search space at no product cost, since
         ``H(λ) Q = H0 Q + λ V Q``.
         """
-        rows = np.ascontiguousarray(svqb(svqb(np.asarray(vectors))).T)  # (b, N) orthonormal rows (twice: the corrections are far from orthogonal)
+        rows = np.ascontiguousarray(svqb(np.asarray(vectors)).T)  # (b, N) orthonormal rows
         h0_rows = rows * self.e0[None, :]
         v_rows = np.ascontiguousarray((self.v @ rows.T).T)
         return ProbeBasis(rows, h0_rows, v_rows, rows.conj() @ h0_rows.T, rows.conj() @ v_rows.T)
@@ -584,7 +644,24 @@ class SparseBackend:
         diag = self.e0 + coupling * self._vdiag
         h = _DiagonalPlus(self.v, coupling, self.e0)
         sub = None if basis is None else basis.at(coupling)
-        return davidson_lowest(h, diag, k, np.asarray(start), tols=tols, rng=None, subspace=sub)
+        start = np.asarray(start)
+        dtype = np.result_type(start.dtype, self.v.dtype, np.float64)
+        rows = davidson_rows(k, 0 if sub is None else sub[0].shape[0])
+        return davidson_lowest(h, diag, k, start, tols=tols, rng=None, subspace=sub, workspace=self._workspace(rows, dtype))
+
+    #: largest scratch (bytes) the probe solver keeps between calls; above it each probe allocates its own
+    PROBE_WORKSPACE_BYTES = 64 * 2**20
+
+    def _workspace(self, rows: int, dtype: Any) -> tuple[np.ndarray, np.ndarray] | None:
+        """Scratch rows kept between probes (fresh large arrays cost page faults at every call)."""
+        n = self.model.n
+        w = self._work
+        if w is not None and w[0].shape[0] >= rows and w[0].dtype == dtype:
+            return w
+        if 2 * rows * n * np.dtype(dtype).itemsize > self.PROBE_WORKSPACE_BYTES:
+            return None
+        self._work = (np.empty((rows, n), dtype=dtype), np.empty((rows, n), dtype=dtype))
+        return self._work
 
     # ---------------------------------------------------------------- ARPACK
     def _start_vector(self, start: Any) -> np.ndarray | None:
@@ -651,6 +728,28 @@ class SparseBackend:
                 out += weight * combine(x, u @ vh)
         return out
 
+    def _filter_degree(self, th: np.ndarray, k: int, upper: float, worst: float, tol: float) -> tuple[int, float] | None:
+        """(degree, gain per degree) of the filter that brings residuals ``worst`` below ``tol``.
+
+        ``th`` are the block's Ritz values (ascending; ``th[-2]`` is the cut above which
+        the filter damps).  None when the wanted values are not below the cut.
+        """
+        cut = float(th[-2])
+        e = (upper - cut) / 2.0
+        c = (upper + cut) / 2.0
+        y_want = abs((th[k - 1] - c) / e)
+        y_low = abs((th[0] - c) / e)
+        if not (y_want > 1.0 and upper > cut):
+            return None
+        gain = float(np.arccosh(y_want))
+        need = np.arccosh(max(3.0 * worst / tol, 1.0 + 1e-12))
+        # keep the block well conditioned: the lowest Ritz vector leaks into the others
+        # at about residual / gap, and the filter enlarges that leak by the ratio of
+        # amplifications; allow at most 1e7 after the leak
+        leak = min(1.0, worst / max(float(th[1] - th[0]), 1e-300))
+        cap = max(4, int(np.arccosh(1e7 / max(leak, 1e-6)) / np.arccosh(y_low)))
+        return int(np.clip(np.ceil(need / (gain * self._efficiency)), 4, min(80, cap))), gain
+
     def _chebyshev(self, coupling: float, k: int, start: np.ndarray, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray] | None:
         n = self.model.n
         op = _Operator(self.e0, self._pattern, coupling)
@@ -681,36 +780,29 @@ class SparseBackend:
         tol = self.rtol * scale
         upper = float(np.max(self.e0)) + abs(coupling) * self.model.norm_v
         upper += 1e-6 * scale  # strict upper bound of the spectrum (Weyl)
-        th, x, hx = _rayleigh_ritz(op, block, passes=1)
+        th, x, hx = _rayleigh_ritz(op, block)
+        res = None
         for _ in range(self.MAX_ROUNDS):
             if th.size < k + 2:
                 return None
-            res = _column_norms(hx[:, :k] - x[:, :k] * th[:k])
+            if res is None:
+                res = _column_norms(hx[:, :k] - x[:, :k] * th[:k])
             worst = float(np.max(res))
             if worst <= tol:
                 self._last_guards = x[:, k:m].copy()
                 self._history.append((coupling, x[:, :k].copy()))
                 del self._history[: -self.HISTORY]
                 return th[:k].copy(), x[:, :k].copy()
-            cut = float(th[-2])
-            e = (upper - cut) / 2.0
-            c = (upper + cut) / 2.0
-            y_want = abs((th[k - 1] - c) / e)
-            y_low = abs((th[0] - c) / e)
-            if not (y_want > 1.0 and upper > cut):
+            step = self._filter_degree(th, k, upper, worst, tol)
+            if step is None:
                 return None
-            gain = np.arccosh(y_want)
-            need = np.arccosh(max(3.0 * worst / tol, 1.0 + 1e-12))
-            # keep the block well conditioned: the lowest Ritz vector leaks into the others
-            # at about residual / gap, and the filter enlarges that leak by the ratio of
-            # amplifications; allow at most 1e7 after the leak
-            leak = min(1.0, worst / max(float(th[1] - th[0]), 1e-300))
-            cap = max(4, int(np.arccosh(1e7 / max(leak, 1e-6)) / np.arccosh(y_low)))
-            degree = int(np.clip(np.ceil(need / (gain * self._efficiency)), 4, min(80, cap)))
-            y = op.filter(x, degree, float(th[0]), cut, upper)
+            degree, gain = step
+            y = op.filter(x, degree, float(th[0]), float(th[-2]), upper)
             th, x, hx = _rayleigh_ritz(op, y)
-            if th.size:
-                new_worst = float(np.max(_column_norms(hx[:, :k] - x[:, :k] * th[:k]))) if th.size >= k else worst
+            res = None
+            if th.size >= k:
+                res = _column_norms(hx[:, :k] - x[:, :k] * th[:k])  # also the next round's convergence test
+                new_worst = float(np.max(res))
                 if new_worst > 0 and worst > new_worst:
                     achieved = np.log(worst / new_worst) / max(np.log(np.cosh(degree * gain)), 1e-12)
                     self._efficiency = float(np.clip(0.7 * self._efficiency + 0.3 * achieved, 0.3, 1.5))

@@ -113,17 +113,23 @@ def fix_phase(x: np.ndarray, ids: np.ndarray, prev: np.ndarray | None, match: np
 
     ``match[c]`` is the column of ``prev`` matched to column ``c`` (or -1).
     """
-    for c in range(x.shape[1]):
-        i = int(ids[c])
-        z = x[i, c] if i >= 0 else 0.0
-        if abs(z) > PHASE_COMPONENT_MIN:
-            x[:, c] *= np.conj(z) / abs(z)
-            if np.iscomplexobj(x):
-                x[i, c] = abs(z)
-        elif prev is not None and match is not None and match[c] >= 0:
+    k = x.shape[1]
+    cols = np.arange(k)
+    known = np.asarray(ids) >= 0
+    z = np.zeros(k, dtype=x.dtype)
+    z[known] = x[np.asarray(ids)[known], cols[known]]
+    big = np.abs(z) > PHASE_COMPONENT_MIN
+    phase = np.ones(k, dtype=x.dtype)
+    phase[big] = np.conj(z[big]) / np.abs(z[big])
+    if prev is not None and match is not None:
+        for c in np.flatnonzero(~big & (np.asarray(match) >= 0)):
             o = np.vdot(prev[:, match[c]], x[:, c])
             if abs(o) > 0:
-                x[:, c] *= np.conj(o) / abs(o)
+                phase[c] = np.conj(o) / abs(o)
+    if np.any(phase != 1):
+        x *= phase[None, :]
+    if np.iscomplexobj(x) and np.any(big):
+        x[np.asarray(ids)[big], cols[big]] = np.abs(z[big])
 
 
 # ------------------------------------------------------------------ avoided crossings

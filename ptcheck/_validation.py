@@ -29,6 +29,7 @@ __all__ = [
     "check_choice",
     "as_couplings",
     "as_coupling",
+    "as_direction",
 ]
 
 #: Highest perturbative order accepted anywhere (series, blocks, comparisons,
@@ -386,3 +387,21 @@ def as_sequence(x: Any) -> Sequence:
     if isinstance(x, (list, np.ndarray, range)):
         return list(x)
     return [x]
+
+
+def as_direction(x: Any, m: int, names: Sequence[str] = ()) -> np.ndarray:
+    """A direction in the space of m couplings: m real finite numbers, not all zero; shape (m,)."""
+    shown = repr(x)
+    shown = shown if len(shown) <= 80 else shown[:77] + "..."
+    what = f"({', '.join(names)})" if len(names) == m else f"{m} couplings"
+    try:
+        d = np.asarray(x, dtype=float)
+    except (TypeError, ValueError):
+        raise TypeError(f"direction must be {m} real numbers, one per coupling {what}; got {shown}") from None
+    if d.shape != (m,):
+        raise ValueError(f"direction must be {m} numbers, one per coupling {what}; got shape {d.shape}: {shown}")
+    if not np.all(np.isfinite(d)):
+        raise ValueError(f"direction must be finite; got {shown}")
+    if not np.any(d != 0):
+        raise ValueError(f"direction must not be zero (it sets the ray t·d from the origin); got {shown}")
+    return d

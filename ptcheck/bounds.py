@@ -31,6 +31,15 @@ a positive number δ
     The user's statement that the labelled level stays at least δ (energy
     units) from every other level on the path from λ = 0.  Conditional on it.
 
+Each level is bracketed inside its own symmetry sector (the sector's sub-model):
+equal energies of other sectors are neither neighbours nor crossings.  A level
+that is exactly degenerate with others of its sector has no series trial state;
+:func:`error_bounds` (and ``compare(..., reference="bounds")``) bracket it through
+its group's degenerate-perturbation-theory states (:mod:`ptcheck._cluster`:
+Rayleigh–Ritz in their span, a cluster bound derived from Weyl's inequality and
+Kato–Temple), conditional on pairing labels with ranks; certified boundaries need
+a series and refuse it.
+
 Identification: an interval is about the level that carries the label (the
 branch continuous from the unperturbed level) when that level is separated from
 its neighbours on the whole path from 0 to λ; the separation is checked at
@@ -65,12 +74,14 @@ import numpy as np
 from scipy.optimize import brentq
 
 from . import _validation as val
+from ._cluster import group_brackets
 from ._gaps import GAP_KINDS, LevelEngine, Settings
 from ._trial import operator_scales
 from .approximants import OrderSpec, Pade, order_name, parse_order, required_order
 from .errors import DegenerateLevelError
 from .model import Model
 from .quantities import Quantity
+from .treatment import CheckSettings, expansion_map
 
 __all__ = ["CertifiedBoundary", "ErrorBounds", "GAP_KINDS", "certified_boundary", "error_bounds"]
 
@@ -369,6 +380,14 @@ def _settings(gap: Any, trial_order: Any, krylov_steps: Any, lanczos_steps: Any,
     return Settings(gap_mode, gap_value, trial_order, krylov_steps, lanczos_steps, seed)
 
 
+def bounds_options(gap: Any, trial_order: Any, order: Any) -> Settings:
+    """Validated options of a bounds computation for callers in other modules (compare, the report).
+
+    ``order``: the highest order spec judged (sets the default trial order).
+    """
+    return _settings(gap, trial_order, 0, None, 0, parse_order(order))
+
+
 def _resolve(model: Model, level: Any) -> tuple[str, dict[int, float], str]:
     if not isinstance(model, Model):
         raise TypeError(f"model must be a ptcheck Model; got {type(model).__name__}")
@@ -380,18 +399,42 @@ def _resolve(model: Model, level: Any) -> tuple[str, dict[int, float], str]:
     return model.label(n), {n: 1.0}, "shift"
 
 
+def _sector_model(model: Model, n: int) -> tuple[Model, int]:
+    """The sub-model of level n's symmetry sector and n's index in it (the model itself with one sector).
+
+    V never couples sectors, so the level's bounds, gaps and identification are
+    judged among the levels of its own sector: equal energies in other sectors
+    are neither neighbours nor crossings.
+    """
+    if len(model.sectors) == 1:
+        return model, n
+    k = int(model.level_sectors[n])
+    sub = model.restrict(k)
+    return sub, int(np.searchsorted(np.flatnonzero(model.level_sectors == k), n))
+
+
 def _engines(model: Model, weights: dict[int, float], settings: Settings, caller: str) -> dict[int, LevelEngine]:
-    scales = operator_scales(model)
+    scales: dict[int, Any] = {}
     out = {}
     for n in weights:
+        sub, local = _sector_model(model, n)
+        if id(sub) not in scales:
+            scales[id(sub)] = operator_scales(sub)
         try:
-            out[n] = LevelEngine(model, n, settings, scales)
+            out[n] = LevelEngine(sub, local, settings, scales[id(sub)])
         except DegenerateLevelError as exc:
             raise DegenerateLevelError(
-                f"{caller} needs a non-degenerate level (its trial state is a Rayleigh–Schrödinger series): {exc}",
+                f"{caller} needs a level that is not degenerate with another level of its sector (its trial state "
+                f"is a Rayleigh–Schrödinger series; error_bounds and compare(..., reference='bounds') bracket a "
+                f"degenerate level at given couplings through its group): {exc}",
                 exc.pair,
             ) from None
     return out
+
+
+def _v_bound(engines: dict[int, LevelEngine]) -> float:
+    """Largest bound on ‖V‖ over the sectors of the levels used (energy units)."""
+    return max(max(abs(e.scales.v_min), abs(e.scales.v_max)) for e in engines.values())
 
 
 # ---------------------------------------------------------------------- one level, pointwise
@@ -463,7 +506,13 @@ def _pointwise(eng: LevelEngine, lam: np.ndarray, *, krylov: bool, allow_estimat
     return _Pointwise(lo, hi, rho, r, alpha, beta, kind, rigorous, ident)
 
 
-def _error_brackets(lo, hi, pert, ref_lo, ref_hi):
+def error_brackets(lo, hi, pert, ref_lo, ref_hi):
+    """(error ≥, error ≤, relative error ≥, relative error ≤) of ``pert`` against a value in [lo, hi].
+
+    The relative error is relative to a reference known to lie in [ref_lo,
+    ref_hi]; its upper end is ``inf`` where that range contains 0, and both
+    ends are NaN where the reference is exactly 0 (λ = 0).  Shapes broadcast.
+    """
     err_lo = np.maximum(0.0, np.maximum(lo - pert, pert - hi))
     err_hi = np.maximum(np.abs(pert - lo), np.abs(pert - hi))
     ref_max = np.maximum(np.abs(ref_lo), np.abs(ref_hi))
@@ -495,7 +544,10 @@ def error_bounds(
     model : Model
     level : level key or Quantity
         Energy rank, label, or a :class:`~ptcheck.Quantity` (its bracket is the
-        interval sum of its levels' brackets).  Levels must be non-degenerate.
+        interval sum of its levels' brackets).  A level that is exactly
+        degenerate with others of its sector is bracketed through its group
+        (module notes of :mod:`ptcheck._cluster`): its order-k energy is that of
+        degenerate perturbation theory, and its brackets are never rigorous.
     order : int, Pade or str
         The order spec whose error is bracketed.
     couplings : float or (C,) array_like
@@ -515,11 +567,6 @@ def error_bounds(
     Returns
     -------
     ErrorBounds
-
-    Raises
-    ------
-    DegenerateLevelError
-        A level is exactly degenerate in H0 (no Rayleigh–Schrödinger trial).
 
     Notes
     -----
@@ -546,7 +593,8 @@ def error_bounds(
     lam = val.as_couplings(couplings)
     name, weights, relative_to = _resolve(model, level)
     settings = _settings(gap, trial_order, krylov_steps, lanczos_steps, seed, spec)
-    engines = _engines(model, weights, settings, "error_bounds")
+    groups = _degenerate_members(model, list(weights), lam, settings)
+    engines = _engines(model, {n: w for n, w in weights.items() if n not in groups}, settings, "error_bounds")
     parts = []
     for n, eng in engines.items():
         pw = _pointwise(eng, lam, krylov=True)
@@ -555,7 +603,7 @@ def error_bounds(
 
     def level_result(n: int, eng: LevelEngine, pw: _Pointwise, pert: np.ndarray) -> ErrorBounds:
         e0 = float(model.e0[n])
-        el, eh, rl, rh = _error_brackets(pw.lo, pw.hi, pert, pw.lo - e0, pw.hi - e0)
+        el, eh, rl, rh = error_brackets(pw.lo, pw.hi, pert, pw.lo - e0, pw.hi - e0)
         gapv = np.minimum(pw.beta - pw.rho, pw.rho - pw.alpha)
         return ErrorBounds(
             model_name=model.name, target=model.label(n), levels=(n,), weights=(1.0,), order=spec,
@@ -567,11 +615,117 @@ def error_bounds(
             mat_vecs=eng.mat_vecs, notes=tuple(_level_notes(eng, pw, lam)),
         )
 
-    level_parts = [level_result(*p) for p in parts]
+    def group_result(n: int) -> ErrorBounds:
+        gb, i, exp = groups[n]
+        e0 = float(model.e0[n])
+        lo, hi = gb.lower[i], gb.upper[i]
+        pert = np.asarray(exp.energy(lam, spec), dtype=float)
+        el, eh, rl, rh = error_brackets(lo, hi, pert, lo - e0, hi - e0)
+        rho = gb.rayleigh_quotient[i]
+        gapv = np.minimum(gb.neighbour_above[i] - rho, rho - gb.neighbour_below[i])
+        return ErrorBounds(
+            model_name=model.name, target=model.label(n), levels=(n,), weights=(1.0,), order=spec,
+            trial_order=settings.trial_order, couplings=_ro(lam), perturbative=_ro(pert), unperturbed=e0,
+            rayleigh_quotient=_ro(rho), residual=_ro(gb.residual[i]), gap=_ro(gapv), gap_kind=_ro(gb.gap_kind),
+            neighbour_below=_ro(gb.neighbour_below[i]), neighbour_above=_ro(gb.neighbour_above[i]),
+            energy_lower=_ro(lo), energy_upper=_ro(hi), error_lower=_ro(el), error_upper=_ro(eh),
+            rel_error_lower=_ro(rl), rel_error_upper=_ro(rh), rigorous=_ro(np.zeros(lam.shape, dtype=bool)),
+            identified=_ro(gb.identified[i]), mat_vecs=gb.mat_vecs, notes=tuple(_group_notes(model, n, gb, i, lam, settings)),
+        )
+
+    by_level = {p[0]: level_result(*p) for p in parts}
+    by_level.update({n: group_result(n) for n in weights if n in groups})
+    level_parts = [by_level[n] for n in weights]
     if not isinstance(level, Quantity):
         only = level_parts[0]
         return replace(only, notes=(BOUNDS_NOTE,) + only.notes)
     return _combine(model, name, weights, relative_to, spec, settings, lam, level_parts)
+
+
+@dataclass(frozen=True)
+class LevelBracket:
+    """Bracket of one exact level over couplings (for :func:`ptcheck.compare`); arrays of shape (C,).
+
+    ``lower``/``upper`` in energy units; ``rigorous``: rigorous gaps and
+    identification; ``identified``: about the labelled level; ``gap_kind``:
+    the gap source per coupling.
+    """
+
+    lower: np.ndarray
+    upper: np.ndarray
+    rigorous: np.ndarray
+    identified: np.ndarray
+    gap_kind: np.ndarray
+
+
+def level_brackets(
+    model: Model, levels: list[int], couplings: np.ndarray, settings: Settings,
+) -> tuple[dict[int, LevelBracket], list[str], int]:
+    """Brackets of exact levels (work indices) at couplings, no exact solve.
+
+    Returns the brackets, notes and the mat-vecs spent.  A level in an exactly
+    degenerate group is bracketed through its group (never marked rigorous).
+    """
+    groups = _degenerate_members(model, levels, couplings, settings)
+    engines = _engines(model, {n: 1.0 for n in levels if n not in groups}, settings, "certified bounds")
+    out, notes = {}, [BOUNDS_NOTE]
+    for n, eng in engines.items():
+        pw = _pointwise(eng, couplings, krylov=True)
+        out[n] = LevelBracket(pw.lo, pw.hi, pw.rigorous & pw.identified, pw.identified, pw.kind.astype(str))
+        notes.extend(_level_notes(eng, pw, couplings))
+    spent = {id(gb): gb.mat_vecs for gb, _, _ in groups.values()}
+    for n in levels:
+        if n in groups:
+            gb, i, _ = groups[n]
+            out[n] = LevelBracket(gb.lower[i], gb.upper[i], np.zeros(couplings.shape, dtype=bool), gb.identified[i],
+                                  gb.gap_kind)
+            notes.extend(_group_notes(model, n, gb, i, couplings, settings))
+    return out, list(dict.fromkeys(notes)), int(sum(e.mat_vecs for e in engines.values()) + sum(spent.values()))
+
+
+def _degenerate_members(model: Model, levels: list[int], lam: np.ndarray, settings: Settings) -> dict[int, tuple]:
+    """Group brackets of the levels that are exactly degenerate in their sector: {level: (brackets, index, expansion)}.
+
+    The trial states are the group's degenerate-perturbation-theory states at the trial order
+    (:mod:`ptcheck.treatment`, standard treatment); see :mod:`ptcheck._cluster`.
+    """
+    out: dict[int, tuple] = {}
+    k = settings.trial_order
+    for n in levels:
+        grp = model.degenerate_group_of(n)
+        if grp is None or n in out:
+            continue
+        exps = expansion_map(model, list(grp), k, settings=CheckSettings())
+
+        def states(c: float, exps=exps, grp=grp) -> np.ndarray:
+            return np.stack([np.asarray(exps[m].state(np.array([c]), k)).reshape(model.n) for m in grp])
+
+        energies = np.stack([np.asarray(exps[m].energy(lam, k), dtype=float).reshape(lam.shape) for m in grp])
+        gb = group_brackets(model, tuple(grp), states, energies, lam, trial_order=k, use_neighbours=settings.gap != "weyl")
+        for i, m in enumerate(grp):
+            out[m] = (gb, i, exps[m])
+    return out
+
+
+def _group_notes(model: Model, n: int, gb: Any, i: int, lam: np.ndarray, settings: Settings) -> list[str]:
+    lab = model.label(n)
+    others = ", ".join(model.label(m) for m in model.degenerate_group_of(n) if m != n)
+    notes = [
+        f"Level {lab} is exactly degenerate with {others} in its sector: its bracket comes from the group's "
+        "degenerate-perturbation-theory states (Rayleigh–Ritz in their span, cluster and Kato–Temple bounds), and "
+        "its label is paired with the exact level of the same rank among the group's branches at each coupling. "
+        "That pairing is not proven along the path from λ = 0, so these brackets are conditional, never rigorous."
+    ]
+    if settings.gap in ("estimate", "given") or settings.krylov_steps > 0:
+        notes.append(f"Level {lab}: a degenerate group uses rigorous bounds outside the group (Weyl and the neighbours' "
+                     "own brackets); the gap option and Krylov steps asked for apply to non-degenerate levels only.")
+    bad = ~gb.identified[i] & (lam != 0)
+    if np.any(bad):
+        notes.append(
+            f"Level {lab}: at {int(np.sum(bad))} coupling(s) the group's brackets overlap (or reach past its "
+            "neighbours), so which exact level carries the label is not resolved there."
+        )
+    return notes
 
 
 def _level_notes(eng: LevelEngine, pw: _Pointwise, lam: np.ndarray) -> list[str]:
@@ -602,7 +756,7 @@ def _combine(model, name, weights, relative_to, spec, settings, lam, parts) -> E
     pert = sum(wi * p.perturbative for wi, p in zip(w, parts))
     unpert = float(sum(wi * p.unperturbed for wi, p in zip(w, parts)))
     ref_off = unpert if relative_to == "shift" else 0.0
-    el, eh, rl, rh = _error_brackets(lo, hi, pert, lo - ref_off, hi - ref_off)
+    el, eh, rl, rh = error_brackets(lo, hi, pert, lo - ref_off, hi - ref_off)
     kinds = np.array(["+".join(dict.fromkeys(str(p.gap_kind[i]) for p in parts)) for i in range(lam.size)])
     notes = [BOUNDS_NOTE, f"Quantity {name!r}: bracket = interval sum of its levels' brackets (weights {tuple(w.tolist())})."]
     for p in parts:
@@ -690,14 +844,17 @@ class _Criterion:
             return self.thr * (np.abs(pv(s, self.s_)) - t) - m - t
         return self.thr * pv(s, self.den) - m - t
 
-    def lipschitz(self, b: float) -> float:
-        def d(c):
-            j = np.arange(1, c.size)
-            return float(np.sum(j * np.abs(c[1:]) * b ** (j - 1))) if c.size > 1 else 0.0
+    def lipschitz(self, b: Any) -> np.ndarray:
+        """Bound on |g'| over [0, b] (shape of ``b``): derivatives with absolute coefficients, monotone in b."""
+        if not hasattr(self, "_lip"):
+            def d(c):
+                return np.arange(1, c.size) * np.abs(c[1:]) if c.size > 1 else np.zeros(1)
 
-        lip = d(self.m) + d(self.t)
-        lip += self.thr * (d(self.s_) + d(self.t)) if self.relative else self.thr * d(self.den)
-        return lip
+            parts = [d(self.m), d(self.t)]
+            parts += [self.thr * d(self.s_), self.thr * d(self.t)] if self.relative else [self.thr * d(self.den)]
+            size = max(p.size for p in parts)
+            self._lip = sum(np.concatenate([p, np.zeros(size - p.size)]) for p in parts)
+        return np.polynomial.polynomial.polyval(np.asarray(b, dtype=float), self._lip)
 
 
 def _first_root(g: _Criterion, s_lo: float, s_max: float) -> float:
@@ -713,27 +870,33 @@ def _first_root(g: _Criterion, s_lo: float, s_max: float) -> float:
 
 
 def _certify_prefix(g: _Criterion, target: float, max_evals: int = 200000) -> float:
-    """Largest s ≤ target with g ≥ 0 proven on [0, s] (Lipschitz subdivision, left to right)."""
+    """Largest s ≤ target with g ≥ 0 proven on [0, s] (Lipschitz subdivision, left to right).
+
+    On a cell [a, b], g ≥ (g(a) + g(b))/2 − L(b)(b − a)/2 with L(b) the bound on
+    |g'| over [0, b]; a cell is proven when that is ≥ 0.  Cells are halved (up
+    to 64 per round, vectorised) until every cell is proven or the first
+    unproven one starts where g < 0 or has shrunk to rounding size.
+    """
     if target <= 0:
         return 0.0
-    done = 0.0
-    stack = [(0.0, target)]
-    evals = 0
-    while stack:
-        a, b = stack.pop()
-        ga, gb = float(g(np.array(a))), float(g(np.array(b)))
-        evals += 2
-        if not ga >= 0:
-            return a
-        if gb >= 0 and ga + gb >= g.lipschitz(b) * (b - a):
-            done = b
-            continue
-        if b - a < 1e-13 * target or evals > max_evals:
-            return a
-        m = 0.5 * (a + b)
-        stack.append((m, b))
-        stack.append((a, m))
-    return done
+    edges = np.linspace(0.0, target, 65)
+    vals = np.asarray(g(edges), dtype=float)
+    evals = edges.size
+    while True:
+        a, b, ga, gb = edges[:-1], edges[1:], vals[:-1], vals[1:]
+        ok = (ga >= 0) & (gb >= 0) & (ga + gb >= g.lipschitz(b) * (b - a))
+        if ok.all():
+            return target
+        i = int(np.argmin(ok))
+        if not ga[i] >= 0 or b[i] - a[i] < 1e-13 * target or evals > max_evals:
+            return float(a[i])
+        bad_edge = np.flatnonzero(~(vals >= 0))
+        stop = int(bad_edge[0]) if bad_edge.size else edges.size  # cells beyond a failing point never count
+        todo = np.flatnonzero(~ok[:stop])[:64]
+        mids = 0.5 * (a[todo] + b[todo])
+        edges = np.insert(edges, todo + 1, mids)
+        vals = np.insert(vals, todo + 1, np.asarray(g(mids), dtype=float))
+        evals += mids.size
 
 
 def certified_boundary(
@@ -805,17 +968,30 @@ def certified_boundary(
         raise ValueError(f"certified_boundary needs a truncation order (an int); got {order_name(spec)}")
     k = int(spec)
     xrtol = float(val.check_positive(xrtol, "xrtol"))
+    if max_coupling is not None:
+        max_coupling = float(val.check_positive(max_coupling, "max_coupling"))
     name, weights, relative_to = _resolve(model, level)
     settings = _settings(gap, trial_order, krylov_steps, lanczos_steps, seed, spec)
-    engines = _engines(model, weights, settings, "certified_boundary")
-    scales = next(iter(engines.values())).scales
-    v_big = max(abs(scales.v_min), abs(scales.v_max))
+    return certify(model, name, weights, relative_to, k, thr, relative, direction, settings, max_coupling, xrtol)
+
+
+def certify(
+    model: Model, name: str, weights: dict[int, float], relative_to: str, k: int, thr: float, relative: bool,
+    direction: int, settings: Settings, max_coupling: float | None, xrtol: float, *, reach_at_least: float = 0.0,
+) -> CertifiedBoundary:
+    """:func:`certified_boundary` on validated, resolved input.
+
+    ``reach_at_least``: the default search limit is raised to this |λ| (the
+    caller's coupling of interest must be inside the range searched).
+    """
+    engines = _engines(model, weights, settings, "certified bounds")
+    v_big = _v_bound(engines)
     iso = min(e.sep0 for e in engines.values())
     s_nat = iso / v_big if v_big > 0 else np.inf
     if max_coupling is None:
-        s_max = 100.0 * s_nat if np.isfinite(s_nat) else 1e6
+        s_max = max(100.0 * s_nat if np.isfinite(s_nat) else 1e6, reach_at_least)
     else:
-        s_max = float(val.check_positive(max_coupling, "max_coupling"))
+        s_max = max_coupling
     notes = [BOUNDS_NOTE]
     pieces = [(weights[n], eng.trial.polynomials(direction), float(model.e0[n])) for n, eng in engines.items()]
 
@@ -878,7 +1054,7 @@ def certified_boundary(
         s_p = max(s_p, best)
 
     # beyond the polynomial certificate: pointwise Kato–Temple brackets and Weyl's slope bound
-    target = _Target(engines, weights, spec, direction, thr, relative, relative_to, model)
+    target = _Target(engines, weights, k, direction, thr, relative, relative_to, model)
     fail, fail_rig = np.nan, False
     if s_p < s_max:
         fail, fail_rig = _find_fail(target, max(s_p, 1e-9 * min(s_nat, s_max)), s_max, xrtol, settings.krylov_steps > 0)
@@ -921,7 +1097,7 @@ class _Target:
         unpert = sum(weights[n] * float(model.e0[n]) for n in engines)
         self.offset = unpert if relative_to == "shift" else 0.0
         w = np.array([weights[n] for n in engines])
-        v_big = max(abs(next(iter(engines.values())).scales.v_min), abs(next(iter(engines.values())).scales.v_max))
+        v_big = _v_bound(engines)
         self.slope = float(np.sum(np.abs(w))) * v_big  # |d(exact value)/dλ| ≤ Σ|w| ‖V‖ (Weyl)
         k = int(spec)
         coef = sum(weights[n] * eng.trial.energy_coefficients[: k + 1] for n, eng in engines.items())
@@ -944,7 +1120,7 @@ class _Target:
             rig &= pw.rigorous
             useful &= (pw.alpha < pw.rho) & (pw.rho < pw.beta)
         pert = np.polynomial.polynomial.polyval(np.abs(lam), self.pert_coef)
-        el, eh, _, _ = _error_brackets(lo, hi, pert, lo - self.offset, hi - self.offset)
+        el, eh, _, _ = error_brackets(lo, hi, pert, lo - self.offset, hi - self.offset)
         ref_lo, ref_hi = lo - self.offset, hi - self.offset
         contains_zero = (ref_lo <= 0) & (ref_hi >= 0)
         ref_min = np.where(contains_zero, 0.0, np.minimum(np.abs(ref_lo), np.abs(ref_hi)))

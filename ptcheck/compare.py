@@ -34,6 +34,7 @@ from scipy.sparse.linalg import ArpackError, ArpackNoConvergence
 from . import _validation as val
 from . import pairing
 from .approximants import OrderSpec, Pade, order_name, parse_order, parse_orders, required_order
+from .bounds import bounds_options, certify, error_brackets, level_brackets
 from .degeneracy import DEFAULT_MIXING_THRESHOLD
 from .errors import AccuracyWarning
 from .exact import ExactSolver
@@ -62,6 +63,8 @@ __all__ = [
     "TRUNCATION_NOTE",
     "MAX_COUPLING_ENERGY",
     "BOUNDARY_STATUSES",
+    "DECISIONS",
+    "REFERENCES",
 ]
 
 TRUNCATION_NOTE = (
@@ -74,8 +77,18 @@ TRUNCATION_NOTE = (
 #: squares of matrix entries overflow float64 inside the eigensolvers.
 MAX_COUPLING_ENERGY = 1e150
 
-#: Status values of :class:`ValidityBoundary`.
-BOUNDARY_STATUSES = ("found", "not_reached", "fails_at_zero", "ill_defined", "exact_in_sector")
+#: Status values of :class:`ValidityBoundary` ("certified" and "not_certified" come from
+#: ``reference="bounds"`` only).
+BOUNDARY_STATUSES = (
+    "found", "not_reached", "fails_at_zero", "ill_defined", "exact_in_sector", "certified", "not_certified",
+)
+
+#: Where the reference values of a check come from: exact solves, certified bounds (no exact
+#: solve: :mod:`ptcheck.bounds`), or both side by side (:func:`compare` only).
+REFERENCES = ("exact", "bounds", "both")
+
+#: What :meth:`ValidityBoundary.decision_at` can say about one coupling.
+DECISIONS = ("valid", "not valid", "undecided")
 
 #: An error below this many ulps of the energy scale (span of E0 + |λ| ‖V‖, per unit weight of the target's
 #: levels) is round-off of the shifts and counts as zero in a validity boundary search.
@@ -139,12 +152,24 @@ def _unperturbed(model: Model, t: _Target) -> float:
     return float(sum(w * model.e0[n] for n, w in t.weights.items()))
 
 
-def _check_coupling_range(model: Model, largest: float, name: str = "coupling") -> None:
-    """Refuse couplings for which H(λ) overflows float64 arithmetic in the eigensolvers."""
+def _cheap_norm_bound(model: Model) -> float:
+    """An upper bound on ‖V‖ without an eigensolve: the largest absolute row sum (energy units)."""
+    v = model.v
+    rows = abs(v).sum(axis=1)
+    return float(np.max(np.asarray(rows).ravel(), initial=0.0))
+
+
+def _check_coupling_range(model: Model, largest: float, name: str = "coupling", *, norm: float | None = None) -> None:
+    """Refuse couplings for which H(λ) overflows float64 arithmetic in the eigensolvers.
+
+    ``norm``: a bound on ‖V‖ to use instead of ``model.norm_v`` (which costs an
+    eigensolve on a large sparse model).
+    """
+    norm_v = model.norm_v if norm is None else norm
     scale = float(max(np.max(np.abs(model.e0)), np.ptp(model.e0), 1.0))
-    size = abs(largest) * model.norm_v
+    size = abs(largest) * norm_v
     if not np.isfinite(size) or size > MAX_COUPLING_ENERGY * scale:
-        limit = MAX_COUPLING_ENERGY * scale / model.norm_v if model.norm_v > 0 else math.inf
+        limit = MAX_COUPLING_ENERGY * scale / norm_v if norm_v > 0 else math.inf
         raise ValueError(
             f"{name} {largest:g} is too large: |λ| ‖V‖ = {size:.3g} overflows float64 arithmetic in the exact "
             f"eigensolvers; use |λ| <= {limit:.3g} for this model"
@@ -247,6 +272,26 @@ class ComparisonResult:
         their groups), with its reason.
     coupling : float
         Coupling of interest |λ| used for near-degeneracy judgements.
+    reference : str
+        ``"exact"`` (exact solves), ``"bounds"`` (certified brackets only, no
+        exact solve: ``exact``, ``abs_error``, ``rel_error`` and ``infidelity``
+        are NaN) or ``"both"``.
+    exact_lower, exact_upper : (T, C) ndarray or None
+        Certified bracket of the exact value (energy units; the value, also
+        for a target that presents its shift); None with ``reference="exact"``;
+        NaN where a target could not be bracketed (``notes`` say why).
+    error_lower, error_upper : (T, O, C) ndarray or None
+        Bracket of ``abs_error`` from those brackets (energy units).
+    rel_error_lower, rel_error_upper : (T, O, C) ndarray or None
+        Bracket of ``rel_error`` (upper end ``inf`` where the reference's
+        bracket contains 0).
+    bounds_rigorous : (T, C) bool ndarray or None
+        The bracket rests on rigorous gaps and identifies the labelled level;
+        False where it is conditional on an estimated gap (or not shown to be
+        about the labelled level).
+    bounds_gap_kind : (T, C) str ndarray or None
+        Gap source of each bracket (:mod:`ptcheck.bounds`; a quantity joins its
+        levels' sources with "+").
     """
 
     model_name: str
@@ -275,6 +320,15 @@ class ComparisonResult:
     suggestions: tuple = field(default=())
     choices: tuple = field(default=())
     coupling: float = math.nan
+    reference: str = "exact"
+    exact_lower: np.ndarray | None = None
+    exact_upper: np.ndarray | None = None
+    error_lower: np.ndarray | None = None
+    error_upper: np.ndarray | None = None
+    rel_error_lower: np.ndarray | None = None
+    rel_error_upper: np.ndarray | None = None
+    bounds_rigorous: np.ndarray | None = None
+    bounds_gap_kind: np.ndarray | None = None
 
     @property
     def order_names(self) -> tuple[str, ...]:
@@ -298,6 +352,18 @@ class ComparisonResult:
         """Error of one target at one order over the couplings, shape (C,)."""
         ti, oi = self._index(target, order)
         return (self.rel_error if relative else self.abs_error)[ti, oi]
+
+    def error_bracket(self, target: Any, order: Any, *, relative: bool = False) -> tuple[np.ndarray, np.ndarray]:
+        """Certified (lower, upper) bracket of the error of one target at one order, each shape (C,).
+
+        Raises ValueError for a comparison made with ``reference="exact"``.
+        """
+        if self.error_lower is None:
+            raise ValueError("this comparison has no bounds; call compare(..., reference='bounds' or 'both')")
+        ti, oi = self._index(target, order)
+        if relative:
+            return self.rel_error_lower[ti, oi], self.rel_error_upper[ti, oi]
+        return self.error_lower[ti, oi], self.error_upper[ti, oi]
 
     def __repr__(self) -> str:
         return (
@@ -338,6 +404,15 @@ class ComparisonResult:
             "backend": self.backend,
             "exact_solves": self.exact_solves,
             "notes": list(self.notes),
+            "reference": self.reference,
+            "exact_lower": None if self.exact_lower is None else nn(self.exact_lower),
+            "exact_upper": None if self.exact_upper is None else nn(self.exact_upper),
+            "error_lower": None if self.error_lower is None else nn(self.error_lower),
+            "error_upper": None if self.error_upper is None else nn(self.error_upper),
+            "rel_error_lower": None if self.rel_error_lower is None else nn(self.rel_error_lower),
+            "rel_error_upper": None if self.rel_error_upper is None else nn(self.rel_error_upper),
+            "bounds_rigorous": None if self.bounds_rigorous is None else self.bounds_rigorous.tolist(),
+            "bounds_gap_kind": None if self.bounds_gap_kind is None else self.bounds_gap_kind.tolist(),
         }
 
     def to_rows(self) -> list[dict]:
@@ -370,6 +445,17 @@ class ComparisonResult:
                             "ambiguous": bool(self.ambiguous[ti, ci]) if self.ambiguous is not None else False,
                         }
                     )
+                    if self.error_lower is not None:
+                        rows[-1].update({
+                            "exact_lower": float(self.exact_lower[ti, ci]),
+                            "exact_upper": float(self.exact_upper[ti, ci]),
+                            "error_lower": float(self.error_lower[ti, oi, ci]),
+                            "error_upper": float(self.error_upper[ti, oi, ci]),
+                            "rel_error_lower": float(self.rel_error_lower[ti, oi, ci]),
+                            "rel_error_upper": float(self.rel_error_upper[ti, oi, ci]),
+                            "bounds_rigorous": bool(self.bounds_rigorous[ti, ci]),
+                            "bounds_gap_kind": str(self.bounds_gap_kind[ti, ci]),
+                        })
         return rows
 
     def _repr_html_(self) -> str:
@@ -403,6 +489,9 @@ def compare(
     threshold: float = DEFAULT_MIXING_THRESHOLD,
     method: str = "schrieffer-wolff",
     coupling: float | None = None,
+    reference: str = "exact",
+    gap: str | float = "auto",
+    trial_order: int | None = None,
 ) -> ComparisonResult:
     """Compare perturbative and exact values of levels or quantities.
 
@@ -430,6 +519,20 @@ def compare(
         Method of near-degenerate blocks.
     coupling : float, optional
         Coupling of interest (default: the largest |λ| compared).
+    reference : {"exact", "bounds", "both"}, default "exact"
+        Exact solves; certified brackets of the exact values instead (no exact
+        solve, for bases too large to diagonalise: :mod:`ptcheck.bounds`); or
+        both side by side.  The brackets are the fields ``exact_lower`` ...
+        ``rel_error_upper``.  A level in an exactly degenerate group is
+        bracketed through its group (conditional, never rigorous: see
+        :func:`ptcheck.error_bounds`).  Where a level cannot be bracketed,
+        ``"bounds"`` raises ``ValueError``; ``"both"`` leaves NaN brackets and a
+        note.
+    gap : {"auto", "weyl", "neighbours", "estimate"} or float, default "auto"
+        Gap source of the brackets (:mod:`ptcheck.bounds`).
+    trial_order : int, optional
+        Order of the trial states of the brackets (default ``max(12, k + 10)``
+        for the highest truncation order k compared).
 
     Returns
     -------
@@ -448,34 +551,117 @@ def compare(
     targets = _resolve_targets(model, levels)
     specs = parse_orders(orders)
     lam = val.as_couplings(couplings)
-    _check_coupling_range(model, float(np.max(np.abs(lam))), "couplings reach")
+    reference = val.check_choice(reference, "reference", REFERENCES)
+    opts = None
+    if reference == "exact":
+        if not (isinstance(gap, str) and gap == "auto") or trial_order is not None:
+            raise ValueError(
+                f"gap and trial_order shape certified bounds: give them with reference='bounds' or 'both'; got "
+                f"gap={gap!r}, trial_order={trial_order!r} with reference='exact'"
+            )
+    else:
+        top = max((sp_ for sp_ in specs if not isinstance(sp_, Pade)), default=0)
+        opts = bounds_options(gap, trial_order, top if trial_order is None else 0)  # brackets need no K > k
+    norm = _cheap_norm_bound(model) if reference == "bounds" else None
+    _check_coupling_range(model, float(np.max(np.abs(lam))), "couplings reach", norm=norm)
     if coupling is not None:
         coupling = val.as_coupling(coupling)
-        _check_coupling_range(model, coupling)
+        _check_coupling_range(model, coupling, norm=norm)
     settings = CheckSettings(
         treatment=treatment, backend=backend, threshold=threshold, method=method,
         coupling=float(np.max(np.abs(lam))) if coupling is None else coupling,
     )
-    return _compare(model, levels, targets, specs, lam, settings)
+    return _compare(model, levels, targets, specs, lam, settings, reference=reference, opts=opts)
 
 
-def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam: np.ndarray, s: CheckSettings) -> ComparisonResult:
+@dataclass(frozen=True)
+class _Brackets:
+    """Certified brackets of every target (value, errors), shapes as in :class:`ComparisonResult`."""
+
+    exact_lower: np.ndarray
+    exact_upper: np.ndarray
+    error_lower: np.ndarray
+    error_upper: np.ndarray
+    rel_error_lower: np.ndarray
+    rel_error_upper: np.ndarray
+    rigorous: np.ndarray
+    gap_kind: np.ndarray
+    notes: tuple
+
+
+def _target_brackets(
+    model: Model, targets: list[_Target], lam: np.ndarray, pert_value: np.ndarray, opts: Any, *, strict: bool,
+) -> _Brackets:
+    """Brackets of each target's exact value and of its errors (interval arithmetic over its levels).
+
+    ``strict``: a level that cannot be bracketed raises; otherwise its targets
+    get NaN brackets and a note.
+    """
+    n_t, n_o, n_c = pert_value.shape
+    lo = np.full((n_t, n_c), np.nan)
+    hi = np.full((n_t, n_c), np.nan)
+    rig = np.zeros((n_t, n_c), dtype=bool)
+    kind = np.full((n_t, n_c), "", dtype=object)
+    notes: list[str] = []
+    per_level: dict[int, Any] = {}
+    for n in _needed_levels(targets):
+        try:
+            got, level_notes, _ = level_brackets(model, [n], lam, opts)
+        except (ValueError, FloatingPointError) as exc:  # e.g. a group whose expansion overflows
+            if strict:
+                raise
+            notes.append(f"No certified bracket for level {model.label(n)}: {exc}")
+            continue
+        per_level.update(got)
+        notes.extend(level_notes)
+    for ti, t in enumerate(targets):
+        if not all(n in per_level for n in t.weights):
+            continue
+        parts = [(w, per_level[n]) for n, w in t.weights.items()]
+        lo[ti] = sum(np.where(w >= 0, w * b.lower, w * b.upper) for w, b in parts)
+        hi[ti] = sum(np.where(w >= 0, w * b.upper, w * b.lower) for w, b in parts)
+        rig[ti] = np.all([b.rigorous for _, b in parts], axis=0)
+        kind[ti] = ["+".join(dict.fromkeys(str(b.gap_kind[i]) for _, b in parts)) for i in range(n_c)]
+    offset = np.array([_unperturbed(model, t) if t.relative_to == "shift" else 0.0 for t in targets])
+    el, eh, rl, rh = error_brackets(
+        lo[:, None, :], hi[:, None, :], pert_value, (lo - offset[:, None])[:, None, :], (hi - offset[:, None])[:, None, :],
+    )
+    nan_pert = np.isnan(pert_value) | np.isnan(lo)[:, None, :]
+    el, eh, rl, rh = (np.where(nan_pert, np.nan, a) for a in (el, eh, rl, rh))
+    return _Brackets(lo, hi, el, eh, rl, rh, rig, kind.astype(str), tuple(notes))
+
+
+def _compare(
+    model: Model, keys: Any, targets: list[_Target], specs: tuple, lam: np.ndarray, s: CheckSettings, *,
+    reference: str = "exact", opts: Any = None,
+) -> ComparisonResult:
     max_order = max(required_order(sp_) for sp_ in specs)
     needed = _needed_levels(targets)
     exps = expansion_map(model, needed, max_order, settings=s)
     need_states = any(t.is_level for t in targets) and any(not isinstance(sp_, Pade) for sp_ in specs)
-
-    solver = ExactSolver(model, backend=s.backend, n_levels_hint=len(exps))
-    with _solver_guard(f"on the couplings compared (|λ| up to {float(np.max(np.abs(lam))):g})"):
-        paired = pairing.sweep(solver, exps, needed, lam, keep_states=need_states)
-    row = {n: paired.row(n) for n in needed}
-    ex_shift = _combine(targets, {n: paired.shifts[row[n]] for n in needed})  # (T, C)
-    ex_energy = _combine(targets, {n: paired.energies[row[n]] for n in needed})
-    amb = np.stack([np.any([paired.ambiguous[row[n]] for n in t.weights], axis=0) for t in targets])
     unperturbed = np.array([_unperturbed(model, t) for t in targets])
-
     notes = [TRUNCATION_NOTE]
-    notes.extend(paired.notes)
+
+    if reference == "bounds":
+        need_states = False
+        nan_tc = np.full((len(targets), lam.size), np.nan)
+        ex_shift, ex_energy = nan_tc, nan_tc.copy()
+        amb = np.zeros((len(targets), lam.size), dtype=bool)
+        avoided, backend_used, solves = (), "none (certified bounds)", 0
+        notes = [
+            "No exact solve: the exact values are bracketed by certified bounds (Kato–Temple brackets from "
+            "perturbative trial states); exact, abs_error and rel_error are NaN, see exact_lower ... rel_error_upper."
+        ]
+    else:
+        solver = ExactSolver(model, backend=s.backend, n_levels_hint=len(exps))
+        with _solver_guard(f"on the couplings compared (|λ| up to {float(np.max(np.abs(lam))):g})"):
+            paired = pairing.sweep(solver, exps, needed, lam, keep_states=need_states)
+        row = {n: paired.row(n) for n in needed}
+        ex_shift = _combine(targets, {n: paired.shifts[row[n]] for n in needed})  # (T, C)
+        ex_energy = _combine(targets, {n: paired.energies[row[n]] for n in needed})
+        amb = np.stack([np.any([paired.ambiguous[row[n]] for n in t.weights], axis=0) for t in targets])
+        avoided, backend_used, solves = tuple(paired.avoided_crossings), paired.backend, paired.solves
+        notes.extend(paired.notes)
     pert_shift = np.full((len(targets), len(specs), lam.size), np.nan)
     infid = np.full_like(pert_shift, np.nan)
     for oi, spec in enumerate(specs):
@@ -500,7 +686,8 @@ def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam:
     with np.errstate(invalid="ignore"):
         perturbative = unperturbed[:, None, None] + pert_shift
     ref = np.stack([np.abs(ex_shift[i]) if t.relative_to == "shift" else np.abs(ex_energy[i]) for i, t in enumerate(targets)])
-    scale = float(max(np.ptp(model.e0), model.norm_v * float(np.max(np.abs(lam))), np.finfo(float).tiny))
+    norm_v = _cheap_norm_bound(model) if reference == "bounds" else model.norm_v
+    scale = float(max(np.ptp(model.e0), norm_v * float(np.max(np.abs(lam))), np.finfo(float).tiny))
     tiny = 1e-12 * scale
     with np.errstate(divide="ignore", invalid="ignore"):
         rel = np.where(ref[:, None, :] > tiny, abs_err / ref[:, None, :], np.nan)
@@ -512,6 +699,10 @@ def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam:
     ex_pres = np.stack([ex_shift[i] if p == "shift" else ex_energy[i] for i, p in enumerate(presents)])
     pert_pres = np.stack([pert_shift[i] if p == "shift" else perturbative[i] for i, p in enumerate(presents)])
     in_sector = tuple(_exact_in_sector(exps, t) for t in targets)
+    br = None
+    if reference != "exact":
+        br = _target_brackets(model, targets, lam, perturbative, opts, strict=reference == "bounds")
+        notes.extend(br.notes)
     notes.extend(_treatment_notes(model, exps, needed, targets, s))
     suggestions = tuple(_suggestions(model, targets, exps, s))
     for sg in suggestions:
@@ -530,9 +721,9 @@ def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam:
         rel_error=_ro(rel),
         infidelity=_ro(infid),
         treatments=tuple(_combined_treatment(exps, t) for t in targets),
-        avoided_crossings=tuple(paired.avoided_crossings),
-        backend=paired.backend,
-        exact_solves=paired.solves,
+        avoided_crossings=avoided,
+        backend=backend_used,
+        exact_solves=solves,
         notes=tuple(dict.fromkeys(notes)),
         reasons=tuple(_combined_reason(model, exps, t) for t in targets),
         presents=presents,
@@ -543,6 +734,15 @@ def _compare(model: Model, keys: Any, targets: list[_Target], specs: tuple, lam:
         suggestions=suggestions,
         choices=tuple(e.choice for e in exps.values()),
         coupling=float(s.coupling) if s.coupling is not None else math.nan,
+        reference=reference,
+        exact_lower=None if br is None else _ro(br.exact_lower),
+        exact_upper=None if br is None else _ro(br.exact_upper),
+        error_lower=None if br is None else _ro(br.error_lower),
+        error_upper=None if br is None else _ro(br.error_upper),
+        rel_error_lower=None if br is None else _ro(br.rel_error_lower),
+        rel_error_upper=None if br is None else _ro(br.rel_error_upper),
+        bounds_rigorous=None if br is None else _ro(br.rigorous),
+        bounds_gap_kind=None if br is None else _ro(br.gap_kind),
     )
 
 
@@ -648,19 +848,31 @@ class ValidityBoundary:
         Signed coupling λ* (``direction x |λ*|``) at which the error first
         exceeds the tolerance; ``inf`` (signed) if it never does up to
         ``max_coupling``; NaN when the boundary is ill defined or the target is
-        exact within its sector (see ``status``).
+        exact within its sector (see ``status``).  With
+        ``reference="bounds"``: the **certified** coupling — for every |λ|
+        below it the error is guaranteed to meet the tolerance (given the gap,
+        see ``rigorous``), so the true λ* is at least this; 0 when nothing
+        could be certified.
     status : str
         ``"found"``, ``"not_reached"`` (within ``max_coupling``), ``"fails_at_zero"``
         (the error exceeds the tolerance at any nonzero coupling),
         ``"ill_defined"`` (relative error where the exact shift passes through 0),
         or ``"exact_in_sector"`` (the treatment is exact diagonalisation of a
-        whole invariant sector: no order is judged).
+        whole invariant sector: no order is judged).  With
+        ``reference="bounds"``: ``"certified"`` (``coupling`` > 0 is certified;
+        ``certified_not`` says where failure is certified, NaN if nowhere),
+        ``"not_certified"`` (no coupling could be certified), ``"not_reached"``
+        (certified up to ``max_coupling``), ``"fails_at_zero"`` or
+        ``"exact_in_sector"``.
     exact_solves : int
-        Exact diagonalisations used.
+        Exact diagonalisations used (always 0 with ``reference="bounds"``).
     bracket : tuple of float
-        Final bracket (|λ|) around the boundary.
+        Final bracket (|λ|) around the boundary.  With ``reference="bounds"``:
+        (|coupling|, |certified_not|), the certified range in which the true
+        boundary lies (NaN upper end where no failure is certified).
     error_at_boundary : float
-        Error (absolute or relative, as asked) at the upper bracket end.
+        Error (absolute or relative, as asked) at the upper bracket end (NaN
+        with ``reference="bounds"``).
     max_coupling : float
         Largest |λ| the search could reach.
     notes : tuple of str
@@ -671,6 +883,29 @@ class ValidityBoundary:
         at the coupling of interest): the partner, its mixing ratio, where it
         reaches the threshold, the smallest block that fixes it and that
         block's validity boundary.  Beside the answer, never in its place.
+    reference : str
+        ``"exact"`` (exact solves) or ``"bounds"`` (certified bounds, no exact
+        solve: :mod:`ptcheck.bounds`).
+    certified_not : float
+        ``reference="bounds"``: signed coupling at which the error is certified
+        to exceed the tolerance, so the order is certified NOT valid at every
+        |λ| ≥ |certified_not| on this ray (the first crossing lies below it);
+        NaN when no failure could be certified, and always NaN for
+        ``reference="exact"``.
+    rigorous : bool
+        ``reference="bounds"``: ``coupling`` rests on rigorous gaps only
+        (Weyl's inequality, the neighbours' own brackets); False when it is
+        conditional on an estimated (Lanczos) or given gap.  Always False for
+        ``reference="exact"`` (no certificate is claimed there).
+    rigorous_coupling : float
+        ``reference="bounds"``: signed coupling certified with rigorous gaps
+        alone (|·| ≤ |coupling|); NaN for ``reference="exact"``.
+    gap_kind : str
+        ``reference="bounds"``: the gap option used (``"auto"``, ``"weyl"``,
+        ``"neighbours"``, ``"estimate"`` or ``"given (δ)"``); empty for
+        ``reference="exact"``.
+    mat_vecs : int
+        ``reference="bounds"``: products of a vector with V or H spent.
     """
 
     target: str
@@ -688,11 +923,39 @@ class ValidityBoundary:
     notes: tuple = ()
     reason: str = ""
     suggestions: tuple = ()
+    reference: str = "exact"
+    certified_not: float = math.nan
+    rigorous: bool = False
+    rigorous_coupling: float = math.nan
+    gap_kind: str = ""
+    mat_vecs: int = 0
 
     @property
     def magnitude(self) -> float:
         """|λ*|."""
         return abs(self.coupling)
+
+    def decision_at(self, coupling: float) -> str:
+        """What this boundary decides at ``coupling``: one of :data:`DECISIONS`.
+
+        ``"valid"`` exactly when :meth:`valid_at` is True.  With
+        ``reference="exact"`` every other coupling is ``"not valid"``.  With
+        ``reference="bounds"`` a coupling is ``"not valid"`` only where failure
+        is certified (|λ| ≥ |certified_not|, or the order fails at any nonzero
+        coupling) and ``"undecided"`` between the certified coupling and that
+        (an exact check, a higher trial order or a better gap decides there).
+        ``"exact_in_sector"``, ``"ill_defined"`` and an ``"error"`` status are
+        ``"undecided"`` (no order is judged).
+        """
+        if self.valid_at(coupling):
+            return "valid"
+        if self.status in ("exact_in_sector", "ill_defined", "error"):
+            return "undecided"
+        if self.reference == "exact" or self.status == "fails_at_zero":
+            return "not valid"
+        if math.isfinite(self.certified_not) and abs(float(coupling)) >= abs(self.certified_not):
+            return "not valid"
+        return "undecided"
 
     def valid_at(self, coupling: float) -> bool:
         """Does this order meet the tolerance at ``coupling`` (same sign as ``direction``)?
@@ -709,10 +972,19 @@ class ValidityBoundary:
             return lam <= self.max_coupling
         if self.status == "fails_at_zero":
             return lam == 0.0
+        if self.status == "certified":
+            return lam < abs(self.coupling)
         return False
 
     def __repr__(self) -> str:
         t = f"tol={self.tol:g}" if self.tol is not None else f"rtol={self.rtol:g}"
+        if self.reference == "bounds":
+            kind = "rigorous" if self.rigorous else "conditional"
+            return (
+                f"ValidityBoundary({self.target}, {order_name(self.order)}, {t}: certified to {self.coupling:.6g} "
+                f"({kind}), certified not from {self.certified_not:.6g}, status={self.status!r}, "
+                f"treatment={self.treatment!r}, exact_solves={self.exact_solves})"
+            )
         return (
             f"ValidityBoundary({self.target}, {order_name(self.order)}, {t}: coupling={self.coupling:.6g}, "
             f"status={self.status!r}, treatment={self.treatment!r}, exact_solves={self.exact_solves})"
@@ -740,6 +1012,12 @@ class ValidityBoundary:
             "max_coupling": f(self.max_coupling),
             "suggestions": [s.to_dict() for s in self.suggestions],
             "notes": list(self.notes),
+            "reference": self.reference,
+            "certified_not": f(self.certified_not),
+            "rigorous": self.rigorous,
+            "rigorous_coupling": f(self.rigorous_coupling),
+            "gap_kind": self.gap_kind,
+            "mat_vecs": self.mat_vecs,
         }
 
     def _repr_html_(self) -> str:
@@ -797,15 +1075,17 @@ class _ErrorFunction:
         if err <= self.noise(s):
             err = 0.0  # below the round-off of the shifts: no error can be resolved (e.g. a χ of 1e-15 at tiny λ)
         if self.relative:
-            err = err / abs(ref_val) if ref_val != 0 else (0.0 if err == 0 else np.inf)
+            # a zero reference: undefined relative error, a failure -- unless the order reproduces it exactly
+            err = err / abs(ref_val) if ref_val != 0 else (0.0 if err == 0.0 else np.inf)
         err = min(err, _AMBIGUOUS_ERROR)
         self.seen[s] = (err, ref_val)
         return err
 
 
-def _search_scale(model: Model, target: _Target) -> float:
-    """Natural coupling scale: smallest isolation distance inside the level's sector / ‖V‖."""
-    nv = model.norm_v
+def _search_scale(model: Model, target: _Target, *, norm: float | None = None) -> float:
+    """Natural coupling scale: smallest isolation distance inside the level's sector / ‖V‖ (``norm``: a bound
+    used instead of ‖V‖)."""
+    nv = model.norm_v if norm is None else norm
     if nv == 0:
         return np.inf
     gaps = []
@@ -861,6 +1141,10 @@ def validity_boundary(
     threshold: float = DEFAULT_MIXING_THRESHOLD,
     method: str = "schrieffer-wolff",
     coupling: float | None = None,
+    reference: str = "exact",
+    gap: str | float = "auto",
+    trial_order: int | None = None,
+    suggestions: bool = True,
 ) -> ValidityBoundary:
     """Smallest |λ| along ``direction`` where the error first exceeds the tolerance.
 
@@ -901,6 +1185,25 @@ def validity_boundary(
         Coupling of interest |λ0|.  The search makes sure the first crossing
         below |λ0| is found (so a verdict "valid at λ0" ⇔ |λ0| below the
         boundary), and suggestions are judged there.
+    reference : {"exact", "bounds"}, default "exact"
+        ``"bounds"``: no eigensolve (``exact_solves == 0``).  The result is
+        the **certified** coupling (below it the order is guaranteed to meet
+        the tolerance, given the gap) and ``certified_not`` (at and beyond it
+        the order is certified not to), from Kato–Temple brackets of the exact
+        levels (:func:`ptcheck.certified_boundary`).  Available for truncation
+        orders of levels that get the Rayleigh–Schrödinger series (not
+        degenerate with another level of their sector) and quantities made of
+        them; anything else raises ``ValueError`` naming the reason.
+    gap : {"auto", "weyl", "neighbours", "estimate"} or float, default "auto"
+        ``reference="bounds"`` only: where the bounds on the neighbouring
+        levels come from (:mod:`ptcheck.bounds`); the result says whether it
+        is rigorous or conditional on an estimated / given gap.
+    trial_order : int, optional
+        ``reference="bounds"`` only: order of the trial states (default
+        ``max(12, order + 10)``).
+    suggestions : bool, default True
+        Look for a near-degenerate block that would do better (extra searches);
+        ``False`` skips them (e.g. for the many rays of a validity region).
 
     Returns
     -------
@@ -928,23 +1231,107 @@ def validity_boundary(
     if direction not in (1, -1) or isinstance(direction, bool):
         raise ValueError(f"direction must be +1 or -1; got {direction!r}")
     spec = parse_order(order)
+    reference = val.check_choice(reference, "reference", ("exact", "bounds"))
+    if reference == "exact" and (not (isinstance(gap, str) and gap == "auto") or trial_order is not None):
+        raise ValueError(
+            f"gap and trial_order shape certified bounds: give them with reference='bounds'; got gap={gap!r}, "
+            f"trial_order={trial_order!r} with reference='exact'"
+        )
+    norm = _cheap_norm_bound(model) if reference == "bounds" else None
     if coupling is not None:
         coupling = val.as_coupling(coupling)
-        _check_coupling_range(model, coupling)
+        _check_coupling_range(model, coupling, norm=norm)
     if max_coupling is not None:
         max_coupling = float(val.check_positive(max_coupling, "max_coupling"))
-        _check_coupling_range(model, max_coupling, "max_coupling")
+        _check_coupling_range(model, max_coupling, "max_coupling", norm=norm)
     settings = CheckSettings(
         treatment=treatment, backend=backend, threshold=threshold, method=method,
         coupling=coupling, xrtol=xrtol, max_coupling=max_coupling,
     )
     (target,) = _resolve_targets(model, level)
+    if reference == "bounds":
+        opts = bounds_options(gap, trial_order, spec)
+        return _certified_boundary(model, target, spec, settings, _Tolerance(thr, relative), direction, opts)
     solver = ExactSolver(model, backend=settings.backend, n_levels_hint=len(target.weights))
-    result = _boundary(model, target, spec, settings, _Tolerance(thr, relative), direction, solver)
+    result = _boundary(model, target, spec, settings, _Tolerance(thr, relative), direction, solver, bool(suggestions))
     return replace(result, exact_solves=solver.solves)
 
 
-def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, tol: _Tolerance, direction: int, solver: ExactSolver) -> ValidityBoundary:
+def _certified_boundary(
+    model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, tol: _Tolerance, direction: int, opts: Any,
+) -> ValidityBoundary:
+    """``validity_boundary(reference="bounds")``: the certified boundary of the treatment asked for, no exact solve."""
+    k = required_order(spec)
+    if s.treatment in ("block", "auto") and s.coupling is None:
+        std = expansion_map(model, list(target.weights), k + 3, settings=s.replace(treatment="standard"))
+        probe = _ErrorFunction(model, target, std, spec, None, direction, tol.relative)
+        s_nat = _search_scale(model, target, norm=_cheap_norm_bound(model))
+        s_max = s.max_coupling if s.max_coupling is not None else (100.0 * s_nat if np.isfinite(s_nat) else 1e6)
+        try:
+            s = s.replace(coupling=_first_guess(probe, spec, tol.value, min(1e-6 * s_nat, s_max * 1e-6), s_max))
+        except PadeUnavailableError:
+            s = s.replace(coupling=s_nat if np.isfinite(s_nat) else 1.0)
+    exps = expansion_map(model, list(target.weights), k, settings=s)
+    tname = _combined_treatment(exps, target)
+    reason = _combined_reason(model, exps, target)
+    base = dict(
+        target=target.name, order=spec, treatment=tname, tol=None if tol.relative else tol.value,
+        rtol=tol.value if tol.relative else None, direction=direction, exact_solves=0, error_at_boundary=math.nan,
+        reason=reason, reference="bounds", gap_kind=opts.gap if opts.gap != "given" else f"given ({opts.gap_value:g})",
+    )
+    if _exact_in_sector(exps, target):
+        return ValidityBoundary(
+            coupling=math.nan, status="exact_in_sector", bracket=(math.nan, math.nan), max_coupling=math.nan,
+            notes=(f"{target.name} is {EXACT_IN_SECTOR} with the {tname} treatment: the block is a whole invariant "
+                   "sector, so its 'orders' are exact diagonalisation; no order is judged against the tolerance.",),
+            **base,
+        )
+    if isinstance(spec, Pade):
+        raise ValueError(
+            f"reference='bounds' certifies truncation orders (polynomials in λ); got {order_name(spec)}. Use "
+            "reference='exact' for a Padé approximant"
+        )
+    other = [n for n in target.weights if exps[n].treatment != NONDEGENERATE]
+    if other:
+        n = other[0]
+        raise ValueError(
+            f"reference='bounds' brackets each level through its own Rayleigh–Schrödinger series; level "
+            f"{model.label(n)} gets the {exps[n].treatment} treatment ({exps[n].reason}). Use reference='exact' for its "
+            "boundary (compare(..., reference='bounds') still brackets it at given couplings)"
+        )
+    if val.max_abs(model.v) == 0:
+        return ValidityBoundary(
+            coupling=direction * math.inf, status="not_reached", bracket=(math.inf, math.inf), max_coupling=math.inf,
+            notes=("V is zero: the perturbative result is exact.",), rigorous=True, **base,
+        )
+    reach = 1.5 * s.coupling if (s.coupling is not None and s.max_coupling is None) else 0.0
+    cb = certify(
+        model, target.name, dict(target.weights), target.relative_to, k, tol.value, tol.relative, direction, opts,
+        s.max_coupling, s.xrtol, reach_at_least=reach,
+    )
+    fail = cb.fail_coupling
+    if cb.status == "certified_to_max":
+        status, coupling, bracket = "not_reached", direction * math.inf, (cb.max_coupling, math.inf)
+    elif cb.status == "fails_at_zero":
+        status, coupling, bracket = "fails_at_zero", 0.0, (0.0, math.nan)
+    else:
+        status = "certified" if cb.coupling != 0 else "not_certified"
+        coupling = cb.coupling
+        bracket = (abs(cb.coupling), abs(fail) if math.isfinite(fail) else math.nan)
+    notes = list(cb.notes)
+    if cb.fail_coupling == cb.fail_coupling and not cb.fail_rigorous:
+        notes.append(
+            f"The failure at |λ| = {abs(fail):.4g} is certified with an estimated gap (conditional on it)."
+        )
+    return ValidityBoundary(
+        coupling=coupling, status=status, bracket=bracket, max_coupling=cb.max_coupling, notes=tuple(notes),
+        certified_not=fail, rigorous=cb.rigorous, rigorous_coupling=cb.rigorous_coupling, mat_vecs=cb.mat_vecs,
+        **base,
+    )
+
+
+def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, tol: _Tolerance, direction: int, solver: ExactSolver,
+              suggestions: bool = True) -> ValidityBoundary:
     """The boundary of the treatment asked for, with suggestions beside it."""
     s_nat = _search_scale(model, target)
     s_max = s.max_coupling if s.max_coupling is not None else (100.0 * s_nat if np.isfinite(s_nat) else 1e6)
@@ -968,6 +1355,8 @@ def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, 
             guess = s_nat if np.isfinite(s_nat) else 1.0
         s = s.replace(coupling=guess)
     result = _boundary_search(model, target, spec, s, tol, direction, solver, s_max, s_nat)
+    if not suggestions:
+        return result
     sugg = _boundary_suggestions(model, target, spec, s, tol, direction, solver, s_max, s_nat, result)
     if sugg:
         result = replace(result, suggestions=tuple(sugg), notes=result.notes + tuple(g.text for g in sugg))

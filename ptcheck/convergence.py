@@ -72,6 +72,7 @@ from typing import Any
 import numpy as np
 
 from . import _validation as val
+from ._format import fmt_complex
 from ._exceptional import EPCandidate, ExceptionalPointSearch, ReducedExceptionalPointSearch, branch_point_guesses
 from ._radius import CoefficientAnalysis, analyse
 from .model import Model
@@ -581,7 +582,7 @@ def _summary(model: Model, r: dict, r_coef: float, r_ep: float, run_ep: bool, n_
     if eps.size:
         partner = r["partners"][0]
         pn = model.label(int(partner)) if partner >= 0 else "another level"
-        ep_txt = f"the nearest exceptional point on its branch is at λ ≈ {eps[0]:.4g} (|λ| = {abs(eps[0]):.4g}), where it meets level {pn}"
+        ep_txt = f"the nearest exceptional point on its branch is at λ ≈ {fmt_complex(eps[0], 4)} (|λ| = {abs(eps[0]):.4g}), where it meets level {pn}"
     else:
         ep_txt = ""
     if r["kind"] == "terminating":

@@ -159,7 +159,10 @@ def near_degenerate_pairs(
     r, gap = _ratios(model, i, j, d, lam)
     pairs = {(int(a), int(b)): (float(rr), float(g), float(dd)) for a, b, rr, g, dd in zip(i, j, r, gap, d) if rr >= threshold}
     wanted = None if levels is None else set(int(x) for x in idx)
-    for grp in model.degenerate_groups:
+    groups = model.degenerate_groups if wanted is None else dict.fromkeys(
+        g for a in sorted(wanted) if (g := model.degenerate_group_of(a)) is not None
+    )
+    for grp in groups:
         for a in grp:
             for b in grp:
                 if a < b and (wanted is None or a in wanted or b in wanted) and (a, b) not in pairs:

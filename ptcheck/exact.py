@@ -31,11 +31,25 @@ Tracking rules (all thresholds are class attributes of :class:`ExactSolver`):
   on each side; it is widened when a tracked level is lost (its weight in the
   window drops below ``LOST_WEIGHT`` = 0.9) or sits on the window edge.
 
+Single points (:meth:`ExactSolver.level_at`, e.g. the probes of a boundary
+search) of a low level (energy rank < 16 in its sector, outside any degenerate
+group) are first tried by a *probe* on the iterative backend: one direct solve
+for the lowest rank + 1 states at that coupling, seeded with the level's
+Rayleigh–Schrödinger corrections, accepted when the state of that rank has
+squared overlap >= 0.8 with the order-2 perturbative state (so it is the
+level's own state, still at its unperturbed rank).  A refused probe falls back
+to the tracked path, and the level is not probed again at that |λ| or beyond
+on that ray.
+
 Avoided crossings met on the way are reported for each tracked level: interior
 local minima of the gap to its nearest neighbouring eigenvalue along the path
 (sampled couplings plus refinement points) whose neighbour keeps its identity
-through the minimum, refined by successive parabolic interpolation of the
-squared gap with a few extra exact solves.
+through the minimum.  A *narrow* minimum (the parabola through the three
+sampled squared gaps dips below half the smallest sample) is refined by
+successive parabolic interpolation of the squared gap with a few extra exact
+solves; a broad one, whose samples already bracket the bottom of the well, is
+placed at that parabola's vertex with no solve (the squared gap of an isolated
+two-level anticrossing is exactly quadratic in λ).
 
 Backends (``BACKENDS``) and the ``'auto'`` rule (:func:`auto_backend`):
 
@@ -75,8 +89,9 @@ from ._tracking import (
     overlaps,
     parabolic_minimum,
 )
-from .errors import BasisTooLargeError, TrackingWarning
+from .errors import BasisTooLargeError, DegenerateLevelError, TrackingWarning
 from .model import DENSE_LIMIT, Model
+from .series import rs_series
 
 __all__ = [
     "BACKENDS",
@@ -333,6 +348,10 @@ class _SectorSolver:
         self._anon = -1
         self.notes: list[str] = []
         self._ladder_scale: float | None = None
+        self._isolation_cache: dict[frozenset, float] = {}
+        self._probe_bases: dict[int, tuple[Any, Any] | None] = {}  # level -> (RS series, ProbeBasis) or None
+        self._probes: dict[tuple[int, int], list[tuple[float, float, np.ndarray]]] = {}  # (ray, level) -> (|λ|, E, window)
+        self._probe_failed: dict[tuple[int, int], float] = {}  # (ray, level) -> smallest |λ| that failed
 
     def __repr__(self) -> str:
         return f"_SectorSolver({self.model!r}, backend={self.backend!r}, solves={self.solves})"
@@ -548,9 +567,13 @@ class _SectorSolver:
                 continue
             # energy-order swaps with coupled states: a skipped avoided crossing
             ea_t, eb_t = a.energies[r], w[c]
-            for c2 in range(kb):
-                if c2 == c:
-                    continue
+            # matched states first, vectorised: only those whose order relative to t flipped go on
+            db_all = eb_t - w
+            da_all = ea_t - a.energies[np.maximum(match, 0)]
+            flipped = (da_all * db_all < 0) & (np.abs(da_all) > ctol) & (np.abs(db_all) > ctol)
+            suspects = np.flatnonzero((flipped | (match < 0)) & (np.arange(kb) != c))
+            for c2 in suspects:
+                c2 = int(c2)
                 r2 = match[c2]
                 if r2 >= 0:
                     ea_q = a.energies[r2]
@@ -638,15 +661,9 @@ class _SectorSolver:
         a, b = abs(start), abs(target)
         lo = self._ladder_scale
         if nv > 0 and model.n > 1:
-            e0 = model.e0
-            gaps = []
-            for t in tracked:
-                d = np.abs(e0 - e0[t])
-                d = d[d > 0]
-                if d.size:
-                    gaps.append(float(d.min()))
-            if gaps and b > self.GAP_LADDER * max(a, min(gaps) / nv):
-                lo = min(lo, min(gaps) / nv)
+            gap = self._isolation(tracked)
+            if np.isfinite(gap) and b > self.GAP_LADDER * max(a, gap / nv):
+                lo = min(lo, gap / nv)
         if not np.isfinite(lo) or b <= 2.0 * max(a, lo):
             return [target]
         sign = 1.0 if target > 0 else -1.0
@@ -656,6 +673,20 @@ class _SectorSolver:
             pts.append(sign * x)
             x *= 2.0
         return pts + [target]
+
+    def _isolation(self, tracked: frozenset) -> float:
+        """Smallest distance of a tracked level to its nearest other unperturbed level (inf if none); cached."""
+        gap = self._isolation_cache.get(tracked)
+        if gap is None:
+            e0 = self.model.e0
+            gaps = [np.inf]
+            for t in tracked:
+                d = np.abs(e0 - e0[t])
+                d = d[d > 0]
+                if d.size:
+                    gaps.append(float(d.min()))
+            gap = self._isolation_cache[tracked] = min(gaps)
+        return gap
 
     def _advance(self, a: PathPoint, target: float, tracked: frozenset, notes: list) -> list[PathPoint]:
         """Path points from ``a`` to ``target`` (same ray), refining where ambiguous."""
@@ -794,6 +825,96 @@ class _SectorSolver:
             self._cache_used[id(best)] = self._cache_clock
         return best
 
+    # ------------------------------------------------------------------ probe path
+    #: probes serve levels of energy rank below this inside the sector (window = rank + 1 states)
+    PROBE_MAX_RANK = 16
+    #: order of the Rayleigh–Schrödinger corrections that span a probe's fixed search space
+    PROBE_ORDER = 8
+    #: order of the perturbative state that confirms a probe's identity
+    PROBE_CHECK_ORDER = 2
+    #: smallest squared overlap with that state for a probe to be accepted
+    PROBE_MIN_OVERLAP = 0.8
+    #: share of the cache budget kept for probe vectors
+    PROBE_CACHE_SHARE = 0.25
+
+    def _probe_basis(self, n: int) -> tuple[Any, Any] | None:
+        """(RS series to PROBE_ORDER, probe basis of its corrections) of level n, or None if it has none."""
+        if n not in self._probe_bases:
+            try:
+                series = rs_series(self.model, n, self.PROBE_ORDER)
+            except (DegenerateLevelError, FloatingPointError):
+                self._probe_bases[n] = None
+            else:
+                coeffs = np.asarray(series.state_coefficients)
+                self._probe_bases[n] = (series, self._impl.probe_basis(coeffs.T))
+        return self._probe_bases[n]
+
+    def _probe(self, n: int, lam: float, ray: int) -> tuple[float, np.ndarray] | None:
+        """Level n at λ by one direct solve (no path from λ = 0), or None when the tracked path must serve.
+
+        Serves iterative backends only, for a level of rank n < PROBE_MAX_RANK
+        outside any degenerate group, below the smallest |λ| where a probe of
+        this level on this ray failed before.  The lowest n + 1 eigenpairs are
+        computed by the backend's probe solver (block Davidson seeded with the
+        level's Rayleigh–Schrödinger corrections to order PROBE_ORDER, started
+        from the nearest earlier probe of the level on this ray, else from the
+        unperturbed states e_0..e_{n-1}); column n is accepted when its squared
+        overlap with the normalised order-PROBE_CHECK_ORDER perturbative state
+        is at least PROBE_MIN_OVERLAP.  Since the window holds the n + 1 lowest
+        states and overlaps of orthonormal states sum to at most 1, no other
+        state can carry that much of the perturbative state: the identity is
+        unique and the level kept its energy rank.  A rejected probe is
+        recorded and the caller takes the tracked path.
+        """
+        model = self.model
+        key = (ray, n)
+        mag = abs(lam)
+        if (
+            not self._impl.iterative
+            or n >= self.PROBE_MAX_RANK
+            or model.degenerate_group_of(n) is not None
+            or mag >= self._probe_failed.get(key, np.inf)
+        ):
+            return None
+        prepared = self._probe_basis(n)
+        if prepared is None:
+            return None
+        series, basis = prepared
+        earlier = self._probes.get(key, [])
+        if earlier:
+            near, energy, start = min(earlier, key=lambda p: abs(p[0] - mag))
+            if near == mag:
+                return energy, start[:, n].copy()
+        else:
+            start = np.zeros((model.n, n), dtype=model.dtype)
+            start[np.arange(n), np.arange(n)] = 1.0
+        self.solves += 1
+        out = self._impl.probe(lam, n + 1, start, tight=[n], basis=basis)
+        if out is not None:
+            w, x = out
+            psi = np.asarray(series.state(lam, self.PROBE_CHECK_ORDER))
+            o = np.vdot(psi, x[:, n])
+            if abs(o) ** 2 >= self.PROBE_MIN_OVERLAP:
+                x = np.array(x)
+                col = x[:, n : n + 1]
+                fix_phase(col, np.array([n]), psi[:, None], np.array([0]))
+                x[:, n] = col[:, 0]
+                self._probe_keep(key, mag, float(w[n]), x)
+                return float(w[n]), x[:, n].copy()
+        self._probe_failed[key] = min(mag, self._probe_failed.get(key, np.inf))
+        return None
+
+    def _probe_keep(self, key: tuple[int, int], mag: float, energy: float, vectors: np.ndarray) -> None:
+        """Cache one accepted probe (window vectors: start of the next probe of the level)."""
+        lst = self._probes.setdefault(key, [])
+        lst.append((mag, energy, vectors))
+        budget = self.PROBE_CACHE_SHARE * self._cache_budget
+        while sum(v.nbytes for p in self._probes.values() for _, _, v in p) > budget:
+            victim = max(self._probes, key=lambda k: len(self._probes[k]))
+            if not self._probes[victim]:
+                break
+            self._probes[victim].pop(0)  # oldest first
+
     # ------------------------------------------------------------------ public tracking
     def _resolve_levels(self, levels: Any) -> tuple[int, ...]:
         seq = val.as_sequence(levels)
@@ -807,10 +928,11 @@ class _SectorSolver:
     def level_at(self, level: Any, coupling: float, stacklevel: int = 3) -> tuple[float, np.ndarray]:
         """Tracked exact energy and state of one level at one coupling.
 
-        The level is followed from the nearest cached path point below |λ| on
-        the same ray (or from λ = 0), refining the step where overlaps are
-        ambiguous; every solved point is cached, so probes in any order (a
-        bisection) stay cheap and consistent.
+        A low level on an iterative backend is first probed directly
+        (:meth:`_probe`); otherwise the level is followed from the nearest
+        cached path point below |λ| on the same ray (or from λ = 0), refining
+        the step where overlaps are ambiguous; every solved point is cached,
+        so calls in any order (a bisection) stay cheap and consistent.
 
         Parameters
         ----------
@@ -836,6 +958,9 @@ class _SectorSolver:
         if start is not None and start.coupling == lam:
             c = start.column(n)
             return float(start.energies[c]), start.vectors[:, c].copy()
+        probed = self._probe(n, lam, ray)
+        if probed is not None:
+            return probed
         notes: list[str] = []
         pts = []
         if start is None:
@@ -933,11 +1058,22 @@ class _SectorSolver:
         )
 
     # ------------------------------------------------------------------ avoided crossings
+    #: a sampled gap minimum is *narrow* (refined with extra solves) when the parabola through the
+    #: three sampled squared gaps puts the minimum below this fraction of the smallest sampled
+    #: squared gap; otherwise the samples already bracket the bottom of the well and the
+    #: parabola's vertex is reported without a solve
+    NARROW_GAP2 = 0.5
+
     def _crossings(self, path: list[PathPoint], levels: tuple[int, ...]) -> list[AvoidedCrossing]:
         out = []
+        seen: set[tuple[frozenset, int]] = set()
         scale = self._scale(abs(path[-1].coupling))
         for t in levels:
             for gm in gap_minima(path, t, scale):
+                key = (frozenset((gm.level, gm.partner_id)), gm.index)
+                if gm.partner_id >= 0 and key in seen:
+                    continue  # the same minimum seen from the partner (both tracked): refined once
+                seen.add(key)
                 out.append(self._refine_crossing(path, gm))
         return out
 
@@ -970,8 +1106,12 @@ class _SectorSolver:
             gaps.append(float((q.energies[c + gm.side] - q.energies[c]) ** 2))
         if xs[0] > xs[2]:
             xs, gaps = xs[::-1], gaps[::-1]
-        xtol = 1e-6 * max(abs(xs[2] - xs[0]), 1e-300) + 1e-12
-        lam_min, g2, _ = parabolic_minimum(gap2, xs, tuple(gaps), max_evals=4, xtol=xtol)
+        vertex = _parabola_vertex(xs, gaps)
+        if vertex is not None and vertex[1] >= self.NARROW_GAP2 * min(gaps):
+            lam_min, g2 = vertex  # broad: the samples resolve the minimum (no solve)
+        else:
+            xtol = 1e-6 * max(abs(xs[2] - xs[0]), 1e-300) + 1e-12
+            lam_min, g2, _ = parabolic_minimum(gap2, xs, tuple(gaps), max_evals=4, xtol=xtol)
         partner, plabel = self._partner(gm.partner_id, p.vectors[:, cp], exclude=set(int(i) for i in p.ids if i >= 0))
         a, b = (gm.level, partner), (self.model.label(gm.level), plabel)
         if gm.partner_id >= 0 and partner < gm.level:  # both identities known: lower index first
@@ -987,6 +1127,23 @@ class _SectorSolver:
             weight[np.fromiter(exclude, dtype=int)] = -1.0
         guess = int(np.argmax(weight))
         return guess, self.model.label(guess) + "?"
+
+
+def _parabola_vertex(xs: tuple, fs: list) -> tuple[float, float] | None:
+    """(x, f) of the minimum of the parabola through three points, if it opens upward and lies between them."""
+    (x0, x1, x2), (f0, f1, f2) = xs, fs
+    if not x0 < x1 < x2:
+        return None
+    curv = (f2 - f1) / (x2 - x1) - (f1 - f0) / (x1 - x0)
+    if curv <= 0:
+        return None
+    den = (x1 - x0) * (f1 - f2) - (x1 - x2) * (f1 - f0)
+    num = (x1 - x0) ** 2 * (f1 - f2) - (x1 - x2) ** 2 * (f1 - f0)
+    x = x1 - 0.5 * num / den
+    if not x0 <= x <= x2:
+        return None
+    f = float(np.polyval(np.polyfit([x0, x1, x2], [f0, f1, f2], 2), x))
+    return float(x), max(f, 0.0)
 
 
 def _is_tracking_problem(note: str) -> bool:
@@ -1217,10 +1374,12 @@ class ExactSolver:
     def level_at(self, level: Any, coupling: float) -> tuple[float, np.ndarray]:
         """Tracked exact energy and state of one level at one coupling.
 
-        The level is followed inside its sector from the nearest cached path
-        point below |λ| on the same ray (or from λ = 0), refining the step
-        where overlaps are ambiguous; every solved point is cached, so probes
-        in any order (a bisection) stay cheap and consistent.
+        A low level on an iterative backend is first probed directly at λ
+        (one solve, module docstring); otherwise, or when the probe is
+        refused, the level is followed inside its sector from the nearest
+        cached path point below |λ| on the same ray (or from λ = 0), refining
+        the step where overlaps are ambiguous.  Every solved point is cached,
+        so calls in any order (a bisection) stay cheap and consistent.
 
         Parameters
         ----------
@@ -1270,7 +1429,8 @@ class ExactSolver:
         nl, nc, n = len(lv), lam.size, model.n
         absolute = np.empty((nl, nc))
         shifts = np.empty((nl, nc))
-        states = np.zeros((nl, nc, n), dtype=model.dtype) if keep_states else None
+        whole = self._sizes.size == 1 and n > 1  # one sector: its states are the model's, no copy
+        states = np.zeros((nl, nc, n), dtype=model.dtype) if keep_states and not whole else None
         by_sector: dict[int, list[tuple[int, int]]] = {}
         for row, t in enumerate(lv):
             s, k = self._where(t)
@@ -1302,6 +1462,8 @@ class ExactSolver:
                 shifts[row] = sw.shifts[j]
                 if states is not None:
                     states[row][:, where] = sw.states[j]
+            if whole and keep_states:
+                states = sw.states  # rows in the order asked for (one sector: items follow lv)
             for ac in sw.avoided_crossings:
                 crossings.append(
                     AvoidedCrossing(

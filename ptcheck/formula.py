@@ -638,6 +638,12 @@ def formula(
 
     if not isinstance(model, Model):
         raise TypeError(f"model must be a ptcheck.Model; got {type(model).__name__}")
+    if model.n_couplings > 1:
+        raise ValueError(
+            f"model {model.name!r} has {model.n_couplings} couplings ({', '.join(model.coupling_names)}): export its "
+            "multivariate formula with ptcheck.multi_formula(model, target, order), or a one-coupling formula along a "
+            "direction with formula(model.along(d), ...)"
+        )
     if isinstance(target, list):
         raise TypeError(f"formula takes one level or quantity; got a list {target!r}")
     spec = parse_order(order)

@@ -26,7 +26,8 @@ from . import sectors as sec
 from ._labels import LevelNames, hashable
 from .sectors import Sector
 
-__all__ = ["Model", "DENSE_LIMIT", "MAX_GROUP_ROTATION", "coupling_display", "physical_coupling_text"]
+__all__ = ["Model", "MultiCouplingError", "DENSE_LIMIT", "MAX_COUPLINGS", "MAX_GROUP_ROTATION", "coupling_display",
+           "physical_coupling_text"]
 
 #: Largest basis for which ptcheck will build and diagonalise a dense matrix
 #: (a dense complex 6000 x 6000 matrix is 0.6 GB; eigh takes minutes on 2 cores).
@@ -40,17 +41,29 @@ MAX_GROUP_ROTATION = 256
 #: Default degeneracy tolerance relative to the span of the unperturbed spectrum.
 DEGENERACY_RTOL = 1e-9
 
+#: Most couplings ``λ_i`` of one model (the multivariate series has
+#: C(K + m, m) coefficients: m is kept small).
+MAX_COUPLINGS = 8
+
 
 class Model:
-    """A perturbed Hamiltonian ``H(λ) = H0 + λ V``.
+    """A perturbed Hamiltonian ``H(λ) = H0 + λ V``, or ``H0 + Σ_i λ_i V_i`` with several couplings.
 
     Parameters
     ----------
     h0 : (N, N) array_like, scipy.sparse matrix or qutip.Qobj
         Unperturbed Hamiltonian (Hermitian).  Energies are in the user's units;
         every energy ptcheck reports is in the same units (ħ = 1).
-    v : (N, N) array_like, scipy.sparse matrix or qutip.Qobj
-        Perturbation (Hermitian).  The coupling λ is dimensionless.
+    v : (N, N) array_like, scipy.sparse matrix or qutip.Qobj, or a list of them
+        Perturbation (Hermitian).  The coupling λ is dimensionless.  A list
+        (or tuple) of matrices, or an (m, N, N) array, gives a model with m
+        couplings ``H0 + Σ_i λ_i V_i`` (a nested list of numbers is one
+        matrix).  Its sectors come from the union of the couplings' graphs,
+        declared conserved operators must commute with every ``V_i``, and its
+        work basis inside a degenerate group is that of a generic combination
+        of the ``V_i``; functions of one coupling need a direction first
+        (:meth:`along`); :mod:`ptcheck.multiseries`, :mod:`ptcheck.region`
+        and :mod:`ptcheck.multiexact` take it as it is.
     labels : sequence of hashable, length N, optional
         Names of the unperturbed states.  If ``h0`` is diagonal they name its
         basis states in the order given; otherwise they name the eigenstates
@@ -96,6 +109,9 @@ class Model:
         Name of the physical coupling ``λ x coupling_scale`` (e.g. ``"g"``),
         for display beside λ ("λ* = 0.8 (g = 52.8 MHz)"); needs
         ``coupling_scale``.  See :meth:`physical_coupling`.
+    names : sequence of str, optional
+        Names of the couplings, one per ``V_i`` (e.g. ``("g", "E")``; default
+        ``("λ",)`` for one coupling, ``("λ1", "λ2", ...)`` for several).
 
     Attributes
     ----------
@@ -112,7 +128,17 @@ class Model:
     v : (N, N) ndarray or scipy.sparse.csr_matrix
         The perturbation in the work basis.  Elements between different
         sectors are exactly zero (what the commutation check allowed as
-        round-off is set to zero).
+        round-off is set to zero).  With several couplings, reading it raises
+        :class:`MultiCouplingError` (a function of one coupling was given a
+        model of several: see :meth:`along`).
+    vs : tuple of (N, N) ndarray or csr_matrix
+        Every coupling's perturbation in the work basis (``(v,)`` for one).
+    n_couplings : int
+    coupling_names : tuple of str
+    norms_v : tuple of float
+        Spectral norms ``‖V_i‖``.
+    direction : (m,) ndarray or None
+        For a ray model made by :meth:`along`: the direction ``d``.
     sectors : tuple of Sector
         The symmetry sectors (see :class:`ptcheck.sectors.Sector`).
     level_sectors : (N,) int ndarray, read-only
@@ -164,15 +190,24 @@ class Model:
         coupling_scale: float | None = None,
         coupling_unit: str | None = None,
         coupling_name: str | None = None,
+        names: Sequence[str] | None = None,
     ) -> None:
         trusted = self.__dict__.pop("_trusted_input", False)  # set by Model._trusted (built-in builders)
         h0m, h0dims = val.as_operator(h0, "h0", max_dense=DENSE_LIMIT)
-        vm, _ = val.as_operator(v, "v", max_dense=DENSE_LIMIT)
-        n = val.check_square_pair(h0m, vm)
         hermitian_rtol = float(val.check_positive(hermitian_rtol, "hermitian_rtol"))
-        for nm, m in (("h0", h0m), ("v", vm)) if not trusted else ():
-            val.check_finite(m, nm)
-            val.check_hermitian(m, nm, hermitian_rtol, scale=max(val.max_abs(h0m), val.max_abs(vm)))
+        several = _perturbation_list(v)
+        if several is None:
+            vm, _ = val.as_operator(v, "v", max_dense=DENSE_LIMIT)
+            n = val.check_square_pair(h0m, vm)
+            for nm, m in (("h0", h0m), ("v", vm)) if not trusted else ():
+                val.check_finite(m, nm)
+                val.check_hermitian(m, nm, hermitian_rtol, scale=max(val.max_abs(h0m), val.max_abs(vm)))
+            user_vs: tuple = (vm,)
+            vgraph = vm
+        else:
+            user_vs, vm, vgraph = _several_perturbations(h0m, several, hermitian_rtol)
+            n = h0m.shape[0]
+        coupling_names = _coupling_names(names, len(user_vs))
         if dims is None:
             dims = h0dims if (h0dims is not None and len(h0dims) > 1) else None
         if dims is not None:
@@ -194,8 +229,9 @@ class Model:
         h0_diag = _is_diagonal(h0m)
         offset = sec.energy_offset(h0m)
         if not trusted:
-            sec.check_commutation(ops, h0m, vm, offset)
-        comp = sec.components(h0m, vm, h0_diag)
+            for vi in user_vs:
+                sec.check_commutation(ops, h0m, vi, offset)
+        comp = sec.components(h0m, vgraph, h0_diag)
         e0_rel, t0 = sec.unperturbed_basis(h0m, offset, comp, h0_diag, DENSE_LIMIT)
         span = float(np.ptp(e0_rel)) if n else 0.0
         biggest = float(np.max(np.abs(e0_rel + offset))) if n else 0.0
@@ -239,6 +275,10 @@ class Model:
         names_table = _level_names(
             labels, dims, n, h0_diag, t0, cons, perm, inv, e0_rel, ambiguous_pos, mixed_groups, big_groups, [nm for nm, _ in ops]
         )
+        work_vs = None
+        if len(user_vs) > 1:
+            # every coupling's V in the work basis built for their generic combination
+            work_vs = tuple(_in_work_basis(vi, transform, sector_of[perm]) for vi in user_vs)
 
         self._assign(
             name=str(name) if name is not None else "model",
@@ -261,6 +301,8 @@ class Model:
             coupling_unit=coupling_unit,
             coupling_name=coupling_name,
             parent_levels=None,
+            vs=work_vs,
+            coupling_names=coupling_names,
         )
 
     # ------------------------------------------------------------------ construction
@@ -288,6 +330,10 @@ class Model:
         parent_levels: tuple | None,
         e0: np.ndarray | None = None,
         coupling_name: str | None = None,
+        vs: tuple | None = None,
+        coupling_names: tuple[str, ...] = ("λ",),
+        direction: np.ndarray | None = None,
+        ray_levels: np.ndarray | None = None,
     ) -> None:
         self.name = name
         self.n = n
@@ -304,7 +350,12 @@ class Model:
         e0 = np.ascontiguousarray(e0, dtype=float)
         e0.setflags(write=False)
         self.e0 = e0
-        self.v = v
+        self._v = v
+        self._vs = vs
+        self.coupling_names = tuple(coupling_names)
+        self.direction = direction
+        self._ray_levels = ray_levels
+        self._norms_v: tuple[float, ...] | None = None
         self.degeneracy_tol = float(degeneracy_tol)
         level_sectors = np.ascontiguousarray(level_sectors, dtype=np.int64)
         level_sectors.setflags(write=False)
@@ -349,7 +400,8 @@ class Model:
     def __repr__(self) -> str:
         kind = "sparse" if self.is_sparse else "dense"
         deg = f", {len(self.degenerate_groups)} degenerate group(s)" if self.degenerate_groups else ""
-        return f"Model({self.name!r}, N={self.n}, {kind}, {self._sector_summary()}{deg})"
+        cpl = f", couplings ({', '.join(self.coupling_names)})" if self.n_couplings > 1 else ""
+        return f"Model({self.name!r}, N={self.n}, {kind}{cpl}, {self._sector_summary()}{deg})"
 
     def _sector_summary(self) -> str:
         k = len(self._sector_info)
@@ -376,6 +428,8 @@ class Model:
             "coupling_scale": self.coupling_scale,
             "coupling_unit": self.coupling_unit,
             "coupling_name": self.coupling_name,
+            "couplings": list(self.coupling_names),
+            "direction": None if self.direction is None else [float(x) for x in self.direction],
             "sectors": {
                 "count": int(k),
                 "listed": int(listed),
@@ -403,8 +457,148 @@ class Model:
 
     @property
     def dtype(self) -> np.dtype:
-        """Data type of the work-basis perturbation (float64 or complex128)."""
-        return self.v.dtype
+        """Data type of the work-basis perturbation(s) (float64 or complex128)."""
+        return np.result_type(*(vi.dtype for vi in self.vs))
+
+    # ------------------------------------------------------------------ couplings
+    @property
+    def v(self) -> np.ndarray | sp.csr_matrix:
+        """The perturbation in the work basis, shape (N, N) (one-coupling models only).
+
+        Raises
+        ------
+        MultiCouplingError
+            The model has several couplings: a function of one coupling needs
+            a direction first, ``model.along(direction)``.
+        """
+        if self._vs is not None:
+            raise MultiCouplingError(self.name, self.coupling_names)
+        return self._v
+
+    @property
+    def vs(self) -> tuple:
+        """The perturbations ``V_i`` in the work basis, one (N, N) matrix per coupling."""
+        return self._vs if self._vs is not None else (self._v,)
+
+    @property
+    def n_couplings(self) -> int:
+        """Number of couplings m of ``H0 + Σ_i λ_i V_i`` (1 for ``Model(h0, v)``)."""
+        return len(self.coupling_names)
+
+    @property
+    def norms_v(self) -> tuple[float, ...]:
+        """Spectral norms ``‖V_i‖`` (energy units), one per coupling."""
+        if self._norms_v is None:
+            self._norms_v = tuple(_spectral_norm(vi) for vi in self.vs)
+        return self._norms_v
+
+    def along(self, direction: Any) -> Model:
+        """The one-coupling model ``H0 + t Σ_i d_i V_i`` on the ray of ``direction``.
+
+        Same work basis, sectors, labels and degenerate groups as this model,
+        except inside exactly degenerate groups: their states are rotated to the
+        first-order good states of the ray's perturbation (and sorted by their
+        first-order shift), as :class:`Model` does for one coupling.  Labels of
+        levels whose group any ``V_i`` mixes stay ambiguous.
+
+        Parameters
+        ----------
+        direction : (m,) array_like
+            Real, finite, not all zero; used as given (not normalised): the
+            point ``t`` on the ray is the coupling vector ``t d``.
+
+        Returns
+        -------
+        Model
+            One coupling (named ``"t"``); ``direction`` records ``d``.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> m = Model(np.diag([0.0, 1.0]), [[[0, .1], [.1, 0]], [[.2, 0], [0, -.2]]], names=("g", "E"))
+        >>> m.along((1.0, 0.5)).v
+        array([[ 0.1,  0.1],
+               [ 0.1, -0.1]])
+        """
+        d = val.as_direction(direction, self.n_couplings, self.coupling_names)
+        vs = self.vs
+        if sp.issparse(vs[0]):
+            v = sp.csr_matrix(vs[0].shape, dtype=self.dtype)
+            for di, vi in zip(d, vs):
+                if di != 0:
+                    v = v + di * vi
+            v = sp.csr_matrix(v)
+            v.sum_duplicates()
+        else:
+            v = np.zeros(vs[0].shape, dtype=self.dtype)
+            for di, vi in zip(d, vs):
+                if di != 0:
+                    v += di * vi
+        v, perm, rot = _regood(v, self.degenerate_groups, self._ambiguous_mask)
+        names = self._names
+        if perm is not None:
+            names = names.restrict(perm)
+            names.ranks = self._names.ranks  # ranks are positions: they do not move
+        transform = self._transform
+        if perm is not None:
+            transform = transform[:, perm] if not sp.issparse(transform) else sp.csc_matrix(transform)[:, perm].tocsr()
+        if rot is not None:
+            transform = (transform @ rot).tocsr() if sp.issparse(transform) else np.asarray(transform @ rot)
+        parts = self._parts()
+        parts.update(
+            name=f"{self.name} along ({', '.join(f'{x:.6g}' for x in d)})",
+            v=_realify(v),
+            names=names,
+            transform=transform,
+            vs=None,
+            coupling_names=("t",),
+            direction=_frozen(d),
+            coupling_scale=None,
+            coupling_unit=None,
+            coupling_name=None,
+            ray_levels=perm if perm is not None else np.arange(self.n),
+        )
+        return Model._from_parts(**parts)
+
+    def _ray_level(self, level: int) -> int:
+        """Work index on this ray model of the parent model's ``level`` (private; rays only).
+
+        Levels of unmixed degenerate groups keep their state (the ray sorts them
+        by its own first-order shift); elsewhere the index is unchanged.
+        """
+        if self._ray_levels is None:
+            return int(level)
+        return int(np.flatnonzero(self._ray_levels == level)[0])
+
+    def _parts(self) -> dict:
+        """The keyword arguments of :meth:`_assign` that rebuild this model (private)."""
+        return dict(
+            name=self.name,
+            n=self.n,
+            dims=self.dims,
+            hermitian_rtol=self.hermitian_rtol,
+            is_sparse=self.is_sparse,
+            h0_is_diagonal=self.h0_is_diagonal,
+            e0_relative=self.e0_relative,
+            energy_offset=self.energy_offset,
+            e0=self.e0,
+            v=self._v,
+            degeneracy_tol=self.degeneracy_tol,
+            level_sectors=self.level_sectors,
+            sector_info=self._sector_info,
+            ambiguous=self._ambiguous_mask,
+            names=self._names,
+            transform=self._transform,
+            conserved_names=self.conserved_names,
+            coupling_scale=self.coupling_scale,
+            coupling_unit=self.coupling_unit,
+            coupling_name=self.coupling_name,
+            parent_levels=self.parent_levels,
+            vs=self._vs,
+            coupling_names=self.coupling_names,
+            direction=self.direction,
+            ray_levels=self._ray_levels,
+        )
 
     @property
     def labels(self) -> tuple:
@@ -571,10 +765,8 @@ class Model:
         return self._restricted[k]
 
     def _subset(self, levels: np.ndarray, k: int) -> Model:
-        v = self.v
-        sub_v = v[levels][:, levels].tocsr() if sp.issparse(v) else np.ascontiguousarray(v[np.ix_(levels, levels)])
-        if sp.issparse(sub_v):
-            sub_v.sort_indices()
+        sub_vs = tuple(_sub_operator(vi, levels) for vi in self.vs)
+        sub_v = sub_vs[0] if self._vs is None else None
         t = self._transform
         q, nm = self._sector_info[k]
         base = self.parent_levels
@@ -601,6 +793,9 @@ class Model:
             coupling_unit=self.coupling_unit,
             coupling_name=self.coupling_name,
             parent_levels=parent,
+            vs=None if self._vs is None else sub_vs,
+            coupling_names=self.coupling_names,
+            direction=self.direction,
         )
         return sub
 
@@ -643,6 +838,190 @@ class Model:
 
 
 # ---------------------------------------------------------------------- helpers
+#: Weights of the generic combination Σ w_i V_i that fixes the work basis of a
+#: model with several couplings (good states, order of equal energies): powers
+#: of 1/ρ, ρ the plastic number, so that no two couplings cancel by accident.
+_GENERIC_WEIGHT = 0.7548776662466927
+
+
+class MultiCouplingError(ValueError):
+    """A model with several couplings was given to a function of one coupling."""
+
+    def __init__(self, model_name: str, coupling_names: tuple[str, ...]) -> None:
+        m = len(coupling_names)
+        d = ", ".join(f"d{i + 1}" for i in range(m))
+        super().__init__(
+            f"model {model_name!r} has {m} couplings ({', '.join(coupling_names)}); this function takes one coupling. "
+            f"Use model.along(({d})) for the one-coupling model H0 + t·(" + " + ".join(f"d{i + 1}·V{i + 1}" for i in range(m))
+            + ") on a ray, or the functions of several couplings: multi_series, validity_region, ray_convergence, "
+            "track_grid"
+        )
+
+
+def _frozen(a: np.ndarray) -> np.ndarray:
+    a = np.array(a, dtype=float)
+    a.setflags(write=False)
+    return a
+
+
+def _perturbation_list(v: Any) -> list | None:
+    """The matrices of several couplings, or ``None`` when ``v`` is one matrix.
+
+    A list/tuple whose entries are all matrices (ndarray of 2 dimensions,
+    scipy.sparse, qutip.Qobj, nested lists of 2 dimensions) or a 3-dimensional
+    ndarray is several; a nested list of numbers is one matrix.
+    """
+    if isinstance(v, np.ndarray):
+        return list(v) if v.ndim == 3 else None
+    if not isinstance(v, (list, tuple)) or not v:
+        return None
+    return list(v) if all(_is_one_matrix(x) for x in v) else None
+
+
+def _is_one_matrix(x: Any) -> bool:
+    if sp.issparse(x) or val._is_qobj(x):
+        return True
+    if isinstance(x, np.ndarray):
+        return x.ndim == 2
+    if isinstance(x, (list, tuple)):
+        try:
+            return np.ndim(x) == 2
+        except ValueError:  # ragged
+            return False
+    return False
+
+
+def _several_perturbations(h0m: Any, several: list, rtol: float) -> tuple[tuple, Any, Any]:
+    """Check the matrices ``v[i]`` of several couplings; return them, a generic combination and a graph.
+
+    All sparse stay sparse; otherwise all dense.  The graph ``Σ_i |V_i|`` has
+    the union of the couplings' non-zero patterns (no cancellation).
+    """
+    if len(several) > MAX_COUPLINGS:
+        raise ValueError(f"at most {MAX_COUPLINGS} couplings are supported; got {len(several)} matrices in v")
+    mats = []
+    for i, x in enumerate(several):
+        m, _ = val.as_operator(x, f"v[{i}]", max_dense=DENSE_LIMIT)
+        mats.append(m)
+    n = h0m.shape[0]
+    for i, m in enumerate(mats):
+        if m.shape != h0m.shape:
+            raise ValueError(f"v[{i}] must have the shape of h0 {h0m.shape}; got {m.shape}")
+    if not all(sp.issparse(m) for m in mats):
+        mats = [m.toarray() if sp.issparse(m) else np.asarray(m) for m in mats]
+    scale = max([val.max_abs(h0m)] + [val.max_abs(m) for m in mats])
+    for i, m in enumerate(mats):
+        val.check_finite(m, f"v[{i}]")
+        val.check_hermitian(m, f"v[{i}]", rtol, scale=scale)
+    combo = sum((_GENERIC_WEIGHT**i) * m for i, m in enumerate(mats))
+    graph = sum(abs(m) for m in mats)
+    if sp.issparse(combo):
+        combo, graph = sp.csr_matrix(combo), sp.csr_matrix(graph)
+    del n
+    return tuple(mats), combo, graph
+
+
+def _coupling_names(names: Any, m: int) -> tuple[str, ...]:
+    """Checked coupling names (default ``λ`` for one coupling, ``λ1, λ2, ...`` for several)."""
+    if names is None:
+        return ("λ",) if m == 1 else tuple(f"λ{i + 1}" for i in range(m))
+    if isinstance(names, str):
+        names = (names,)
+    try:
+        out = tuple(names)
+    except TypeError:
+        raise TypeError(f"names must be a sequence of {m} strings (one per coupling); got {names!r}") from None
+    if len(out) != m or not all(isinstance(x, str) and x.strip() for x in out):
+        raise ValueError(f"names must be {m} non-empty strings (one per coupling); got {names!r}")
+    if len(set(out)) != m:
+        raise ValueError(f"names must be distinct; got {names!r}")
+    return tuple(x.strip() for x in out)
+
+
+def _in_work_basis(v: Any, transform: Any, level_sectors: np.ndarray) -> Any:
+    """``T^H V T`` with the work basis columns ``T``; zero between sectors, real if it is."""
+    if sp.issparse(transform) and sp.issparse(v):
+        w = (transform.conj().T @ v @ transform).tocsr()
+    else:
+        t = transform.toarray() if sp.issparse(transform) else np.asarray(transform)
+        vd = v.toarray() if sp.issparse(v) else np.asarray(v)
+        w = t.conj().T @ vd @ t
+        if sp.issparse(v):
+            w = sp.csr_matrix(_maybe_sparse(w))
+    w = _realify(_zero_between_sectors(w, level_sectors))
+    if sp.issparse(w):
+        w = sp.csr_matrix(w)
+        w.eliminate_zeros()
+        w.sort_indices()
+    return w
+
+
+def _sub_operator(v: Any, levels: np.ndarray) -> Any:
+    if sp.issparse(v):
+        out = v[levels][:, levels].tocsr()
+        out.sort_indices()
+        return out
+    return np.ascontiguousarray(v[np.ix_(levels, levels)])
+
+
+def _regood(v: Any, groups: tuple, ambiguous: np.ndarray) -> tuple[Any, np.ndarray | None, Any]:
+    """Good states of a ray's perturbation inside each degenerate group.
+
+    Groups whose labels are unambiguous (no coupling mixes them) are sorted
+    by the ray's first-order shift (a permutation of levels); mixed groups are
+    rotated to the eigenvectors of the ray's block, ascending.  Returns
+    ``(v, permutation or None, rotation or None)`` with the permutation
+    applied first.
+    """
+    n = v.shape[0]
+    perm = np.arange(n)
+    diag = np.real(np.asarray(v.diagonal() if sp.issparse(v) else np.diag(v)))
+    scale = max(val.max_abs(v), 1e-300)
+    rotate = []
+    for g in groups:
+        idx = np.asarray(g)
+        if idx.size > MAX_GROUP_ROTATION:
+            continue
+        if np.any(ambiguous[idx]):
+            rotate.append(idx)
+        else:
+            key = np.round(diag[idx] / (1e-9 * scale))
+            perm[idx] = idx[np.lexsort((np.arange(idx.size), key))]
+    moved = np.any(perm != np.arange(n))
+    if moved:
+        v = _permute(v, perm)
+        if sp.issparse(v):
+            v = sp.csr_matrix(v)
+            v.sort_indices()
+    if not rotate:
+        return v, (perm if moved else None), None
+    rows, cols, data, blocks = [], [], [], []
+    with sec.small_blas():
+        for idx in rotate:
+            block = _submatrix(v, idx)
+            _, u = np.linalg.eigh(0.5 * (block + block.conj().T))
+            blocks.append(u)
+            rows.append(np.repeat(idx, idx.size))
+            cols.append(np.tile(idx, idx.size))
+            data.append(u.ravel())
+    touched = np.zeros(n, dtype=bool)
+    for idx in rotate:
+        touched[idx] = True
+    rest = np.flatnonzero(~touched)
+    rows.append(rest), cols.append(rest), data.append(np.ones(rest.size))
+    dtype = np.result_type(*[x.dtype for x in data], np.float64)
+    rot = sp.csr_matrix((np.concatenate(data).astype(dtype), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
+    if sp.issparse(v):
+        v = (rot.conj().T @ v @ rot).tocsr()
+        v.sort_indices()
+    else:
+        v = np.array(v, dtype=np.result_type(v.dtype, dtype))
+        for idx, u in zip(rotate, blocks):
+            v[:, idx] = v[:, idx] @ u
+            v[idx, :] = u.conj().T @ v[idx, :]
+    return v, (perm if moved else None), rot
+
+
 def coupling_display(scale: Any, unit: Any, name: Any = None) -> tuple[float | None, str | None, str | None]:
     """Validate ``coupling_scale``, ``coupling_unit`` and ``coupling_name`` (see :class:`Model`)."""
     if scale is not None:

@@ -29,6 +29,19 @@ or matrices saved with numpy or scipy (paths relative to the TOML file)::
     parity = "parity.npz"          #   cannot see): name = matrix file, like h0; each must commute
                                    #   with h0 and v; sectors are their joint eigenspaces
 
+several couplings ``H0 + λ₁ V₁ + λ₂ V₂``: a list of V files (or arrays ``v1``,
+``v2`` in the archive), their names, and the point in ``[check]``::
+
+    [model]
+    h0 = "h0.npy"
+    v = ["v_stark.npy", "v_zeeman.npy"]
+    coupling_names = ["E", "B"]    # optional (default λ1, λ2)
+    [check]
+    couplings = [0.8, 0.3]         # the point (λ₁, λ₂) you use
+
+(a built-in model with two couplings, e.g. ``builtin = "polar_molecule"``,
+names its own couplings).
+
 the physical coupling at λ = 1, for display beside λ in reports (any model;
 a built-in qubit–resonator model already names its coupling g)::
 
@@ -97,9 +110,9 @@ MODEL_KINDS = ("builtin", "npy", "npz", "sparse-npz")
 #: Builder parameters that set a basis truncation (used for truncation checks).
 SIZE_PARAMS = ("n_photons", "n_qubit", "n_basis", "n_max", "m_max", "j_max", "n_levels")
 
-_MODEL_KEYS = {"builtin", "name", "params", "h0", "v", "matrices", "labels", "dims", "conserved",
+_MODEL_KEYS = {"builtin", "name", "params", "h0", "v", "matrices", "labels", "dims", "coupling_names", "conserved",
                "coupling_scale", "coupling_unit", "coupling_name"}
-_CHECK_KEYS = {"levels", "orders", "coupling", "tol", "rtol", "treatment", "backend"}
+_CHECK_KEYS = {"levels", "orders", "coupling", "couplings", "tol", "rtol", "treatment", "backend"}
 _QUANTITY_KEYS = {"name", "expr", "levels", "weights", "relative_to", "units", "kind"}
 
 #: ``kind = ...`` in a ``[[quantity]]`` table -> constructor in ptcheck.quantities.
@@ -132,6 +145,8 @@ class ModelFile:
     orders : tuple
         Order specs (``int`` or ``Pade``); empty if not given.
     coupling : float or None
+    couplings : tuple of float or None
+        The coupling point ``[λ₁, λ₂, ...]`` of a model with several couplings.
     tol, rtol : float or None
     treatment, backend : str or None
     title : str or None
@@ -152,6 +167,7 @@ class ModelFile:
     treatment: str | None = None
     backend: str | None = None
     title: str | None = None
+    couplings: tuple | None = None
 
     def __repr__(self) -> str:
         src = self.builder if self.kind == "builtin" else self.kind
@@ -169,6 +185,7 @@ class ModelFile:
             "quantities": [quantity_to_dict(q) for q in self.quantities],
             "orders": [str(o) for o in self.orders],
             "coupling": self.coupling,
+            "couplings": None if self.couplings is None else list(self.couplings),
             "tol": self.tol,
             "rtol": self.rtol,
             "treatment": self.treatment,
@@ -384,6 +401,8 @@ def _from_document(doc: dict, p: Path) -> ModelFile:
             raise ValueError(_where(p, f"[model.params] must be a table of builder arguments; got {params!r}"))
         model = build_model(builder, params, where=str(p))
         kind = "builtin"
+        if "coupling_names" in mt:
+            raise ValueError(_where(p, "[model] coupling_names is for matrices; a built-in model names its couplings"))
     else:
         if "params" in mt:
             raise ValueError(_where(p, "[model.params] is only for built-in models (builtin = ...)"))
@@ -399,6 +418,7 @@ def _from_document(doc: dict, p: Path) -> ModelFile:
         levels = tuple(parse_level(k) for k in _as_list(ct.get("levels", []), "levels"))
         orders = parse_orders(_as_list(ct["orders"], "orders")) if "orders" in ct else ()
         coupling = _number(ct.get("coupling"), "coupling")
+        couplings = _coupling_point(ct.get("couplings"), model, coupling)
         tol = _number(ct.get("tol"), "tol")
         rtol = _number(ct.get("rtol"), "rtol")
         if tol is not None and rtol is not None:
@@ -424,7 +444,7 @@ def _from_document(doc: dict, p: Path) -> ModelFile:
     return ModelFile(
         path=str(p), kind=kind, model=model, builder=builder, params=MappingProxyType(dict(params)),
         levels=levels, quantities=quantities, orders=orders, coupling=coupling, tol=tol, rtol=rtol,
-        treatment=treatment, backend=backend, title=title,
+        treatment=treatment, backend=backend, title=title, couplings=couplings,
     )
 
 
@@ -440,6 +460,23 @@ def _set_coupling_display(model: Model, mt: dict, p: Path) -> None:
         model.coupling_scale, model.coupling_unit, model.coupling_name = coupling_display(*given)
     except (ValueError, TypeError) as exc:
         raise ValueError(_where(p, f"[model] {exc}")) from None
+
+
+def _coupling_point(x: Any, model: Model, coupling: float | None) -> tuple | None:
+    """``couplings = [λ₁, λ₂]`` of a model with several couplings (one number per coupling)."""
+    m = model.n_couplings
+    if x is None:
+        if m > 1 and coupling is not None:
+            raise ValueError(
+                f"the model has {m} couplings ({', '.join(model.coupling_names)}): give the point as "
+                f"couplings = [{', '.join('λ' + str(i + 1) for i in range(m))}], not coupling = {coupling!r}"
+            )
+        return None
+    if m == 1:
+        raise ValueError(f"couplings = {x!r} is for models with several couplings; this model has one: use coupling = λ")
+    if not isinstance(x, list) or len(x) != m:
+        raise ValueError(f"couplings must be a list of {m} numbers, one per coupling ({', '.join(model.coupling_names)}); got {x!r}")
+    return tuple(_number(v, "couplings entry") for v in x)
 
 
 def build_model(builder: str, params: Mapping[str, Any], *, where: str = "") -> Model:
@@ -630,7 +667,8 @@ def _load_archive(arch: Path, source: Path) -> tuple[Any, Any]:
     with _reading(arch, "the matrices", source), zipfile.ZipFile(arch) as zf:
         members = {m[:-4] if m.endswith(".npy") else m for m in zf.namelist()}
         heads = {}
-        for key in ("h0", "v"):
+        several = sorted((m for m in members if re.fullmatch(r"v\d+", m)), key=lambda m: int(m[1:]))
+        for key in ("h0", "v", *several):
             if key in members:
                 with zf.open(f"{key}.npy") as fh:
                     heads[key] = _npy_header(fh)
@@ -639,6 +677,8 @@ def _load_archive(arch: Path, source: Path) -> tuple[Any, Any]:
             f"{source}: {arch} is a single scipy.sparse matrix; save h0 and v separately with "
             "scipy.sparse.save_npz and name them with h0 = ... and v = ..."
         )
+    if "v" not in members and several:
+        members = members | {"v"}
     missing = sorted({"h0", "v"} - members)
     if missing:
         raise ValueError(f"{source}: {arch} has no array(s) {', '.join(missing)} (it has "
@@ -646,6 +686,8 @@ def _load_archive(arch: Path, source: Path) -> tuple[Any, Any]:
     for key, head in heads.items():
         _check_dense_header(head, f"{key} ({arch.name})", source)
     with _reading(arch, "the matrices", source), np.load(arch, allow_pickle=False) as z:
+        if "v" not in z.files:  # several couplings: arrays v1, v2, ...
+            return z["h0"], [z[k] for k in several]
         return z["h0"], z["v"]
 
 
@@ -660,8 +702,16 @@ def _model_from_matrices(mt: dict, base: Path, source: Path) -> tuple[Model, str
         kind = "npz"
     elif "h0" in mt and "v" in mt:
         h0, k0 = _load_matrix(base / str(mt["h0"]), "h0", source)
-        v, k1 = _load_matrix(base / str(mt["v"]), "v", source)
-        kind = "sparse-npz" if "sparse-npz" in (k0, k1) else "npy"
+        if isinstance(mt["v"], list):  # several couplings: one matrix file per V_i
+            if len(mt["v"]) < 1:
+                raise ValueError(_where(source, "[model] v = [] names no matrix"))
+            loaded = [_load_matrix(base / str(f), f"v[{i}]", source) for i, f in enumerate(mt["v"])]
+            v = [x for x, _ in loaded] if len(loaded) > 1 else loaded[0][0]
+            kinds = [k for _, k in loaded]
+        else:
+            v, k1 = _load_matrix(base / str(mt["v"]), "v", source)
+            kinds = [k1]
+        kind = "sparse-npz" if "sparse-npz" in (k0, *kinds) else "npy"
     else:
         raise ValueError(_where(source, "[model] needs builtin = ..., or h0 = ... and v = ..., or matrices = ..."))
     labels = mt.get("labels")
@@ -678,8 +728,11 @@ def _model_from_matrices(mt: dict, base: Path, source: Path) -> tuple[Model, str
                 raise ValueError(_where(source, f"[model.conserved] {nm} must be a matrix file name (.npy or .npz); got {path!r}"))
             ops[nm] = _load_matrix(base / path, f"conserved operator {nm!r}", source)[0]
         conserved = ops
+    names = mt.get("coupling_names")
+    if names is not None and not (isinstance(names, list) and all(isinstance(x, str) for x in names)):
+        raise ValueError(_where(source, f"[model] coupling_names must be a list of strings; got {names!r}"))
     try:
-        model = Model(h0, v, labels=labels, dims=dims, name=source.stem, conserved=conserved)
+        model = Model(h0, v, labels=labels, dims=dims, name=source.stem, names=names, conserved=conserved)
     except (ValueError, TypeError) as exc:
         raise ValueError(_where(source, str(exc))) from None
     return model, kind

@@ -46,10 +46,11 @@ from ._atomic import (
     write_folder,
 )
 from ._progress import ProgressCallback, report_progress
+from ._format import clean_complex, order_from_name, order_json
 from .approximants import Pade, order_name, parse_orders
 from .compare import TRUNCATION_NOTE, ComparisonResult, ValidityBoundary, compare, validity_boundary
 from .treatment import DEFAULT_TREATMENT, EXACT_IN_SECTOR, NEAR_DEGENERATE, CheckSettings, require_model
-from .degeneracy import DEFAULT_MIXING_THRESHOLD, NearDegeneratePair, near_degenerate_pairs
+from .degeneracy import DEFAULT_MIXING_THRESHOLD, near_degenerate_pairs
 from .model import Model, physical_coupling_text
 from .modelfile import SIZE_PARAMS
 from .quantities import Quantity
@@ -58,9 +59,13 @@ __all__ = [
     "CheckReport",
     "Verdict",
     "VERDICT_STATUSES",
+    "REPORT_REFERENCES",
+    "DEFAULT_BOUNDS_ABOVE",
+    "choose_reference",
     "Figure",
     "FORMATS",
     "ReportBusyError",
+    "FIGURE_FORMATS",
     "ReportExistsError",
     "ReportFolderError",
     "check_out_dir",
@@ -78,11 +83,27 @@ __all__ = [
 #: Report formats :func:`write_report` can write.
 FORMATS = ("json", "md", "csv")
 
+#: Figure file formats of a report (:func:`default_figures`).
+FIGURE_FORMATS = ("png", "svg", "pdf")
+
+#: How order specs appear in the JSON report.
+ORDER_FORMAT = ('an int k: the series truncated after the λ^k term; {"pade": [L, M]}: the Padé approximant [L/M] '
+                '(with "in_square": true when built in λ²)')
+
 #: Default relative tolerance when none is given (1 % of the exact shift / value).
 DEFAULT_RTOL = 0.01
 
 #: Default orders judged when none are given.
 DEFAULT_ORDERS = (2,)
+
+#: Where a report's reference values come from: ``"exact"`` solves, certified ``"bounds"``
+#: (no exact solve, :mod:`ptcheck.bounds`), or ``"auto"``: bounds for a basis larger than
+#: ``bounds_above`` states when every target can be bracketed, exact solves otherwise.
+REPORT_REFERENCES = ("exact", "bounds", "auto")
+
+#: Default basis size above which ``reference="auto"`` uses certified bounds: beyond it each
+#: sparse exact solve costs about a second or more and a report needs dozens of them.
+DEFAULT_BOUNDS_ABOVE = 20_000
 
 
 
@@ -93,8 +114,9 @@ def _version() -> str:
 
 
 # ---------------------------------------------------------------------- result types
-#: Verdict statuses: what a verdict can say about one order of one target.
-VERDICT_STATUSES = ("valid", "not valid", "exact within its sector", "undefined")
+#: Verdict statuses: what a verdict can say about one order of one target ("undecided":
+#: certified bounds neither certify that the order meets the tolerance nor that it does not).
+VERDICT_STATUSES = ("valid", "not valid", "exact within its sector", "undefined", "undecided")
 
 
 @dataclass(frozen=True)
@@ -132,11 +154,26 @@ class Verdict:
         boundary), ``"not valid"``, ``"exact within its sector"`` (the treatment
         is exact diagonalisation of a whole invariant sector: no order is
         judged, never a "valid" verdict), ``"undefined"`` (the error cannot be
-        judged, e.g. a relative error whose reference vanishes).
+        judged, e.g. a relative error whose reference vanishes), ``"undecided"``
+        (certified bounds only: neither meeting the tolerance nor failing it
+        is certified at this coupling).
     treatment : str
         Treatment used (:mod:`ptcheck.treatment`).
     reason : str
         Why that treatment.
+    reference : str
+        ``"exact"`` or ``"bounds"`` (no exact solve: "valid" and "not valid"
+        are certified, see ``rigorous``).
+    error_lower, error_upper : float
+        ``reference="bounds"``: certified bracket of the error at ``coupling``
+        (as ``error``: absolute or relative); NaN otherwise.  ``error`` is NaN
+        with ``reference="bounds"``.
+    rigorous : bool
+        ``reference="bounds"``: the verdict rests on rigorous gaps only; False
+        when it is conditional on an estimated (Lanczos) gap or a given one.
+    certified_not : float
+        ``reference="bounds"``: signed coupling from which the order is
+        certified not to meet the tolerance (NaN: none certified).
     """
 
     target: str
@@ -152,11 +189,16 @@ class Verdict:
     status: str = "valid"
     treatment: str = "nondegenerate"
     reason: str = ""
+    reference: str = "exact"
+    error_lower: float = math.nan
+    error_upper: float = math.nan
+    rigorous: bool = False
+    certified_not: float = math.nan
 
     def to_dict(self) -> dict:
-        return {
+        d = {
             "target": self.target,
-            "order": order_name(self.order),
+            "order": order_json(self.order),
             "coupling": self.coupling,
             "error": _finite_or_str(self.error),
             "tolerance": self.tolerance,
@@ -169,6 +211,15 @@ class Verdict:
             "boundary_status": self.boundary_status,
             "text": self.text,
         }
+        if self.reference == "bounds":
+            d.update({
+                "reference": self.reference,
+                "error_lower": _finite_or_str(self.error_lower),
+                "error_upper": _finite_or_str(self.error_upper),
+                "rigorous": self.rigorous,
+                "certified_not": _finite_or_str(self.certified_not),
+            })
+        return d
 
 
 @dataclass(frozen=True, repr=False, eq=False)
@@ -213,13 +264,18 @@ class CheckReport:
     notes : tuple of str
         All remarks of the engine (deduplicated).
     extras : dict
-        Optional additions, e.g. a validity map (``{"validity_map": ValidityMap}``).
+        Optional additions, e.g. a validity map (``{"validity_map": ValidityMap}``),
+        a photon-number boundary (``{"photon_boundaries": PhotonBoundaries}``),
+        the energy unit of the model's numbers (``{"energy_unit": "GHz"}``).
     source_model : Model
         The model checked (not serialised; used by figure makers).
     suggestions : tuple of Suggestion
         Near-degenerate blocks that would fix a partner limiting a target's
         series, each with its own validity boundary: beside the verdict, never
         in its place (the verdict and the exit status judge what was asked).
+    other_boundaries : tuple of ValidityBoundary
+        Boundaries at the further tolerances asked for (``settings["other_tolerances"]``),
+        target × order for each tolerance in turn; not judged.
     """
 
     title: str
@@ -240,6 +296,7 @@ class CheckReport:
     extras: dict = field(default_factory=dict)
     source_model: Any = field(default=None, repr=False)
     suggestions: tuple = ()
+    other_boundaries: tuple = ()
 
     @property
     def exit_status(self) -> int:
@@ -272,19 +329,22 @@ class CheckReport:
                 "exit_status": self.exit_status,
                 "text": self.verdict_text,
                 "per_target": [v.to_dict() for v in self.verdicts],
-                "lowest_valid_order": {k: (None if v is None else order_name(v)) for k, v in self.lowest_valid_order.items()},
+                "lowest_valid_order": {k: (None if v is None else order_json(v)) for k, v in self.lowest_valid_order.items()},
             },
             "cautions": list(self.cautions),
             "suggestions": [g.to_dict() for g in self.suggestions],
-            "boundaries": [b.to_dict() for b in self.boundaries],
-            "convergence": [None if c is None else c.to_dict() for c in self.convergence],
+            "boundaries": [_order_fields(b.to_dict()) for b in self.boundaries],
+            "other_boundaries": [_order_fields(b.to_dict()) for b in self.other_boundaries],
+            "convergence": [None if c is None else _convergence_json(c) for c in self.convergence],
             "near_degenerate_pairs": [p.to_dict() for p in self.pairs],
             "truncation": [t.to_dict() for t in self.truncation],
-            "comparison": self.comparison.to_dict(),
+            "comparison": _order_fields(self.comparison.to_dict()),
             "notes": list(self.notes),
+            "conventions": {"order": ORDER_FORMAT, "complex": "[real, imaginary] (round-off below 1e-9 of the modulus set to 0)"},
         }
+        d["settings"] = _order_fields(dict(self.settings))
         for k, v in self.extras.items():
-            d[k] = v.to_dict() if hasattr(v, "to_dict") else _json_safe(v)
+            d[k] = _order_fields(v.to_dict()) if hasattr(v, "to_dict") else _json_safe(v)
         return _json_safe(d)
 
     def _repr_html_(self) -> str:
@@ -309,15 +369,23 @@ class Figure:
     Attributes
     ----------
     filename : str
-        File name inside the report directory (``.png``).
+        File name inside the report directory (suffix ``.png``, ``.svg`` or ``.pdf``).
     caption : str
-    png : bytes
-        The image.
+    data : bytes
+        The file's bytes (also readable as ``png`` for PNG figures).
+    format : str
+        ``"png"``, ``"svg"`` or ``"pdf"``.
     """
 
     filename: str
     caption: str
-    png: bytes = field(repr=False)
+    data: bytes = field(repr=False)
+    format: str = "png"
+
+    @property
+    def png(self) -> bytes:
+        """The file's bytes (name kept from when reports wrote PNG only)."""
+        return self.data
 
 
 #: Signature of a figure step: report -> figures.
@@ -345,7 +413,12 @@ def run_check(
     invented: bool = False,
     n_points: int = 41,
     convergence_order: int = 40,
+    couplings: Any = None,
     progress: ProgressCallback | None = None,
+    reference: str = "auto",
+    bounds_above: int = DEFAULT_BOUNDS_ABOVE,
+    gap: str | float = "auto",
+    trial_order: int | None = None,
 ) -> CheckReport:
     """Run the full check of levels / quantities of a model at one coupling.
 
@@ -358,10 +431,13 @@ def run_check(
         The orders you rely on (default ``[2]``); *every* order listed is judged.
     coupling : float
         The coupling λ you use (dimensionless).
-    tol, rtol : float, optional
+    tol, rtol : float or sequence of float, optional
         Absolute tolerance (energy units) or relative tolerance (relative to
         the exact shift of a level / the reference a quantity names).  At most
-        one; default ``rtol = 0.01``.
+        one kind; default ``rtol = 0.01``.  With several values (e.g.
+        ``rtol=[0.01, 0.05]``) the first is judged (verdicts, validity) and the
+        others get validity boundaries too (``other_boundaries``), drawn in
+        the same error figure.
     treatment : {"standard", "nondegenerate", "block", "auto"}, default "standard"
         The perturbation theory judged (:mod:`ptcheck.treatment`): by default
         the textbook series (degenerate perturbation theory inside exactly
@@ -383,8 +459,24 @@ def run_check(
         Couplings in the comparison grid.
     convergence_order : int, default 40
         Series order analysed by the convergence diagnosis.
+    couplings : (C,) array_like, optional
+        Coupling grid of the comparison (the sweep of the figures and CSV);
+        ``coupling`` is added to it.  Default: ``n_points`` couplings from ~0
+        to past the coupling and the boundaries found.
     progress : callable(done, total), optional
         Called after each step.
+    reference : {"auto", "exact", "bounds"}, default "auto"
+        Where the reference values come from (:func:`choose_reference`, the
+        one place that decides): exact solves, or certified bounds with no
+        exact solve (verdicts then say "certified", rigorous or conditional on
+        an estimated gap, and may be "undecided"); ``"auto"`` uses bounds for
+        a basis larger than ``bounds_above`` when every target can be bracketed.
+    bounds_above : int, default :data:`DEFAULT_BOUNDS_ABOVE`
+        Basis size N above which ``reference="auto"`` uses bounds.
+    gap : {"auto", "weyl", "neighbours", "estimate"} or float, default "auto"
+        Gap source of the bounds (:mod:`ptcheck.bounds`).
+    trial_order : int, optional
+        Order of the bounds' trial states (default ``max(12, k + 10)``).
 
     Returns
     -------
@@ -396,7 +488,9 @@ def run_check(
     with λ as the coupling of interest): an order is valid at λ exactly when
     |λ| lies below the first coupling where its error exceeds the tolerance.
     An error that comes back within tolerance beyond that boundary is an
-    accident, reported as NOT valid with a caution.
+    accident, reported as NOT valid with a caution.  With certified bounds the
+    boundary is the certified coupling: "valid" below it, "not valid" from the
+    coupling where failure is certified, "undecided" in between.
     """
     require_model(model, "run_check")
     lam0 = val.as_coupling(coupling)
@@ -405,7 +499,8 @@ def run_check(
     if tol is None and rtol is None:
         rtol = DEFAULT_RTOL
     relative = rtol is not None
-    thr = float(val.check_positive(rtol if relative else tol, "rtol" if relative else "tol"))
+    thr, *other_thr = _tolerances(rtol if relative else tol, "rtol" if relative else "tol")
+    grid_given = None if couplings is None else val.as_couplings(couplings)
     n_points = val.check_int(n_points, "n_points", minimum=3)
     convergence_order = val.check_int(convergence_order, "convergence_order", minimum=2)
     settings = CheckSettings(treatment=treatment, backend=backend, threshold=threshold, coupling=lam0 if lam0 != 0 else None)
@@ -428,9 +523,17 @@ def run_check(
     if len(set(names)) != len(names):
         raise ValueError(f"targets must be distinct; got {names}")
     needed = list(dict.fromkeys(n for s_ in level_sets for n in s_))
+    ref, ref_reason = choose_reference(model, needed, specs, reference=reference, bounds_above=bounds_above,
+                                       treatment=settings.treatment)
+    bounds_kw = {"gap": gap, "trial_order": trial_order} if ref == "bounds" else {}
+    if ref == "bounds":
+        from .bounds import bounds_options
 
-    do_trunc = builder is not None and any(p in (params or {}) or _has_param(builder, p) for p in SIZE_PARAMS)
-    total = 2 + len(targets) * len(specs) + len(needed) + (1 if do_trunc else 0)
+        bounds_options(gap, trial_order, max((s_ for s_ in specs if not isinstance(s_, Pade)), default=0))
+
+    do_trunc = ref == "exact" and builder is not None and any(
+        p in (params or {}) or _has_param(builder, p) for p in SIZE_PARAMS)
+    total = 2 + len(targets) * len(specs) * (1 + len(other_thr)) + len(needed) + (1 if do_trunc else 0)
     step = 0
 
     def tick() -> None:
@@ -445,27 +548,38 @@ def run_check(
     boundaries = []
     for t, name in zip(targets, names):
         for sp_ in specs:
-            boundaries.append(_boundary(model, t, name, sp_, direction, tolkw, settings, lam0))
+            boundaries.append(_boundary(model, t, name, sp_, direction, tolkw, settings, lam0, bounds_kw))
             tick()
+    other_boundaries = []
+    for x in other_thr:
+        kw_x = {"rtol": x} if relative else {"tol": x}
+        for t, name in zip(targets, names):
+            for s in specs:
+                other_boundaries.append(_boundary(model, t, name, s, direction, kw_x, settings, lam0, bounds_kw))
+                tick()
 
     # 2. comparison on a grid reaching past the coupling and the boundaries found
     reach = abs(lam0)
-    finite_b = [abs(b.coupling) for b in boundaries if math.isfinite(b.coupling) and b.coupling != 0]
+    finite_b = [abs(b.coupling) for b in boundaries + other_boundaries if math.isfinite(b.coupling) and b.coupling != 0]
     if finite_b:
         reach = max(reach, min(1.25 * max(finite_b), 4 * max(abs(lam0), 1e-300)))
     if reach == 0:
         reach = min(finite_b) if finite_b else 1.0
     grid = direction * np.linspace(reach / (n_points - 1), reach, n_points - 1)
+    if grid_given is not None:
+        grid = grid_given
     grid = np.unique(np.append(grid, lam0)) if lam0 != 0 else np.unique(np.append(grid, 0.0))
     int_orders = [s_ for s_ in specs if not isinstance(s_, Pade)]
     kmax = max(int_orders, default=2)
     context = list(range(1, min(kmax + 2, 40) + 1))
     all_orders = list(dict.fromkeys(list(specs) + context))
     comp = compare(model, targets, all_orders, grid, coupling=lam0 if lam0 != 0 else None, threshold=threshold,
-                   treatment=settings.treatment, backend=settings.backend)
+                   treatment=settings.treatment, backend=settings.backend, reference=ref, **bounds_kw)
     tick()
     ci = int(np.argmin(np.abs(comp.couplings - lam0)))
     errs = comp.rel_error if relative else comp.abs_error
+    if ref == "bounds":  # judged by the certified upper end of the error
+        errs = comp.rel_error_upper if relative else comp.error_upper
 
     # 3. verdicts, gated by the boundaries
     verdicts = []
@@ -476,6 +590,9 @@ def run_check(
             e = float(errs[ti, oi, ci])
             b = boundaries[bi]
             bi += 1
+            if ref == "bounds":
+                verdicts.append(_certified_verdict(comp, ti, oi, ci, name, sp_, lam0, thr, relative, b))
+                continue
             status = _verdict_status(b, lam0, e, thr)
             text = _verdict_sentence(name, sp_, lam0, e, thr, relative, status, b, comp.treatments[ti], model.physical_coupling)
             verdicts.append(Verdict(name, sp_, lam0, e, thr, relative, status == "valid", float(b.coupling), b.status, text,
@@ -517,15 +634,19 @@ def run_check(
         trunc, trunc_notes = _truncation_checks(model, builder, dict(params or {}), needed, lam0)
         tick()
 
+    if ref == "bounds" and builder is not None and any(_has_param(builder, p) for p in SIZE_PARAMS):
+        trunc_notes.append("Truncation check skipped: it needs exact solves, and this report uses certified bounds "
+                           "instead (check the truncation on a smaller basis, or with --reference exact).")
     suggestions = _report_suggestions(boundaries, comp)
     cautions = _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes, needed, lam0, builder, source,
                          suggestions)
+    cautions = _reference_cautions(ref, ref_reason, verdicts, boundaries) + cautions
     notes = list(comp.notes)
     for b in boundaries:
         notes.extend(b.notes)
     for c in conv:
-        if c is not None:
-            notes.extend(c.notes)
+        if c is not None:  # an "optimal order" means nothing for a convergent series
+            notes.extend(n for n in c.notes if c.kind != "convergent" or "optimal order" not in n)
     notes.extend(conv_notes)
     notes.extend(trunc_notes)
 
@@ -554,6 +675,7 @@ def run_check(
         "coupling": lam0,
         "tol": None if relative else thr,
         "rtol": thr if relative else None,
+        "other_tolerances": [float(x) for x in other_thr],
         "treatment": settings.treatment,
         "treatments_used": dict(zip(comp.targets, comp.treatments)),
         "backend": settings.backend,
@@ -561,8 +683,16 @@ def run_check(
         "direction": direction,
         "comparison_couplings": [float(x) for x in comp.couplings],
         "convergence_order": convergence_order,
+        "sweep": None if grid_given is None else [float(grid_given.min()), float(grid_given.max()), int(grid_given.size)],
         "ptcheck_version": _version(),
+        "reference": ref,
+        "reference_asked": reference,
+        "reference_reason": ref_reason,
+        "bounds_above": bounds_above,
     }
+    if ref == "bounds":
+        settings_info["gap"] = gap if isinstance(gap, str) else float(gap)
+        settings_info["trial_order"] = trial_order
     report_progress(progress, total, total)
     return CheckReport(
         title=title or f"Can perturbation theory be trusted for {model.name} at {_with_physical(f'λ = {lam0:g}', lam0, model.physical_coupling)}?",
@@ -574,15 +704,156 @@ def run_check(
         verdicts=tuple(verdicts),
         comparison=comp,
         boundaries=tuple(boundaries),
+        other_boundaries=tuple(other_boundaries),
         convergence=tuple(conv),
         pairs=pairs,
         truncation=tuple(trunc),
         lowest_valid_order=lowest,
-        cautions=tuple(dict.fromkeys(cautions)),
+        cautions=tuple(c for c in said_once(list(dict.fromkeys(cautions))) if c),
         notes=tuple(dict.fromkeys(notes)),
         source_model=model,
         suggestions=suggestions,
     )
+
+
+def choose_reference(
+    model: Model, levels: Sequence[int], orders: Sequence[Any], *, reference: str = "auto",
+    bounds_above: int = DEFAULT_BOUNDS_ABOVE, treatment: str = DEFAULT_TREATMENT,
+) -> tuple[str, str]:
+    """Exact solves or certified bounds for a report: the one place that decides.
+
+    Parameters
+    ----------
+    model : Model
+    levels : sequence of int
+        Work-basis indices of every level the targets use.
+    orders : sequence of order specs
+        The orders judged.
+    reference : {"auto", "exact", "bounds"}
+    bounds_above : int
+        ``"auto"`` uses bounds when the basis size N exceeds this.
+    treatment : str
+        The treatment asked for.
+
+    Returns
+    -------
+    (str, str)
+        ``"exact"`` or ``"bounds"``, and the reason in plain words.
+
+    Notes
+    -----
+    Bounds bracket a level through its own Rayleigh–Schrödinger series, so
+    ``"auto"`` keeps exact solves when a level is degenerate with another
+    level of its sector, when a Padé approximant is judged, or when a block
+    treatment is asked for; ``"bounds"`` then fails with the engine's
+    message naming the reason.
+    """
+    reference = val.check_choice(reference, "reference", REPORT_REFERENCES)
+    bounds_above = val.check_int(bounds_above, "bounds_above", minimum=0)
+    orders = parse_orders(orders)
+    if reference == "exact":
+        return "exact", "exact solves, as asked"
+    if reference == "bounds":
+        return "bounds", "certified bounds, as asked"
+    if model.n <= bounds_above:
+        return "exact", f"exact solves: the basis (N = {model.n}) is not above {bounds_above} states"
+    obstacles = []
+    degenerate = [n for n in levels if model.degenerate_group_of(n) is not None]
+    if degenerate:
+        obstacles.append(f"level {model.label(degenerate[0])} is degenerate with another level of its sector")
+    if any(isinstance(o, Pade) for o in orders):
+        obstacles.append("a Padé approximant is judged")
+    if treatment in ("block", "auto"):
+        obstacles.append(f"treatment {treatment!r} asks for near-degenerate blocks")
+    if obstacles:
+        return "exact", (
+            f"exact solves although the basis (N = {model.n}) is above {bounds_above} states: certified bounds are "
+            f"not available here ({'; '.join(obstacles)})"
+        )
+    return "bounds", f"certified bounds: the basis (N = {model.n}) is above {bounds_above} states"
+
+
+def _certified_verdict(comp: ComparisonResult, ti: int, oi: int, ci: int, name: str, spec: Any, lam0: float, thr: float,
+                       relative: bool, b: ValidityBoundary) -> Verdict:
+    """The verdict of one order at λ0 from certified bounds (gated by the certified boundary)."""
+    lo_arr, hi_arr = (comp.rel_error_lower, comp.rel_error_upper) if relative else (comp.error_lower, comp.error_upper)
+    lo, hi = float(lo_arr[ti, oi, ci]), float(hi_arr[ti, oi, ci])
+    rig_here = bool(comp.bounds_rigorous[ti, ci])
+    if b.status == "exact_in_sector":
+        status = "exact within its sector"
+    elif b.status == "error":
+        status = "not valid" if lo > thr else "undecided"
+    else:
+        status = b.decision_at(lam0)
+        if status == "undecided" and lo > thr:  # failure certified at λ0 itself: the first crossing lies below it
+            status = "not valid"
+    if status == "valid":
+        rigorous = b.rigorous or abs(lam0) < abs(b.rigorous_coupling)
+    elif status == "not valid":
+        rigorous = (lo > thr and rig_here) or b.status == "fails_at_zero"
+    else:
+        rigorous = False
+    text = _certified_sentence(name, spec, lam0, lo, hi, thr, relative, status, rigorous, b, comp.treatments[ti])
+    return Verdict(
+        name, spec, lam0, math.nan, thr, relative, status == "valid", float(b.coupling), b.status, text, status,
+        comp.treatments[ti], comp.reasons[ti] if comp.reasons else "", reference="bounds", error_lower=lo,
+        error_upper=hi, rigorous=bool(rigorous), certified_not=float(b.certified_not),
+    )
+
+
+def _certified_sentence(name, spec, lam, lo, hi, thr, relative, status, rigorous, b: ValidityBoundary, treatment_here) -> str:
+    tol = _fmt_err(thr, relative)
+    how = "" if treatment_here == "nondegenerate" else f" ({treatment_here} treatment)"
+    what = f"{name}, {order_name(spec)}{how}"
+    if status == "exact within its sector":
+        return (f"{what}: {EXACT_IN_SECTOR} — the treatment is exact diagonalisation of a whole invariant sector, "
+                "not a perturbative approximation; no verdict on an order.")
+    kind = "rigorous" if rigorous else "conditional on an estimated gap"
+    if b.gap_kind.startswith("given"):
+        kind = "rigorous" if rigorous else "conditional on the gap given"
+    err = f"error certified in [{_fmt_err(lo, relative)}, {_fmt_err(hi, relative)}] at λ = {lam:g}"
+    if status == "valid":
+        s = f"{what}: {err} — certified valid ({kind}): it meets {tol} for every |λ| up to {_fmt_lam(abs(b.coupling))}."
+    elif status == "not valid":
+        s = f"{what}: {err} — certified NOT valid ({kind})"
+        if math.isfinite(b.certified_not) and abs(lam) >= abs(b.certified_not):
+            s += f": the error exceeds {tol} at |λ| = {abs(b.certified_not):.4g}."
+        elif b.status == "fails_at_zero":
+            s += ": it does not meet the tolerance at any nonzero coupling."
+        else:
+            s += f": the error exceeds {tol} at λ = {lam:g}."
+    else:
+        s = f"{what}: {err} — undecided: the bounds certify neither that it meets {tol} nor that it does not"
+        if b.status in ("certified", "not_certified") and b.coupling != 0:
+            s += f" (certified only up to |λ| = {abs(b.coupling):.4g}"
+            s += f", certified to fail from {abs(b.certified_not):.4g})" if math.isfinite(b.certified_not) else ")"
+        s += ". An exact check (--reference exact), a higher trial order or a better gap decides."
+    return s
+
+
+def _reference_cautions(ref: str, reason: str, verdicts: Sequence[Verdict], boundaries: Sequence[ValidityBoundary]) -> list[str]:
+    """Cautions about where the reference values come from (certified bounds)."""
+    if ref != "bounds":
+        return []
+    out = [
+        f"No exact solve — {reason}. Verdicts are certified by Kato–Temple brackets of the exact levels; each says "
+        "whether it is rigorous or conditional on an estimated gap."
+    ]
+    cond = [v for v in verdicts if v.status in ("valid", "not valid") and not v.rigorous]
+    if cond:
+        out.append(
+            "Conditional verdicts (they rest on a Lanczos gap estimate, not a proof): "
+            + "; ".join(f"{v.target} at {order_name(v.order)}" for v in cond)
+            + ". Confirm design decisions with your own convergence checks."
+        )
+    und = [v for v in verdicts if v.status == "undecided"]
+    if und:
+        out.append(
+            "Undecided (neither certified valid nor certified not valid): "
+            + "; ".join(f"{v.target} at {order_name(v.order)}" for v in und)
+            + ". Run with --reference exact on this model (or a smaller one) to decide."
+        )
+    return out
 
 
 def _verdict_status(b: ValidityBoundary, lam0: float, error: float, thr: float) -> str:
@@ -609,7 +880,48 @@ def _report_suggestions(boundaries: Sequence[ValidityBoundary], comp: Comparison
     return tuple(out.values())
 
 
-def _boundary(model, target, name, spec, direction, tolkw, settings: CheckSettings, lam0) -> ValidityBoundary:
+def _tolerances(x: Any, name: str) -> list[float]:
+    """One tolerance or several (first judged), each a positive number; duplicates dropped."""
+    vals = list(x) if isinstance(x, (list, tuple, np.ndarray)) else [x]
+    if not vals:
+        raise ValueError(f"{name} is empty; give at least one tolerance")
+    return list(dict.fromkeys(float(val.check_positive(v, name)) for v in vals))
+
+
+def said_once(texts: Sequence[str]) -> list[str]:
+    """Texts with boilerplate already said in an earlier text removed (said once).
+
+    Boilerplate: a sentence without any digit (advice, definitions); a
+    sentence with numbers is data about its own text and always stays.  The
+    result is aligned with ``texts`` ("" where nothing new is left).
+
+    Examples
+    --------
+    >>> said_once(["A is 1. Check it.", "B is 1. Check it."])
+    ['A is 1. Check it.', 'B is 1.']
+    """
+    import re
+
+    seen: set[str] = set()
+    out = []
+    for t in texts:
+        kept = []
+        for sentence in _sentences(t):
+            if sentence not in seen or re.search(r"\d", sentence):
+                kept.append(sentence)
+                seen.add(sentence)
+        out.append(" ".join(kept))
+    return out
+
+
+def _sentences(text: str) -> list[str]:
+    """Split at ". " (a full stop followed by a space and a capital or digit), keeping the stops."""
+    import re
+
+    return [p for p in re.split(r"(?<=[.!?])\s+(?=[^a-z\s])", text.strip()) if p]
+
+
+def _boundary(model, target, name, spec, direction, tolkw, settings: CheckSettings, lam0, bounds_kw=None) -> ValidityBoundary:
     """validity_boundary, robust to a failure of the search itself (reported, not raised).
 
     Inputs were validated before; a ValueError here is a numerical outcome (e.g.
@@ -619,6 +931,8 @@ def _boundary(model, target, name, spec, direction, tolkw, settings: CheckSettin
     """
     kw = dict(direction=direction, threshold=settings.threshold, backend=settings.backend,
               coupling=lam0 if lam0 != 0 else None, treatment=settings.treatment, **tolkw)
+    if bounds_kw:
+        kw.update(reference="bounds", **bounds_kw)
     try:
         return validity_boundary(model, target, spec, **kw)
     except (ValueError, ArithmeticError) as exc:
@@ -629,6 +943,7 @@ def _boundary(model, target, name, spec, direction, tolkw, settings: CheckSettin
         target=name, order=spec, treatment=settings.treatment, tol=None if rel else thr, rtol=thr if rel else None,
         direction=direction, coupling=math.nan, status="error", exact_solves=0, bracket=(math.nan, math.nan),
         error_at_boundary=math.nan, max_coupling=math.nan, notes=(f"The validity boundary search failed: {first}",),
+        reference="bounds" if bounds_kw else "exact",
     )
 
 
@@ -689,7 +1004,7 @@ def _cautions(model, comp, verdicts, boundaries, conv, pairs, trunc, trunc_notes
                 "diagonalisation of a whole invariant sector, not perturbation theory; no order is judged "
                 "(not counted as valid)."
             )
-        if not np.isfinite(v.error) and v.status != "exact within its sector":
+        if not np.isfinite(v.error) and v.status != "exact within its sector" and v.reference == "exact":
             out.append(
                 f"{v.target}, {order_name(v.order)}: the relative error is undefined at λ = {v.coupling:g} (the exact "
                 "reference is ~0 or the pairing of states is ambiguous); judge it with an absolute tolerance (--tol)."
@@ -826,6 +1141,7 @@ def _verdict_paragraph(r: CheckReport) -> str:
         bad = [v for v in r.verdicts if not v.valid and v.status == "not valid"]
         exact = [v for v in r.verdicts if v.status == "exact within its sector"]
         undef = [v for v in r.verdicts if v.status == "undefined"]
+        undecided = [v for v in r.verdicts if v.status == "undecided"]
         parts = []
         if bad:
             parts.append(f"the {kind} tolerance {tol} is not met for " + "; ".join(f"{v.target} at {order_name(v.order)}" for v in bad))
@@ -834,20 +1150,70 @@ def _verdict_paragraph(r: CheckReport) -> str:
                          + f" ({EXACT_IN_SECTOR}: its treatment is exact diagonalisation, not perturbation theory)")
         if undef:
             parts.append("the error cannot be judged for " + "; ".join(f"{v.target} at {order_name(v.order)}" for v in undef))
+        if undecided:
+            parts.append("the certified bounds cannot decide for "
+                         + "; ".join(f"{v.target} at {order_name(v.order)}" for v in undecided))
         head = f"at {at}, " + "; ".join(parts) + "."
+    certified = r.settings.get("reference") == "bounds"
+    if certified:
+        judged = [v for v in r.verdicts if v.status in ("valid", "not valid")]
+        n_rig = sum(v.rigorous for v in judged)
+        head += (f" Certified by bounds, no exact solve: {n_rig} of {len(judged)} decided verdict(s) rigorous, "
+                 f"{len(judged) - n_rig} conditional on an estimated gap.")
+    meets = "is certified to meet it" if certified else "meets it"
     exact_targets = {v.target for v in r.verdicts if v.status == "exact within its sector"}
     low = []
     for t, k in r.lowest_valid_order.items():
         if t in exact_targets:
             continue
         if k is None:
-            low.append(f"{t}: no truncation order up to {max(o for o in r.comparison.orders if not isinstance(o, Pade))} meets it")
+            top = max(o for o in r.comparison.orders if not isinstance(o, Pade))
+            low.append(f"{t}: no truncation order up to {top} {meets}")
         else:
-            low.append(f"{t}: order {k} is the lowest that meets it")
+            low.append(f"{t}: order {k} is the lowest that {'is certified to meet' if certified else 'meets'} it")
     return head + (" Lowest sufficient order at this coupling — " + "; ".join(low) + "." if low else "")
 
 
 # ---------------------------------------------------------------------- serialisers
+def _order_fields(d: dict) -> dict:
+    """Order names ("order 2", "Padé[2/2]") in a result's dict turned into numbers (see :data:`ORDER_FORMAT`)."""
+    out = dict(d)
+    for key in ("order",):
+        if isinstance(out.get(key), str):
+            out[key] = _order_value(out[key])
+    for key in ("orders", "context_orders"):
+        if isinstance(out.get(key), list):
+            out[key] = [_order_value(x) if isinstance(x, str) else x for x in out[key]]
+    return out
+
+
+def _order_value(name: str) -> Any:
+    try:
+        return order_json(order_from_name(name))
+    except ValueError:
+        return name
+
+
+def _convergence_json(c: Any) -> dict:
+    """A ConvergenceResult's dict, complex numbers cleaned of round-off, no optimal order for a convergent series."""
+    d = c.to_dict()
+    for key in ("exceptional_points", "ep_energies"):
+        if isinstance(d.get(key), list):
+            d[key] = [_complex_pair(z) for z in d[key]]
+    if d.get("kind") == "convergent":
+        d["optimal_order"] = None  # meaningful for asymptotic series only: a convergent one improves with every order
+        d["smallest_term"] = None
+        d["notes"] = [n for n in d.get("notes", []) if "optimal order" not in n]
+    return d
+
+
+def _complex_pair(z: Any) -> Any:
+    if isinstance(z, (list, tuple)) and len(z) == 2 and all(isinstance(x, (int, float)) for x in z):
+        c = clean_complex(complex(z[0], z[1]))
+        return [c.real, c.imag]
+    return z
+
+
 def _finite_or_str(x: Any) -> Any:
     if isinstance(x, float) and not math.isfinite(x):
         return str(x)
@@ -869,12 +1235,13 @@ def _json_safe(x: Any) -> Any:
     if isinstance(x, (float, np.floating)):
         f = float(x)
         return f if math.isfinite(f) else str(f)
-    if isinstance(x, complex):
-        return [_json_safe(x.real), _json_safe(x.imag)]
+    if isinstance(x, (complex, np.complexfloating)):
+        c = clean_complex(complex(x))
+        return [_json_safe(c.real), _json_safe(c.imag)]
     if x is None or isinstance(x, str):
         return x
     if isinstance(x, Pade):
-        return str(x)
+        return order_json(x)
     return str(x)
 
 
@@ -929,6 +1296,9 @@ def comparison_csv(report: CheckReport) -> str:
     """
     cols = ["target", "order", "treatment", "coupling", "presents", "unperturbed", "exact_presented",
             "perturbative_presented", "exact", "perturbative", "abs_error", "rel_error", "infidelity", "ambiguous"]
+    if report.comparison.error_lower is not None:
+        cols += ["exact_lower", "exact_upper", "error_lower", "error_upper", "rel_error_lower", "rel_error_upper",
+                 "bounds_rigorous", "bounds_gap_kind"]
     return _csv(report.comparison.to_rows(), cols)
 
 
@@ -948,9 +1318,14 @@ def boundaries_csv(report: CheckReport) -> str:
             "boundary": b.coupling, "boundary_status": b.status, "exact_solves": b.exact_solves,
             "coupling_physical": None if scale is None else v.coupling * scale,
             "boundary_physical": None if scale is None else b.coupling * scale,
+            "reference": b.reference, "error_lower": v.error_lower, "error_upper": v.error_upper,
+            "rigorous": v.rigorous, "certified_not": b.certified_not, "rigorous_boundary": b.rigorous_coupling,
+            "gap_kind": b.gap_kind,
         })
     cols = ["target", "order", "treatment", "coupling", "error_at_coupling", "tolerance", "tolerance_kind", "valid",
             "verdict", "boundary", "boundary_status", "exact_solves", "coupling_physical", "boundary_physical"]
+    if any(b.reference == "bounds" for b in report.boundaries):
+        cols += ["reference", "error_lower", "error_upper", "rigorous", "certified_not", "rigorous_boundary", "gap_kind"]
     return _csv(rows, cols)
 
 
@@ -965,6 +1340,44 @@ def _md_table(header: Sequence[str], rows: Sequence[Sequence[Any]]) -> str:
     lines = ["| " + " | ".join(cell(h) for h in header) + " |", "|" + "---|" * len(header)]
     lines += ["| " + " | ".join(cell(c) for c in r) + " |" for r in rows]
     return "\n".join(lines)
+
+
+def _fmt_bracket(lo: float, hi: float, relative: bool) -> str:
+    if not (np.isfinite(lo) or np.isfinite(hi)):
+        return "—"
+    return f"[{_fmt_err(lo, relative)}, {_fmt_err(hi, relative)}]" if np.isfinite(hi) else f"≥ {_fmt_err(lo, relative)}"
+
+
+def _md_certified_tables(r: CheckReport) -> list[str]:
+    """Certified couplings and the certified error brackets of a report made with bounds (no exact solve)."""
+    s = r.settings
+    rel = s["rtol"] is not None
+    out = ["", "## Certified validity boundaries", "",
+           "No exact solve. Below the certified |λ| the order is guaranteed to meet the tolerance; from the "
+           "'certified not' |λ| on it is guaranteed not to (the true boundary λ* lies between them). 'rigorous': "
+           "the certificate uses rigorous gaps only (Weyl's inequality, the neighbouring levels' own brackets); "
+           "'conditional': it rests on an estimated (Lanczos) or given gap.", "",
+           _md_table(["target", "order", "treatment", f"error at λ = {s['coupling']:g}", "verdict", "certified |λ|",
+                      "certified with rigorous gaps", "certified not |λ|", "gap", "status", "mat-vecs", "exact solves"], [
+               [v.target, order_name(v.order), b.treatment, _fmt_bracket(v.error_lower, v.error_upper, v.relative),
+                f"{v.status} ({'rigorous' if v.rigorous else 'conditional'})" if v.status in ("valid", "not valid") else v.status,
+                _fmt_lam(abs(b.coupling)), _fmt_lam(abs(b.rigorous_coupling)), _fmt_lam(abs(b.certified_not)),
+                b.gap_kind or "—", b.status, b.mat_vecs, b.exact_solves]
+               for v, b in zip(r.verdicts, r.boundaries)])]
+    comp = r.comparison
+    ci = int(np.argmin(np.abs(comp.couplings - s["coupling"])))
+    lo_a, hi_a = (comp.rel_error_lower, comp.rel_error_upper) if rel else (comp.error_lower, comp.error_upper)
+    cols = sorted(range(len(comp.orders)), key=lambda i: _order_sort_key(comp.orders[i]))
+    out += ["", f"## Certified error at λ = {s['coupling']:g}, order by order", "",
+            "Each cell brackets the error: the exact value lies in the certified interval shown, so the error lies "
+            "in the bracket. Orders next to the ones judged are shown for context.", "",
+            _md_table(["target", "exact value in", "gap", "unperturbed"] + [comp.order_names[i] for i in cols], [
+                [t, f"[{comp.exact_lower[ti, ci]:.10g}, {comp.exact_upper[ti, ci]:.10g}]",
+                 f"{comp.bounds_gap_kind[ti, ci]} ({'rigorous' if comp.bounds_rigorous[ti, ci] else 'conditional'})",
+                 f"{comp.unperturbed[ti]:.10g}"]
+                + [_fmt_bracket(float(lo_a[ti, oi, ci]), float(hi_a[ti, oi, ci]), rel) for oi in cols]
+                for ti, t in enumerate(comp.targets)])]
+    return out
 
 
 def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: Sequence[str] = ()) -> str:
@@ -1002,13 +1415,17 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
         ["symmetry sectors", _sector_summary(m)],
     ] + ([["physical coupling at λ = 1", phys(1.0)]] if phys(1.0) else []))]
     tol = f"relative {s['rtol']:g}" if s["rtol"] is not None else f"absolute {s['tol']:g} (energy units)"
+    if s.get("other_tolerances"):
+        tol += f" (judged); also {', '.join(f'{x:g}' for x in s['other_tolerances'])} (boundaries only)"
     out += ["", "## Settings", "", _md_table(["", ""], [
         ["targets", ", ".join(s["targets"])], ["orders judged", ", ".join(s["orders"])],
         ["coupling λ", _with_physical(f"{s['coupling']:g}", s["coupling"], phys)], ["tolerance", tol],
         ["treatment", s["treatment"]],
         ["exact backend", f"{s['backend']} (used: {r.comparison.backend})"],
+        ["reference", f"{s.get('reference', 'exact')} ({s.get('reference_reason', 'exact solves')})"],
         ["near-degeneracy threshold", f"{s['threshold']:g}"], ["ptcheck", s["ptcheck_version"]],
     ])]
+    tables_at = len(out)
     out += ["", "## Validity boundaries", "",
             "λ* is the smallest |λ| at which the order stops meeting the tolerance (searched towards the sign of λ).", "",
             _md_table(["target", "order", "treatment", f"error at λ = {s['coupling']:g}", "verdict", "λ*", "status", "exact solves"], [
@@ -1016,6 +1433,12 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
                  _with_physical(_fmt_lam(abs(b.coupling)), abs(b.coupling), phys) if math.isfinite(b.coupling)
                  else _fmt_lam(b.coupling), b.status, b.exact_solves]
                 for v, b in zip(r.verdicts, r.boundaries)])]
+    if r.other_boundaries:
+        rel = s["rtol"] is not None
+        out += ["", "Validity boundaries at the other tolerances:", "", _md_table(["target", "order", "tolerance", "λ*", "status"], [
+            [b.target, order_name(b.order), _fmt_err(b.rtol if rel else b.tol, rel),
+             _fmt_lam(abs(b.coupling)) if math.isfinite(b.coupling) else _fmt_lam(b.coupling), b.status]
+            for b in r.other_boundaries])]
     comp = r.comparison
     ci = int(np.argmin(np.abs(comp.couplings - s["coupling"])))
     errs = comp.rel_error if s["rtol"] is not None else comp.abs_error
@@ -1030,13 +1453,22 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
                 [t, f"{shown[ti, ci]:.10g} ({'shift' if pres[ti] == 'shift' else 'value'})", f"{comp.unperturbed[ti]:.10g}"]
                 + [_fmt_err(float(errs[ti, oi, ci]), rel) for oi in cols]
                 for ti, t in enumerate(comp.targets)])]
+    if s.get("reference") == "bounds":  # certified couplings and error brackets instead of exact ones
+        out[tables_at:] = _md_certified_tables(r)
     convs = [c for c in r.convergence if c is not None]
     if convs:
-        out += ["", "## Convergence of the series", "",
-                _md_table(["level", "kind", "radius", "Kato bound", f"optimal order at λ = {s['coupling']:g}"], [
-                    [c.label, c.kind, _fmt_lam(c.radius), f"{c.kato_bound:.4g}", "—" if c.optimal_order is None else c.optimal_order]
-                    for c in convs]), ""]
-        out += [f"- **{c.label}**: {c.summary}" for c in convs]
+        header = ["level", "kind", "radius", "Kato bound"]
+        asymptotic = any(c.kind != "convergent" for c in convs)
+        if asymptotic:  # an optimal truncation order exists for divergent (asymptotic) series only
+            header.append(f"optimal order at λ = {s['coupling']:g}")
+        rows = []
+        for c in convs:
+            row = [c.label, c.kind, _fmt_lam(c.radius), f"{c.kato_bound:.4g}"]
+            if asymptotic:
+                row.append("—" if c.kind == "convergent" or c.optimal_order is None else c.optimal_order)
+            rows.append(row)
+        out += ["", "## Convergence of the series", "", _md_table(header, rows), ""]
+        out += [f"- **{c.label}**: {text}" for c, text in zip(convs, said_once([c.summary for c in convs]))]
     out += ["", "## Near-degenerate pairs", ""]
     if r.pairs:
         out += [_md_table(["levels", "mixing ratio |λV|/|ΔE|", "|ΔE|", "|V|"], [
@@ -1061,7 +1493,7 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
         out += ["", "## Files", ""] + [f"- `{f}`" for f in files]
     if r.notes:
         out += ["", "## Notes", ""] + [f"- {n}" for n in r.notes]
-    out += ["", f"---", f"Written by ptcheck {s['ptcheck_version']}."]
+    out += ["", "---", f"Written by ptcheck {s['ptcheck_version']}."]
     return "\n".join(out) + "\n"
 
 
@@ -1108,69 +1540,175 @@ def _sectors_md(m: Mapping[str, Any]) -> list[str]:
 
 
 # ---------------------------------------------------------------------- figures
-def _render(fig: Any, *, dpi: int = 110) -> bytes:
+#: Page size of report figures (inches): a wide 16:9 slide, drawn once at this size.
+FIGURE_SIZE = (13.333, 7.5)
+
+
+def _render(fig: Any, *, fmt: str = "png", dpi: int = 100) -> bytes:
+    """The figure's file bytes, drawn once at its own size (no timestamps: re-runs give the same bytes)."""
+    import matplotlib as mpl
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=dpi, metadata={"Software": None})
+    meta = {"png": {"Software": None}, "svg": {"Date": None, "Creator": None},
+            "pdf": {"CreationDate": None, "Creator": None, "Producer": None}}[fmt]
+    kw = {"pil_kwargs": {"compress_level": 1}} if fmt == "png" else {}  # fast; files stay ~150 kB
+    # lay out once with the renderer that then draws: text is measured once (savefig would lay out on a
+    # renderer of its own, then draw on another, measuring every label twice)
+    fig.set_dpi(dpi)
+    FigureCanvasAgg(fig)
+    engine = fig.get_layout_engine()
+    if engine is not None:
+        engine.execute(fig)
+        fig.set_layout_engine("none")
+    with mpl.rc_context({"svg.hashsalt": "ptcheck"}):
+        fig.savefig(buf, format=fmt, dpi=dpi, metadata=meta, facecolor="white", **kw)
     return buf.getvalue()
 
 
-def _new_figure(figsize: tuple[float, float] = (10.0, 5.625)):
+def _new_figure(figsize: tuple[float, float] = FIGURE_SIZE, *, columns: Sequence[float] | None = None):
+    """A figure with one Axes (or a row of them, width ratios ``columns``), styled at its own size."""
     from matplotlib.figure import Figure as MplFigure  # no pyplot: no global state
 
-    fig = MplFigure(figsize=figsize, layout="constrained")
-    return fig, fig.add_subplot()
+    from .plots import style
+
+    with style(figsize[0] / FIGURE_SIZE[0]):
+        fig = MplFigure(figsize=figsize, layout="constrained")
+        if columns is None:
+            return fig, fig.add_subplot()
+        gs = fig.add_gridspec(1, len(columns), width_ratios=list(columns))
+        return fig, [fig.add_subplot(gs[0, i]) for i in range(len(columns))]
 
 
-def default_figures(report: CheckReport) -> list[Figure]:
-    """Figures of a report, made by :mod:`ptcheck.plots` (slide format, 16:9).
+def default_figures(
+    report: CheckReport, *, figure_format: str = "png", dpi: int = 100, executor: Any = None
+) -> list[Figure]:
+    """Figures of a report, made by :mod:`ptcheck.plots` (16:9 slides, fonts legible on a projector).
 
-    Per target: values against λ and errors against λ (with the tolerance and
-    the validity boundaries); the convergence discs / exceptional points of
-    the levels used; the validity map if the report carries one.  When
+    Per target: values against λ and errors against λ (with the tolerance(s)
+    and the validity boundaries); the complex-coupling plane of the levels
+    used; the near-degenerate pairs at λ when there are any; the validity map
+    and the photon-number boundary if the report carries them.  Each figure
+    is drawn once, at slide size, straight into its file.  When
     :mod:`ptcheck.plots` cannot be imported, one simple error figure is drawn
     here instead.
+
+    Parameters
+    ----------
+    report : CheckReport
+    figure_format : {"png", "svg", "pdf"}
+    dpi : int
+        Resolution of PNG files (pixels = 13.33 in × dpi wide).
+    executor : concurrent.futures.Executor, optional
+        Draw the figures as independent tasks there (e.g. a process pool on
+        a multi-core machine); the list comes back in the same order.
+        Default: one after the other in this process.
+
+    Returns
+    -------
+    list of Figure
     """
+    val.check_choice(figure_format, "figure format", FIGURE_FORMATS)
+    plan = figure_plan(report)
+    if executor is None:
+        if _plots_module() is None:
+            return [_fallback_error_figure(report, figure_format)]
+        return [draw_figure(report, key, figure_format=figure_format, dpi=dpi) for key in plan]
+    futures = [executor.submit(draw_figure, report, key, figure_format=figure_format, dpi=dpi) for key in plan]
+    return [f.result() for f in futures]
+
+
+def figure_plan(report: CheckReport) -> list[tuple]:
+    """The figures :func:`default_figures` draws for this report, as keys for :func:`draw_figure`."""
+    plan: list[tuple] = []
+    bands = report.comparison.reference == "bounds"
+    for ti in range(len(report.comparison.targets)):
+        plan += [("bands", ti)] if bands else [("values", ti), ("errors", ti)]
+    if any(c is not None for c in report.convergence):
+        plan.append(("convergence",))
+    if report.source_model is not None and report.pairs:
+        plan.append(("pairs",))
+    if report.extras.get("validity_map") is not None:
+        plan.append(("validity_map",))
+    if report.extras.get("photon_boundaries") is not None:
+        plan.append(("photons",))
+    return plan
+
+
+def draw_figure(report: CheckReport, key: tuple, *, figure_format: str = "png", dpi: int = 100) -> Figure:
+    """One figure of :func:`figure_plan` (module level: a worker process can draw it)."""
     plots = _plots_module()
-    if plots is None:
-        return [_fallback_error_figure(report)]
     comp = report.comparison
     s = report.settings
     lam = s["coupling"]
     rel = s["rtol"] is not None
     judged = [comp.orders[i] for i in _judged_indices(report)]
-    figs: list[Figure] = []
-    for ti, t in enumerate(comp.targets):
-        slug = _slug(t, ti)
-        fig, ax = _new_figure()
-        plots.plot_levels(comp, targets=[t], orders=judged, coupling=lam, ax=ax)
-        figs.append(Figure(f"values-{slug}.png", f"{t}: exact and perturbative values against λ (vertical line: λ = {lam:g}).",
-                           _save_png(plots, fig)))
+    phys = _physical(report)
+    ext = figure_format
+
+    def done(name: str, caption: str, fig: Any) -> Figure:
+        return Figure(f"{name}.{ext}", caption, _render(fig, fmt=ext, dpi=dpi), ext)
+
+    kind = key[0]
+    if kind == "bands":  # no exact solve: the certified bracket of each order's error
+        ti = key[1]
+        t = comp.targets[ti]
         fig, ax = _new_figure()
         bnds = [b for b in report.boundaries if b.target == t]
-        plots.plot_errors(comp, bnds, target=t, orders=judged, error="relative" if rel else "absolute",
-                          tol=s["rtol"] if rel else s["tol"], coupling=lam, ax=ax)
-        figs.append(Figure(f"errors-{slug}.png", f"{t}: error of each order against λ, the tolerance, and where each "
-                           "order stops meeting it (shaded beyond).", _save_png(plots, fig)))
-    convs = [c for c in report.convergence if c is not None]
-    if convs and hasattr(plots, "plot_divergence"):
+        plots.plot_error_bands(comp, bnds, target=t, orders=judged, error="relative" if rel else "absolute",
+                               tol=s["rtol"] if rel else s["tol"], coupling=lam, ax=ax)
+        return done(f"errors-{_slug(t, ti)}", f"{t}: certified bracket of each order's error against λ (no exact "
+                    "solve); solid: certified valid below, dashed: certified not valid from.", fig)
+    if kind in ("values", "errors"):
+        ti = key[1]
+        t = comp.targets[ti]
+        slug = _slug(t, ti)
         fig, ax = _new_figure()
-        plots.plot_divergence(convs, coupling=lam, model_name=report.model["name"], ax=ax)
-        figs.append(Figure("convergence.png", "Complex coupling plane: exceptional points, convergence discs and Kato "
-                           "bounds of the levels used; your λ on the real axis.", _save_png(plots, fig)))
-    if report.source_model is not None and report.pairs and hasattr(plots, "plot_pairs"):
+        if kind == "values":
+            plots.plot_levels(comp, targets=[t], orders=judged, coupling=lam, ax=ax, **phys)
+            return done(f"values-{slug}", f"{t}: exact and perturbative values against λ (vertical line: λ = {lam:g}).", fig)
+        bnds = [b for b in report.boundaries + report.other_boundaries if b.target == t]
+        tols = [s["rtol"] if rel else s["tol"]] + list(s.get("other_tolerances") or ())
+        plots.plot_errors(comp, bnds, target=t, orders=judged, error="relative" if rel else "absolute", tol=tols,
+                          coupling=lam, ax=ax, **phys)
+        return done(f"errors-{slug}", f"{t}: error of each order against λ, the tolerance{'s' if len(tols) > 1 else ''}, "
+                    f"and where each order stops meeting {'them' if len(tols) > 1 else 'it'} (λ*).", fig)
+    if kind == "convergence":
+        fig, ax = _new_figure()
+        plots.plot_divergence([c for c in report.convergence if c is not None], coupling=lam,
+                              model_name=report.model["name"], ax=ax)
+        return done("convergence", "Complex coupling plane: exceptional points, convergence discs and Kato bounds of "
+                    "the levels used; your λ on the real axis.", fig)
+    if kind == "pairs":
         needed = sorted({n for q in report.comparison.levels for n in _levels_of(report.source_model, q)})
-        fig, ax = _new_figure()
-        plots.plot_pairs(plots.mixing_map(report.source_model, lam, levels=needed, threshold=s["threshold"]), ax=ax)
-        figs.append(Figure("pairs.png", f"Mixing ratios |λV|/|ΔE| at λ = {lam:g}; flagged pairs are near-degenerate.",
-                           _save_png(plots, fig)))
-    vm = report.extras.get("validity_map")
-    if vm is not None:
+        fig, (ax, tax) = _new_figure(columns=(3, 2))
+        plots.plot_pairs(plots.mixing_map(report.source_model, lam, levels=needed, threshold=s["threshold"]), ax=ax,
+                         table_ax=tax)
+        return done("pairs", f"Levels at λ = {lam:g} and the pairs whose mixing ratio |λV|/|ΔE| is large; "
+                    "outlined: near-degenerate blocks (suggested beside the answer).", fig)
+    if kind == "validity_map":
         from .maps_plot import plot_validity_map
 
+        vm = report.extras["validity_map"]
         fig, ax = _new_figure()
-        plot_validity_map(vm, ax=ax, mark=report.extras.get("validity_map_mark"))
-        figs.append(Figure("validity-map.png", vm.caption(), _save_png(plots, fig)))
-    return figs
+        plot_validity_map(vm, ax=ax, mark=report.extras.get("validity_map_mark"), mark_label="design point",
+                          unit=report.extras.get("energy_unit"))
+        return done("validity-map", vm.caption(), fig)
+    if kind == "photons":
+        pb = report.extras["photon_boundaries"]
+        fig, ax = _new_figure()
+        plots.plot_photon_boundaries(pb, ax=ax, **phys)
+        return done("photons", pb.summary(), fig)
+    raise ValueError(f"unknown figure {key!r}; figure_plan gives {figure_plan(report)}")
+
+
+def _physical(report: CheckReport) -> dict:
+    """``coupling_scale``/``coupling_unit`` of the model checked, when it has them (keywords for the plots)."""
+    m = report.source_model
+    scale = getattr(m, "coupling_scale", None)
+    if scale is None:
+        return {}
+    return {"coupling_scale": scale, "coupling_unit": getattr(m, "coupling_unit", None)}
 
 
 def _levels_of(model: Model, key: Any) -> list[int]:
@@ -1182,16 +1720,6 @@ def _slug(name: str, i: int) -> str:
     while "--" in keep:
         keep = keep.replace("--", "-")
     return f"{i + 1}-{keep}" if keep else f"{i + 1}"
-
-
-def _save_png(plots: Any, fig: Any) -> bytes:
-    """PNG bytes of a figure exported by ``ptcheck.plots.save`` (slide size, legible fonts)."""
-    import tempfile
-
-    with tempfile.TemporaryDirectory() as d:
-        path = Path(d) / "figure.png"
-        plots.save(fig, path, dpi=100)
-        return path.read_bytes()
 
 
 def _judged_indices(report: CheckReport) -> list[int]:
@@ -1208,7 +1736,7 @@ def _plots_module() -> Any:
     return plots
 
 
-def _fallback_error_figure(report: CheckReport) -> Figure:
+def _fallback_error_figure(report: CheckReport, figure_format: str = "png") -> Figure:
     """|error| of every order judged against λ, log scale, with the tolerance and λ*."""
     comp = report.comparison
     s = report.settings
@@ -1216,7 +1744,10 @@ def _fallback_error_figure(report: CheckReport) -> Figure:
     thr = s["rtol"] if rel else s["tol"]
     errs = comp.rel_error if rel else comp.abs_error
     judged = _judged_indices(report)
-    fig, ax = _new_figure()
+    from matplotlib.figure import Figure as MplFigure
+
+    fig = MplFigure(figsize=(10.0, 5.625), layout="constrained")
+    ax = fig.add_subplot()
     x = np.abs(comp.couplings)
     srt = np.argsort(x)
     for ti, t in enumerate(comp.targets):
@@ -1235,7 +1766,8 @@ def _fallback_error_figure(report: CheckReport) -> Figure:
     ax.set_title(f"{comp.model_name}: error against the coupling (dotted: validity boundaries λ*)")
     ax.grid(True, color="#DDDDDD")
     ax.legend(fontsize=8)
-    return Figure("errors.png", "Error of each judged order against |λ|; dashed: tolerance; dotted: validity boundaries.", _render(fig))
+    return Figure(f"errors.{figure_format}", "Error of each judged order against |λ|; dashed: tolerance; dotted: validity "
+                  "boundaries.", _render(fig, fmt=figure_format), figure_format)
 
 
 # ---------------------------------------------------------------------- writing

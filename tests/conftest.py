@@ -1,12 +1,20 @@
 """Shared fixtures: small reference models built from closed forms (not from ptcheck.models)."""
 
+import os
+
 import numpy as np
 import pytest
 import scipy.sparse as sp
+from hypothesis import settings
 
 import matplotlib
 
 matplotlib.use("Agg")
+
+# Property tests draw the same examples on every run (CI reproducible); HYPOTHESIS_PROFILE=explore draws new ones.
+settings.register_profile("ptcheck", derandomize=True, deadline=None, print_blob=True)
+settings.register_profile("explore", deadline=None, print_blob=True)
+settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "ptcheck"))
 
 
 def oscillator_x(n_basis: int, headroom: int = 6) -> np.ndarray:

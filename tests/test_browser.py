@@ -1,8 +1,10 @@
 """The dashboard in a real browser: Voilà serves notebooks/dashboard.ipynb, headless Chromium drives it.
 
-Checks that the plot is drawn, that moving the coupling (keyboard on the slider
-handle, or a typed value) changes the rendered plot, and that the page logs no
-JavaScript error and shows no Python traceback.  One test throws on purpose to
+Checks that the plot is drawn; that moving the coupling (keyboard on the slider
+handle, or a typed value) changes the rendered plot, the verdict banner and the
+readout; that a typo in the model parameters shows a message that stays while
+the shown model keeps working; and that the page logs no JavaScript error and
+shows no Python traceback.  One test throws on purpose to
 prove the error detector works.  Skipped only when no Chromium executable exists.
 """
 
@@ -55,7 +57,7 @@ def browser():
 
 @pytest.fixture
 def page(browser):
-    ctx = browser.new_context(viewport={"width": 1400, "height": 1600})
+    ctx = browser.new_context(viewport={"width": 1600, "height": 1000})
     pg = ctx.new_page()
     pg.route("**/*", local_only)
     watch = PageWatch()
@@ -115,34 +117,70 @@ def _assert_clean(page) -> None:
     assert "Cannot compute this" not in page.inner_text("body")
 
 
-def test_coupling_slider_and_typed_value_move_the_plot(page, server):
+def _banner(page) -> str:
+    return page.locator(".ptcheck-verdict").first.inner_text()
+
+
+def _wait_text(page, selector: str, needle: str, timeout: float = 20_000) -> None:
+    page.wait_for_function(
+        "([sel, t]) => [...document.querySelectorAll(sel)].some(e => e.innerText.includes(t))",
+        arg=[selector, needle], timeout=timeout,
+    )
+
+
+def test_coupling_moves_change_the_plot_the_verdict_and_the_readout(page, server):
     _open_dashboard(page, server)
     _assert_clean(page)
-    # keyboard on the slider handle
-    readout = page.locator(".widget-slider .widget-readout").first
-    value0 = readout.inner_text()
-    numbers0 = page.locator("text=At coupling λ").first.inner_text()
+    box = page.locator(".widget-text:has-text('λ =') input").first
+    value0 = box.input_value()
+    banner0 = _banner(page)
     before = _stable_shot(page)
+    # keyboard on the slider handle: 40 steps of 1/100 of the range (0..2) from λ = 1
     page.locator(HANDLE).first.focus()
     for _ in range(40):
         page.keyboard.press("ArrowRight")
-    assert readout.inner_text() != value0
+    page.wait_for_function("(old) => { const e = [...document.querySelectorAll('.widget-text input')]"
+                           ".find(i => i.closest('.widget-text').innerText.includes('λ =')); return e && e.value !== old; }",
+                           arg=value0, timeout=20_000)
     area = _wait_for_change(page, before)
     assert area > MIN_DIFF_AREA, f"the plot did not change after moving the coupling (diff area {area} px)"
-    page.wait_for_function(
-        "(old) => { const e = [...document.querySelectorAll('b')].find(b => b.innerText.startsWith('At coupling')); "
-        "return e && e.innerText !== old; }", arg=numbers0.split("(")[0].strip(), timeout=20_000,
-    )
-    # a typed value
+    _wait_text(page, ".ptcheck-verdict", "at λ = 1.8")
+    assert _banner(page) != banner0
+    _wait_text(page, ".widget-html", "At λ = 1.8")
+    # a typed value off the slider's step grid is kept exactly (the slider snaps only its handle)
     before = _stable_shot(page)
-    box = page.locator(".widget-text:has-text('λ =') input").first
-    box.fill("1.6")
+    box.fill("1.234")
     box.press("Enter")
     area = _wait_for_change(page, before)
     assert area > MIN_DIFF_AREA, f"the plot did not change after typing a coupling (diff area {area} px)"
-    page.wait_for_function("() => document.body.innerText.includes('At coupling λ = 1.6')", timeout=20_000)
-    assert readout.inner_text().startswith("1.6")
+    _wait_text(page, ".widget-html", "At λ = 1.234")
+    _wait_text(page, ".ptcheck-verdict", "at λ = 1.23")
+    page.wait_for_timeout(1000)  # the slider's echo of its snapped value must not replace the typed one
+    assert "At λ = 1.234" in page.inner_text("body") and box.input_value() == "1.234"
     _assert_clean(page)
+
+
+def test_model_parameter_typo_shows_a_message_that_stays(page, server):
+    _open_dashboard(page, server)
+    page.locator(".lm-Collapse-header, .p-Collapse-header, .jupyter-widget-Collapse-header").filter(
+        has_text="model:").first.click()
+    params = page.locator(".widget-textarea:has-text('parameters') textarea").first
+    params.wait_for(state="visible", timeout=10_000)
+    params.fill("n_photons=five")
+    params.press("Tab")  # the box submits when it loses focus
+    _wait_text(page, ".widget-html", "The model was not changed")
+    text = page.inner_text("body")
+    assert "five" in text and "Still showing rabi(n_photons=5)" in text
+    # the shown model keeps working and the message stays
+    before = _stable_shot(page)
+    page.locator(HANDLE).first.focus()
+    for _ in range(10):
+        page.keyboard.press("ArrowLeft")
+    area = _wait_for_change(page, before)
+    assert area > MIN_DIFF_AREA, f"the plot did not change after moving the coupling (diff area {area} px)"
+    assert "The model was not changed" in page.inner_text("body")
+    assert page.watch.errors == [], page.watch.errors
+    assert "Traceback" not in page.inner_text("body")
 
 
 def test_error_detector_sees_a_deliberate_error(page):

@@ -87,7 +87,7 @@ def test_check_builtin_valid_exit_0_and_json_round_trip(tmp_path):
     # key fields equal the engine's values computed in this process
     b = validity_boundary(two_level(delta=DELTA, v=V), "g", 2, tol=TOL, treatment="nondegenerate")
     assert d["boundaries"][0]["coupling"] == pytest.approx(b.coupling, rel=1e-12)
-    assert d["settings"]["tol"] == TOL and d["settings"]["orders"] == ["order 2"]
+    assert d["settings"]["tol"] == TOL and d["settings"]["orders"] == [2]  # orders as numbers in the JSON report
     assert d["model"]["builder"] == "two_level" and d["model"]["params"] == {"delta": DELTA, "v": V}
     names = {p.name for p in (tmp_path / "rep").iterdir()}
     assert {"report.md", "report.json", "comparison.csv", "boundaries.csv"} <= names

@@ -236,3 +236,16 @@ def test_auto_with_coupling_of_interest_matches_compare():
     r2 = compare(m, 0, [2], [1.0], treatment="auto")
     assert b2.treatment == r2.treatments[0] == "near-degenerate block"
     assert b2.status == "exact_in_sector" and r2.exact_in_sector == (True,)
+
+
+def test_an_uncoupled_level_meets_a_relative_tolerance_everywhere():
+    # level 0 is not coupled to anything (V_0n = 0): its exact energy stays E0 = 0 at every λ (eigvalsh below),
+    # the series reproduces it exactly, so a relative tolerance is met everywhere (0/0 is not a failure)
+    import numpy as np
+
+    from ptcheck import Model, validity_boundary
+
+    h0, v = np.diag([0.0, 1.0, 2.0]), np.array([[0, 0, 0], [0, 0, 0.3], [0, 0.3, 0]])
+    assert all(np.min(np.abs(np.linalg.eigvalsh(h0 + x * v))) == 0.0 for x in (0.5, 5.0, 50.0))
+    b = validity_boundary(Model(h0, v), 0, 2, rtol=0.01)
+    assert b.status == "not_reached" and np.isinf(b.coupling)

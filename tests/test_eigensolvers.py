@@ -146,3 +146,41 @@ def test_davidson_reports_failure_instead_of_a_wrong_number():
     out = davidson_lowest(h, m.e0 + 2.0 * m.v_diagonal(), 4, np.eye(m.n, 4, dtype=complex), tols=np.full(4, 1e-12),
                           rng=None, max_matvecs=6)
     assert out is None
+
+
+def test_svqb_orthonormal_to_rounding_also_for_an_ill_conditioned_block():
+    # Columns that are nearly dependent (condition number ~1e4, like a block after a strong filter; one
+    # SVQB pass would leave ~1e-16 x 1e8 of non-orthogonality): the result must be orthonormal to
+    # ~1e-12 and span the same space (common practice, no source: Gram matrix against the identity;
+    # projector onto the span against the QR referee).
+    from ptcheck._eigensolvers import svqb
+
+    rng = np.random.default_rng(3)
+    base = rng.standard_normal((500, 6))
+    x = base @ np.diag([1.0, 1.0, 1.0, 1e-2, 1e-3, 1e-4]) @ rng.standard_normal((6, 6))
+    q = svqb(x)
+    assert q.shape == (500, 6)
+    assert_allclose(q.T @ q, np.eye(6), atol=1e-12)
+    ref, _ = np.linalg.qr(x)
+    assert_allclose(q @ q.T, ref @ ref.T, atol=1e-8)
+
+
+def test_chebyshev_filter_equals_the_polynomial_of_the_dense_matrix():
+    # T_d((H - c)/e) x by the three-term recurrence T_{j+1} = 2 A T_j - T_{j-1} on the dense matrix
+    # (Zhou, Saad, Tiago, Chelikowsky, J. Comput. Phys. 219, 172 (2006), eq. for the Chebyshev filter).
+    from ptcheck._eigensolvers import _Operator, _Pattern
+
+    m = sparse_random_model(150, complex_=False, key=11)
+    coupling = 0.3
+    op = _Operator(np.asarray(m.e0, dtype=float), _Pattern(m.v, m.n), coupling)
+    h = m.hamiltonian(coupling).toarray()
+    w = np.linalg.eigvalsh(h)
+    cut, upper = w[20], w[-1] + 1e-6
+    a = (h - 0.5 * (upper + cut) * np.eye(m.n)) / (0.5 * (upper - cut))
+    x = np.random.default_rng(5).standard_normal((m.n, 4))
+    for degree in (1, 2, 3, 9):
+        prev, cur = x, a @ x
+        for _ in range(2, degree + 1):
+            prev, cur = cur, 2 * a @ cur - prev
+        got = op.filter(x, degree, float(w[0]), cut, upper)
+        assert_allclose(got, cur, rtol=0, atol=1e-12 * np.max(np.abs(cur)))

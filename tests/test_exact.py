@@ -431,3 +431,99 @@ def test_levels_of_different_sectors_are_solved_apart():
     sw = solver.track([0, 1], [0.2, 0.4])
     assert sw.states.shape == (2, 2, 3)
     assert np.all(sw.states[1][:, 0] == 0.0)  # level 1 never has weight in level 0's sector
+
+
+# ----------------------------------------------------------------------------- probe path
+def two_block_random_model(n: int, key: int = 5) -> tuple[Model, np.ndarray, np.ndarray, np.ndarray]:
+    """Invented random model of two uncoupled blocks of n states (two sectors, both iterative-sized).
+
+    Returns the model, the dense user-basis matrices H0 and V (the referee diagonalises their blocks)
+    and the work index of each user state (H0 is diagonal with distinct entries, so the work basis is
+    the user basis sorted by energy).
+    """
+    rng = np.random.default_rng(key)
+    e0 = np.concatenate([np.sort(rng.uniform(0.0, 10.0, n)), np.sort(rng.uniform(0.05, 10.05, n))])
+    blocks = []
+    for b in range(2):
+        a = sp.random(n, n, density=0.04, random_state=key + b, data_rvs=rng.standard_normal)
+        blocks.append((a + a.T) * 0.25)
+    v = sp.block_diag(blocks).tocsr()
+    model = Model(sp.diags(e0).tocsr(), v, name="two sectors (invented)")
+    return model, np.diag(e0), v.toarray(), np.argsort(np.argsort(e0))
+
+
+def test_probe_path_equals_tracking_and_dense_eigvalsh_per_sector():
+    # Probes (one direct Davidson solve per coupling, no path from λ = 0) must give the state that
+    # tracking from λ = 0 gives; when the level has lost its energy rank or its perturbative
+    # character, the probe must be refused and the tracked path used instead.  Referee: LAPACK
+    # eigvalsh of each user-basis block (common practice, no source) and ExactSolver.track.  (The
+    # model and couplings avoid anticrossings narrower than ~1e-5: there the tracked path itself
+    # depends on where it is sampled.)
+    n = 110  # above SMALL_DENSE: the sparse backend iterates
+    m, h0, v, work = two_block_random_model(n)
+    picks = [(b, r) for b in (0, 1) for r in (0, 3, 10)]  # (block, energy rank inside the block)
+    levels = [int(work[b * n + r]) for b, r in picks]
+    lams = [0.3, 0.1, 0.2, 0.25, 0.05, -0.03]  # bisection-like order, both rays
+    solver = ExactSolver(m, backend="sparse")
+    got = {(lev, c): solver.level_at(lev, c) for lev in levels for c in lams}
+    sweep = ExactSolver(m, backend="sparse").track(levels, sorted(lams))
+    probed = 0
+    for (b, r), lev in zip(picks, levels):
+        sub = solver._solver(m.sector_of(lev))
+        k = int(np.searchsorted(solver._levels_of[m.sector_of(lev)], lev))
+        for c in lams:
+            e, psi = got[(lev, c)]
+            j = sorted(lams).index(c)
+            assert e == pytest.approx(sweep.energy(lev)[j], abs=1e-9)
+            assert_allclose(psi, sweep.state(lev)[j], atol=1e-6)  # same state, same phase convention
+            blk = slice(b * n, (b + 1) * n)
+            w = np.linalg.eigvalsh(h0[blk, blk] + c * v[blk, blk])
+            assert np.min(np.abs(w - e)) < 1e-9  # an exact eigenvalue of the level's own block
+            ray = 1 if c > 0 else -1
+            if any(abs(p[0] - abs(c)) == 0 for p in sub._probes.get((ray, k), [])):
+                probed += 1
+                assert e == pytest.approx(w[r], abs=1e-9)  # a probe keeps the unperturbed energy rank
+    assert probed >= 20  # most points are probes on this mildly coupled model
+    assert probed < len(picks) * len(lams)  # and some were refused (the level mixed), then tracked
+
+
+def test_probes_on_a_chain_with_site_fields_equal_dense_eigvalsh():
+    # The boundary-search case: low levels of an 8-spin Ising chain with invented site fields, probed in
+    # a bisection-like order.  Referee: LAPACK eigvalsh of the dense matrix (common practice, no source).
+    # The ground level stays perturbative up to λ = 0.6; level 2 (one flipped spin, 0.06 from its
+    # neighbours) only up to λ ≈ 0.1, so its probe at 0.3 must be refused and the tracked path used.
+    from ptcheck.models import spin_chain
+
+    m = spin_chain(n_spins=8, h_z=[0.1 + 0.03 * i for i in range(8)])
+    solver = ExactSolver(m, backend="sparse")
+    for level, couplings in ((0, (0.6, 0.3, 0.45, 0.52, 0.5)), (2, (0.1, 0.05, 0.08))):
+        for c in couplings:
+            before = solver.solves
+            e, psi = solver.level_at(level, c)
+            assert solver.solves == before + 1  # one probe, no tracked path
+            ref = np.linalg.eigvalsh(m.hamiltonian(c).toarray())
+            assert e == pytest.approx(ref[level], abs=1e-9)
+            assert np.linalg.norm(m.hamiltonian(c) @ psi - e * psi) < 1e-6 and psi[level] > 0
+    sweep = ExactSolver(m, backend="sparse").track([2], [0.1, 0.2, 0.3])
+    before = solver.solves
+    e, psi = solver.level_at(2, 0.3)
+    assert solver.solves > before + 1  # refused probe, then the tracked path
+    assert e == pytest.approx(sweep.energy(2)[-1], abs=1e-9)
+    assert_allclose(psi, sweep.state(2)[-1], atol=1e-6)
+
+
+def test_broad_avoided_crossing_is_placed_from_the_samples_without_extra_solves():
+    # Squared gap of the pair of crossing_model: 4 [((λ − 0.2)/2)² + w²λ²], exactly quadratic in λ
+    # (closed form of the two-level eigenvalues, Cohen-Tannoudji et al., Complement B_IV), so the
+    # parabola through three samples is exact: minimum at λ* = 0.2 / (1 + 4w²).
+    w = 0.1
+    m = crossing_model(w, 200)
+    lam = np.linspace(0.0, 0.6, 13)
+    sw = track(m, [1, 2], lam, backend="sparse")
+    (ac,) = sw.avoided_crossings
+    star = 0.2 / (1 + 4 * w**2)
+    assert ac.levels == (1, 2)
+    assert ac.coupling == pytest.approx(star, abs=1e-9)
+    assert ac.min_gap == pytest.approx(2 * np.sqrt(((star - 0.2) / 2) ** 2 + (w * star) ** 2), abs=1e-9)
+    plain = track(m, [1, 2], lam, backend="sparse", find_crossings=False)
+    assert sw.solves == plain.solves  # nothing spent on locating the crossing

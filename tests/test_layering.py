@@ -18,8 +18,15 @@ ENGINE = [
     "ptcheck.models",
     "ptcheck.products",
     "ptcheck.maps",
+    "ptcheck.photons",
+    "ptcheck._format",
     "ptcheck.modelfile",
     "ptcheck._atomic",
+    "ptcheck.multiseries",
+    "ptcheck.multiexact",
+    "ptcheck.region",
+    "ptcheck.multiformula",
+    "ptcheck.region_report",
 ]
 
 

@@ -52,6 +52,7 @@ NAMES = {
     "linear_rotor": "linear rotor in a field",
     "spin_chain": "transverse-field Ising chain",
     "hubbard_dimer": "Hubbard dimer",
+    "polar_molecule": "polar molecule (invented)",
 }
 
 
@@ -65,7 +66,7 @@ def test_builder_contract(key):
     m = BUILDERS[key]()
     assert isinstance(m, Model)
     assert m.name == NAMES[key]
-    h = m.hamiltonian(0.7)
+    h = (m.along((1.0,) * m.n_couplings) if m.n_couplings > 1 else m).hamiltonian(0.7)
     hd = h.toarray() if sp.issparse(h) else h
     assert np.max(np.abs(hd - hd.conj().T)) <= 1e-12 * np.max(np.abs(hd))
     # every level is labelled, except those of a degenerate group that V mixes (Model's rule); a pair of

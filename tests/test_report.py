@@ -5,6 +5,7 @@ import io
 import json
 import math
 import os
+import re
 
 import numpy as np
 import pytest
@@ -64,10 +65,13 @@ def test_json_is_strict_and_complete(report):
     d = json.loads(text, parse_constant=refuse)
     assert d["ptcheck_version"] == report.settings["ptcheck_version"]
     assert d["settings"]["tol"] == 1e-5 and d["settings"]["coupling"] == 0.45
-    assert d["settings"]["orders"] == ["order 2", "order 4"]
+    assert d["settings"]["orders"] == [2, 4]  # orders as numbers (ptcheck.report.ORDER_FORMAT)
     assert d["verdict"]["valid"] is False and d["verdict"]["exit_status"] == 1
     per = d["verdict"]["per_target"]
     assert [p["valid"] for p in per] == [False, True]
+    assert [p["order"] for p in per] == [2, 4] and d["boundaries"][0]["order"] == 2
+    assert d["verdict"]["lowest_valid_order"] == {"g": 4}
+    assert d["comparison"]["orders"][:2] == [2, 4] and "order" in d["conventions"]
     assert per[0]["error"] == report.verdicts[0].error
     assert d["boundaries"][0]["coupling"] == report.boundaries[0].coupling
     assert np.array(d["comparison"]["exact"]).shape == report.comparison.exact.shape
@@ -392,3 +396,80 @@ def test_shift_quantity_is_presented_as_a_shift_in_every_report_file():
     assert f"{shift:.10g} (shift)" in rp.to_markdown(r)
     d = json.loads(to_json(r))
     assert d["comparison"]["presents"] == ["shift"]
+
+
+# ---------------------------------------------------------------------- presentation of the report
+def test_pade_orders_in_json_and_convergent_series_have_no_optimal_order():
+    m = two_level(delta=DELTA, v=V)
+    r = run_check(m, [0], [2, "pade1/1@2"], coupling=0.45, tol=1e-5, treatment="nondegenerate")
+    d = json.loads(to_json(r))
+    assert d["settings"]["orders"] == [2, {"pade": [1, 1], "in_square": True}]
+    assert d["verdict"]["per_target"][1]["order"] == {"pade": [1, 1], "in_square": True}
+    (conv,) = d["convergence"]
+    assert conv["kind"] == "convergent"
+    assert conv["optimal_order"] is None and conv["smallest_term"] is None  # a convergent series has no optimal order
+    assert not any("optimal order" in n for n in d["notes"])
+    md = rp.to_markdown(r)
+    assert "optimal order" not in md
+
+
+def test_complex_numbers_rounded_and_cleaned():
+    from ptcheck._format import clean_complex, fmt_complex
+
+    # closed form: the two-level EPs sit at λ = ±iΔ/(2v) = ±2.5i (purely imaginary)
+    r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.45, tol=1e-5, treatment="nondegenerate")
+    d = json.loads(to_json(r))
+    eps = d["convergence"][0]["exceptional_points"]
+    assert eps and all(z[0] == 0.0 for z in eps)  # round-off real parts removed
+    assert sorted(z[1] for z in eps) == pytest.approx([-2.5, 2.5], rel=1e-6)
+    summary = d["convergence"][0]["summary"]
+    assert "2.5i" in summary and not re.search(r"\dj\b|\de-\d\d", summary)  # no Python complex, no round-off digits
+    assert fmt_complex(complex(-4.2e-23, 7.35)) == "7.35i"
+    assert fmt_complex(complex(1.2, -7.35)) == "1.2 − 7.35i" and fmt_complex(-0.5) == "−0.5"
+    assert clean_complex(complex(3e-20, -2.0)) == complex(0.0, -2.0)
+    assert rp._json_safe(np.complex128(complex(1e-30, 1.0))) == [0.0, 1.0]
+
+
+def test_several_tolerances_in_one_run_each_with_its_boundary():
+    r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.45, tol=[1e-5, 1e-4], treatment="nondegenerate")
+    (v,) = r.verdicts
+    assert v.tolerance == 1e-5  # the first tolerance is the one judged
+    (b5,), (b4,) = r.boundaries, r.other_boundaries
+    assert b4.tol == 1e-4
+    assert b4.coupling == pytest.approx(closed_form_boundary(2, 1e-4), rel=2e-3)  # closed form (see exact_ground)
+    d = json.loads(to_json(r))
+    assert d["settings"]["other_tolerances"] == [1e-4] and d["other_boundaries"][0]["order"] == 2
+    assert "Validity boundaries at the other tolerances" in rp.to_markdown(r)
+    (err,) = [f for f in rp.default_figures(r) if f.filename.startswith("errors")]
+    assert err.filename.endswith(".png") and "tolerances" in err.caption
+
+
+def test_coupling_sweep_is_the_comparison_grid():
+    sweep = np.linspace(0.1, 0.6, 6)
+    r = run_check(two_level(delta=DELTA, v=V), [0], [2], coupling=0.45, tol=1e-5, treatment="nondegenerate", couplings=sweep)
+    assert np.array_equal(r.comparison.couplings, np.unique(np.append(sweep, 0.45)))
+    assert r.settings["sweep"] == [0.1, 0.6, 6]
+
+
+@pytest.mark.parametrize("fmt, magic", [("png", b"\x89PNG"), ("svg", b"<?xml"), ("pdf", b"%PDF-")])
+def test_figure_formats_slide_size_and_same_bytes_on_a_rerun(report, fmt, magic):
+    figs = rp.default_figures(report, figure_format=fmt)
+    assert figs and all(f.filename.endswith("." + fmt) and f.format == fmt and f.data.startswith(magic) for f in figs)
+    fig, ax = rp._new_figure()
+    ax.plot([0, 1], [0, 1])
+    assert rp._render(fig, fmt=fmt) == rp._render(fig, fmt=fmt)  # no timestamps: a re-run is the same report
+    if fmt == "png":
+        from PIL import Image
+
+        with Image.open(io.BytesIO(figs[0].data)) as im:
+            assert im.size == (1333, 750)  # 13.33 x 7.5 in (16:9 slide) at 100 dpi
+    with pytest.raises(ValueError, match="figure format"):
+        rp.default_figures(report, figure_format="jpg")
+
+
+def test_boilerplate_said_once():
+    texts = ["Level a: radius 2. These are estimates: check them.", "Level b: radius 3. These are estimates: check them."]
+    assert rp.said_once(texts) == ["Level a: radius 2. These are estimates: check them.", "Level b: radius 3."]
+    assert rp.said_once(["Same. Same.", "Same."]) == ["Same.", ""]
+    # a sentence with numbers is data about its own level: never dropped
+    assert rp.said_once(["a: bound 0.75.", "b: bound 0.75."]) == ["a: bound 0.75.", "b: bound 0.75."]

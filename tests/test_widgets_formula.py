@@ -30,7 +30,7 @@ def load(path, name):
 
 @pytest.fixture
 def panel():
-    p = ErrorsPanel(two_level(delta=DELTA, v=V), levels=["g"], tol=0.01, relative=True, treatment="nondegenerate",
+    p = ErrorsPanel(two_level(delta=DELTA, v=V), levels=["g"], rtol=0.01, treatment="nondegenerate",
                     **OPTS)
     yield p
     p.close()
@@ -74,7 +74,7 @@ def test_export_formula_range_is_the_panels_boundary_and_the_brute_force_one(pan
 def test_formula_button_reports_the_files(panel, tmp_path):
     panel.controls.folder.value = str(tmp_path)
     panel.controls.formula_button.click()
-    assert "written:" in panel.message.value
+    assert "written:" in panel.controls.export_status.value
     assert sorted(p.name for p in tmp_path.iterdir()) == [
         "ptcheck_formula_two_level_system_g_order4.png", "ptcheck_formula_two_level_system_g_order4.py",
         "ptcheck_formula_two_level_system_g_order4.tex"]
@@ -87,5 +87,5 @@ def test_only_pade_selected_is_a_message(panel, tmp_path):
     panel.raise_errors = False
     panel.controls.folder.value = str(tmp_path)
     panel.controls.formula_button.click()
-    assert "select an integer order" in panel.message.value
+    assert "select an integer order" in panel.controls.export_status.value
     assert not list(tmp_path.iterdir())

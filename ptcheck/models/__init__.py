@@ -1,4 +1,4 @@
-"""Built-in model builders: each returns a :class:`ptcheck.Model` ``H0 + λ V``.
+"""Built-in model builders: each returns a :class:`ptcheck.Model` ``H0 + λ V`` (or ``H0 + Σ λ_i V_i``).
 
 Every builder takes keyword-only parameters (documented defaults; invented
 round numbers where no physical default exists) and splits the Hamiltonian so
@@ -18,6 +18,7 @@ from .cavity import jaynes_cummings, rabi
 from .charge import charge_qubit, planar_rotor
 from .hubbard import hubbard_dimer
 from .kerr import coupled_kerr_qubits, kerr_qubit_resonator
+from .molecule import polar_molecule
 from .oscillator import anharmonic_oscillator
 from .rotor import linear_rotor
 from .spin_chain import spin_chain
@@ -35,6 +36,7 @@ __all__ = [
     "kerr_qubit_resonator",
     "linear_rotor",
     "planar_rotor",
+    "polar_molecule",
     "rabi",
     "spin_chain",
     "truncation_check",
@@ -55,5 +57,6 @@ BUILDERS: Mapping[str, Callable[..., Model]] = MappingProxyType(
         "linear_rotor": linear_rotor,
         "spin_chain": spin_chain,
         "hubbard_dimer": hubbard_dimer,
+        "polar_molecule": polar_molecule,
     }
 )

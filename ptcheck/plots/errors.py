@@ -9,18 +9,29 @@ from typing import Any
 import numpy as np
 
 from ..approximants import order_name
-from ._common import add_caption, caption_text, nearest_index, new_axes, positive_or_nan, style_axes
-from ._style import EXACT_COLOR, FONT_SIZES, MARKER_COLOR, order_style, style
-from .levels import _order_indices, _target_indices, check_comparison
+from ._common import (
+    add_caption,
+    add_legend,
+    add_physical_axis,
+    caption_text,
+    fmt_physical,
+    log_axis,
+    nearest_index,
+    new_axes,
+    physical_coupling,
+    positive_or_nan,
+    style_axes,
+)
+from ._style import EXACT_COLOR, FONT_SIZES, MARKER_COLOR, SHADE_COLOR, finite_style, order_style, style
+from .levels import _order_indices, _target_indices, check_comparison, target_unit
 
-__all__ = ["ErrorArtists", "plot_errors", "ERROR_KINDS"]
+__all__ = ["ErrorArtists", "plot_errors", "ERROR_KINDS", "error_label", "fmt_tolerance", "TOLERANCE_DASHES"]
 
-#: What :func:`plot_errors` can draw: field of the result and axis label.
-ERROR_KINDS = {
-    "absolute": ("abs_error", "|perturbative − exact| (units of H0)"),
-    "relative": ("rel_error", "relative error"),
-    "infidelity": ("infidelity", "state infidelity 1 − |⟨ψ_pt|ψ⟩|²"),
-}
+#: What :func:`plot_errors` can draw: the result's field for each error kind.
+ERROR_KINDS = {"absolute": "abs_error", "relative": "rel_error", "infidelity": "infidelity"}
+
+#: Line styles of successive tolerances (black): the boundary segments reuse them.
+TOLERANCE_DASHES = ((0, (1, 1.6)), (0, (5, 2)), (0, (7, 2, 1.5, 2)), (0, (2, 3)))
 
 
 @dataclass(frozen=True)
@@ -35,23 +46,31 @@ class ErrorArtists:
     orders : tuple of str
         Orders drawn, one line each.
     lines : tuple of Line2D
-        Error against the coupling, one per order (non-positive values are
-        left out: NaN on the log axis); the legend names the block treatment
-        where the target uses it.
+        Error against the coupling, one per order, in the order's own colour
+        (non-positive values are left out: NaN on the log axis); the legend
+        names the block treatment where the target uses it.
     tolerance_line : Line2D or None
-        Horizontal line at the tolerance.
+        Horizontal line at the first (smallest) tolerance.
     boundary_lines : tuple of Line2D
-        One vertical line per validity boundary found (its ``coupling``).
-    shades : tuple of Polygon
-        Region beyond each boundary (``axvspan`` from the boundary to the end
-        of the coupling range on its side), in the order's colour.
+        One per validity boundary found: a vertical segment at its
+        ``coupling`` from the bottom of the axes up to its tolerance, in the
+        order's colour and the tolerance's line style, with a marker where
+        the error curve meets the tolerance.
+    shades : tuple of Rectangle
+        One light grey band per tolerance: errors above it (the legend says
+        so).  Bands of several tolerances nest (the darker, the more
+        tolerances are exceeded).
     boundaries : tuple
-        The ValidityBoundary objects matching ``boundary_lines``/``shades``.
+        The ValidityBoundary objects matching ``boundary_lines``.
     coupling_line : Line2D or None
     coupling_markers : Line2D or None
         Errors of the orders drawn at the sweep point nearest the coupling.
     caption : Text
     legend : Legend
+    tolerances : tuple of float
+        The tolerances drawn, ascending.
+    tolerance_lines : tuple of Line2D
+        One horizontal line per tolerance (same order).
     """
 
     figure: Any
@@ -67,6 +86,30 @@ class ErrorArtists:
     coupling_markers: Any
     caption: Any
     legend: Any
+    tolerances: tuple = ()
+    tolerance_lines: tuple = ()
+
+
+def error_label(result: Any, ti: int, error: str) -> str:
+    """Axis label saying whose error it is, and relative to what.
+
+    Examples: "absolute error of |1,0⟩ (units of H0)", "relative error of chi\n(÷ |exact chi|)".
+    """
+    name = result.targets[ti]
+    key = result.levels[ti]
+    if error == "absolute":
+        return f"absolute error of {name} ({target_unit(result, [ti])})"
+    if error == "infidelity":
+        return f"infidelity of {name}: 1 − |⟨ψ_pt|ψ_exact⟩|²"
+    ref = getattr(key, "relative_to", "shift")
+    return f"relative error of {name}\n(÷ |exact {'shift' if ref == 'shift' else name}|)"
+
+
+def fmt_tolerance(value: float, relative: bool, unit: str = "") -> str:
+    """``"1 %"`` (relative) or ``"1e-05 GHz"`` (absolute)."""
+    if relative:
+        return f"{100 * value:.3g} %"
+    return f"{value:.2g}" + (f" {unit}" if unit and unit != "units of H0" else "")
 
 
 def plot_errors(
@@ -76,10 +119,12 @@ def plot_errors(
     target: Any = None,
     orders: Any = None,
     error: str = "absolute",
-    tol: float | None = None,
+    tol: Any = None,
     coupling: float | None = None,
     ax: Any = None,
     caption: str | None = None,
+    coupling_scale: float | None = None,
+    coupling_unit: str | None = None,
 ) -> ErrorArtists:
     """Error of each order against λ on a log axis, with where each order stops being valid.
 
@@ -88,22 +133,27 @@ def plot_errors(
     result : ComparisonResult
         ``abs_error``/``rel_error``/``infidelity`` (T, O, C) against ``couplings`` (C,).
     boundaries : sequence of ValidityBoundary, optional
-        From :func:`ptcheck.compare.validity_boundary` for this target.  Each
-        boundary with status ``"found"`` (or ``"fails_at_zero"``) is marked by
-        a vertical line and the couplings beyond it are shaded in the
-        colour of its order.  Boundaries of orders not drawn are skipped.
+        From :func:`ptcheck.compare.validity_boundary` for this target, at one
+        or several tolerances.  Each boundary with status ``"found"`` (or
+        ``"fails_at_zero"``, drawn at λ = 0) is a segment in its order's colour
+        rising to its tolerance; the legend gives λ* (and the physical
+        coupling).  Boundaries not reached within the search are listed in
+        the legend.  Boundaries of orders or targets not drawn are skipped.
     target : str or int, optional
         Target to draw (default: the first).
     orders : sequence, optional
         Orders to draw (default: all compared).
     error : {"absolute", "relative", "infidelity"}
-    tol : float, optional
-        Tolerance line.  Default: the ``tol`` (absolute) or ``rtol``
-        (relative) of the first boundary.
+    tol : float or sequence of float, optional
+        Tolerance line(s), e.g. ``[0.01, 0.05]``.  Default: the tolerances of
+        the boundaries given (``tol`` for absolute, ``rtol`` for relative).
     coupling : float, optional
         Current coupling: vertical line and markers at the nearest sweep point.
     ax : matplotlib Axes, optional
     caption : str, optional
+    coupling_scale, coupling_unit : float, str, optional
+        Physical coupling at λ = 1 and its unit (default: the result's, if
+        any): a secondary axis on top and λ* in both units.
 
     Returns
     -------
@@ -114,12 +164,12 @@ def plot_errors(
         raise ValueError(f"error must be one of {list(ERROR_KINDS)}; got {error!r}")
     (ti,) = _target_indices(result, [target] if target is not None else [result.targets[0]])
     o_idx = _order_indices(result, orders)
-    field, ylabel = ERROR_KINDS[error]
-    data = np.asarray(getattr(result, field))
+    data = np.asarray(getattr(result, ERROR_KINDS[error]))
     boundaries = tuple(boundaries or ())
-    if tol is None and boundaries and error != "infidelity":
-        b0 = boundaries[0]
-        tol = b0.rtol if error == "relative" else b0.tol
+    relative = error == "relative"
+    tols = _tolerances(tol, boundaries, error)
+    unit = target_unit(result, [ti])
+    phys = physical_coupling(result, coupling_scale, coupling_unit)
     fig, ax, scale = new_axes(ax)
     lam = np.asarray(result.couplings, dtype=float)
     srt = np.argsort(lam, kind="stable")
@@ -127,31 +177,58 @@ def plot_errors(
     lw = max(scale, 0.75)
     with style(scale):
         ax.set_yscale("log")
+        log_axis(ax.yaxis)
         lines = []
         for oi in o_idx:
             tag = f" ({result.treatments[ti]})" if result.treatments[ti] in ("block", "mixed") else ""
-            (ln,) = ax.plot(x, positive_or_nan(data[ti, oi])[srt], label=result.order_names[oi] + tag, **order_style(oi))
+            y = positive_or_nan(data[ti, oi])[srt]
+            (ln,) = ax.plot(x, y, label=result.order_names[oi] + tag, **finite_style(order_style(result.orders[oi]), y))
             lines.append(ln)
         if x.size > 1 and x[-1] > x[0]:
             ax.set_xlim(x[0], x[-1])
-        tol_line = None
-        if tol is not None:
-            tol_line = ax.axhline(float(tol), color=EXACT_COLOR, linestyle=(0, (1, 2)), linewidth=1.8 * lw,
-                                  label=f"tolerance {float(tol):.2g}")
-        b_lines, shades, b_used = [], [], []
+        tol_lines = []
+        for k, t in enumerate(tols):
+            tol_lines.append(ax.axhline(t, color=EXACT_COLOR, linestyle=TOLERANCE_DASHES[k % len(TOLERANCE_DASHES)],
+                                        linewidth=1.6 * lw, label=f"tolerance {fmt_tolerance(t, relative, unit)}"))
+        ylim = _ylim(ax, tols)
+        shades = []
+        for t in tols:
+            label = "error above a tolerance" if not shades else None
+            shades.append(ax.axhspan(t, ylim[1] * 1e3, facecolor=SHADE_COLOR, alpha=0.07, linewidth=0, zorder=0,
+                                     label=label))
+        ax.set_ylim(*ylim)
+        b_lines, b_used, extra_handles = [], [], []
         for b in boundaries:
-            if b.target != result.targets[ti] or b.order not in result.orders:
+            if b.target != result.targets[ti] or b.order not in result.orders or x.size == 0:
                 continue
             oi = list(result.orders).index(b.order)
-            if oi not in o_idx or b.status not in ("found", "fails_at_zero") or x.size == 0:
+            if oi not in o_idx:
                 continue
-            edge = float(x[-1]) if b.direction > 0 else float(x[0])
-            start = 0.0 if b.status == "fails_at_zero" else float(b.coupling)
-            col = order_style(oi)["color"]
-            b_lines.append(ax.axvline(start, color=col, linestyle="-", linewidth=1.4 * lw, alpha=0.9))
-            lo, hi = sorted((start, edge))
-            shades.append(ax.axvspan(lo, hi, color=col, alpha=0.10, linewidth=0))
-            b_used.append(b)
+            bt = b.rtol if relative else b.tol
+            k = _tol_index(tols, bt)
+            col = order_style(b.order)["color"]
+            several = len(tols) > 1
+            at = f" at {fmt_tolerance(bt, relative, unit)}" if several and bt is not None else ""
+            if b.status in ("found", "fails_at_zero"):
+                start = 0.0 if b.status == "fails_at_zero" else float(b.coupling)
+                top = bt if bt is not None and k is not None else ylim[1]
+                text = (f"{order_name(b.order)}: λ* = {fmt_physical(abs(start), phys)}{at}" if b.status == "found"
+                        else f"{order_name(b.order)}: fails at any λ ≠ 0{at}")
+                (bl,) = ax.plot([start, start], [ylim[0], top], color=col,
+                                linestyle=TOLERANCE_DASHES[(k or 0) % len(TOLERANCE_DASHES)] if several else "-",
+                                linewidth=1.6 * lw, marker="o", markevery=[1], markerfacecolor=col,
+                                markeredgecolor="white", zorder=4, label=text)
+                b_lines.append(bl)
+                b_used.append(b)
+                if x.size > 1 and not (x[0] <= start <= x[-1]):  # beyond the view: an arrowhead at the edge
+                    right = start > x[-1]
+                    ax.plot([x[-1] if right else x[0]], [top], linestyle="none", marker=">" if right else "<", color=col,
+                            markersize=10 * lw, clip_on=False, zorder=4)
+            elif b.status == "not_reached":
+                (h,) = ax.plot([], [], color=col, marker=">", linestyle="none",
+                               label=f"{order_name(b.order)}: valid beyond λ = {fmt_physical(abs(b.max_coupling), phys)}{at}"
+                               if math.isfinite(b.max_coupling) else f"{order_name(b.order)}: never exceeds it{at}")
+                extra_handles.append(h)
         line = markers = None
         if coupling is not None:
             line = ax.axvline(float(coupling), color=MARKER_COLOR, linewidth=1.6 * lw, zorder=4)
@@ -161,29 +238,56 @@ def plot_errors(
                 color=EXACT_COLOR, markerfacecolor="white", zorder=5,
             )
         ax.set_xlabel("coupling λ")
-        ax.set_ylabel(ylabel)
+        ax.set_ylabel(error_label(result, ti, error))
         style_axes(ax, scale)
-        legend = ax.legend(loc="best", fontsize=FONT_SIZES["legend"] * scale)
+        add_physical_axis(ax, phys, scale)
+        legend = add_legend(ax, scale, size=FONT_SIZES["legend"] * (0.9 if len(b_used) + len(extra_handles) > 2 else 1.0))
         if caption is None:
-            extra = [f"treatment {result.treatments[ti]}"]
-            for b in b_used:
-                extra.append(f"{order_name(b.order)} valid to |λ| = {abs(b.coupling):.3g}" if b.status == "found"
-                             else f"{order_name(b.order)} fails at any λ ≠ 0")
-            for b in boundaries:
-                if b.status == "not_reached" and b.target == result.targets[ti]:
-                    extra.append(f"{order_name(b.order)} valid beyond |λ| = {_fmt_big(b.max_coupling)}")
+            treat = result.treatments[ti]
             caption = caption_text(
-                f"{error} error vs coupling", model=result.model_name, n=result.n, levels=[result.targets[ti]],
-                orders=[result.order_names[i] for i in o_idx],
-                tol=tol if error != "relative" else None, rtol=tol if error == "relative" else None,
-                couplings=lam, extra=extra,
+                f"{error} error", model=result.model_name, n=result.n, levels=[result.targets[ti]],
+                extra=[f"treatment {treat}" if treat != "nondegenerate" else ""],
             )
         cap = add_caption(ax, caption, scale)
     return ErrorArtists(
         figure=fig, ax=ax, target=result.targets[ti], orders=tuple(result.order_names[i] for i in o_idx),
-        lines=tuple(lines), tolerance_line=tol_line, boundary_lines=tuple(b_lines), shades=tuple(shades),
-        boundaries=tuple(b_used), coupling_line=line, coupling_markers=markers, caption=cap, legend=legend,
+        lines=tuple(lines), tolerance_line=tol_lines[0] if tol_lines else None, boundary_lines=tuple(b_lines),
+        shades=tuple(shades), boundaries=tuple(b_used), coupling_line=line, coupling_markers=markers, caption=cap,
+        legend=legend, tolerances=tuple(tols), tolerance_lines=tuple(tol_lines),
     )
+
+
+def _tolerances(tol: Any, boundaries: tuple, error: str) -> list[float]:
+    if tol is None:
+        if error == "infidelity":
+            return []
+        vals = [b.rtol if error == "relative" else b.tol for b in boundaries]
+        return sorted({float(v) for v in vals if v is not None})
+    vals = [tol] if np.ndim(tol) == 0 else list(tol)
+    out = []
+    for v in vals:
+        f = float(v)
+        if not (math.isfinite(f) and f > 0):
+            raise ValueError(f"tol must be a positive number or a sequence of them; got {tol!r}")
+        out.append(f)
+    return sorted(set(out))
+
+
+def _tol_index(tols: list[float], t: float | None) -> int | None:
+    if t is None:
+        return None
+    for k, v in enumerate(tols):
+        if math.isclose(v, t, rel_tol=1e-9):
+            return k
+    return None
+
+
+def _ylim(ax: Any, tols: list[float]) -> tuple[float, float]:
+    """Log y limits holding the data and every tolerance line."""
+    lo, hi = ax.get_ylim()
+    if tols:
+        lo, hi = min(lo, min(tols) / 3.0), max(hi, max(tols) * 3.0)
+    return lo, hi
 
 
 def _fmt_big(x: float) -> str:

@@ -137,10 +137,10 @@ def save(
     path, fmt, (w, h), dpi, min_fontsize = _check_save_args(path, format, size, dpi, min_fontsize)
     old_size = tuple(fig.get_size_inches())
     scale = w / old_size[0]
-    fig.draw_without_rendering()  # make tick labels exist at their current size
+    # no pre-draw: the ticks made here carry the axis' label size, and the one draw is savefig's own
     ticks: list[tuple[Any, str, float]] = []
     tick_texts: set[int] = set()
-    for ax in fig.axes:
+    for ax in list(fig.axes) + [c for a in fig.axes for c in getattr(a, "child_axes", ())]:
         for name, axis in (("x", ax.xaxis), ("y", ax.yaxis)):
             major = axis.get_major_ticks()
             if major:

@@ -7,10 +7,20 @@ from typing import Any
 
 import numpy as np
 
-from ._common import add_caption, caption_text, finite_or_none, nearest_index, new_axes, style_axes
-from ._style import EXACT_COLOR, FONT_SIZES, MARKER_COLOR, OKABE_ITO, order_style, style
+from ._common import (
+    add_caption,
+    add_legend,
+    add_physical_axis,
+    caption_text,
+    finite_or_none,
+    nearest_index,
+    new_axes,
+    physical_coupling,
+    style_axes,
+)
+from ._style import CROSSING_COLOR, EXACT_COLOR, FONT_SIZES, MARKER_COLOR, finite_style, order_style, style
 
-__all__ = ["LevelArtists", "plot_levels", "crossing_info"]
+__all__ = ["LevelArtists", "plot_levels", "crossing_info", "spread", "target_unit"]
 
 
 @dataclass(frozen=True)
@@ -36,7 +46,11 @@ class LevelArtists:
     crossings : tuple of Artist
         Lines and labels marking avoided crossings.
     caption : Text
+        One line above the axes.
     legend : Legend
+        Orders and "exact" (framed, inside the axes).
+    labels : tuple of Annotation
+        Direct label of each exact curve (the target's name) at its right end.
     """
 
     figure: Any
@@ -50,6 +64,7 @@ class LevelArtists:
     crossings: tuple
     caption: Any
     legend: Any
+    labels: tuple = ()
 
 
 def crossing_info(crossing: Any) -> tuple[float | None, str]:
@@ -79,8 +94,14 @@ def plot_levels(
     caption: str | None = None,
     shift: bool = False,
     ylabel: str | None = None,
+    coupling_scale: float | None = None,
+    coupling_unit: str | None = None,
 ) -> LevelArtists:
     """Exact and perturbative values of levels or quantities against λ.
+
+    Each order has its own colour and dash pattern in every figure
+    (:func:`ptcheck.plots.order_style`); exact values are black, and each exact
+    curve is named by a direct label at its right end.
 
     Parameters
     ----------
@@ -97,12 +118,15 @@ def plot_levels(
     ax : matplotlib Axes, optional
         Draw here; a new 16:9 figure is made only when None.
     caption : str, optional
-        Caption text; default: model, N, levels, orders, coupling range.
-        ``""`` for none.
+        Caption text (one line); default: targets, model, N.  ``""`` for none.
     shift : bool, default False
         Draw ``value − value at λ = 0`` (``result.unperturbed``): the level
         shifts, comparable across levels far apart in energy.
     ylabel : str, optional
+    coupling_scale, coupling_unit : float, str, optional
+        Physical coupling at λ = 1 and its unit (default: the result's
+        ``coupling_scale``/``coupling_unit`` if it has them): adds a secondary
+        coupling axis on top.
 
     Returns
     -------
@@ -125,20 +149,21 @@ def plot_levels(
     srt = np.argsort(lam, kind="stable")
     x = lam[srt]
     offset = np.asarray(result.unperturbed, dtype=float) if shift else np.zeros(len(result.targets))
+    unit = target_unit(result, t_idx)
     if ylabel is None:
-        ylabel = "shift from λ = 0 (units of H0)" if shift else "energy (units of H0)"
+        ylabel = f"shift from λ = 0 ({unit})" if shift else f"value ({unit})" if _all_quantities(result, t_idx) else f"energy ({unit})"
+    lw = max(scale, 0.75)
     with style(scale):
         exact_lines, pert_lines = [], []
         for k, ti in enumerate(t_idx):
             row = []
-            for j, oi in enumerate(o_idx):
-                (ln,) = ax.plot(
-                    x, np.asarray(result.perturbative[ti, oi])[srt] - offset[ti], label=result.order_names[oi] if k == 0 else None,
-                    **order_style(oi),
-                )
+            for oi in o_idx:
+                y = np.asarray(result.perturbative[ti, oi])[srt] - offset[ti]
+                (ln,) = ax.plot(x, y, label=result.order_names[oi] if k == 0 else None,
+                                **finite_style(order_style(result.orders[oi]), y))
                 row.append(ln)
             pert_lines.append(tuple(row))
-            (ex,) = ax.plot(x, np.asarray(result.exact[ti])[srt] - offset[ti], color=EXACT_COLOR, linewidth=2.6 * max(scale, 0.75),
+            (ex,) = ax.plot(x, np.asarray(result.exact[ti])[srt] - offset[ti], color=EXACT_COLOR, linewidth=2.6 * lw,
                             label="exact" if k == 0 else None, zorder=3)
             exact_lines.append(ex)
         # keep the view on the exact values: diverging orders must not squash them
@@ -152,7 +177,7 @@ def plot_levels(
             ax.set_xlim(x[0], x[-1])
         line = markers = None
         if coupling is not None:
-            line = ax.axvline(float(coupling), color=MARKER_COLOR, linewidth=1.6 * max(scale, 0.75), zorder=4)
+            line = ax.axvline(float(coupling), color=MARKER_COLOR, linewidth=1.6 * lw, zorder=4)
             i = nearest_index(lam, float(coupling))
             markers, = ax.plot(
                 np.full(len(t_idx), lam[i]), ex_vals[:, i], linestyle="none", marker="o", color=EXACT_COLOR,
@@ -163,27 +188,96 @@ def plot_levels(
             lc, text = crossing_info(ac)
             if lc is None or x.size == 0 or not (x[0] <= lc <= x[-1]):
                 continue
-            crossings.append(ax.axvline(lc, color=OKABE_ITO["orange"], linestyle=(0, (2, 2)), linewidth=1.4 * max(scale, 0.75)))
+            crossings.append(ax.axvline(lc, color=CROSSING_COLOR, linestyle=(0, (2, 2)), linewidth=1.4 * lw))
             crossings.append(ax.annotate(
                 text, xy=(lc, 0.02), xycoords=("data", "axes fraction"), rotation=90, ha="right", va="bottom",
                 fontsize=FONT_SIZES["caption"] * scale, color="#555555",
             ))
+        labels = _end_labels(ax, [result.targets[i] for i in t_idx], ex_vals[:, srt], scale)
         ax.set_xlabel("coupling λ")
         ax.set_ylabel(ylabel)
         style_axes(ax, scale)
-        legend = ax.legend(loc="best", fontsize=FONT_SIZES["legend"] * scale)
+        add_physical_axis(ax, physical_coupling(result, coupling_scale, coupling_unit), scale)
+        legend = add_legend(ax, scale)
         if caption is None:
             caption = caption_text(
-                "levels vs coupling", model=result.model_name, n=result.n,
-                levels=[result.targets[i] for i in t_idx], orders=[result.order_names[i] for i in o_idx],
-                couplings=lam, extra=[_treatment_note(result, t_idx)],
+                "levels" if not _all_quantities(result, t_idx) else "values", model=result.model_name, n=result.n,
+                levels=[result.targets[i] for i in t_idx], extra=[_treatment_note(result, t_idx)],
             )
         cap = add_caption(ax, caption, scale)
     return LevelArtists(
         figure=fig, ax=ax, targets=tuple(result.targets[i] for i in t_idx), orders=tuple(result.order_names[i] for i in o_idx),
         exact=tuple(exact_lines), perturbative=tuple(pert_lines), coupling_line=line, coupling_markers=markers,
-        crossings=tuple(crossings), caption=cap, legend=legend,
+        crossings=tuple(crossings), caption=cap, legend=legend, labels=tuple(labels),
     )
+
+
+def _end_labels(ax: Any, names: list[str], values: np.ndarray, scale: float) -> list[Any]:
+    """Direct label of each exact curve just right of the axes, at the height of its last finite value.
+
+    Labels closer than one text line are spread apart (in axes fraction, from
+    the y limits already set), so every curve keeps a readable name.
+    """
+    lo, hi = ax.get_ylim()
+    size = FONT_SIZES["legend"] * scale
+    height_pt = max(ax.get_position().height * ax.figure.get_figheight() * 72.0, 1.0)
+    gap = 1.15 * size / height_pt
+    ends = []
+    for row in values:
+        ok = np.flatnonzero(np.isfinite(row))
+        y = float(row[ok[-1]]) if ok.size else 0.5 * (lo + hi)
+        ends.append(min(max((y - lo) / (hi - lo) if hi > lo else 0.5, 0.0), 1.0))
+    ys = spread(ends, gap)
+    return [
+        ax.annotate(name, xy=(1.0, y), xycoords="axes fraction", xytext=(4.0 * scale / 0.72, 0.0), textcoords="offset points",
+                    ha="left", va="center", fontsize=size, color=EXACT_COLOR, annotation_clip=False, clip_on=False)
+        for name, y in zip(names, ys)
+    ]
+
+
+def spread(ys: list[float], gap: float) -> list[float]:
+    """Positions as close as possible to ``ys`` (any order) with neighbours at least ``gap`` apart.
+
+    Examples
+    --------
+    >>> [round(y, 2) for y in spread([0.5, 0.5], 0.1)]
+    [0.45, 0.55]
+    """
+    if not ys:
+        return []
+    order = sorted(range(len(ys)), key=lambda i: ys[i])
+    pos = [float(ys[i]) for i in order]
+    for _ in range(50):  # relax overlapping clusters around their mean
+        moved = False
+        i = 0
+        while i < len(pos):
+            j = i
+            while j + 1 < len(pos) and pos[j + 1] - pos[j] < gap - 1e-12:
+                j += 1
+            if j > i:
+                centre = sum(pos[i:j + 1]) / (j - i + 1)
+                first = centre - gap * (j - i) / 2
+                new = [first + gap * k for k in range(j - i + 1)]
+                if any(abs(a - b) > 1e-12 for a, b in zip(new, pos[i:j + 1])):
+                    pos[i:j + 1] = new
+                    moved = True
+            i = j + 1
+        if not moved:
+            break
+    out = [0.0] * len(ys)
+    for k, i in enumerate(order):
+        out[i] = pos[k]
+    return out
+
+
+def target_unit(result: Any, t_idx: list[int]) -> str:
+    """Unit of the targets drawn: the quantities' common ``units``, else "units of H0"."""
+    units = {getattr(result.levels[i], "units", None) or "" for i in t_idx}
+    return units.pop() if len(units) == 1 and "" not in units else "units of H0"
+
+
+def _all_quantities(result: Any, t_idx: list[int]) -> bool:
+    return all(not isinstance(result.levels[i], (int, np.integer)) for i in t_idx)
 
 
 def check_comparison(result: Any, who: str) -> None:
@@ -195,7 +289,7 @@ def check_comparison(result: Any, who: str) -> None:
 
 def _treatment_note(result: Any, t_idx: list[int]) -> str:
     kinds = sorted({result.treatments[i] for i in t_idx})
-    return "treatment " + "/".join(kinds) if kinds else ""
+    return "treatment " + "/".join(kinds) if kinds and kinds != ["nondegenerate"] else ""
 
 
 def _target_indices(result: Any, targets: Any) -> list[int]:

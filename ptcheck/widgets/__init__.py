@@ -1,16 +1,26 @@
-"""Interactive panels (ipywidgets) over ptcheck's engine and figures.
+"""Interactive panels (ipywidgets) over ptcheck's engine and figures, headed by the verdict.
 
 A thin skin: standard controls -> the same engine functions the command line
-uses -> the figures of :mod:`ptcheck.plots`, updated in place.  Heavy work
-(``compare`` sweep, validity boundaries, divergence map) runs only when what it
-depends on changes; moving the coupling only moves markers and rewrites the
-readout.  Errors appear in the panel as a message (``raise_errors=True``
-re-raises them, for tests).
+uses -> the figures of :mod:`ptcheck.plots`, updated in place.  Every panel
+opens with a verdict banner: for the chosen target, each order and each
+tolerance, whether the order is valid at the current coupling and up to which
+λ* (and physical coupling, when the model has ``coupling_scale`` and
+``coupling_unit``).  Controls are grouped by the question they answer: what
+(targets, orders, tolerances), where (the coupling and its range), how
+(treatment, exact solver); the model and export boxes are folded away.
+
+Heavy work (``compare`` sweep, validity boundaries, divergence map) runs only
+when what it depends on changes; moving the coupling moves markers and
+rewrites the verdict and the readout (values at the exact λ, interpolated as
+the figure draws its lines).  Only a complete answer replaces the one shown:
+after a failed request the previous answer stays usable and is marked as such,
+and the error stays on screen until it is fixed.  ``raise_errors=True``
+re-raises errors (for tests).
 
 - :class:`LevelsPanel`: levels (or derived quantities) vs coupling λ.
-- :class:`ErrorsPanel`: error per order vs λ, tolerance, validity boundaries.
+- :class:`ErrorsPanel`: error per order vs λ, tolerances, validity boundaries.
 - :class:`DivergencePanel`: exceptional points, radius of convergence, Kato bound.
-- :class:`PairsPanel`: mixing ratios of near-degenerate pairs, blocks chosen.
+- :class:`PairsPanel`: near-degenerate pairs at the current λ, blocks chosen.
 - :class:`Dashboard`: all four as tabs sharing one set of controls.
 
 Use ``%matplotlib widget`` (ipympl) for the fast in-place canvas; otherwise
@@ -26,7 +36,8 @@ from __future__ import annotations
 
 from typing import Any
 
-from ._panel import Controls, Panel, parse_params
+from ._builders import parse_params
+from ._panel import Controls, Panel
 
 __all__ = ["Controls", "Dashboard", "DivergencePanel", "ErrorsPanel", "LevelsPanel", "PairsPanel", "Panel", "parse_params"]
 
@@ -70,10 +81,7 @@ class Dashboard(Panel):
         self.tabs = w.Tab(children=[v.widget for v in views], titles=[v.title for v in views])
         self.tabs.add_class("ptcheck-tabs")
         self.tabs.observe(self._on_tab, names="selected_index")
-        # let the tab titles (plain physics names) show in full instead of a fixed 144 px
-        css = w.HTML("<style>.ptcheck-tabs > .lm-TabBar .lm-TabBar-tab, .ptcheck-tabs > .p-TabBar .p-TabBar-tab "
-                     "{flex: 0 0 auto !important; min-width: 9em; max-width: none !important;}</style>")
-        return w.VBox([css, self.tabs])
+        return self.tabs
 
     @property
     def visible_views(self) -> list:
@@ -89,17 +97,22 @@ class Dashboard(Panel):
         self.tabs.selected_index = names.index(name)
 
     def _on_tab(self, change: dict) -> None:
-        if self.model is None or self.settings is None:
+        self._slots["tab"] = ""
+        if self.state is None:
             return
-        with self._guard():
+        with self._guard("tab"):
             (v,) = self.visible_views
-            missing = (v.needs | {"comparison"}) - self._computed
-            if missing:
-                self._ensure([v])
-            if missing or v.artists is None:
-                self._render([v])
-            elif v.stale:
-                if v.name == "pairs":
-                    v.move(self, self.coupling)
+            try:
+                self._complete([v])
+            except Exception:
+                v.unavailable(f"No {v.title} for these settings: see the message above.")
                 v.redraw()
-            self._update_readout()
+                raise
+            if v.artists is None or v.state is not self.state:
+                v.build(self, self.state)
+                v.move(self, self.coupling)
+                v.redraw()
+            elif v.stale:
+                v.move(self, self.coupling)
+                v.redraw()
+        self._update_text()

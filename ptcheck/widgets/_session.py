@@ -3,32 +3,40 @@
 A :class:`Settings` names everything the heavy computations depend on; the
 :class:`Session` keeps the last results per key and counts each engine call it
 actually makes (``heavy_computations``), so that moving the coupling can be
-shown to cost no engine work.
+shown to cost no engine work.  A :class:`State` is one consistent answer (the
+model, the settings asked and the results computed from exactly those): what
+a figure draws and what an export writes.
 """
 
 from __future__ import annotations
 
 import warnings
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
 
+from ..approximants import Pade, order_name
 from ..compare import compare, validity_boundary
 from ..convergence import divergence_map
 from ..quantities import Quantity
 
-__all__ = ["Settings", "Session"]
+__all__ = ["Settings", "Session", "State"]
 
 
 @dataclass(frozen=True)
 class Settings:
-    """What the heavy computations depend on (all hashable)."""
+    """What the heavy computations depend on (all hashable).
+
+    ``tols`` are fractions when ``relative`` (0.01 = 1 %), energy units otherwise,
+    ascending; ``focus`` is the target whose validity boundaries (verdict, errors
+    figure) are computed.
+    """
 
     targets: tuple  # level work indices (int) and Quantity objects
     orders: tuple  # order specs
-    tol: float
+    tols: tuple
     relative: bool
     treatment: str
     backend: str
@@ -37,13 +45,67 @@ class Settings:
     n_points: int
     series_order: int
     threshold: float
+    focus: Any
 
     @property
     def couplings(self) -> np.ndarray:
         return np.linspace(self.coupling_min, self.coupling_max, self.n_points)
 
-    def tolerance_kwargs(self) -> dict:
-        return {"rtol": self.tol} if self.relative else {"tol": self.tol}
+    @property
+    def reach(self) -> float:
+        """Largest |λ| of the range: the coupling of interest of every engine call."""
+        return max(abs(self.coupling_min), abs(self.coupling_max))
+
+    @property
+    def directions(self) -> tuple[int, ...]:
+        d = []
+        if self.coupling_max > 0:
+            d.append(1)
+        if self.coupling_min < 0:
+            d.append(-1)
+        return tuple(d)
+
+
+@dataclass(frozen=True)
+class State:
+    """One consistent answer: model, settings and the results computed from them.
+
+    Attributes
+    ----------
+    model : Model
+    model_text : str
+        How the model was asked for (builder and parameters, or its name).
+    model_params : dict or None
+        The builder's parameters (None for a model given directly).
+    settings : Settings
+    result : ComparisonResult
+        Its ``orders`` may leave out orders that do not apply (see ``dropped``).
+    boundaries : tuple of ValidityBoundary
+        For ``settings.focus``: every order of ``result`` × tolerance × direction.
+    divergence : DivergenceMap or None
+        Computed when a view needs it.
+    dropped : str
+        Why orders were left out ("" when none were).
+    unavailable : tuple of (order spec, str)
+        Orders of ``result`` with no verdict for ``settings.focus`` (a Padé
+        approximant of a level without a scalar series), and why.
+    notes : tuple of str
+        Engine warnings and result notes, in plain words.
+    """
+
+    model: Any
+    model_text: str
+    model_params: Any
+    settings: Settings
+    result: Any
+    boundaries: tuple
+    divergence: Any = None
+    dropped: str = ""
+    unavailable: tuple = ()
+    notes: tuple = field(default=())
+
+    def with_divergence(self, d: Any, notes: tuple = ()) -> State:
+        return replace(self, divergence=d, notes=tuple(dict.fromkeys(self.notes + tuple(notes))))
 
 
 def _key(t: Any) -> Any:
@@ -78,41 +140,68 @@ class Session:
                 self.notes.append(msg)
         return out
 
-    def comparison(self, s: Settings) -> Any:
+    def comparison(self, s: Settings) -> tuple[Any, str]:
+        """The sweep, and why orders were left out ("" if none).
+
+        A Padé approximant needs a scalar energy series; when the engine
+        refuses it (e.g. for a block-treated level) the other orders are
+        compared and the reason is returned instead of failing everything.
+        """
         key = (tuple(map(_key, s.targets)), s.orders, s.treatment, s.backend, s.coupling_min, s.coupling_max,
                s.n_points, s.threshold)
         if key not in self._comparisons:
-            self._comparisons = {key: self._call(
-                compare, self.model, list(s.targets), list(s.orders), s.couplings, treatment=s.treatment,
-                backend=s.backend, threshold=s.threshold,
-            )}
+            run = lambda orders: self._call(  # noqa: E731 - one call site, two order lists
+                compare, self.model, list(s.targets), list(orders), s.couplings, treatment=s.treatment,
+                backend=s.backend, threshold=s.threshold, coupling=s.reach,
+            )
+            dropped = ""
+            try:
+                result = run(s.orders)
+            except ValueError as exc:
+                pade = [o for o in s.orders if isinstance(o, Pade)]
+                rest = [o for o in s.orders if not isinstance(o, Pade)]
+                if not pade or not rest:
+                    raise
+                result = run(rest)
+                names = ", ".join(order_name(o) for o in pade)
+                dropped = f"{names} left out: {exc}"
+            self._comparisons = {key: (result, dropped)}
         return self._comparisons[key]
 
-    def boundary_jobs(self, s: Settings, target: Any) -> list[tuple]:
-        """(order, direction) pairs whose validity boundary is not cached yet."""
-        jobs = []
-        for o in s.orders:
-            for d in self._directions(s):
-                if self._bkey(s, target, o, d) not in self._boundaries:
-                    jobs.append((o, d))
-        return jobs
+    def boundary_jobs(self, s: Settings, orders: tuple) -> int:
+        """How many validity boundaries are not cached yet."""
+        return sum(self._bkey(s, o, t, d) not in self._boundaries for o in orders for t in s.tols for d in s.directions)
 
-    def boundaries(self, s: Settings, target: Any, progress: Callable[[], None] | None = None) -> tuple:
-        out = []
-        for o in s.orders:
-            for d in self._directions(s):
-                k = self._bkey(s, target, o, d)
-                if k not in self._boundaries:
-                    reach = max(abs(s.coupling_min), abs(s.coupling_max))
-                    self._boundaries[k] = self._call(
-                        validity_boundary, self.model, target, o, direction=d, treatment=s.treatment,
-                        backend=s.backend, max_coupling=reach, threshold=s.threshold, coupling=reach,
-                        **s.tolerance_kwargs(),
-                    )
-                    if progress is not None:
-                        progress()
-                out.append(self._boundaries[k])
-        return tuple(out)
+    def boundaries(self, s: Settings, orders: tuple, progress: Callable[[], None] | None = None) -> tuple[tuple, dict]:
+        """Validity boundaries of ``s.focus``: each order × tolerance × direction (cached).
+
+        Returns the boundaries and ``{order spec: reason}`` for the Padé orders
+        the engine refuses for this target (no scalar series to approximate).
+        """
+        out, unavailable = [], {}
+        for o in orders:
+            for t in s.tols:
+                for d in s.directions:
+                    k = self._bkey(s, o, t, d)
+                    if k not in self._boundaries:
+                        try:
+                            self._boundaries[k] = self._call(
+                                validity_boundary, self.model, s.focus, o, direction=d, treatment=s.treatment,
+                                backend=s.backend, max_coupling=s.reach, threshold=s.threshold, coupling=s.reach,
+                                **({"rtol": t} if s.relative else {"tol": t}),
+                            )
+                        except ValueError as exc:
+                            if not isinstance(o, Pade):
+                                raise
+                            self._boundaries[k] = exc
+                        if progress is not None:
+                            progress()
+                    b = self._boundaries[k]
+                    if isinstance(b, Exception):
+                        unavailable[o] = str(b)
+                    else:
+                        out.append(b)
+        return tuple(out), unavailable
 
     def divergence(self, s: Settings) -> Any:
         levels = tuple(t for t in s.targets if not isinstance(t, Quantity))
@@ -125,15 +214,5 @@ class Session:
         return self._divergence[key]
 
     @staticmethod
-    def _directions(s: Settings) -> tuple[int, ...]:
-        d = []
-        if s.coupling_max > 0:
-            d.append(1)
-        if s.coupling_min < 0:
-            d.append(-1)
-        return tuple(d)
-
-    @staticmethod
-    def _bkey(s: Settings, target: Any, order: Any, direction: int) -> tuple:
-        return (_key(target), order, direction, s.tol, s.relative, s.treatment, s.backend,
-                max(abs(s.coupling_min), abs(s.coupling_max)), s.threshold)
+    def _bkey(s: Settings, order: Any, tol: float, direction: int) -> tuple:
+        return (_key(s.focus), order, direction, tol, s.relative, s.treatment, s.backend, s.reach, s.threshold)

@@ -10,12 +10,16 @@ from typing import Any
 import numpy as np
 from matplotlib.figure import Figure
 
-from ..plots import mixing_map, plot_divergence, plot_errors, plot_levels, plot_pairs
-from ..plots._common import nearest_index, positive_or_nan
-from ..plots._style import SCREEN_SIZE, style
+from ..plots import mixing_map, plot_divergence, plot_errors, plot_levels, plot_pairs, update_pairs
+from ..plots._common import positive_or_nan
+from ..plots._style import SLIDE_SIZE, style
 from ..quantities import Quantity
+from ._readout import interp_linear, interp_log
 
-__all__ = ["LevelsView", "ErrorsView", "DivergenceView", "PairsView", "VIEWS", "use_ipympl"]
+__all__ = ["LevelsView", "ErrorsView", "DivergenceView", "PairsView", "VIEWS", "use_ipympl", "PANEL_SIZE"]
+
+#: Figure size in a panel (inches at 100 dpi): 16:9 like the slides, as wide as the panel's figure column.
+PANEL_SIZE = (10.4, 10.4 * SLIDE_SIZE[1] / SLIDE_SIZE[0])
 
 
 def use_ipympl(canvas: str) -> bool:
@@ -37,11 +41,11 @@ class _View:
     title = "view"
     needs = frozenset()  # which heavy results the view draws: {"comparison", "boundaries", "divergence"}
 
-    def __init__(self, ipympl: bool, figsize: tuple[float, float] = SCREEN_SIZE) -> None:
+    def __init__(self, ipympl: bool, figsize: tuple[float, float] = PANEL_SIZE) -> None:
         import ipywidgets as w
 
         self.ipympl = ipympl
-        with style(figsize[0] / 13.333):
+        with style(figsize[0] / SLIDE_SIZE[0]):
             self.figure = Figure(figsize=figsize, layout="constrained")
         if ipympl:
             from ipympl.backend_nbagg import Canvas, FigureManager
@@ -64,6 +68,7 @@ class _View:
         self._canvas = self.figure.canvas
         self._setup_axes()
         self.artists: Any = None
+        self.state: Any = None  # the answer drawn
         self.stale = True  # artists changed but not shown yet
         self._background = None
         self._cid = None
@@ -95,10 +100,11 @@ class _View:
         canvas = self.figure.canvas
         if self._cid is None:
             self._cid = canvas.mpl_connect("draw_event", self._on_draw)
-        quick = not full and self._background is not None and all(a.get_animated() for a in self.moving())
+        moving = self.moving()
+        quick = not full and self._background is not None and bool(moving) and all(a.get_animated() for a in moving)
         if quick:
             canvas.restore_region(self._background)
-            for art in self.moving():
+            for art in moving:
                 self.figure.draw_artist(art)
         if self.ipympl:
             if quick:
@@ -119,37 +125,76 @@ class _View:
         self.ax.clear()
         self.artists = None
 
-    def build(self, panel: Any) -> None:
-        """New artists after heavy work, laid out once; later coupling moves keep this layout.
+    def unavailable(self, text: str) -> None:
+        """Replace the figure by a plain sentence (when what it needs cannot be computed)."""
+        self.clear()
+        self.state = None
+        self.ax.set_axis_off()
+        self.ax.text(0.5, 0.5, text, ha="center", va="center", transform=self.ax.transAxes, color="#8A5A00", wrap=True)
+        self.figure.set_layout_engine("none")
+        self._background = None
+
+    def build(self, panel: Any, state: Any) -> None:
+        """New artists for one answer (``state``), laid out once; later coupling moves keep this layout.
 
         The constrained layout is computed here and then frozen (layout engine
         "none"), so that a coupling move redraws without laying out again.
         """
         self.figure.set_layout_engine("constrained")
         self._background = None
-        self.render(panel)
+        self.state = state
+        self.render(panel, state)
         self.figure.draw_without_rendering()
         self.figure.set_layout_engine("none")
         self.set_moving_animated(True)
 
     # overridden
-    def render(self, panel: Any) -> None:  # heavy results -> new artists
+    def render(self, panel: Any, state: Any) -> None:  # one answer -> new artists
         raise NotImplementedError
 
     def move(self, panel: Any, coupling: float) -> None:  # coupling -> markers only
         raise NotImplementedError
 
-    def numbers(self, panel: Any) -> tuple[list[dict], dict]:  # rows for CSV, dict for JSON
+    def numbers(self, panel: Any) -> tuple[list[dict], dict]:  # rows for CSV, dict for JSON (of self.state)
         raise NotImplementedError
 
 
-def _move_markers(art: Any, lam_grid: np.ndarray, coupling: float, values_at: Any) -> None:
+def _drawable(orders: tuple, values: Any) -> list:
+    """Orders with at least one finite value in ``values`` (T, O, C): an order the engine left undefined
+    (e.g. a Padé approximant of a block-treated level) has nothing to draw."""
+    v = np.asarray(values, dtype=float)
+    return [o for oi, o in enumerate(orders) if np.any(np.isfinite(v[:, oi]))]
+
+
+def _move_markers(art: Any, lines: Any, coupling: float, *, log: bool) -> None:
+    """Vertical line at λ and one marker on each drawn line at λ.
+
+    The marker heights are read off the lines themselves, interpolated as the
+    axis draws them (straight segments; straight in log(value) on a log axis),
+    so markers and lines agree whatever the figure function chose to draw.
+    """
     if art is None or art.coupling_line is None:
         return
     art.coupling_line.set_xdata([coupling, coupling])
-    i = nearest_index(lam_grid, coupling)
-    y = values_at(i)
-    art.coupling_markers.set_data(np.full(len(y), lam_grid[i]), y)
+    if art.coupling_markers is None:
+        return
+    xs, ys = [], []
+    for ln in lines:
+        x = np.asarray(ln.get_xdata(), dtype=float)
+        y = np.asarray(ln.get_ydata(), dtype=float)
+        srt = np.argsort(x, kind="stable")
+        x, y = x[srt], y[srt]
+        lam = min(max(coupling, float(x[0])), float(x[-1]))
+        v = float(interp_log(x, y, lam) if log else interp_linear(x, y, lam))
+        xs.append(lam)
+        ys.append(positive_or_nan([v])[0] if log else v)
+    art.coupling_markers.set_data(xs, ys)
+
+
+def _physical(model: Any) -> dict:
+    """``coupling_scale``/``coupling_unit`` for the figures' physical coupling axis (none when the model has none)."""
+    scale = getattr(model, "coupling_scale", None)
+    return {} if scale is None else {"coupling_scale": scale, "coupling_unit": getattr(model, "coupling_unit", None)}
 
 
 class LevelsView(_View):
@@ -157,20 +202,22 @@ class LevelsView(_View):
     title = "levels vs coupling λ"
     needs = frozenset({"comparison"})
 
-    def render(self, panel: Any) -> None:
+    def render(self, panel: Any, state: Any) -> None:
         self.clear()
-        r = panel.result
+        r = state.result
         self._shift = bool(panel.controls.shift.value)
-        self.artists = plot_levels(r, coupling=panel.coupling, ax=self.ax, shift=self._shift, caption=panel.caption("levels vs coupling"))
-        self._offset = np.asarray(r.unperturbed) if self._shift else np.zeros(len(r.targets))
+        self.artists = plot_levels(r, orders=_drawable(r.orders, r.perturbative), coupling=panel.coupling, ax=self.ax,
+                                   shift=self._shift, caption=panel.caption("levels vs coupling", state),
+                                   **_physical(state.model))
 
     def move(self, panel: Any, coupling: float) -> None:
-        r = panel.result
-        _move_markers(self.artists, np.asarray(r.couplings), coupling,
-                      lambda i: np.asarray(r.exact)[:, i] - self._offset)
+        if self.state is None:
+            return
+        _move_markers(self.artists, self.artists.exact, coupling, log=False)
 
     def numbers(self, panel: Any) -> tuple[list[dict], dict]:
-        return panel.result.to_rows(), {"comparison": panel.result.to_dict(), "coupling": panel.coupling}
+        r = self.state.result
+        return r.to_rows(), {"comparison": r.to_dict(), "coupling": panel.coupling}
 
 
 class ErrorsView(_View):
@@ -178,23 +225,27 @@ class ErrorsView(_View):
     title = "errors & validity boundary"
     needs = frozenset({"comparison", "boundaries"})
 
-    def render(self, panel: Any) -> None:
+    def render(self, panel: Any, state: Any) -> None:
         self.clear()
-        r = panel.result
-        kind = "relative" if panel.settings.relative else "absolute"
-        self.artists = plot_errors(r, panel.boundaries, target=panel.error_target_name, error=kind, tol=panel.settings.tol,
-                                   coupling=panel.coupling, ax=self.ax,
-                                   caption=panel.caption(f"{kind} error vs coupling", boundaries=panel.boundaries))
-        ti = list(r.targets).index(self.artists.target)
-        o_idx = [list(r.order_names).index(o) for o in self.artists.orders]
-        self._data = np.asarray(r.rel_error if panel.settings.relative else r.abs_error)[ti][o_idx]
+        r, s = state.result, state.settings
+        kind = "relative" if s.relative else "absolute"
+        target = panel.error_target_name
+        ti = list(r.targets).index(target)
+        self.artists = plot_errors(r, state.boundaries, target=target, orders=_drawable(r.orders, r.abs_error[ti:ti + 1]),
+                                   error=kind, tol=list(s.tols), coupling=panel.coupling, ax=self.ax,
+                                   caption=panel.caption(f"{kind} error of {target} vs coupling", state),
+                                   **_physical(state.model))
 
     def move(self, panel: Any, coupling: float) -> None:
-        _move_markers(self.artists, np.asarray(panel.result.couplings), coupling, lambda i: positive_or_nan(self._data[:, i]))
+        if self.state is None:
+            return
+        _move_markers(self.artists, self.artists.lines, coupling, log=True)
 
     def numbers(self, panel: Any) -> tuple[list[dict], dict]:
-        rows = [row for row in panel.result.to_rows() if row["target"] == panel.error_target_name]
-        return rows, {"comparison": panel.result.to_dict(), "boundaries": [b.to_dict() for b in panel.boundaries],
+        st = self.state
+        target = self.artists.target
+        rows = [row for row in st.result.to_rows() if row["target"] == target]
+        return rows, {"comparison": st.result.to_dict(), "boundaries": [b.to_dict() for b in st.boundaries],
                       "coupling": panel.coupling}
 
 
@@ -203,16 +254,16 @@ class DivergenceView(_View):
     title = "exceptional points & radius of convergence"
     needs = frozenset({"divergence"})
 
-    def render(self, panel: Any) -> None:
+    def render(self, panel: Any, state: Any) -> None:
         self.clear()
-        self.artists = plot_divergence(panel.divergence, coupling=panel.coupling, model_name=panel.model.name, ax=self.ax)
+        self.artists = plot_divergence(state.divergence, coupling=panel.coupling, model_name=state.model.name, ax=self.ax)
 
     def move(self, panel: Any, coupling: float) -> None:
         if self.artists is not None and self.artists.coupling_marker is not None:
             self.artists.coupling_marker.set_data([coupling], [0.0])
 
     def numbers(self, panel: Any) -> tuple[list[dict], dict]:
-        d = panel.divergence
+        d = self.state.divergence
         rows = []
         for i, lab in enumerate(d.labels):
             eps = d.exceptional_points[i]
@@ -227,24 +278,42 @@ class PairsView(_View):
     needs = frozenset()
 
     def _setup_axes(self) -> None:
-        gs = self.figure.add_gridspec(1, 2, width_ratios=(20, 1))
+        gs = self.figure.add_gridspec(1, 2, width_ratios=(3, 2))
         self.ax = self.figure.add_subplot(gs[0, 0])
-        self.cax = self.figure.add_subplot(gs[0, 1])
+        self.table_ax = self.figure.add_subplot(gs[0, 1])
 
     def clear(self) -> None:
         self.ax.clear()
-        self.cax.clear()
+        self.table_ax.clear()
         self.artists = None
 
-    def render(self, panel: Any) -> None:
-        self.move(panel, panel.coupling)
+    def render(self, panel: Any, state: Any) -> None:
+        # mixing ratios are cheap (one row of V per level): recomputed at each coupling, not counted as heavy
+        s = state.settings
+        levels = [t for t in s.targets if not isinstance(t, Quantity)] or None
+        self.clear()
+        self.map = mixing_map(state.model, panel.coupling, levels=levels, threshold=s.threshold)
+        self.artists = plot_pairs(self.map, ax=self.ax, table_ax=self.table_ax)
 
     def move(self, panel: Any, coupling: float) -> None:
-        # mixing ratios are cheap (one row of V per level): recomputed at each coupling, not counted as heavy
-        levels = [t for t in panel.settings.targets if not isinstance(t, Quantity)] or None
-        self.map = mixing_map(panel.model, coupling, levels=levels, threshold=panel.settings.threshold)
-        self.clear()
-        self.artists = plot_pairs(self.map, ax=self.ax, cax=self.cax)
+        if self.artists is None or self.map.coupling == coupling:
+            return
+        limits = (self.ax.get_xlim(), self.ax.get_ylim())
+        self.map = update_pairs(self.artists, coupling)  # the same artists, new data
+        # new axis limits change the ticks under the diagram: the cached background no longer fits
+        self._limits_moved = (self.ax.get_xlim(), self.ax.get_ylim()) != limits
+
+    def moving(self) -> list:
+        """Everything the diagram changes with the coupling (drawn over a cached background)."""
+        a = self.artists
+        if a is None:
+            return []
+        arts = [*a.lines, *a.level_labels, *a.arcs, *a.block_outlines, *a.block_labels, *a.table]
+        return arts + ([a.caption] if a.caption is not None else [])
+
+    def redraw(self, *, full: bool = True) -> None:
+        super().redraw(full=full or getattr(self, "_limits_moved", False))
+        self._limits_moved = False
 
     def numbers(self, panel: Any) -> tuple[list[dict], dict]:
         return self.map.to_rows(), {"mixing_map": self.map.to_dict()}
