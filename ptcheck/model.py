@@ -26,17 +26,24 @@ from . import sectors as sec
 from ._labels import LevelNames, hashable
 from .sectors import Sector
 
-__all__ = ["Model", "MultiCouplingError", "DENSE_LIMIT", "MAX_COUPLINGS", "MAX_GROUP_ROTATION", "coupling_display",
-           "physical_coupling_text"]
+__all__ = ["Model", "MultiCouplingError", "DENSE_LIMIT", "MAX_COUPLINGS", "MAX_GROUP_ROTATION", "MAX_SPARSE_GROUP_ROTATION",
+           "coupling_display", "physical_coupling_text"]
 
 #: Largest basis for which ptcheck will build and diagonalise a dense matrix
 #: (a dense complex 6000 x 6000 matrix is 0.6 GB; eigh takes minutes on 2 cores).
 DENSE_LIMIT = 6000
 
 #: Largest exactly degenerate group (inside one sector) that is rotated to
-#: first-order good states; levels in larger groups that V mixes are reported
-#: as ambiguous.
+#: first-order good states when ``V`` is dense; levels in larger groups that V
+#: mixes are reported as ambiguous.
 MAX_GROUP_ROTATION = 256
+
+#: The same limit when ``V`` is sparse.  Rotating a group of g states makes
+#: each of its rows (and columns) a combination of g rows of V: up to g times
+#: more stored entries there (a 2^18-state Ising chain: 4.7 M -> 7.0 M), which
+#: every later product with V pays.  Larger groups stay on the user's states;
+#: the degenerate treatment finds their good states itself.
+MAX_SPARSE_GROUP_ROTATION = 32
 
 #: Default degeneracy tolerance relative to the span of the unperturbed spectrum.
 DEGENERACY_RTOL = 1e-9
@@ -964,6 +971,11 @@ def _sub_operator(v: Any, levels: np.ndarray) -> Any:
     return np.ascontiguousarray(v[np.ix_(levels, levels)])
 
 
+def _rotation_limit(v: Any) -> int:
+    """Largest degenerate group rotated to good states for this storage of V (the one place for it)."""
+    return MAX_SPARSE_GROUP_ROTATION if sp.issparse(v) else MAX_GROUP_ROTATION
+
+
 def _regood(v: Any, groups: tuple, ambiguous: np.ndarray) -> tuple[Any, np.ndarray | None, Any]:
     """Good states of a ray's perturbation inside each degenerate group.
 
@@ -978,9 +990,10 @@ def _regood(v: Any, groups: tuple, ambiguous: np.ndarray) -> tuple[Any, np.ndarr
     diag = np.real(np.asarray(v.diagonal() if sp.issparse(v) else np.diag(v)))
     scale = max(val.max_abs(v), 1e-300)
     rotate = []
+    limit = _rotation_limit(v)
     for g in groups:
         idx = np.asarray(g)
-        if idx.size > MAX_GROUP_ROTATION:
+        if idx.size > limit:
             continue
         if np.any(ambiguous[idx]):
             rotate.append(idx)
@@ -1167,10 +1180,11 @@ def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) ->
     ends = np.searchsorted(key[order], mixing, side="right")
     rotated, too_big = [], []
     rows, cols, data = [], [], []
+    limit = _rotation_limit(v)
     with sec.small_blas():
         for a, b in zip(starts, ends):
             idx = np.sort(order[a:b])
-            if idx.size > MAX_GROUP_ROTATION:
+            if idx.size > limit:
                 too_big.append(idx)
                 continue
             block = _submatrix(v, idx)
@@ -1217,12 +1231,14 @@ def _selector(cols: np.ndarray, n_rows: int, n_cols: int, data: np.ndarray | Non
 
 
 def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: np.ndarray, cid: np.ndarray, rtol: float, declared: bool) -> tuple:
-    """Work-basis V for a diagonal H0 and sparse V, with compiled sparse kernels only.
+    """Work-basis V for a diagonal H0 and sparse V, in a few passes over V's entries.
 
-    Every step is a sparse product, row selection or sum (no per-element
-    Python or NumPy gathers over V's non-zeros), so a 2^18-state chain is
-    cheap.  Returns ``(V_work, perm, good-state rotation in positions,
-    rotated groups, groups too large to rotate)``.
+    V is folded onto the work order (and onto the pair combinations of a
+    declared involution) by mapping column indices, the groups that V mixes
+    are found from the same entries, and only groups of at most
+    :data:`MAX_SPARSE_GROUP_ROTATION` states are rotated.  Returns
+    ``(V_work, perm, good-state rotation in positions, rotated groups, groups
+    left unrotated)``.
     """
     n = v.shape[0]
     v = sp.csr_matrix(v)
@@ -1230,64 +1246,37 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
     inv0 = np.empty(n, dtype=np.int64)
     inv0[perm0] = np.arange(n)
     sec_w = sector_of[perm0]
-    if cons.rep is None:
-        v0 = (v[perm0] @ _selector(inv0, n, n)).tocsr()  # V[perm0][:, perm0]
-        if declared:
-            v0 = _zero_between_sectors(v0, sec_w)
-    else:
-        # involution pairs: <a|V|b> = c_a <rep_a|V|b> for b in a's sector (P commutes with V); the
-        # columns of V fold onto the combination of each pair that lies in the row's half (+1 / -1 / none)
-        rot = sp.csr_matrix(cons.rotation)
-        rot.sort_indices()
-        half = np.sign(np.nan_to_num(cons.values[:, 0], nan=0.0)).astype(np.int64)  # per position
-        per_k = np.diff(rot.indptr)
-        parts, rows = [], []
-        for h in np.unique(half):
-            # column of user state k in half h: the position of its combination with that half
-            col = np.full(n, -1, dtype=np.int64)
-            coef = np.zeros(n, dtype=rot.dtype)
-            for j in range(2):
-                has = per_k > j
-                at = rot.indptr[:-1][has] + j
-                pos = rot.indices[at]
-                mine = half[pos] == h
-                k = np.flatnonzero(has)[mine]
-                col[k] = inv0[pos[mine]]
-                coef[k] = rot.data[at][mine]
-            w_rows = np.flatnonzero(half[perm0] == h)  # work rows of this half
-            src = cons.rep[perm0[w_rows]]
-            scale = cons.rep_scale[perm0[w_rows]]
-            part = v[src] @ _selector(col, n, n, coef)
-            if scale.size and np.all(scale == scale[0]):
-                part.data *= scale[0]  # e.g. every state paired: one factor √2
-            else:
-                part = sp.diags(scale, format="csr") @ part
-            parts.append(part)
-            rows.append(w_rows)
-        order = np.empty(n, dtype=np.int64)
-        order[np.concatenate(rows)] = np.arange(n)
-        v0 = sp.vstack(parts, format="csr")[order]
-    # (sparse products accumulate each row: no duplicate entries to sum here)
+    v0 = _fold(v, cons, perm0, inv0)
+    if declared and cons.rep is None:
+        v0 = _zero_between_sectors(v0, sec_w)
 
-    # good states: groups (sector, equal-energy run) that V mixes, found with an indicator product
-    key = cid[perm0] * (int(sec_w.max()) + 1 if n else 1) + sec_w  # ascends along perm0: groups are contiguous
-    _, key = np.unique(key, return_inverse=True)
-    n_groups = int(key.max()) + 1 if n else 0
+    # good states: groups (sector, equal-energy run) that V mixes; in this order the pair (energy
+    # cluster, sector) never decreases, so each group is a run of positions
+    cid_w = cid[perm0]
+    new_group = np.concatenate([[True], (cid_w[1:] != cid_w[:-1]) | (sec_w[1:] != sec_w[:-1])]) if n else np.zeros(0, bool)
+    key = (np.cumsum(new_group) - 1).astype(v0.indices.dtype)
+    n_groups = int(key[-1]) + 1 if n else 0
     counts = np.bincount(key, minlength=n_groups)
     rot3_pos, rotated, too_big = None, [], []
-    vscale = float(abs(v0).max()) if v0.nnz else 0.0
+    vscale = float(np.max(np.abs(v0.data))) if v0.nnz else 0.0
     if np.any(counts >= 2) and v0.nnz:
-        g = _selector(key, n, n_groups)
-        g_t = sp.csr_matrix((np.ones(n), np.arange(n), np.concatenate([[0], np.cumsum(counts)])), shape=(n_groups, n))
-        inside = (g_t @ (abs(v0) @ g)).diagonal() - np.bincount(key, weights=np.abs(v0.diagonal()), minlength=n_groups)
-        mixing = np.flatnonzero(inside > rtol * max(vscale, 1e-300))
+        rows = np.repeat(np.arange(n, dtype=v0.indices.dtype), np.diff(v0.indptr))
+        key_r = key[rows]
+        same = key_r == key[v0.indices]
+        same &= rows != v0.indices
+        same &= np.abs(v0.data) > rtol * max(vscale, 1e-300)
+        hit = np.zeros(n_groups, dtype=bool)
+        hit[key_r[same]] = True
+        mixing = np.flatnonzero(hit)
+        del rows, key_r, same
         if mixing.size:
-            starts = np.searchsorted(key, mixing)  # groups are contiguous in this order
+            starts = np.searchsorted(key, mixing)
             rows_, cols_, data_ = [], [], []
+            limit = _rotation_limit(v0)
             with sec.small_blas():
                 for grp, a in zip(mixing, starts):
                     idx = np.arange(a, a + counts[grp])
-                    if idx.size > MAX_GROUP_ROTATION:
+                    if idx.size > limit:
                         too_big.append(perm0[idx])
                         continue
                     block = v0[idx][:, idx].toarray()
@@ -1307,10 +1296,66 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
                 rotated = [perm0[idx] for idx in rotated]
     vdiag = np.real(v0.diagonal())
     shift = np.round(vdiag / (1e-9 * vscale)) if vscale > 0 else np.zeros(n)
-    perm1 = np.lexsort((np.arange(n), shift, sec_w, e0[perm0]))
-    if np.any(perm1 != np.arange(n)):
+    # inside each group: ascending first-order shift, ties in the present order (already the case unless
+    # some group has a descending step)
+    if np.any((np.diff(shift) < 0) & ~new_group[1:]):
+        perm1 = np.lexsort((np.arange(n), shift, key))
         v0 = _permute(v0, perm1)
-    return v0, perm0[perm1], rot3_pos, rotated, too_big
+        return v0, perm0[perm1], rot3_pos, rotated, too_big
+    return v0, perm0, rot3_pos, rotated, too_big
+
+
+def _fold(v: sp.csr_matrix, cons: sec.ConservedBasis, perm0: np.ndarray, inv0: np.ndarray) -> sp.csr_matrix:
+    """``V`` in the basis ordered by ``perm0`` (rows and columns), canonical CSR.
+
+    Without a pairing this is ``V[perm0][:, perm0]``.  With the involution
+    pairs of a declared operator (``cons.rep``) it is V between the pair
+    combinations: ``<a|V|b> = c_a <rep_a|V|b>`` for b in a's half (P commutes
+    with V), so row a is row ``rep_a`` of V with each user column k moved to
+    the combination of k's pair that lies in a's half (+1 / -1 / none),
+    times the combination's coefficient.  Only index arrays are mapped: one
+    row gather, one column gather, one sort.
+    """
+    n = v.shape[0]
+    if cons.rep is None:
+        part = v[perm0]
+        cols = inv0[part.indices]
+        data = part.data
+    else:
+        rot = sp.csr_matrix(cons.rotation)
+        rot.sort_indices()
+        half = np.sign(np.nan_to_num(cons.values[:, 0], nan=0.0)).astype(np.int64)  # per position
+        halves, hid = np.unique(half, return_inverse=True)
+        per_k = np.diff(rot.indptr)
+        col = np.full((halves.size, n), -1, dtype=np.int64)  # column of user state k in half h
+        coef = np.zeros((halves.size, n), dtype=rot.dtype)
+        for j in range(2):  # a user state is in at most two combinations (its pair's + and -)
+            has = per_k > j
+            at = rot.indptr[:-1][has] + j
+            pos = rot.indices[at]
+            k = np.flatnonzero(has)
+            col[hid[pos], k] = inv0[pos]
+            coef[hid[pos], k] = rot.data[at]
+        part = v[cons.rep[perm0]]
+        lengths = np.diff(part.indptr)
+        flat = np.repeat(hid[perm0] * n, lengths) + part.indices  # (half of the row, user column)
+        cols = col.ravel()[flat]
+        data = part.data * coef.ravel()[flat]
+        scale = cons.rep_scale[perm0]
+        if scale.size and np.all(scale == scale[0]):
+            data *= scale[0]  # e.g. every state paired: one factor √2
+        else:
+            data *= np.repeat(scale, lengths)
+        if np.any(cols < 0):  # a column with no combination in the row's half (zero when P commutes with V)
+            keep = cols >= 0
+            kept_rows = np.repeat(np.arange(n), lengths)[keep]
+            indptr = np.concatenate([[0], np.cumsum(np.bincount(kept_rows, minlength=n))])
+            out = sp.csr_matrix((data[keep], cols[keep], indptr), shape=(n, n))
+            out.sum_duplicates()
+            return out
+    out = sp.csr_matrix((data, cols.astype(part.indices.dtype, copy=False), part.indptr), shape=(n, n))
+    out.sum_duplicates()  # pairs fold two user columns onto one combination; sorts the indices
+    return out
 
 
 def _add_on_rows(a: sp.csr_matrix, delta: sp.csr_matrix) -> sp.csr_matrix:
@@ -1318,24 +1363,24 @@ def _add_on_rows(a: sp.csr_matrix, delta: sp.csr_matrix) -> sp.csr_matrix:
     rows = np.flatnonzero(np.diff(delta.indptr))
     if rows.size == 0:
         return a
+    n = a.shape[0]
     sub = (a[rows] + delta[rows]).tocsr()
-    lengths = np.diff(a.indptr).copy()
+    sub.sort_indices()
+    old = np.diff(a.indptr)
+    lengths = old.copy()
     lengths[rows] = np.diff(sub.indptr)
     indptr = np.concatenate([[0], np.cumsum(lengths)])
-    dtype = np.result_type(a.dtype, sub.dtype)
-    data = np.empty(int(indptr[-1]), dtype=dtype)
+    kept = np.ones(n, dtype=bool)
+    kept[rows] = False
+    src = np.repeat(kept, old)  # entries of a in untouched rows
+    dst = np.repeat(kept, lengths)  # their places in the sum
+    data = np.empty(int(indptr[-1]), dtype=np.result_type(a.dtype, sub.dtype))
     indices = np.empty(int(indptr[-1]), dtype=np.result_type(a.indices.dtype, sub.indices.dtype))
-    prev = 0  # copy the untouched stretches of rows in one slice each
-    for k, r in enumerate(rows):
-        lo, hi = a.indptr[prev], a.indptr[r]
-        data[indptr[prev] : indptr[r]] = a.data[lo:hi]
-        indices[indptr[prev] : indptr[r]] = a.indices[lo:hi]
-        data[indptr[r] : indptr[r + 1]] = sub.data[sub.indptr[k] : sub.indptr[k + 1]]
-        indices[indptr[r] : indptr[r + 1]] = sub.indices[sub.indptr[k] : sub.indptr[k + 1]]
-        prev = r + 1
-    data[indptr[prev] :] = a.data[a.indptr[prev] :]
-    indices[indptr[prev] :] = a.indices[a.indptr[prev] :]
-    return sp.csr_matrix((data, indices, indptr), shape=a.shape)
+    data[dst], indices[dst] = a.data[src], a.indices[src]
+    data[~dst], indices[~dst] = sub.data, sub.indices
+    out = sp.csr_matrix((data, indices, indptr), shape=a.shape)
+    out.has_sorted_indices = True
+    return out
 
 
 def _compose(t0: Any, rot: Any, rot3: Any, perm: np.ndarray, n: int) -> Any:

@@ -39,7 +39,7 @@ from typing import Any
 import numpy as np
 import scipy.linalg as sla
 import scipy.sparse as sp
-from scipy.sparse.csgraph import connected_components
+from scipy.sparse.csgraph import connected_components, depth_first_order
 
 from . import _validation as val
 from .errors import BasisTooLargeError
@@ -248,7 +248,10 @@ def components(h0: Any, v: Any, h0_diagonal: bool) -> np.ndarray:
             g.eliminate_zeros()
         if g.nnz == 0:
             return np.arange(n)
-        g = sp.csr_matrix((np.ones(g.nnz), g.indices, g.indptr), shape=g.shape)  # the pattern only
+        if g.dtype != np.float64:
+            g = sp.csr_matrix((np.ones(g.nnz), g.indices, g.indptr), shape=g.shape)  # the pattern only
+        if depth_first_order(g, 0, directed=True, return_predecessors=False).size == n:
+            return np.zeros(n, dtype=np.int64)  # every state reached from state 0: one component
         # strong components of a Hermitian (symmetric) pattern are its components and
         # are found without building the transpose; an asymmetric pattern (round-off
         # entries in one triangle only) falls back to weak components
@@ -424,6 +427,8 @@ def _snap_values(x: np.ndarray, scale: float) -> np.ndarray:
         return out
     tol = 1e-8 * max(scale, 1e-300)
     y = x[ok]
+    if tol < 0.25 and np.all(np.round(2.0 * y) == 2.0 * y):
+        return out  # already multiples of 1/2 (e.g. the ±1 of an involution): nothing to snap
     order = np.argsort(y, kind="stable")
     s = y[order]
     cid = np.cumsum(np.concatenate([[0], (np.diff(s) > tol).astype(np.int64)]))
@@ -474,6 +479,8 @@ def diagonalise_conserved(
         if new_rot is not None:
             rot = new_rot if rot is None else (rot @ new_rot).tocsr()
         res.values[:, k] = _snap_values(res.values[:, k], mmax)
+        if k == k_ops - 1:
+            break
         # refine the groups by this operator's quantum numbers
         key = np.where(np.isfinite(res.values[:, k]), res.values[:, k], np.inf)
         _, q = np.unique(key, return_inverse=True)
@@ -523,7 +530,10 @@ def _pair_states(res: ConservedBasis, k: int, r: np.ndarray, c: np.ndarray, d: n
     if lo.size == 0:
         return None
     s = 1.0 / np.sqrt(2.0)
-    single = np.flatnonzero(~np.isin(np.arange(n), np.concatenate([lo, hi])))
+    alone = np.ones(n, dtype=bool)
+    alone[lo] = False
+    alone[hi] = False
+    single = np.flatnonzero(alone)
     tt = t[lo]
     rows = np.concatenate([single, lo, hi, lo, hi])
     cols = np.concatenate([single, lo, lo, hi, hi])
