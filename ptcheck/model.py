@@ -6,7 +6,9 @@ unperturbed energy (level 0 = lowest), organised in **symmetry sectors**
 :mod:`ptcheck.sectors`).  Inside a group of exactly degenerate unperturbed
 levels *of one sector* the work basis is rotated to the "good" states that
 diagonalise ``V`` in the group (sorted by their first-order shift), so that
-"level n" names one analytic branch of the exact spectrum.  Levels of
+"level n" names one analytic branch of the exact spectrum; a group too large
+to rotate cheaply keeps the user's states and the degenerate treatment finds
+its good states (see the Notes of :class:`Model`).  Levels of
 different sectors never mix: equal unperturbed energies in different sectors
 are not a degeneracy (``Model.symmetry_degeneracies`` lists them).  The
 transform back to the user's basis is kept (:meth:`Model.to_user_basis`).
@@ -172,6 +174,22 @@ class Model:
     round-off), ascending sector index, then ascending first-order shift
     ⟨V⟩, then the order of the user's basis (so each exactly degenerate group
     of a sector is a run of consecutive indices).
+
+    Good states are made eagerly only where they are cheap: a degenerate group
+    that ``V`` mixes is rotated to its first-order good states when it has at
+    most :data:`MAX_GROUP_ROTATION` (256) states and ``V`` is dense, or at
+    most :data:`MAX_SPARSE_GROUP_ROTATION` (32) states and ``V`` is sparse
+    (rotating g states makes each of their rows of ``V`` a combination of g
+    rows: up to g times more stored entries, paid by every later product with
+    ``V``).  A larger group stays on the user's states, unrotated: ``v`` is
+    not diagonal inside it and ``v_diagonal()`` there is no first-order shift.
+    Nothing else changes: the degenerate treatment
+    (:func:`ptcheck.treatment.expansions`) finds the good states of every
+    group from its effective Hamiltonian and gives level ``group[i]`` the i-th
+    branch in ascending energy at small positive λ, for rotated and unrotated
+    groups alike; labels of every mixed group are ambiguous
+    (``ambiguous_levels``: the user's states went into combinations) and its
+    levels are named by rank.  The model is never changed afterwards.
 
     Examples
     --------
@@ -505,7 +523,8 @@ class Model:
         Same work basis, sectors, labels and degenerate groups as this model,
         except inside exactly degenerate groups: their states are rotated to the
         first-order good states of the ray's perturbation (and sorted by their
-        first-order shift), as :class:`Model` does for one coupling.  Labels of
+        first-order shift), as :class:`Model` does for one coupling (with the
+        same size limits).  Labels of
         levels whose group any ``V_i`` mixes stay ambiguous.
 
         Parameters
@@ -1260,15 +1279,15 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
     rot3_pos, rotated, too_big = None, [], []
     vscale = float(np.max(np.abs(v0.data))) if v0.nnz else 0.0
     if np.any(counts >= 2) and v0.nnz:
-        rows = np.repeat(np.arange(n, dtype=v0.indices.dtype), np.diff(v0.indptr))
-        key_r = key[rows]
-        same = key_r == key[v0.indices]
-        same &= rows != v0.indices
-        same &= np.abs(v0.data) > rtol * max(vscale, 1e-300)
-        hit = np.zeros(n_groups, dtype=bool)
-        hit[key_r[same]] = True
-        mixing = np.flatnonzero(hit)
-        del rows, key_r, same
+        # a group is mixed when it holds more entries above round-off than its diagonal does
+        tol = rtol * max(vscale, 1e-300)
+        key_r = np.repeat(key, np.diff(v0.indptr))
+        inside = key_r == key[v0.indices]
+        inside &= np.abs(v0.data) > tol
+        n_inside = np.bincount(key_r[inside], minlength=n_groups)
+        del key_r, inside
+        n_diagonal = np.bincount(key[np.abs(v0.diagonal()) > tol], minlength=n_groups)
+        mixing = np.flatnonzero(n_inside > n_diagonal)
         if mixing.size:
             starts = np.searchsorted(key, mixing)
             rows_, cols_, data_ = [], [], []
@@ -1324,11 +1343,10 @@ def _fold(v: sp.csr_matrix, cons: sec.ConservedBasis, perm0: np.ndarray, inv0: n
     else:
         rot = sp.csr_matrix(cons.rotation)
         rot.sort_indices()
-        half = np.sign(np.nan_to_num(cons.values[:, 0], nan=0.0)).astype(np.int64)  # per position
-        halves, hid = np.unique(half, return_inverse=True)
+        hid = np.sign(np.nan_to_num(cons.values[:, 0], nan=0.0)).astype(np.int64) + 1  # half of each position: 0, 1, 2
         per_k = np.diff(rot.indptr)
-        col = np.full((halves.size, n), -1, dtype=np.int64)  # column of user state k in half h
-        coef = np.zeros((halves.size, n), dtype=rot.dtype)
+        col = np.full((3, n), -1, dtype=np.int32 if n < 2**31 else np.int64)  # column of user state k in half h
+        coef = np.zeros((3, n), dtype=rot.dtype)
         for j in range(2):  # a user state is in at most two combinations (its pair's + and -)
             has = per_k > j
             at = rot.indptr[:-1][has] + j
@@ -1338,7 +1356,8 @@ def _fold(v: sp.csr_matrix, cons: sec.ConservedBasis, perm0: np.ndarray, inv0: n
             coef[hid[pos], k] = rot.data[at]
         part = v[cons.rep[perm0]]
         lengths = np.diff(part.indptr)
-        flat = np.repeat(hid[perm0] * n, lengths) + part.indices  # (half of the row, user column)
+        itype = np.int32 if 3 * n < 2**31 else np.int64
+        flat = np.repeat((hid[perm0] * n).astype(itype), lengths) + part.indices.astype(itype, copy=False)  # (half of the row, user column)
         cols = col.ravel()[flat]
         data = part.data * coef.ravel()[flat]
         scale = cons.rep_scale[perm0]
