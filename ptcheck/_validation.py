@@ -207,8 +207,13 @@ def check_finite(m: Any, name: str) -> None:
 
 
 def max_abs(m: Any) -> float:
-    data = m.data if sp.issparse(m) else m
-    return float(np.max(np.abs(data))) if data.size else 0.0
+    """Largest absolute entry (stored entries of a sparse matrix); 0 when there is none."""
+    data = m.data if sp.issparse(m) else np.asarray(m)
+    if data.size == 0:
+        return 0.0
+    if np.iscomplexobj(data):
+        return float(np.max(np.abs(data)))
+    return float(max(np.max(data), -np.min(data)))  # no array of absolute values
 
 
 def check_hermitian(m: Any, name: str, rtol: float, *, scale: float = 0.0) -> None:

@@ -289,7 +289,8 @@ class Model:
         inv[perm] = np.arange(n)
         v_work = _realify(v_work)
         if sp.issparse(v_work):
-            v_work = sp.csr_matrix(v_work)
+            if not isinstance(v_work, sp.csr_matrix):
+                v_work = sp.csr_matrix(v_work)
             v_work.eliminate_zeros()
             v_work.sort_indices()
         transform = _compose(t0, cons.rotation, rot3, perm, n)
@@ -1273,20 +1274,22 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
     # cluster, sector) never decreases, so each group is a run of positions
     cid_w = cid[perm0]
     new_group = np.concatenate([[True], (cid_w[1:] != cid_w[:-1]) | (sec_w[1:] != sec_w[:-1])]) if n else np.zeros(0, bool)
-    key = (np.cumsum(new_group) - 1).astype(v0.indices.dtype)
+    key = np.cumsum(new_group) - 1
     n_groups = int(key[-1]) + 1 if n else 0
+    key = key.astype(np.int16 if n_groups < 2**15 else np.int64)  # small: it is spread over every entry
     counts = np.bincount(key, minlength=n_groups)
     rot3_pos, rotated, too_big = None, [], []
-    vscale = float(np.max(np.abs(v0.data))) if v0.nnz else 0.0
+    vscale = val.max_abs(v0)
+    vdiag = v0.diagonal()
     if np.any(counts >= 2) and v0.nnz:
         # a group is mixed when it holds more entries above round-off than its diagonal does
         tol = rtol * max(vscale, 1e-300)
         key_r = np.repeat(key, np.diff(v0.indptr))
         inside = key_r == key[v0.indices]
-        inside &= np.abs(v0.data) > tol
+        inside &= _above(v0.data, tol)
         n_inside = np.bincount(key_r[inside], minlength=n_groups)
         del key_r, inside
-        n_diagonal = np.bincount(key[np.abs(v0.diagonal()) > tol], minlength=n_groups)
+        n_diagonal = np.bincount(key[_above(vdiag, tol)], minlength=n_groups)
         mixing = np.flatnonzero(n_inside > n_diagonal)
         if mixing.size:
             starts = np.searchsorted(key, mixing)
@@ -1313,7 +1316,8 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
                 c3 = sp.coo_matrix(r3)
                 rot3_pos = sp.csr_matrix((c3.data, (perm0[c3.row], perm0[c3.col])), shape=(n, n))
                 rotated = [perm0[idx] for idx in rotated]
-    vdiag = np.real(v0.diagonal())
+                vdiag = v0.diagonal()
+    vdiag = np.real(vdiag)
     shift = np.round(vdiag / (1e-9 * vscale)) if vscale > 0 else np.zeros(n)
     # inside each group: ascending first-order shift, ties in the present order (already the case unless
     # some group has a descending step)
@@ -1322,6 +1326,15 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
         v0 = _permute(v0, perm1)
         return v0, perm0[perm1], rot3_pos, rotated, too_big
     return v0, perm0, rot3_pos, rotated, too_big
+
+
+def _above(x: np.ndarray, tol: float) -> np.ndarray:
+    """``|x| > tol`` (bool array) without an array of absolute values for real ``x``."""
+    if np.iscomplexobj(x):
+        return np.abs(x) > tol
+    out = x > tol
+    out |= x < -tol
+    return out
 
 
 def _fold(v: sp.csr_matrix, cons: sec.ConservedBasis, perm0: np.ndarray, inv0: np.ndarray) -> sp.csr_matrix:
@@ -1357,13 +1370,20 @@ def _fold(v: sp.csr_matrix, cons: sec.ConservedBasis, perm0: np.ndarray, inv0: n
         part = v[cons.rep[perm0]]
         lengths = np.diff(part.indptr)
         itype = np.int32 if 3 * n < 2**31 else np.int64
-        flat = np.repeat((hid[perm0] * n).astype(itype), lengths) + part.indices.astype(itype, copy=False)  # (half of the row, user column)
-        cols = col.ravel()[flat]
-        data = part.data * coef.ravel()[flat]
+        flat = np.repeat((hid[perm0] * n).astype(itype), lengths)
+        flat += part.indices  # (half of the row, user column)
+        # into the gathered indices' buffer (no longer needed); "clip" writes in place (indices valid by construction)
+        cols = np.take(col.ravel(), flat, out=part.indices if part.indices.dtype == col.dtype else None, mode="clip")
         scale = cons.rep_scale[perm0]
-        if scale.size and np.all(scale == scale[0]):
-            data *= scale[0]  # e.g. every state paired: one factor √2
-        else:
+        uniform = bool(scale.size) and bool(np.all(scale == scale[0]))
+        if uniform:
+            coef *= scale[0]  # e.g. every state paired: one factor √2, in the table
+        data = part.data  # a copy made by the row gather: scaled in place
+        if np.result_type(data.dtype, coef.dtype) != data.dtype:
+            data = data.astype(np.result_type(data.dtype, coef.dtype))
+        data *= coef.ravel()[flat]
+        del flat
+        if not uniform:
             data *= np.repeat(scale, lengths)
         if np.any(cols < 0):  # a column with no combination in the row's half (zero when P commutes with V)
             keep = cols >= 0

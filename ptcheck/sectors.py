@@ -413,6 +413,8 @@ def _entries(m: Any) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     if sp.issparse(m):
         c = m.tocoo()
         keep = c.data != 0
+        if keep.all():
+            return c.row, c.col, c.data
         return c.row[keep], c.col[keep], c.data[keep]
     a = np.abs(m)
     r, c = np.nonzero(a > 1e-14 * float(a.max(initial=0.0)))
@@ -462,15 +464,19 @@ def diagonalise_conserved(
         basis = transform if rot is None else (rot if transform is None else _mul(transform, rot))
         m = _in_basis(p, basis)
         r, c, d = _entries(m)
-        mmax = float(np.max(np.abs(d))) if d.size else 0.0
+        mmax = val.max_abs(d)
         big = np.abs(d) > 1e-12 * max(mmax, 1e-300)
         # components the operator maps out of themselves: no quantum number there
-        leak = big & (comp[r] != comp[c])
-        open_comp = np.zeros(int(comp.max()) + 1, dtype=bool)
-        open_comp[comp[r[leak]]] = True
-        open_comp[comp[c[leak]]] = True
-        closed = ~open_comp[comp]
-        inside = (group[r] == group[c]) & closed[r] & big
+        if comp.size and comp.max() > 0:
+            leak = big & (comp[r] != comp[c])
+            open_comp = np.zeros(int(comp.max()) + 1, dtype=bool)
+            open_comp[comp[r[leak]]] = True
+            open_comp[comp[c[leak]]] = True
+            closed = ~open_comp[comp]
+            inside = (group[r] == group[c]) & closed[r] & big
+        else:  # one component: it is kept
+            closed = np.ones(n, dtype=bool)
+            inside = (group[r] == group[c]) & big
         r, c, d = r[inside], c[inside], d[inside]
         if rot is None and transform is None and _is_signed_involution(r, c, d, closed, n):
             new_rot = _pair_states(res, k, r, c, d, closed, n)
