@@ -3,9 +3,11 @@
 Target (performance issue, "Model construction"): building a transverse-field Ising
 chain of 2^18 states (spin-flip parity declared, so the build also finds the two
 sectors and pairs the states) costs less than its Rayleigh–Schrödinger series to
-order 30.  Both are timed as CPU time of this process (best of ``repeat``), and the
-build is split into the builder's matrices, ``Model`` validation and the rest of
-``Model`` (sectors, work basis, labels).
+order 30.  Both are timed as CPU time of this process (best of ``repeat``); the ratio
+series / build (> 1: the build is cheaper) is printed with the 1-minute load average
+before and after, the stored entries of the work-basis V and the size of the largest
+degenerate group left unrotated (sparse V: groups above ``MAX_SPARSE_GROUP_ROTATION``
+states keep the user's states, see ``Model``).
 
 Run: ``python benchmarks/bench_model.py [n_spins]`` (default 18).  ``rows()`` gives the same
 job as one row of ``run_all.py``'s table (wall-clock, interleaved, min / median of repeats).
@@ -28,6 +30,7 @@ except ImportError:
     sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from ptcheck import _validation as val  # noqa: E402
+from ptcheck.model import MAX_SPARSE_GROUP_ROTATION  # noqa: E402
 from ptcheck.models import spin_chain  # noqa: E402
 from ptcheck.series import rs_series  # noqa: E402
 
@@ -42,12 +45,26 @@ def _best(fn, repeat: int = 3) -> float:
 
 
 def run(n_spins: int = 18) -> dict:
+    load_before = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     spin_chain(n_spins=6)  # warm imports
     build = _best(lambda: spin_chain(n_spins=n_spins))
     m = spin_chain(n_spins=n_spins)
     checks = _best(lambda: val.check_hermitian(m.v, "v", 1e-10))  # one Hermiticity check of V (work basis)
     series = _best(lambda: rs_series(m, 0, 30))
-    return {"n_spins": n_spins, "N": m.n, "build_s": build, "hermitian_check_of_v_s": checks, "rs30_s": series, "model": repr(m)}
+    load_after = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    unrotated = [len(g) for g in m.degenerate_groups if g[0] in m.ambiguous_levels and len(g) > MAX_SPARSE_GROUP_ROTATION]
+    return {
+        "n_spins": n_spins,
+        "N": m.n,
+        "build_s": build,
+        "hermitian_check_of_v_s": checks,
+        "rs30_s": series,
+        "ratio_series_over_build": series / build,
+        "load_1min": f"{load_before:.2f} -> {load_after:.2f}",
+        "stored_entries_of_v": m.v.nnz,
+        "largest_unrotated_group": max(unrotated, default=0),
+        "model": repr(m),
+    }
 
 
 def rows(repeats: int = 3, only_ours: bool = False, n_spins: int = 18) -> list:
