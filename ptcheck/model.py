@@ -1381,7 +1381,14 @@ def _fold(v: sp.csr_matrix, cons: sec.ConservedBasis, perm0: np.ndarray, inv0: n
         data = part.data  # a copy made by the row gather: scaled in place
         if np.result_type(data.dtype, coef.dtype) != data.dtype:
             data = data.astype(np.result_type(data.dtype, coef.dtype))
-        data *= coef.ravel()[flat]
+        size = np.abs(coef[coef != 0])
+        if uniform and not np.iscomplexobj(coef) and size.size and np.all(size == size[0]):
+            # every factor is ±c (e.g. ±1 when all states are paired): gather signs, one byte per entry
+            data *= np.take(np.sign(coef).astype(np.int8).ravel(), flat)
+            if size[0] != 1.0:
+                data *= size[0]
+        else:
+            data *= coef.ravel()[flat]
         del flat
         if not uniform:
             data *= np.repeat(scale, lengths)
