@@ -1242,14 +1242,6 @@ def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) ->
     return v, rot, rotated, too_big
 
 
-def _selector(cols: np.ndarray, n_rows: int, n_cols: int, data: np.ndarray | None = None) -> sp.csr_matrix:
-    """CSR with one entry per row: row k -> column ``cols[k]`` (rows with ``cols < 0`` empty)."""
-    ok = cols >= 0
-    indptr = np.concatenate([[0], np.cumsum(ok)])
-    vals = np.ones(int(ok.sum())) if data is None else data[ok]
-    return sp.csr_matrix((vals, cols[ok], indptr), shape=(n_rows, n_cols))
-
-
 def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: np.ndarray, cid: np.ndarray, rtol: float, declared: bool) -> tuple:
     """Work-basis V for a diagonal H0 and sparse V, in a few passes over V's entries.
 
@@ -1351,7 +1343,7 @@ def _fold(v: sp.csr_matrix, cons: sec.ConservedBasis, perm0: np.ndarray, inv0: n
     n = v.shape[0]
     if cons.rep is None:
         part = v[perm0]
-        cols = inv0[part.indices]
+        cols = np.take(inv0.astype(part.indices.dtype), part.indices, out=part.indices, mode="clip")  # in place
         data = part.data
     else:
         rot = sp.csr_matrix(cons.rotation)

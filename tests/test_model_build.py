@@ -172,3 +172,26 @@ def test_unrotated_group_gets_the_exact_branches_in_ascending_order():
     # order 3: error O(λ⁴ ‖V‖⁴ / gap³) ≈ 1e-10 x 4096 / 64 ≈ 1e-8
     assert_allclose(pert, near, atol=1e-7)
     assert np.all(np.diff(pert) >= -1e-9)
+
+
+def test_round_off_between_sectors_of_a_signed_involution_is_dropped_like_the_dense_path():
+    # P swaps states 0 and 1 and fixes 2 (+1) and 3 (-1); V commutes with P except for a round-off entry
+    # V[2,3] = 1e-14 between the sectors (accepted by the commutation check).  The sparse fold has no
+    # column for state 3 in the +1 half and drops it; the same matrices as dense arrays go through the
+    # general path.  Referee: numpy Tᴴ V T with the cross-sector entry set to zero (common practice,
+    # no source), and the dense model.
+    p = np.array([[0, 1, 0, 0], [1, 0, 0, 0], [0, 0, 1, 0], [0, 0, 0, -1]], dtype=float)
+    h0 = np.diag([0.0, 0.0, 1.0, 2.5])
+    v = np.array([[0.0, 0.1, 0.3, 0.2], [0.1, 0.0, 0.3, -0.2], [0.3, 0.3, 0.0, 1e-14], [0.2, -0.2, 1e-14, 0.0]])
+    assert np.max(np.abs(p @ v - v @ p)) < 1e-13
+    sparse = Model(sp.csr_matrix(h0), sp.csr_matrix(v), conserved={"P": sp.csr_matrix(p)})
+    dense = Model(h0, v, conserved={"P": p})
+    assert [s.name for s in sparse.sectors] == [s.name for s in dense.sectors] == ["P +1", "P -1"]
+    assert_allclose(sparse.e0, dense.e0)
+    assert_allclose(sparse.v.toarray(), dense.v, atol=1e-15)
+    t = sparse.to_user_basis(np.eye(4)).T
+    exact = v.copy()
+    exact[2, 3] = exact[3, 2] = 0.0
+    assert_allclose(sparse.v.toarray(), t.T @ exact @ t, atol=1e-15)
+    same = sparse.level_sectors[:, None] == sparse.level_sectors[None, :]
+    assert np.all(sparse.v.toarray()[~same] == 0.0)  # exactly zero between sectors
