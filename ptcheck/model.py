@@ -1274,13 +1274,17 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
     vscale = val.max_abs(v0)
     vdiag = v0.diagonal()
     if np.any(counts >= 2) and v0.nnz:
-        # a group is mixed when it holds more entries above round-off than its diagonal does
+        # a group is mixed when it holds more entries above round-off than its diagonal does; the group of
+        # a row is a run of columns [start, end), so no gather over the entries is needed
         tol = rtol * max(vscale, 1e-300)
-        key_r = np.repeat(key, np.diff(v0.indptr))
-        inside = key_r == key[v0.indices]
+        lengths = np.diff(v0.indptr)
+        start = np.searchsorted(key, np.arange(n_groups)).astype(v0.indices.dtype)
+        end = np.append(start[1:], n).astype(v0.indices.dtype)
+        inside = v0.indices >= np.repeat(start[key], lengths)
+        inside &= v0.indices < np.repeat(end[key], lengths)
         inside &= _above(v0.data, tol)
-        n_inside = np.bincount(key_r[inside], minlength=n_groups)
-        del key_r, inside
+        n_inside = np.bincount(np.repeat(key, lengths)[inside], minlength=n_groups)
+        del inside
         n_diagonal = np.bincount(key[_above(vdiag, tol)], minlength=n_groups)
         mixing = np.flatnonzero(n_inside > n_diagonal)
         if mixing.size:
@@ -1361,8 +1365,7 @@ def _fold(v: sp.csr_matrix, cons: sec.ConservedBasis, perm0: np.ndarray, inv0: n
             coef[hid[pos], k] = rot.data[at]
         part = v[cons.rep[perm0]]
         lengths = np.diff(part.indptr)
-        itype = np.int32 if 3 * n < 2**31 else np.int64
-        flat = np.repeat((hid[perm0] * n).astype(itype), lengths)
+        flat = np.repeat(hid[perm0] * n, lengths).astype(np.intp, copy=False)  # intp: numpy gathers with it as is
         flat += part.indices  # (half of the row, user column)
         # into the gathered indices' buffer (no longer needed); "clip" writes in place (indices valid by construction)
         cols = np.take(col.ravel(), flat, out=part.indices if part.indices.dtype == col.dtype else None, mode="clip")
