@@ -353,7 +353,7 @@ def unperturbed_basis(h0: Any, offset: float, comp: np.ndarray, h0_diagonal: boo
 
 def roundoff_clusters(e0: np.ndarray, tol: float) -> np.ndarray:
     """Cluster id (N,) of runs of sorted energies closer than ``tol``; ids ascend with energy."""
-    order = np.argsort(e0)  # the order of equal energies does not matter here
+    order = np.argsort(e0, kind="stable")  # fast on the long runs of equal energies of lattice models
     s = e0[order]
     brk = np.concatenate([[0], (np.diff(s) > tol).astype(np.int64)])
     cid = np.empty(e0.size, dtype=np.int64)
