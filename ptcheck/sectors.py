@@ -478,8 +478,9 @@ def diagonalise_conserved(
             closed = np.ones(n, dtype=bool)
             inside = (group[r] == group[c]) & big
         r, c, d = r[inside], c[inside], d[inside]
-        if rot is None and transform is None and _is_signed_involution(r, c, d, closed, n):
-            new_rot = _pair_states(res, k, r, c, d, closed, n)
+        involution = _is_signed_involution(r, c, d, closed, n) if rot is None and transform is None else None
+        if involution is not None:
+            new_rot = _pair_states(res, k, *involution, closed, n)
         else:
             new_rot = _dense_groups(res, k, name, r, c, d, closed, group, n)
         if new_rot is not None:
@@ -502,33 +503,45 @@ def _mul(a: Any, b: Any) -> Any:
     return np.asarray(a @ b)
 
 
-def _is_signed_involution(r: np.ndarray, c: np.ndarray, d: np.ndarray, closed: np.ndarray, n: int) -> bool:
-    """One entry ±1 per row of the closed part, symmetric: a signed permutation with P² = 1."""
+def _is_signed_involution(r: np.ndarray, c: np.ndarray, d: np.ndarray, closed: np.ndarray, n: int) -> tuple | None:
+    """One entry ±1 per row of the closed part, symmetric: a signed permutation with P² = 1.
+
+    Returns ``(partner, sign)`` (N,) arrays (``partner[i] = i`` outside the closed part), or
+    ``None`` when the operator is not one.
+    """
     if np.iscomplexobj(d) and np.any(np.abs(d.imag) > 1e-12):
-        return False
+        return None
     d = np.real(d)
     counts = np.bincount(r, minlength=n)
-    if np.any(counts[closed] != 1) or np.any(counts[~closed] != 0):
-        return False
+    all_closed = bool(np.all(closed))
+    if np.any(counts[closed] != 1) if not all_closed else np.any(counts != 1):
+        return None
+    if not all_closed and np.any(counts[~closed] != 0):
+        return None
     if np.any(np.abs(np.abs(d) - 1.0) > 1e-12):
-        return False
-    partner = np.full(n, -1, dtype=np.int64)
+        return None
+    partner = np.arange(n, dtype=np.int64)
     sign = np.zeros(n)
     partner[r] = c
     sign[r] = np.sign(d)
-    rows = np.flatnonzero(closed)
-    back = partner[partner[rows]]
-    return bool(np.all(back == rows) and np.all(sign[partner[rows]] == sign[rows]))
+    rows = partner if all_closed else partner[closed]  # the images; P² = 1 maps them back to the rows
+    back = partner[rows]
+    own = np.arange(n) if all_closed else np.flatnonzero(closed)
+    if not (np.array_equal(back, own) and np.array_equal(sign[rows], sign[own])):
+        return None
+    return partner, sign
 
 
-def _pair_states(res: ConservedBasis, k: int, r: np.ndarray, c: np.ndarray, d: np.ndarray, closed: np.ndarray, n: int) -> Any:
-    """Fast path: fixed points keep their state; pairs (s, s') become (|s⟩ ± t|s'⟩)/√2."""
-    partner = np.arange(n, dtype=np.int64)
-    t = np.zeros(n)
-    partner[r] = c
-    t[r] = np.sign(np.real(d))
-    fixed = closed & (partner == np.arange(n))
-    lo = np.flatnonzero(closed & (partner > np.arange(n)))
+def _pair_states(res: ConservedBasis, k: int, partner: np.ndarray, t: np.ndarray, closed: np.ndarray, n: int) -> Any:
+    """Fast path: fixed points keep their state; pairs (s, s') become (|s⟩ ± t|s'⟩)/√2.
+
+    ``partner`` and ``t`` (sign) come from :func:`_is_signed_involution`.  The rotation is built
+    row by row in CSR form: a fixed point holds its own state, a pair member u ∈ {s, s'} the
+    entries of both combinations (columns s < s').
+    """
+    own = np.arange(n, dtype=np.int64)
+    fixed = closed & (partner == own)
+    lo = np.flatnonzero(closed & (partner > own))
     hi = partner[lo]
     res.values[fixed, k] = t[fixed]
     res.values[lo, k] = 1.0
@@ -536,20 +549,31 @@ def _pair_states(res: ConservedBasis, k: int, r: np.ndarray, c: np.ndarray, d: n
     if lo.size == 0:
         return None
     s = 1.0 / np.sqrt(2.0)
-    alone = np.ones(n, dtype=bool)
-    alone[lo] = False
-    alone[hi] = False
-    single = np.flatnonzero(alone)
-    tt = t[lo]
-    rows = np.concatenate([single, lo, hi, lo, hi])
-    cols = np.concatenate([single, lo, lo, hi, hi])
-    vals = np.concatenate([np.ones(single.size), np.full(lo.size, s), s * tt, np.full(lo.size, s), -s * tt])
-    rot = sp.csr_matrix((vals, (rows, cols)), shape=(n, n))
-    res.pair_lo = np.full(n, -1, dtype=np.int64)
-    res.pair_hi = np.full(n, -1, dtype=np.int64)
+    pair_lo = np.full(n, -1, dtype=np.int64)
+    pair_hi = np.full(n, -1, dtype=np.int64)
+    pair_lo[lo], pair_lo[hi] = lo, lo
+    pair_hi[lo], pair_hi[hi] = hi, hi
+    paired = pair_lo >= 0
+    counts = np.where(paired, 2, 1)
+    indptr = np.zeros(n + 1, dtype=np.int64)
+    np.cumsum(counts, out=indptr[1:])
+    first = indptr[:-1]
+    indices = np.empty(int(indptr[-1]), dtype=np.int64)
+    data = np.empty(int(indptr[-1]))
+    single = ~paired
+    indices[first[single]] = own[single]
+    data[first[single]] = 1.0
+    u = np.flatnonzero(paired)
+    f = first[u]
+    tu = t[pair_lo[u]]
+    is_hi = pair_hi[u] == u
+    indices[f], indices[f + 1] = pair_lo[u], pair_hi[u]
+    data[f] = np.where(is_hi, s * tu, s)  # |lo⟩ row: s on both; |hi⟩ row: ±s t
+    data[f + 1] = np.where(is_hi, -s * tu, s)
+    rot = sp.csr_matrix((data, indices, indptr), shape=(n, n))
+    res.pair_lo = pair_lo
+    res.pair_hi = pair_hi
     res.pair_sign = np.zeros(n)
-    res.pair_lo[lo], res.pair_lo[hi] = lo, lo
-    res.pair_hi[lo], res.pair_hi[hi] = hi, hi
     res.pair_sign[lo], res.pair_sign[hi] = 1.0, -1.0
     res.rep = np.arange(n, dtype=np.int64)
     res.rep[hi] = lo
