@@ -276,7 +276,7 @@ class Model:
         names = sec.sector_names(info, [nm for nm, _ in ops])
         # ---- V in the sector basis, good states inside (sector ∩ equal-energy run), order ----
         if sp.issparse(vm) and t0 is None and (cons.rotation is None or (cons.rep is not None and not cons.general)):
-            v_work, perm, rot3, mixed_groups, big_groups = _sparse_work_v(vm, cons, sector_of, e0_rel, cid, hermitian_rtol, bool(ops))
+            v_work, perm, rot3, mixed_groups, big_groups = _sparse_work_v(vm, cons, sector_of, cid, hermitian_rtol, bool(ops))
         else:
             vpre = _zero_between_sectors(_v_in_basis(vm, t0, cons), sector_of)
             vpre, rot3, mixed_groups, big_groups = _good_states(vpre, sector_of, cid, hermitian_rtol)
@@ -1242,7 +1242,7 @@ def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) ->
     return v, rot, rotated, too_big
 
 
-def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: np.ndarray, cid: np.ndarray, rtol: float, declared: bool) -> tuple:
+def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, cid: np.ndarray, rtol: float, declared: bool) -> tuple:
     """Work-basis V for a diagonal H0 and sparse V, in a few passes over V's entries.
 
     V is folded onto the work order (and onto the pair combinations of a
@@ -1254,7 +1254,11 @@ def _sparse_work_v(v: Any, cons: sec.ConservedBasis, sector_of: np.ndarray, e0: 
     """
     n = v.shape[0]
     v = sp.csr_matrix(v)
-    perm0 = np.lexsort((np.arange(n), sector_of, e0))
+    # ascending energy, then sector, then the user's order: the energies are equal inside a round-off
+    # cluster and ascend with its id, so one stable sort of (cluster, sector) gives that order
+    group_id = cid * (int(sector_of.max()) + 1 if n else 1) + sector_of
+    small = n and int(group_id.max()) < 2**15
+    perm0 = np.argsort(group_id.astype(np.int16) if small else group_id, kind="stable")  # radix sort for 16 bits
     inv0 = np.empty(n, dtype=np.int64)
     inv0[perm0] = np.arange(n)
     sec_w = sector_of[perm0]
