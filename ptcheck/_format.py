@@ -7,9 +7,11 @@ plain-words summaries, so a complex coupling reads the same everywhere.
 from __future__ import annotations
 
 import math
+from decimal import ROUND_DOWN, ROUND_UP, Decimal
 from typing import Any
 
-__all__ = ["fmt_complex", "clean_complex", "order_json", "order_from_json", "order_from_name"]
+__all__ = ["fmt_complex", "clean_complex", "order_json", "order_from_json", "order_from_name", "fmt_toward",
+           "fmt_certified_range"]
 
 
 def clean_complex(z: complex, *, rel: float = 1e-9) -> complex:
@@ -109,3 +111,54 @@ def order_from_name(order: Any) -> Any:
             name = "pade" + name[5:].replace("]", "").replace("(λ²)", "@2")
         return parse_order(name)
     return parse_order(order)
+
+
+def fmt_toward(x: float, digits: int = 3, *, up: bool = False) -> str:
+    """``x`` to ``digits`` significant digits rounded toward zero (``up``: away from zero).
+
+    A certified coupling must stay certified once printed: the end of a range
+    where an order is certified to hold is rounded down in size, the coupling
+    from which failure is certified is rounded up.
+
+    Examples
+    --------
+    >>> fmt_toward(1.0996), fmt_toward(1.0996, up=True), fmt_toward(-0.29), fmt_toward(2.0071e-5)
+    ('1.09', '1.1', '−0.29', '2e−05')
+    """
+    x = float(x)
+    if not math.isfinite(x):
+        return "∞" if x > 0 else "−∞" if x < 0 else "nan"
+    if x == 0:
+        return "0"
+    d = Decimal(repr(x))
+    exp = d.adjusted() - (digits - 1)
+    q = d.quantize(Decimal(1).scaleb(exp), rounding=ROUND_UP if up else ROUND_DOWN)
+    if q == 0:  # cannot happen for digits >= 1; kept for safety
+        return "0"
+    e = q.adjusted()
+    if -3 <= e < 5:
+        text = _strip(format(q, "f"))
+    else:
+        text = f"{_strip(format(q.scaleb(-e), 'f'))}e{e:+03d}"
+    return text.replace("-", "−")
+
+
+def _strip(text: str) -> str:
+    return text.rstrip("0").rstrip(".") if "." in text else text
+
+
+def fmt_certified_range(low: float, high: float, digits: int = 3) -> tuple[str, str]:
+    """``low`` rounded toward zero and ``high`` away from it, with digits enough to tell them apart.
+
+    The printed range always contains the certified one.
+
+    Examples
+    --------
+    >>> fmt_certified_range(1.10193, 1.10279), fmt_certified_range(1.10193, 1.10196)
+    (('1.1', '1.11'), ('1.1019', '1.102'))
+    """
+    for d in range(digits, 9):
+        a, b = fmt_toward(low, d), fmt_toward(high, d, up=True)
+        if a != b:
+            return a, b
+    return a, b

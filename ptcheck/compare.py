@@ -895,6 +895,10 @@ class ValidityBoundary:
     rigorous_coupling : float
         ``reference="bounds"``: signed coupling certified with rigorous gaps
         alone (|·| ≤ |coupling|); NaN for ``reference="exact"``.
+    certified_not_rigorous : bool
+        ``reference="bounds"``: the failure at ``certified_not`` rests on
+        rigorous gaps only (False when it is conditional on an estimated or
+        given gap, or when no failure is certified).
     gap_kind : str
         ``reference="bounds"``: the gap option used (``"auto"``, ``"weyl"``,
         ``"neighbours"``, ``"estimate"`` or ``"given (δ)"``); empty for
@@ -922,6 +926,7 @@ class ValidityBoundary:
     certified_not: float = math.nan
     rigorous: bool = False
     rigorous_coupling: float = math.nan
+    certified_not_rigorous: bool = False
     gap_kind: str = ""
     mat_vecs: int = 0
 
@@ -1011,6 +1016,7 @@ class ValidityBoundary:
             "certified_not": f(self.certified_not),
             "rigorous": self.rigorous,
             "rigorous_coupling": f(self.rigorous_coupling),
+            "certified_not_rigorous": self.certified_not_rigorous,
             "gap_kind": self.gap_kind,
             "mat_vecs": self.mat_vecs,
         }
@@ -1309,6 +1315,7 @@ def _certified_boundary(
     return ValidityBoundary(
         coupling=coupling, status=status, bracket=bracket, max_coupling=cb.max_coupling, notes=tuple(notes),
         certified_not=fail, rigorous=cb.rigorous, rigorous_coupling=cb.rigorous_coupling, mat_vecs=cb.mat_vecs,
+        certified_not_rigorous=bool(math.isfinite(fail) and cb.fail_rigorous),
         **base,
     )
 
