@@ -148,17 +148,20 @@ def _strip(text: str) -> str:
 
 
 def fmt_certified_range(low: float, high: float, digits: int = 3) -> tuple[str, str]:
-    """``low`` rounded toward zero and ``high`` away from it, with digits enough to tell them apart.
+    """``low`` rounded toward zero and ``high`` away from it: a printed range that contains the certified one.
 
-    The printed range always contains the certified one.
+    Digits are added (up to 6) until the printed range is at most three times
+    as wide as the true one.
 
     Examples
     --------
-    >>> fmt_certified_range(1.10193, 1.10279), fmt_certified_range(1.10193, 1.10196)
-    (('1.1', '1.11'), ('1.1019', '1.102'))
+    >>> fmt_certified_range(1.10193, 1.10279), fmt_certified_range(0.5, 0.8)
+    (('1.101', '1.103'), ('0.5', '0.8'))
     """
-    for d in range(digits, 9):
+    width = abs(float(high) - float(low))
+    for d in range(digits, 7):
         a, b = fmt_toward(low, d), fmt_toward(high, d, up=True)
-        if a != b:
-            return a, b
+        shown = abs(float(b.replace("−", "-")) - float(a.replace("−", "-"))) if "∞" not in a + b else math.inf
+        if shown <= 3.0 * width:
+            break
     return a, b
