@@ -20,6 +20,9 @@ from ._common import (
 )
 from ._style import CROSSING_COLOR, EXACT_COLOR, FONT_SIZES, MARKER_COLOR, finite_style, order_style, style
 
+#: Fill of the certified bracket of an exact value (neutral: not an order's colour).
+BAND_COLOR = "#8C8C8C"
+
 __all__ = ["LevelArtists", "plot_levels", "crossing_info", "spread", "target_unit"]
 
 
@@ -51,6 +54,15 @@ class LevelArtists:
         Orders and "exact" (framed, inside the axes).
     labels : tuple of Annotation
         Direct label of each exact curve (the target's name) at its right end.
+    bands : tuple of PolyCollection
+        Certified bracket of each target's exact value (grey), when the
+        result has brackets (``compare(..., reference="bounds" or "both")``).
+    band_edges : tuple of (Line2D, Line2D)
+        Lower and upper edge of each bracket.
+    exact_known : bool
+        The result has exact values (``reference`` "exact" or "both"); with
+        certified bounds only, the brackets stand in for the exact curves
+        (markers, direct labels, view limits).
     """
 
     figure: Any
@@ -65,6 +77,9 @@ class LevelArtists:
     caption: Any
     legend: Any
     labels: tuple = ()
+    bands: tuple = ()
+    band_edges: tuple = ()
+    exact_known: bool = True
 
 
 def crossing_info(crossing: Any) -> tuple[float | None, str]:
@@ -96,6 +111,7 @@ def plot_levels(
     ylabel: str | None = None,
     coupling_scale: float | None = None,
     coupling_unit: str | None = None,
+    bands: bool | None = None,
 ) -> LevelArtists:
     """Exact and perturbative values of levels or quantities against λ.
 
@@ -127,6 +143,11 @@ def plot_levels(
         Physical coupling at λ = 1 and its unit (default: the result's
         ``coupling_scale``/``coupling_unit`` if it has them): adds a secondary
         coupling axis on top.
+    bands : bool, optional
+        Draw the certified bracket of each exact value as a grey band
+        (default: whenever the result has brackets).  With certified bounds
+        only (``reference="bounds"``) there is no exact curve and the band is
+        drawn in its place.
 
     Returns
     -------
@@ -142,6 +163,12 @@ def plot_levels(
     (11,)
     """
     check_comparison(result, "plot_levels")
+    has_brackets = getattr(result, "exact_lower", None) is not None
+    if bands is None:
+        bands = has_brackets
+    elif bands and not has_brackets:
+        raise ValueError("bands=True needs a comparison with certified bounds: compare(..., reference='bounds' or 'both')")
+    exact_known = getattr(result, "reference", "exact") != "bounds"
     t_idx = _target_indices(result, targets)
     o_idx = _order_indices(result, orders)
     fig, ax, scale = new_axes(ax)
@@ -164,10 +191,26 @@ def plot_levels(
                 row.append(ln)
             pert_lines.append(tuple(row))
             (ex,) = ax.plot(x, np.asarray(result.exact[ti])[srt] - offset[ti], color=EXACT_COLOR, linewidth=2.6 * lw,
-                            label="exact" if k == 0 else None, zorder=3)
+                            label="exact" if k == 0 and exact_known else None, zorder=3)
             exact_lines.append(ex)
+        band_arts, edge_arts = [], []
+        if bands:
+            for k, ti in enumerate(t_idx):
+                lo = np.asarray(result.exact_lower[ti], dtype=float)[srt] - offset[ti]
+                hi = np.asarray(result.exact_upper[ti], dtype=float)[srt] - offset[ti]
+                band_arts.append(ax.fill_between(x, lo, hi, color=BAND_COLOR, alpha=0.3, linewidth=0, zorder=2.5,
+                                                 label="certified bracket of the exact value" if k == 0 else None))
+                edge = dict(color=EXACT_COLOR, linewidth=(1.2 if not exact_known else 0.7) * lw, zorder=2.6)
+                (e_lo,) = ax.plot(x, lo, **edge)
+                (e_hi,) = ax.plot(x, hi, **edge)
+                edge_arts.append((e_lo, e_hi))
         # keep the view on the exact values: diverging orders must not squash them
         ex_vals = np.asarray(result.exact)[t_idx] - offset[t_idx, None]
+        if not exact_known:  # the brackets stand in for them
+            lo_all = np.asarray(result.exact_lower)[t_idx] - offset[t_idx, None]
+            hi_all = np.asarray(result.exact_upper)[t_idx] - offset[t_idx, None]
+            ex_vals = np.concatenate([lo_all, hi_all])
+            mid = 0.5 * (lo_all + hi_all)
         finite = ex_vals[np.isfinite(ex_vals)]
         if finite.size:
             lo, hi = float(finite.min()), float(finite.max())
@@ -180,7 +223,7 @@ def plot_levels(
             line = ax.axvline(float(coupling), color=MARKER_COLOR, linewidth=1.6 * lw, zorder=4)
             i = nearest_index(lam, float(coupling))
             markers, = ax.plot(
-                np.full(len(t_idx), lam[i]), ex_vals[:, i], linestyle="none", marker="o", color=EXACT_COLOR,
+                np.full(ex_vals.shape[0], lam[i]), ex_vals[:, i], linestyle="none", marker="o", color=EXACT_COLOR,
                 markerfacecolor="white", zorder=5,
             )
         crossings = []
@@ -193,7 +236,7 @@ def plot_levels(
                 text, xy=(lc, 0.02), xycoords=("data", "axes fraction"), rotation=90, ha="right", va="bottom",
                 fontsize=FONT_SIZES["caption"] * scale, color="#555555",
             ))
-        labels = _end_labels(ax, [result.targets[i] for i in t_idx], ex_vals[:, srt], scale)
+        labels = _end_labels(ax, [result.targets[i] for i in t_idx], (ex_vals if exact_known else mid)[:, srt], scale)
         ax.set_xlabel("coupling λ")
         ax.set_ylabel(ylabel)
         style_axes(ax, scale)
@@ -208,7 +251,8 @@ def plot_levels(
     return LevelArtists(
         figure=fig, ax=ax, targets=tuple(result.targets[i] for i in t_idx), orders=tuple(result.order_names[i] for i in o_idx),
         exact=tuple(exact_lines), perturbative=tuple(pert_lines), coupling_line=line, coupling_markers=markers,
-        crossings=tuple(crossings), caption=cap, legend=legend, labels=tuple(labels),
+        crossings=tuple(crossings), caption=cap, legend=legend, labels=tuple(labels), bands=tuple(band_arts),
+        band_edges=tuple(edge_arts), exact_known=exact_known,
     )
 
 
