@@ -211,11 +211,17 @@ def plot_levels(
             hi_all = np.asarray(result.exact_upper)[t_idx] - offset[t_idx, None]
             ex_vals = np.concatenate([lo_all, hi_all])
             mid = 0.5 * (lo_all + hi_all)
-        finite = ex_vals[np.isfinite(ex_vals)]
+        centre = ex_vals if exact_known else mid
+        finite = centre[np.isfinite(centre)]
         if finite.size:
             lo, hi = float(finite.min()), float(finite.max())
             pad = 0.12 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.1
-            ax.set_ylim(lo - pad, hi + pad)
+            lo, hi = lo - pad, hi + pad
+            ends = ex_vals[np.isfinite(ex_vals)]
+            if not exact_known and ends.size:  # wide brackets run past the view rather than squash it
+                reach = hi - lo
+                lo, hi = max(min(lo, float(ends.min())), lo - 0.5 * reach), min(max(hi, float(ends.max())), hi + 0.5 * reach)
+            ax.set_ylim(lo, hi)
         if x.size > 1 and x[-1] > x[0]:
             ax.set_xlim(x[0], x[-1])
         line = markers = None

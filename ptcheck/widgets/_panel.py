@@ -37,7 +37,19 @@ from ._builders import build_model, builder_defaults, format_params, parse_param
 from ._controls import EXPORT_FORMATS, REFERENCE_CHOICES, SLIDER_STEPS, Controls, default_treatment
 from ._readout import readout_html, values_at
 from ._session import Session, Settings, State
-from ._text import energy_unit, fmt_coupling, fmt_input, fmt_number, fmt_physical, fmt_tol, parse_number, physical_coupling, relative_to_text, sentence
+from ._text import (
+    energy_unit,
+    fmt_coupling,
+    fmt_input,
+    fmt_number,
+    fmt_physical,
+    fmt_tol,
+    panel_words,
+    parse_number,
+    physical_coupling,
+    relative_to_text,
+    sentence,
+)
 from ._verdict import verdict, verdict_html
 from ._views import VIEWS, use_ipympl, write_numbers
 
@@ -313,7 +325,7 @@ class Panel:
             state = self._compute(s, self.visible_views)
             self._slots["compute"] = ""
             info = ([state.dropped] if state.dropped else []) + [reason for _, _, reason in state.unavailable]
-            self._slots["dropped"] = "<br>".join(html.escape(sentence(ValueError(t))) for t in dict.fromkeys(info))
+            self._slots["dropped"] = "<br>".join(html.escape(sentence(ValueError(panel_words(t)))) for t in dict.fromkeys(info))
             self.state = state
             self._show_notes()
             for v in self.views.values():
@@ -461,7 +473,7 @@ class Panel:
             self.progress.layout.visibility = "hidden"
 
     def _error_html(self, exc: BaseException, slot: str) -> str:
-        text = sentence(exc)
+        text = panel_words(sentence(exc))
         detail = ""
         if not isinstance(exc, (ValueError, TypeError)):  # not bad input: where it happened, for a bug report
             tb = traceback.extract_tb(exc.__traceback__)

@@ -195,7 +195,7 @@ def verdict(
         certified: tuple = ()
         if reference == "both":
             if name in (uncertified or {}):
-                text += f" Certified: {uncertified[name]}."
+                text += f" Bounds: {uncertified[name]}."
             else:
                 cv = _certified_order(cert_b, spec, name, target=target, tols=tols, relative=relative, lam=lam,
                                       model=model, unit=unit, unavailable={})
