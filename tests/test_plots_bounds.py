@@ -74,7 +74,7 @@ def test_errors_figure_draws_the_brackets_beside_the_exact_error(ax):
         err = np.abs(series - exact)
         assert np.all(r.error_lower[0, k] <= err + 1e-12) and np.all(err <= r.error_upper[0, k] + 1e-12)
     labels = [t.get_text() for t in a.legend.get_texts()]
-    assert "band: certified bracket of the error" in labels and "order 2" in labels
+    assert "band: certified bracket of each order's error" in labels and "order 2" in labels
 
 
 def test_errors_figure_with_bounds_only_names_orders_by_their_brackets(ax):
@@ -119,3 +119,52 @@ def test_levels_figure_with_bounds_only_draws_brackets_in_place_of_exact_curves(
     assert lo_y < exact.min() and exact.max() < hi_y  # the view holds the brackets
     assert "exact" not in [t.get_text() for t in a.legend.get_texts()]
     assert [t.get_text() for t in a.labels] == list(r.targets)
+
+
+def test_errors_legend_says_a_statement_once_for_all_tolerances(ax):
+    lam = np.linspace(0.0, 0.3, 21)
+    r = compare(two_level(), [0], [1, 2, 4], lam, reference="bounds")
+    bs = [validity_boundary(two_level(), 0, o, rtol=t, reference="bounds", max_coupling=0.3, coupling=0.3)
+          for o in (1, 2, 4) for t in (0.01, 0.05)]
+    a = plot_errors(r, bs, error="relative", ax=ax)
+    texts = [t.get_text() for t in a.legend.get_texts()]
+    assert [t for t in texts if t.startswith("order 4:")] == ["order 4: certified valid beyond λ = 0.3 at 1 % and 5 %"]
+    assert [t for t in texts if t.startswith("order 1:")] == ["order 1: fails at any λ ≠ 0 at 1 % and 5 %"]
+    # closed form (Sakurai 1994, §5.1): E = −√(¼ + λ²/4); order 1 adds nothing to −½, order 4 is −½ − λ²/4 + λ⁴/16
+    shift = 0.5 - np.sqrt(0.25 + 0.25 * lam[1:] ** 2)
+    assert np.all(np.abs(-0.25 * lam[1:] ** 2 + lam[1:] ** 4 / 16 - shift) / np.abs(shift) < 0.01)
+    assert np.all(np.abs(0.0 - shift) / np.abs(shift) > 0.05)
+    # both failures of order 1 are still drawn, one per tolerance
+    assert sum(ln.get_label().startswith(("order 1:", "_order 1:")) for ln in a.boundary_lines) == 2
+    # one neutral swatch names every order's band
+    (swatch,) = [h for h, t in zip(a.legend.legend_handles, texts) if t.startswith("band:")]
+    assert swatch.get_facecolor()[:3] == pytest.approx((0x8C / 255,) * 3)
+
+
+def test_levels_legend_says_when_no_bracket_is_wider_than_the_line(ax):
+    # brackets of the two-level model are ~1e-12 wide: invisible under the curve, and the legend says so
+    r = compare(two_level(), [0, 1], [2], np.linspace(0.0, 0.3, 21), reference="bounds")
+    a = plot_levels(r, ax=ax)
+    ax.figure.canvas.draw()
+    texts = [t.get_text() for t in a.legend.get_texts()]
+    assert "certified bracket of the exact value (thinner than the line)" in texts
+
+    def widest_points(res, artists):
+        lo, hi = artists.band_edges[0]
+        pix = ax.transData.transform(np.c_[np.zeros(len(res.couplings)), hi.get_ydata()])[:, 1] - \
+            ax.transData.transform(np.c_[np.zeros(len(res.couplings)), lo.get_ydata()])[:, 1]
+        return float(np.nanmax(pix)) * 72.0 / ax.figure.dpi
+
+    assert widest_points(r, a) < 0.1
+    # an invented six-level model (made-up numbers): level 1's bracket is wide near λ = 1, and the band is seen
+    g = np.random.default_rng(7).normal(size=(6, 6))
+    m = Model(np.diag([0.0, 1.0, 1.7, 2.6, 3.1, 4.0]), 0.25 * (g + g.T), name="invented six-level")
+    ax.clear()
+    r = compare(m, [1], [2], np.linspace(0.0, 1.0, 21), reference="bounds")
+    a = plot_levels(r, ax=ax)
+    ax.figure.canvas.draw()
+    texts = [t.get_text() for t in a.legend.get_texts()]
+    assert "certified bracket of the exact value" in texts
+    assert widest_points(r, a) > 20.0
+    (swatch,) = [h for h, t in zip(a.legend.legend_handles, texts) if t.startswith("certified bracket")]
+    assert swatch.get_edgecolor()[:3] == (0.0, 0.0, 0.0)  # drawn with the black edges the figure shows

@@ -7,6 +7,8 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from matplotlib.colors import to_rgba
+from matplotlib.patches import Patch
 
 from .._format import fmt_certified_range, fmt_toward
 from ..approximants import order_name
@@ -23,7 +25,7 @@ from ._common import (
     positive_or_nan,
     style_axes,
 )
-from ._style import EXACT_COLOR, FONT_SIZES, MARKER_COLOR, SHADE_COLOR, finite_style, order_style, style
+from ._style import BAND_COLOR, EXACT_COLOR, FONT_SIZES, MARKER_COLOR, SHADE_COLOR, finite_style, order_style, style
 from .levels import _order_indices, _target_indices, check_comparison, target_unit
 
 __all__ = ["ErrorArtists", "plot_errors", "ERROR_KINDS", "BRACKET_FIELDS", "error_label", "fmt_tolerance",
@@ -35,6 +37,8 @@ ERROR_KINDS = {"absolute": "abs_error", "relative": "rel_error", "infidelity": "
 BRACKET_FIELDS = {"absolute": ("error_lower", "error_upper"), "relative": ("rel_error_lower", "rel_error_upper")}
 #: Opacity of a certified error band (the order's colour).
 BAND_ALPHA = 0.22
+#: Legend entry of the bands (one neutral swatch for every order's band).
+BAND_LABEL = "band: certified bracket of each order's error"
 
 #: Line styles of successive tolerances (black): the boundary segments reuse them.
 TOLERANCE_DASHES = ((0, (1, 1.6)), (0, (5, 2)), (0, (7, 2, 1.5, 2)), (0, (2, 3)))
@@ -242,7 +246,7 @@ def plot_errors(
                 lo, hi = positive_or_nan(lower[ti, oi])[srt], positive_or_nan(upper[ti, oi])[srt]
                 lo_drawn = np.where(np.isnan(lo) & np.isfinite(hi), hi * 1e-3, lo)  # a bracket reaching 0: open below
                 band_arts.append(ax.fill_between(x, lo_drawn, hi, color=st["color"], alpha=BAND_ALPHA, linewidth=0,
-                                                 zorder=1.5, label="band: certified bracket of the error" if k == 0 else None))
+                                                 zorder=1.5, label=BAND_LABEL if k == 0 else None))
                 edge = dict(color=st["color"], linestyle=st["linestyle"], linewidth=(1.3 if not exact_known else 0.8) * lw,
                             alpha=1.0 if not exact_known else 0.7)
                 (e_lo,) = ax.plot(x, lo, **edge)
@@ -264,6 +268,7 @@ def plot_errors(
                                      label=label))
         ax.set_ylim(*ylim)
         b_lines, b_used, extra_handles, c_lines, c_used = [], [], [], [], []
+        same = {}  # statement without its tolerance -> (first artist, tolerances): said once, "at 1 % and 5 %"
         for b in boundaries:
             if b.target != result.targets[ti] or b.order not in result.orders or x.size == 0:
                 continue
@@ -297,6 +302,8 @@ def plot_errors(
                                 markeredgecolor="white", zorder=4, label=text)
                 b_lines.append(bl)
                 b_used.append(b)
+                if b.status == "fails_at_zero" and at:
+                    _said_once(same, bl, text[: -len(at)], at)
                 if x.size > 1 and not (x[0] <= start <= x[-1]):  # beyond the view: an arrowhead at the edge
                     right = start > x[-1]
                     ax.plot([x[-1] if right else x[0]], [top], linestyle="none", marker=">" if right else "<", color=col,
@@ -307,6 +314,8 @@ def plot_errors(
                                label=f"{order_name(b.order)}: {word} beyond λ = {fmt_physical(abs(b.max_coupling), phys)}{at}"
                                if math.isfinite(b.max_coupling) else f"{order_name(b.order)}: never exceeds it{at}")
                 extra_handles.append(h)
+                if at:
+                    _said_once(same, h, h.get_label()[: -len(at)], at)
         if exact_known and c_lines:
             (h,) = ax.plot([], [], color=MARKER_COLOR, linewidth=5 * lw, alpha=0.55, solid_capstyle="butt", marker="|",
                            markersize=12 * lw, label="bar on a tolerance: certified range of λ*")
@@ -323,8 +332,11 @@ def plot_errors(
         ax.set_ylabel(error_label(result, ti, error))
         style_axes(ax, scale)
         add_physical_axis(ax, phys, scale)
-        legend = add_legend(ax, scale, size=FONT_SIZES["legend"] * (0.9 if len(b_used) + len(c_used) + len(extra_handles) > 2
-                                                                    else 1.0))
+        handles, texts = ax.get_legend_handles_labels()
+        handles = [Patch(facecolor=to_rgba(BAND_COLOR, 0.45), linewidth=0) if t == BAND_LABEL else h
+                   for h, t in zip(handles, texts)]
+        legend = add_legend(ax, scale, handles=handles, labels=texts,
+                            size=FONT_SIZES["legend"] * (0.9 if len(texts) > 6 else 1.0))
         if caption is None:
             treat = result.treatments[ti]
             caption = caption_text(
@@ -372,6 +384,22 @@ def _certified_artists(ax: Any, b: Any, col: str, dash: Any, top: float, ylim: t
                          markerfacecolor=col, markeredgecolor="white", zorder=4, label=label)
         made.append(seg)
     return made
+
+
+def _said_once(same: dict, artist: Any, stem: str, at: str) -> None:
+    """Label ``artist`` "<stem> at <t1> and <t2>" when an earlier one said ``stem`` at another tolerance.
+
+    The first artist keeps the legend entry (its label lists every tolerance);
+    later ones stay drawn but leave the legend.
+    """
+    tol = at.removeprefix(" at ")
+    if stem not in same:
+        same[stem] = (artist, [tol])
+        return
+    first, tols = same[stem]
+    tols.append(tol)
+    first.set_label(f"{stem} at {', '.join(tols[:-1])} and {tols[-1]}")
+    artist.set_label("_" + artist.get_label())  # drawn, not listed
 
 
 def _with_phys(text: str, value: float, phys: Any, *, up: bool = False) -> str:

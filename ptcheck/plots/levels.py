@@ -6,6 +6,8 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from matplotlib.colors import to_rgba
+from matplotlib.patches import Patch
 
 from ._common import (
     add_caption,
@@ -18,10 +20,10 @@ from ._common import (
     physical_coupling,
     style_axes,
 )
-from ._style import CROSSING_COLOR, EXACT_COLOR, FONT_SIZES, MARKER_COLOR, finite_style, order_style, style
+from ._style import BAND_COLOR, CROSSING_COLOR, EXACT_COLOR, FONT_SIZES, MARKER_COLOR, finite_style, order_style, style
 
-#: Fill of the certified bracket of an exact value (neutral: not an order's colour).
-BAND_COLOR = "#8C8C8C"
+#: Opacity of the certified bracket of an exact value.
+BAND_ALPHA = 0.3
 
 __all__ = ["LevelArtists", "plot_levels", "crossing_info", "spread", "target_unit"]
 
@@ -194,13 +196,13 @@ def plot_levels(
                             label="exact" if k == 0 and exact_known else None, zorder=3)
             exact_lines.append(ex)
         band_arts, edge_arts = [], []
+        edge_width = (1.2 if not exact_known else 0.7) * lw
         if bands:
             for k, ti in enumerate(t_idx):
                 lo = np.asarray(result.exact_lower[ti], dtype=float)[srt] - offset[ti]
                 hi = np.asarray(result.exact_upper[ti], dtype=float)[srt] - offset[ti]
-                band_arts.append(ax.fill_between(x, lo, hi, color=BAND_COLOR, alpha=0.3, linewidth=0, zorder=2.5,
-                                                 label="certified bracket of the exact value" if k == 0 else None))
-                edge = dict(color=EXACT_COLOR, linewidth=(1.2 if not exact_known else 0.7) * lw, zorder=2.6)
+                band_arts.append(ax.fill_between(x, lo, hi, color=BAND_COLOR, alpha=BAND_ALPHA, linewidth=0, zorder=2.5))
+                edge = dict(color=EXACT_COLOR, linewidth=edge_width, zorder=2.6)
                 (e_lo,) = ax.plot(x, lo, **edge)
                 (e_hi,) = ax.plot(x, hi, **edge)
                 edge_arts.append((e_lo, e_hi))
@@ -247,7 +249,12 @@ def plot_levels(
         ax.set_ylabel(ylabel)
         style_axes(ax, scale)
         add_physical_axis(ax, physical_coupling(result, coupling_scale, coupling_unit), scale)
-        legend = add_legend(ax, scale)
+        handles, texts = ax.get_legend_handles_labels()
+        if band_arts:  # a swatch with the edges drawn; say so when no bracket is wider than the curve
+            widest = _widest_points(ax, np.asarray(result.exact_upper)[t_idx] - np.asarray(result.exact_lower)[t_idx])
+            handles.append(Patch(facecolor=to_rgba(BAND_COLOR, BAND_ALPHA), edgecolor=EXACT_COLOR, linewidth=edge_width))
+            texts.append("certified bracket of the exact value" + (" (thinner than the line)" if widest < 2.6 * lw else ""))
+        legend = add_legend(ax, scale, handles=handles, labels=texts)
         if caption is None:
             caption = caption_text(
                 "levels" if not _all_quantities(result, t_idx) else "values", model=result.model_name, n=result.n,
@@ -260,6 +267,15 @@ def plot_levels(
         crossings=tuple(crossings), caption=cap, legend=legend, labels=tuple(labels), bands=tuple(band_arts),
         band_edges=tuple(edge_arts), exact_known=exact_known,
     )
+
+
+def _widest_points(ax: Any, widths: np.ndarray) -> float:
+    """Largest of ``widths`` (data units along y) in points on the axes as laid out now (0 if none is finite)."""
+    lo, hi = ax.get_ylim()
+    finite = widths[np.isfinite(widths)]
+    if not finite.size or hi <= lo:
+        return 0.0
+    return float(finite.max()) * ax.get_position().height * ax.figure.get_figheight() * 72.0 / (hi - lo)
 
 
 def _end_labels(ax: Any, names: list[str], values: np.ndarray, scale: float) -> list[Any]:

@@ -190,14 +190,8 @@ def readout_html(
                 mark = _bracket_mark(float(e_lo[ti, oi]), float(e_hi[ti, oi]), t_sorted, tols, relative)
                 if exact_known:
                     mark = _point_mark(e, t_sorted, tols, relative, relative_to[ti], val_f) + "<br>" + mark
-            elif not np.isfinite(e):
-                ref = "shift" if ("shift" in relative_to[ti] or "change" in relative_to[ti]) else "value"
-                mark = (f"<span style='color:#666'>error undefined ({ref} ≈ 0)</span>" if relative and np.isfinite(val_f)
-                        else "<span style='color:#666'>error —</span>")
             else:
-                ok = sum(e <= t for t in t_sorted)
-                sym, col = ("✓", "#009E73") if ok == len(t_sorted) else ("✗", "#D55E00") if ok == 0 else ("◐", "#B77A00")
-                mark = f"<span style='color:{col}'>{sym} {html.escape(fmt_error(e, tols, relative))}</span>"
+                mark = _point_mark(e, t_sorted, tols, relative, relative_to[ti], val_f)
             cells += f"<td style='padding:0 10px'>{html.escape(val)} &nbsp;{mark}</td>"
         exact_cell = html.escape(value(float(point.exact[ti]))) if exact_known else ""
         if bounded:
@@ -212,12 +206,13 @@ def readout_html(
                  f"<td style='padding:0 10px'>{exact_cell}</td>{cells}</tr>")
     kinds = sorted(set(relative_to))
     err_word = (f"error in % of {' / '.join(kinds)}" if relative else f"absolute error in {unit}")
-    if bounded:
-        err_word += " · [a, b]: certified brackets (certified at the sweep points)"
+    n = np.asarray(result.couplings).size
+    between = (f"certified brackets [a, b] at the {n} sweep points, interpolated between" if bounded
+               else f"interpolated between the {n} sweep points")
     return (
         f"<div style='font-size:13px'><b>At {html.escape(where)}</b> "
         f"<span style='color:#555'>· {html.escape(what)} in {html.escape(unit)} · {html.escape(err_word)} · "
-        f"interpolated between the {np.asarray(result.couplings).size} sweep points</span>"
+        f"{html.escape(between)}</span>"
         f"<table style='margin-top:2px'><tr><th style='text-align:left'>target</th>"
         f"<th style='padding:0 10px;text-align:left'>exact</th>{head}</tr>{rows}</table></div>"
     )
