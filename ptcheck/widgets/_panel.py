@@ -23,6 +23,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import _validation as val
 from ..approximants import Pade, order_name
 from ..degeneracy import DEFAULT_MIXING_THRESHOLD
 from ..formula import formula
@@ -185,12 +186,8 @@ class Panel:
             raise ValueError(f"canvas must be one of {list(CANVAS_CHOICES)}; got {canvas!r}")
         if not isinstance(n_points, int) or n_points < 3:
             raise ValueError(f"n_points must be an int >= 3; got {n_points!r}")
-        references = [v for _, v in REFERENCE_CHOICES]
-        if reference not in references:
-            raise ValueError(f"reference must be one of {references}; got {reference!r}")
-        if isinstance(bounds_above, bool) or not isinstance(bounds_above, int) or bounds_above < 0:
-            raise ValueError(f"bounds_above must be a basis size (an int >= 0); got {bounds_above!r}")
-        self.bounds_above = bounds_above
+        val.check_choice(reference, "reference", [v for _, v in REFERENCE_CHOICES])
+        self.bounds_above = val.check_int(bounds_above, "bounds_above", minimum=0)
         if tol is not None and rtol is not None:
             raise ValueError(f"give tol (absolute) or rtol (relative), not both; got tol={tol!r}, rtol={rtol!r}")
         relative = tol is None
