@@ -359,10 +359,14 @@ def _fmt_ep(z: complex, mirrored: bool) -> str:
 
 
 def _label_eps(ax: Any, rec: dict, labels: tuple, window: tuple[float, float, float], scale: float) -> None:
+    x0, x1, _ = window
     for z, names, mirrored in _ep_clusters(rec, labels):
         if _in_window(z, window):
-            ax.annotate(f"{_fmt_ep(z, mirrored)}: {', '.join(names)}", xy=(z.real, z.imag), xytext=(9.0 * scale / 0.72, 0.0),
-                        textcoords="offset points", ha="left", va="center", fontsize=FONT_SIZES["caption"] * scale * 0.9,
+            # text runs toward the middle of the view, so it never leaves the axes for the legend beside them
+            right_half = z.real > x0 + 0.5 * (x1 - x0)
+            ax.annotate(f"{_fmt_ep(z, mirrored)}: {', '.join(names)}", xy=(z.real, z.imag),
+                        xytext=((-9.0 if right_half else 9.0) * scale / 0.72, 0.0), textcoords="offset points",
+                        ha="right" if right_half else "left", va="center", fontsize=FONT_SIZES["caption"] * scale * 0.9,
                         color=EP_COLOR, bbox={"boxstyle": "round,pad=0.15", "facecolor": "white", "edgecolor": "none",
                                               "alpha": 0.85}, zorder=6)
 
