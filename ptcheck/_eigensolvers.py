@@ -681,9 +681,13 @@ class SparseBackend:
 
     # ---------------------------------------------------------------- Chebyshev
     #: recent solves kept for extrapolating the start block
-    HISTORY = 5
+    HISTORY = 8
     #: points of the extrapolation polynomial (order EXTRAPOLATION_POINTS - 1)
     EXTRAPOLATION_POINTS = 4
+    #: smallest distance between extrapolation nodes, in units of the distance to the nearest one
+    EXTRAPOLATION_SPACING = 0.5
+    #: largest sum of |Lagrange weights| (it multiplies the errors of the stored blocks)
+    EXTRAPOLATION_MAX_GAIN = 40.0
 
     def _extrapolated(self, coupling: float, k: int, start_coupling: float | None) -> np.ndarray | None:
         """Start block from recent solves: polynomial extrapolation of aligned subspaces.
@@ -707,20 +711,22 @@ class SparseBackend:
         )
         pts = [anchor]
         for c, x in others:
-            if all(c != q[0] for q in pts):
+            # nodes clustered closer than half the step (e.g. refinement points around a
+            # narrow crossing) would make the Lagrange weights, and the start error, explode
+            if all(abs(c - q[0]) >= self.EXTRAPOLATION_SPACING * d0 for q in pts):
                 pts.append((c, x))
             if len(pts) == self.EXTRAPOLATION_POINTS:
                 break
+        weights = _lagrange_weights(coupling, [c for c, _ in pts])
+        while len(pts) > 2 and float(np.sum(np.abs(weights))) > self.EXTRAPOLATION_MAX_GAIN:
+            pts.pop()
+            weights = _lagrange_weights(coupling, [c for c, _ in pts])
         if len(pts) < 2:
             return None
         base = pts[0][1]
-        cs = [c for c, _ in pts]
         out = np.zeros_like(base)
         for i, (c, x) in enumerate(pts):
-            weight = 1.0
-            for j, cj in enumerate(cs):
-                if j != i:
-                    weight *= (coupling - cj) / (c - cj)
+            weight = weights[i]
             if i == 0:
                 out += weight * base
             else:
@@ -807,6 +813,16 @@ class SparseBackend:
                     achieved = np.log(worst / new_worst) / max(np.log(np.cosh(degree * gain)), 1e-12)
                     self._efficiency = float(np.clip(0.7 * self._efficiency + 0.3 * achieved, 0.3, 1.5))
         return None
+
+
+def _lagrange_weights(x: float, nodes: list[float]) -> np.ndarray:
+    """Weights of the values at ``nodes`` in the interpolating polynomial evaluated at ``x``."""
+    out = np.ones(len(nodes))
+    for i, ci in enumerate(nodes):
+        for j, cj in enumerate(nodes):
+            if j != i:
+                out[i] *= (x - cj) / (ci - cj)
+    return out
 
 
 # ---------------------------------------------------------------------------- qutip
