@@ -223,9 +223,10 @@ def test_untracked_partner_is_identified():
 
 
 def test_unresolvable_crossing_warns_and_is_noted():
-    # a gap of ~2e-7 with a depth cap of 2 halvings cannot be resolved: followed diabatically
+    # a gap of ~4e-7 with refinement switched off (max_depth=0: no halving, no two-level
+    # resolution) cannot be resolved: followed diabatically
     m = crossing_model(1e-6)
-    solver = ExactSolver(m, backend="dense", max_depth=2)
+    solver = ExactSolver(m, backend="dense", max_depth=0)
     with pytest.warns(TrackingWarning, match="narrower than resolvable"):
         sw = solver.track([1], np.linspace(0.0, 0.6, 6))  # grid avoids λ = 0.2 itself
     assert any("narrower than resolvable" in n for n in sw.notes)
