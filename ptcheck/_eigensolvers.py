@@ -539,7 +539,9 @@ class SparseBackend:
         self._spread = float(max(np.max(np.abs(self.e0)), np.ptp(self.e0)))
         self._efficiency = 1.0  # observed / predicted filter gain (log scale), adapted
         self._last_guards: np.ndarray | None = None  # guard vectors of the previous solve
-        self._history: list[tuple[float, np.ndarray]] = []  # (coupling, converged block) of recent solves
+        self._plan: tuple[float, int, float] | None = None  # last warm solve: (step, filter degree, residual / tol)
+        # (coupling, converged block aligned along the path, Ritz values, rotation Ritz -> aligned) of recent solves
+        self._history: list[tuple[float, np.ndarray, np.ndarray, np.ndarray]] = []
         self.fallbacks = 0
         self._work: tuple[np.ndarray, np.ndarray] | None = None  # probe scratch rows, reused
 
@@ -689,50 +691,99 @@ class SparseBackend:
     #: largest sum of |Lagrange weights| (it multiplies the errors of the stored blocks)
     EXTRAPOLATION_MAX_GAIN = 40.0
 
-    def _extrapolated(self, coupling: float, k: int, start_coupling: float | None) -> np.ndarray | None:
+    def _extrapolated(self, coupling: float, k: int, start_coupling: float | None) -> tuple[np.ndarray, np.ndarray, float] | None:
         """Start block from recent solves: polynomial extrapolation of aligned subspaces.
 
-        The blocks of up to four recent solves near ``coupling`` (the one at
-        ``start_coupling`` first, others no farther than 4.5x its distance) are
-        rotated onto the first one (orthogonal Procrustes) and combined with
-        Lagrange weights: the start error drops from O(δλ) to O(δλ⁴), which
-        saves about half of the filter degree along a sweep.
+        Every stored block was rotated onto the block of the solve it started
+        from (orthogonal Procrustes, :meth:`_remember`), so stored blocks along
+        a path vary smoothly with λ.  The blocks of up to four recent solves
+        near ``coupling`` (the one at ``start_coupling`` first, others no
+        farther than 4.5x its distance) are combined with Lagrange weights:
+        the start error drops from O(δλ) to O(δλ⁴), which saves about half of
+        the filter degree along a sweep.
+
+        Returns (start block (N, k), Ritz values (m + 1,) extrapolated with the
+        same weights, distance to the anchor) or None.
         """
         if start_coupling is None:
             return None
-        hist = [(c, x) for c, x in self._history if x.shape[1] == k]
-        anchor = next(((c, x) for c, x in hist if c == start_coupling), None)
+        hist = [h for h in self._history if h[1].shape[1] == k]
+        anchor = next((h for h in hist if h[0] == start_coupling), None)
         if anchor is None:
             return None
         d0 = abs(coupling - anchor[0])
         others = sorted(
-            ((c, x) for c, x in hist if c != anchor[0] and abs(coupling - c) <= (self.EXTRAPOLATION_POINTS + 0.5) * d0),
-            key=lambda t: abs(coupling - t[0]),
+            (h for h in hist if h[0] != anchor[0] and abs(coupling - h[0]) <= (self.EXTRAPOLATION_POINTS + 0.5) * d0),
+            key=lambda h: abs(coupling - h[0]),
         )
         pts = [anchor]
-        for c, x in others:
+        for h in others:
             # nodes clustered closer than half the step (e.g. refinement points around a
             # narrow crossing) would make the Lagrange weights, and the start error, explode
-            if all(abs(c - q[0]) >= self.EXTRAPOLATION_SPACING * d0 for q in pts):
-                pts.append((c, x))
+            if all(abs(h[0] - q[0]) >= self.EXTRAPOLATION_SPACING * d0 for q in pts):
+                pts.append(h)
             if len(pts) == self.EXTRAPOLATION_POINTS:
                 break
-        weights = _lagrange_weights(coupling, [c for c, _ in pts])
+        weights = _lagrange_weights(coupling, [h[0] for h in pts])
         while len(pts) > 2 and float(np.sum(np.abs(weights))) > self.EXTRAPOLATION_MAX_GAIN:
             pts.pop()
-            weights = _lagrange_weights(coupling, [c for c, _ in pts])
+            weights = _lagrange_weights(coupling, [h[0] for h in pts])
         if len(pts) < 2:
             return None
-        base = pts[0][1]
-        out = np.zeros_like(base)
-        for i, (c, x) in enumerate(pts):
-            weight = weights[i]
-            if i == 0:
-                out += weight * base
-            else:
-                u, _, vh = np.linalg.svd(inner(x, base))
-                out += weight * combine(x, u @ vh)
-        return out
+        out = weights[0] * pts[0][1]
+        for weight, h in zip(weights[1:], pts[1:]):
+            out += weight * h[1]
+        # back to the anchor's Ritz gauge: each column then carries mostly one eigenvector
+        # (a filter applied to it keeps the block well conditioned)
+        out = combine(out, pts[0][3].T)
+        thetas = [h[2] for h in pts]
+        th = sum(w * t for w, t in zip(weights, thetas)) if all(t.shape == thetas[0].shape for t in thetas) else pts[0][2]
+        return out, np.sort(th), d0
+
+    def _remember(self, coupling: float, x: np.ndarray, th: np.ndarray, start_coupling: float | None) -> None:
+        """Store a converged block, rotated onto the block of the solve it started from."""
+        k = x.shape[1]
+        anchor = next((h for h in self._history if h[0] == start_coupling and h[1].shape[1] == k), None)
+        if anchor is None:
+            block, rotation = x.copy(), np.eye(k)
+        else:
+            u, _, vh = np.linalg.svd(inner(x, anchor[1]))
+            rotation = u @ vh
+            block = combine(x, rotation)
+        self._history.append((coupling, block, th.copy(), rotation))
+        del self._history[: -self.HISTORY]
+
+    #: a sweep step within this relative distance of the last one reuses its filter degree (no first Rayleigh–Ritz)
+    PLAN_STEP_MATCH = 0.25
+    #: residual / tolerance aimed at when the degree is planned from the last step
+    PLAN_TARGET = 0.25
+    #: largest decrease of the planned degree from one step to the next
+    PLAN_MAX_DROP = 2
+
+    @staticmethod
+    def _gain(th: np.ndarray, k: int, upper: float) -> float | None:
+        """Growth per degree of the k-th Ritz value over the damped interval [th[-2], upper] (None if not below it)."""
+        cut = float(th[-2])
+        e = (upper - cut) / 2.0
+        c = (upper + cut) / 2.0
+        y_want = abs((th[k - 1] - c) / e)
+        if not (y_want > 1.0 and upper > cut):
+            return None
+        return float(np.arccosh(y_want))
+
+    @staticmethod
+    def _degree_cap(th: np.ndarray, upper: float, leak: float) -> int:
+        """Largest degree that keeps the block well conditioned.
+
+        The lowest Ritz vector leaks into the others at about ``leak`` (residual
+        / gap) and the filter enlarges that leak by the ratio of amplifications;
+        allow at most 1e7 after the leak.
+        """
+        cut = float(th[-2])
+        e = (upper - cut) / 2.0
+        c = (upper + cut) / 2.0
+        y_low = max(abs((th[0] - c) / e), 1.0 + 1e-12)
+        return int(min(80, max(4, int(np.arccosh(1e7 / max(leak, 1e-6)) / np.arccosh(y_low)))))
 
     def _filter_degree(self, th: np.ndarray, k: int, upper: float, worst: float, tol: float) -> tuple[int, float] | None:
         """(degree, gain per degree) of the filter that brings residuals ``worst`` below ``tol``.
@@ -740,21 +791,13 @@ class SparseBackend:
         ``th`` are the block's Ritz values (ascending; ``th[-2]`` is the cut above which
         the filter damps).  None when the wanted values are not below the cut.
         """
-        cut = float(th[-2])
-        e = (upper - cut) / 2.0
-        c = (upper + cut) / 2.0
-        y_want = abs((th[k - 1] - c) / e)
-        y_low = abs((th[0] - c) / e)
-        if not (y_want > 1.0 and upper > cut):
+        gain = self._gain(th, k, upper)
+        if gain is None:
             return None
-        gain = float(np.arccosh(y_want))
         need = np.arccosh(max(3.0 * worst / tol, 1.0 + 1e-12))
-        # keep the block well conditioned: the lowest Ritz vector leaks into the others
-        # at about residual / gap, and the filter enlarges that leak by the ratio of
-        # amplifications; allow at most 1e7 after the leak
         leak = min(1.0, worst / max(float(th[1] - th[0]), 1e-300))
-        cap = max(4, int(np.arccosh(1e7 / max(leak, 1e-6)) / np.arccosh(y_low)))
-        return int(np.clip(np.ceil(need / (gain * self._efficiency)), 4, min(80, cap))), gain
+        cap = self._degree_cap(th, upper, leak)
+        return int(np.clip(np.ceil(need / (gain * self._efficiency)), 4, cap)), gain
 
     def _chebyshev(self, coupling: float, k: int, start: np.ndarray, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray] | None:
         n = self.model.n
@@ -763,7 +806,8 @@ class SparseBackend:
         m = min(k + guards, n - 2)
         dtype = np.result_type(self.model.dtype, start.dtype, np.float64)
         block = np.empty((n, m + 1), dtype=dtype)
-        guess = self._extrapolated(coupling, k, start_coupling)
+        extrapolated = self._extrapolated(coupling, k, start_coupling)
+        guess = None if extrapolated is None else extrapolated[0]
         # converged part extrapolated when possible (guards are not smooth in λ)
         s = guess if guess is not None else start[:, :m]
         ns = s.shape[1]
@@ -786,6 +830,25 @@ class SparseBackend:
         tol = self.rtol * scale
         upper = float(np.max(self.e0)) + abs(coupling) * self.model.norm_v
         upper += 1e-6 * scale  # strict upper bound of the spectrum (Weyl)
+        plan = self._plan
+        total = 0  # filter degree spent on this solve
+        if (
+            extrapolated is not None and plan is not None and extrapolated[1].size == m + 1
+            and abs(extrapolated[2] - plan[0]) <= self.PLAN_STEP_MATCH * plan[0]
+        ):
+            # a sweep step like the last one: filter the extrapolated block straight away
+            # (no Rayleigh–Ritz on the start), degree from the last step's outcome
+            th_start = extrapolated[1]
+            gain = self._gain(th_start, k, upper)
+            if gain is not None:
+                change = np.log(plan[2] / self.PLAN_TARGET) / gain
+                degree = int(np.clip(plan[1] + np.ceil(max(change, -self.PLAN_MAX_DROP)), 4, self._degree_cap(th_start, upper, 1.0)))
+                # guards and the random probe made orthogonal to the start: a component of the
+                # lowest states left in them would grow fastest and swamp their own directions
+                head, tail = block[:, :k], block[:, k:]
+                tail -= combine(head, inner(head, tail))
+                block = op.filter(block, degree, float(th_start[0]), float(th_start[-2]), upper)
+                total = degree
         th, x, hx = _rayleigh_ritz(op, block)
         res = None
         for _ in range(self.MAX_ROUNDS):
@@ -796,13 +859,15 @@ class SparseBackend:
             worst = float(np.max(res))
             if worst <= tol:
                 self._last_guards = x[:, k:m].copy()
-                self._history.append((coupling, x[:, :k].copy()))
-                del self._history[: -self.HISTORY]
+                self._remember(coupling, x[:, :k], th, start_coupling)
+                if extrapolated is not None and total > 0:
+                    self._plan = (extrapolated[2], total, max(worst / tol, 1e-3))
                 return th[:k].copy(), x[:, :k].copy()
             step = self._filter_degree(th, k, upper, worst, tol)
             if step is None:
                 return None
             degree, gain = step
+            total += degree
             y = op.filter(x, degree, float(th[0]), float(th[-2]), upper)
             th, x, hx = _rayleigh_ritz(op, y)
             res = None
