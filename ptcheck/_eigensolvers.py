@@ -684,8 +684,12 @@ class SparseBackend:
     # ---------------------------------------------------------------- Chebyshev
     #: recent solves kept for extrapolating the start block
     HISTORY = 8
-    #: points of the extrapolation polynomial (order EXTRAPOLATION_POINTS - 1)
-    EXTRAPOLATION_POINTS = 4
+    #: nodes of the extrapolation (recent solves) and degree of the polynomial fitted to them
+    #: by least squares: one node more than the degree needs averages the solver noise of the
+    #: stored blocks instead of enlarging it (sum of |weights| 9.8 instead of 15 for a cubic
+    #: through four equally spaced nodes), which measured as 7 % fewer filter products
+    EXTRAPOLATION_POINTS = 5
+    EXTRAPOLATION_DEGREE = 3
     #: smallest distance between extrapolation nodes, in units of the distance to the nearest one
     EXTRAPOLATION_SPACING = 0.5
     #: largest sum of |Lagrange weights| (it multiplies the errors of the stored blocks)
@@ -696,11 +700,12 @@ class SparseBackend:
 
         Every stored block was rotated onto the block of the solve it started
         from (orthogonal Procrustes, :meth:`_remember`), so stored blocks along
-        a path vary smoothly with λ.  The blocks of up to four recent solves
-        near ``coupling`` (the one at ``start_coupling`` first, others no
-        farther than 4.5x its distance) are combined with Lagrange weights:
-        the start error drops from O(δλ) to O(δλ⁴), which saves about half of
-        the filter degree along a sweep.
+        a path vary smoothly with λ.  The blocks of up to
+        ``EXTRAPOLATION_POINTS`` recent solves near ``coupling`` (the one at
+        ``start_coupling`` first, others no farther than POINTS + 0.5 times its
+        distance) are combined with the weights of a least-squares polynomial
+        of ``EXTRAPOLATION_DEGREE``: the start error drops from O(δλ) to
+        O(δλ⁴), which saves about half of the filter degree along a sweep.
 
         Returns (start block (N, k), Ritz values (m + 1,) extrapolated with the
         same weights, distance to the anchor) or None.
@@ -724,10 +729,10 @@ class SparseBackend:
                 pts.append(h)
             if len(pts) == self.EXTRAPOLATION_POINTS:
                 break
-        weights = _lagrange_weights(coupling, [h[0] for h in pts])
+        weights = _fit_weights(coupling, [h[0] for h in pts], self.EXTRAPOLATION_DEGREE)
         while len(pts) > 2 and float(np.sum(np.abs(weights))) > self.EXTRAPOLATION_MAX_GAIN:
             pts.pop()
-            weights = _lagrange_weights(coupling, [h[0] for h in pts])
+            weights = _fit_weights(coupling, [h[0] for h in pts], self.EXTRAPOLATION_DEGREE)
         if len(pts) < 2:
             return None
         out = weights[0] * pts[0][1]
@@ -753,6 +758,8 @@ class SparseBackend:
         self._history.append((coupling, block, th.copy(), rotation))
         del self._history[: -self.HISTORY]
 
+    #: fewest guard vectors above the k wanted ones in the filtered block
+    GUARDS = 3
     #: a sweep step within this relative distance of the last one reuses its filter degree (no first Rayleigh–Ritz)
     PLAN_STEP_MATCH = 0.25
     #: residual / tolerance aimed at when the degree is planned from the last step
@@ -802,7 +809,7 @@ class SparseBackend:
     def _chebyshev(self, coupling: float, k: int, start: np.ndarray, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray] | None:
         n = self.model.n
         op = _Operator(self.e0, self._pattern, coupling)
-        guards = max(3, (k + 3) // 4)
+        guards = max(self.GUARDS, (k + 3) // 4)
         m = min(k + guards, n - 2)
         dtype = np.result_type(self.model.dtype, start.dtype, np.float64)
         block = np.empty((n, m + 1), dtype=dtype)
@@ -880,14 +887,15 @@ class SparseBackend:
         return None
 
 
-def _lagrange_weights(x: float, nodes: list[float]) -> np.ndarray:
-    """Weights of the values at ``nodes`` in the interpolating polynomial evaluated at ``x``."""
-    out = np.ones(len(nodes))
-    for i, ci in enumerate(nodes):
-        for j, cj in enumerate(nodes):
-            if j != i:
-                out[i] *= (x - cj) / (ci - cj)
-    return out
+def _fit_weights(x: float, nodes: list[float], degree: int) -> np.ndarray:
+    """Weights of the values at ``nodes`` in the least-squares polynomial of ``degree`` evaluated at ``x``.
+
+    With ``degree = len(nodes) - 1`` (or more) this is Lagrange interpolation.
+    """
+    t = np.asarray(nodes) - x
+    t = t / np.max(np.abs(t))
+    v = np.vander(t, min(degree, len(nodes) - 1) + 1, increasing=True)
+    return np.linalg.pinv(v)[0]
 
 
 # ---------------------------------------------------------------------------- qutip

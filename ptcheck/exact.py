@@ -1139,11 +1139,10 @@ class _SectorSolver:
             self._cache_add(ray, path[1:])
             for j, s in enumerate(sel):
                 p = path[where[inv[j]]]
-                for i, t in enumerate(lv):
-                    c = p.column(t)
-                    energies[i, s] = p.energies[c]
-                    if states is not None:
-                        states[i, s] = p.vectors[:, c]
+                cols = [p.column(t) for t in lv]
+                energies[:, s] = p.energies[cols]
+                if states is not None:
+                    states[:, s] = p.vectors[:, cols].T
             if find_crossings:
                 crossings.extend(self._crossings(path, lv))
         fb = getattr(self._impl, "fallbacks", 0) - fallbacks0
