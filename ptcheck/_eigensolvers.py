@@ -131,6 +131,12 @@ def _nearest_block(w: np.ndarray, sigma: float, k: int) -> int:
 
 
 # ---------------------------------------------------------------------------- sparse
+try:  # scipy's CSR kernel that adds A @ X into a given block (what ``A @ X`` calls after allocating)
+    from scipy.sparse._sparsetools import csr_matvecs as _csr_matvecs
+except ImportError:  # pragma: no cover - depends on the scipy build
+    _csr_matvecs = None
+
+
 class _Pattern:
     """CSR pattern of V plus the diagonal, to build ``α V + diag(d)`` in O(nnz)."""
 
@@ -158,7 +164,31 @@ class _Pattern:
             return a
         data = alpha * self.v_data
         data[self.diag_pos] += diag
-        return sp.csr_matrix((data, self.indices, self.indptr), shape=self.shape, copy=False)
+        if _csr_matvecs is None:  # pragma: no cover - depends on the scipy build
+            return sp.csr_matrix((data, self.indices, self.indptr), shape=self.shape, copy=False)
+        return _Csr(self.indptr, self.indices, data, self.shape)
+
+
+class _Csr:
+    """A CSR matrix on trusted arrays, multiplied through scipy's kernel.
+
+    Building a ``scipy.sparse.csr_matrix`` validates its arrays (about as long
+    as a product with a 15-column block of a 2^11-state chain); a filter builds
+    one per solve, so the sweep uses this thin holder instead.
+    """
+
+    __slots__ = ("indptr", "indices", "data", "shape", "dtype")
+
+    def __init__(self, indptr: np.ndarray, indices: np.ndarray, data: np.ndarray, shape: tuple[int, int]) -> None:
+        self.indptr, self.indices, self.data, self.shape = indptr, indices, data, shape
+        self.dtype = data.dtype
+
+    def __matmul__(self, x: np.ndarray) -> np.ndarray:
+        if x.ndim != 2 or x.dtype != self.dtype:
+            return sp.csr_matrix((self.data, self.indices, self.indptr), shape=self.shape, copy=False) @ x
+        out = np.zeros((self.shape[0], x.shape[1]), dtype=x.dtype)
+        _accumulate_product(self, np.ascontiguousarray(x), out)
+        return out
 
 
 class _DiagonalPlus:
@@ -213,17 +243,11 @@ class _Operator:
         return prev
 
 
-try:  # scipy's CSR kernel that adds A @ X into a given block (what ``A @ X`` calls after allocating)
-    from scipy.sparse._sparsetools import csr_matvecs as _csr_matvecs
-except ImportError:  # pragma: no cover - depends on the scipy build
-    _csr_matvecs = None
-
-
 def _accumulate_product(a: Any, x: np.ndarray, out: np.ndarray) -> None:
     """``out += a @ x`` for a CSR or dense ``a`` and C-contiguous blocks of one dtype."""
     if (
-        _csr_matvecs is not None and sp.isspmatrix_csr(a) and x.ndim == 2 and x.flags.c_contiguous
-        and out.flags.c_contiguous and a.dtype == x.dtype == out.dtype
+        _csr_matvecs is not None and (isinstance(a, _Csr) or sp.isspmatrix_csr(a)) and x.ndim == 2
+        and x.flags.c_contiguous and out.flags.c_contiguous and a.dtype == x.dtype == out.dtype
     ):
         n_row, n_col = a.shape
         _csr_matvecs(n_row, n_col, x.shape[1], a.indptr, a.indices, a.data, x.ravel(), out.ravel())
@@ -248,11 +272,12 @@ def inner(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     n, k = a.shape
     m = b.shape[1]
     step = _rows_per_chunk(k, m)
+    at = a.T.conj() if np.iscomplexobj(a) else a.T  # conj() of a real array would copy it
     if n <= step:
-        return a.conj().T @ b
-    out = a[:step].conj().T @ b[:step]
+        return at @ b
+    out = at[:, :step] @ b[:step]
     for i in range(step, n, step):
-        out += a[i : i + step].conj().T @ b[i : i + step]
+        out += at[:, i : i + step] @ b[i : i + step]
     return out
 
 
@@ -760,6 +785,7 @@ class SparseBackend:
 
     #: fewest guard vectors above the k wanted ones in the filtered block
     GUARDS = 3
+    GUARD_RATIO = 4
     #: a sweep step within this relative distance of the last one reuses its filter degree (no first Rayleigh–Ritz)
     PLAN_STEP_MATCH = 0.25
     #: residual / tolerance aimed at when the degree is planned from the last step
@@ -809,7 +835,7 @@ class SparseBackend:
     def _chebyshev(self, coupling: float, k: int, start: np.ndarray, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray] | None:
         n = self.model.n
         op = _Operator(self.e0, self._pattern, coupling)
-        guards = max(self.GUARDS, (k + 3) // 4)
+        guards = max(self.GUARDS, (k + 3) // self.GUARD_RATIO)
         m = min(k + guards, n - 2)
         dtype = np.result_type(self.model.dtype, start.dtype, np.float64)
         block = np.empty((n, m + 1), dtype=dtype)
@@ -895,7 +921,9 @@ def _fit_weights(x: float, nodes: list[float], degree: int) -> np.ndarray:
     t = np.asarray(nodes) - x
     t = t / np.max(np.abs(t))
     v = np.vander(t, min(degree, len(nodes) - 1) + 1, increasing=True)
-    return np.linalg.pinv(v)[0]
+    if v.shape[0] == v.shape[1]:
+        return np.linalg.solve(v.T, np.eye(v.shape[0])[0])
+    return v @ np.linalg.solve(v.T @ v, np.eye(v.shape[1])[0])  # minimum-norm weights (normal equations, nodes well spread)
 
 
 # ---------------------------------------------------------------------------- qutip
