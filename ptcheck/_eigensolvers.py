@@ -21,7 +21,11 @@ field calculations using Chebyshev-filtered subspace iteration", J. Comput.
 Phys. 219, 172 (2006), algorithm 4.1 for the scaled three-term filter) with
 Rayleigh–Ritz after each filter and SVQB orthonormalisation (A. Stathopoulos,
 K. Wu, "A block orthogonalization procedure with constant synchronization
-requirements", SIAM J. Sci. Comput. 23, 2165 (2002)).  Its cost is dominated by
+requirements", SIAM J. Sci. Comput. 23, 2165 (2002)).  Along a sweep the start
+block is extrapolated from recent solves (least-squares cubic of blocks aligned
+along the path); when the step matches the last one, that block is filtered
+straight away with a degree planned from the last step's outcome, skipping the
+Rayleigh–Ritz on the start.  Its cost is dominated by
 sparse block mat-vecs, which is what made it the fastest option measured on
 two cores for tracked sweeps (see ``benchmarks/bench_exact.py``); ARPACK
 (``scipy.sparse.linalg.eigsh``) is used for cold starts, shift-invert windows

@@ -21,6 +21,17 @@ Tracking rules (all thresholds are class attributes of :class:`ExactSolver`):
   i.e. when the step jumped over an avoided crossing; a swap with an uncoupled
   state (an exact, e.g. symmetry-protected, crossing) gets at most
   ``EXACT_CROSSING_DEPTH`` = 1 halving and is then followed diabatically;
+* before halving, a tracked state and its neighbour that swapped order (or
+  matched ambiguously) are examined as an isolated two-level problem when the
+  plane they span is the same at both step ends (squared cosine of the
+  smallest principal angle >= ``PAIR_SUBSPACE`` = 0.9): the minimum of their
+  squared gap (quadratic in λ for two levels) is located with at most
+  ``PAIR_EVALS`` = 5 solves, started at the crossing of the diabatic lines;
+  a minimum gap above ``RESOLVABLE_GAP`` = 20 residual tolerances is followed
+  adiabatically and reported as the avoided crossing (no halving spent on an
+  anticrossing narrower than the step); below that gap a swapped pair counts
+  as an exact crossing (followed diabatically: the solver cannot tell it
+  from one) and an ambiguous one is left to the rules below;
 * if the depth cap is reached, the level is continued diabatically (largest
   overlap), a note is recorded in the result and a
   :class:`~ptcheck.errors.TrackingWarning` is emitted.  Whether two states are
@@ -665,11 +676,11 @@ class _SectorSolver:
                 lam, gap = self._pair_minimum(a, raw, (r, r2), (c, c2), w)
                 lo_row, hi_row = (r, r2) if a.energies[r] <= a.energies[r2] else (r2, r)
                 if gap > floor:  # adiabatic: the lower state at a stays the lower one
-                    lo_col, hi_col = min(c, c2), max(c, c2)
-                    col_of[lo_row], col_of[hi_row] = lo_col, hi_col
+                    col_of[lo_row], col_of[hi_row] = min(c, c2), max(c, c2)
                     records.append((lo_row, hi_row, lam, gap))
                 elif not swapped:
-                    continue  # ambiguous and unresolvable: halving decides
+                    continue  # ambiguous and below the solver's resolution: the step checks decide
+                # (a swap below the resolution keeps its diabatic assignment: an exact crossing)
                 resolved[r], resolved[r2] = int(col_of[r2]), int(col_of[r])
                 break
         return resolved, records
