@@ -22,8 +22,9 @@ Tracking rules (all thresholds are class attributes of :class:`ExactSolver`):
   state (an exact, e.g. symmetry-protected, crossing) gets at most
   ``EXACT_CROSSING_DEPTH`` = 1 halving and is then followed diabatically;
 * before halving, a tracked state and its neighbour that swapped order (or
-  matched ambiguously) are examined as an isolated two-level problem when the
-  plane they span is the same at both step ends (squared cosine of the
+  matched ambiguously) are examined as an isolated two-level problem when V
+  couples them (the coupling test below) and the plane they span is the same
+  at both step ends (squared cosine of the
   smallest principal angle >= ``PAIR_SUBSPACE`` = 0.9): the minimum of their
   squared gap (quadratic in λ for two levels) is located with at most
   ``PAIR_EVALS`` = 5 solves, started at the crossing of the diabatic lines;
@@ -635,7 +636,9 @@ class _SectorSolver:
         A tracked state and its neighbour in energy at ``a`` whose matched states at
         the other end are neighbours in the opposite energy order (a swap), or
         matched with an ambiguous overlap, are examined as a two-level problem
-        when their plane is the same at both ends (``PAIR_SUBSPACE``): inside that
+        when V couples them at ``a`` (:meth:`_coupled`; an uncoupled pair is an
+        exact crossing, left to the step checks) and their plane is the same at
+        both ends (``PAIR_SUBSPACE``): inside that
         plane the family is a 2 x 2 problem, whose only event is one anticrossing
         with a squared gap quadratic in λ.  Its minimum gap is located by
         successive parabolic interpolation of the squared gap from the two ends
@@ -673,6 +676,8 @@ class _SectorSolver:
                 cosines = np.linalg.svd(inner(a.vectors[:, [r, r2]], x[:, [c, c2]]), compute_uv=False)
                 if float(cosines[-1]) ** 2 < self.PAIR_SUBSPACE:
                     continue
+                if not self._coupled(a, r, r2, abs(float(a.energies[r] - a.energies[r2]))):
+                    continue  # V does not couple the pair: an exact crossing, judged by the step checks
                 lam, gap = self._pair_minimum(a, raw, (r, r2), (c, c2), w)
                 lo_row, hi_row = (r, r2) if a.energies[r] <= a.energies[r2] else (r2, r)
                 if gap > floor:  # adiabatic: the lower state at a stays the lower one

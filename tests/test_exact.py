@@ -235,6 +235,24 @@ def test_narrow_anticrossing_inside_a_step_is_located_without_halving(backend, n
     assert not sw.notes
 
 
+def test_pair_coupled_below_round_off_is_an_exact_crossing_not_an_anticrossing():
+    # Level 0 (E0 = 0) is coupled to the others only by 1e-16 x V1; level 1 is mixed with level 2 and
+    # meets level 0 near λ = -4.6 with a gap ~1e-17, far below round-off.  The two-level search inside
+    # the step cannot resolve that gap (the pair's squared gap is not a parabola: level 2 bends it), so
+    # its sampled minimum must not be reported as an avoided crossing: level 0 stays at E = 0 to
+    # round-off (eigvalsh of the 3 x 3 matrix below; common practice, no source)
+    h0 = np.diag([0.0, 1.0, 2.5])
+    v1 = np.array([[0, 0.3, 0], [0.3, 0, 0.2], [0, 0.2, 0]])
+    v2 = np.diag([0.0, 0.2, -0.1]) + np.array([[0, 0, 0], [0, 0, 0.1], [0, 0.1, 0]])
+    m = Model(h0, v2 + 1e-16 * v1)
+    lam = np.linspace(0.0, -12.0, 13)
+    sw = track(m, [0], lam, backend="dense")
+    assert sw.avoided_crossings == ()
+    ref = [np.linalg.eigvalsh(h0 + c * (v2 + 1e-16 * v1)) for c in lam]
+    assert all(np.min(np.abs(r)) < 1e-12 for r in ref)  # test set-up: 0 stays an eigenvalue
+    assert_allclose(sw.energy(0), 0.0, atol=1e-12)
+
+
 def test_long_sparse_sweep_equals_dense_eigenvalues_and_crossings_equal_brute_force():
     # 61 equal steps on an 8-spin chain in non-uniform fields (invented numbers, the benchmark's model at
     # a smaller size): after a few steps the iterative backend filters the extrapolated block of the
