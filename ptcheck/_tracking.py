@@ -48,6 +48,8 @@ class PathPoint:
     res_tol: float  # residual tolerance of the solve (energy units)
     certified: frozenset = field(default_factory=frozenset)
     drift: int = 0  # largest change of a tracked level's column over the step that led here
+    # two-level anticrossings resolved inside the step that led here: (id, id, coupling, min gap)
+    crossings: tuple = ()
 
     def column(self, level: int) -> int | None:
         """Column holding identity ``level`` (None if absent)."""

@@ -21,6 +21,18 @@ Tracking rules (all thresholds are class attributes of :class:`ExactSolver`):
   i.e. when the step jumped over an avoided crossing; a swap with an uncoupled
   state (an exact, e.g. symmetry-protected, crossing) gets at most
   ``EXACT_CROSSING_DEPTH`` = 1 halving and is then followed diabatically;
+* before halving, a tracked state and its neighbour that swapped order (or
+  matched ambiguously) are examined as an isolated two-level problem when V
+  couples them (the coupling test below) and the plane they span is the same
+  at both step ends (squared cosine of the
+  smallest principal angle >= ``PAIR_SUBSPACE`` = 0.9): the minimum of their
+  squared gap (quadratic in λ for two levels) is located with at most
+  ``PAIR_EVALS`` = 5 solves, started at the crossing of the diabatic lines;
+  a minimum gap above ``RESOLVABLE_GAP`` = 20 residual tolerances is followed
+  adiabatically and reported as the avoided crossing (no halving spent on an
+  anticrossing narrower than the step); below that gap a swapped pair counts
+  as an exact crossing (followed diabatically: the solver cannot tell it
+  from one) and an ambiguous one is left to the rules below;
 * if the depth cap is reached, the level is continued diabatically (largest
   overlap), a note is recorded in the result and a
   :class:`~ptcheck.errors.TrackingWarning` is emitted.  Whether two states are
@@ -352,6 +364,7 @@ class _SectorSolver:
         self._probe_bases: dict[int, tuple[Any, Any] | None] = {}  # level -> (RS series, ProbeBasis) or None
         self._probes: dict[tuple[int, int], list[tuple[float, float, np.ndarray]]] = {}  # (ray, level) -> (|λ|, E, window)
         self._probe_failed: dict[tuple[int, int], float] = {}  # (ray, level) -> smallest |λ| that failed
+        self._pair_minima: dict[int, list[tuple[frozenset, float, float]]] = {+1: [], -1: []}  # ray -> (ids, λ, gap)
 
     def __repr__(self) -> str:
         return f"_SectorSolver({self.model!r}, backend={self.backend!r}, solves={self.solves})"
@@ -520,8 +533,12 @@ class _SectorSolver:
         self._anon -= 1
         return self._anon + 1
 
-    def _match(self, a: PathPoint, raw: _Raw, tracked: frozenset) -> tuple[PathPoint, _StepCheck]:
-        """Carry identities from ``a`` to the solve ``raw`` and judge the step."""
+    def _match(self, a: PathPoint, raw: _Raw, tracked: frozenset, *, pairs: bool = False) -> tuple[PathPoint, _StepCheck]:
+        """Carry identities from ``a`` to the solve ``raw`` and judge the step.
+
+        With ``pairs``, swapped or ambiguous neighbours that form an isolated
+        two-level anticrossing are resolved inside the step (:meth:`_resolve_pairs`).
+        """
         ctol = 10.0 * max(raw.res_tol, a.res_tol)
         w, x = align_clusters(a.vectors, raw.energies, raw.vectors, ctol)
         if not x.flags.writeable or x is raw.vectors:
@@ -529,13 +546,17 @@ class _SectorSolver:
         ov = overlaps(a.vectors, x)
         col_of = assign(ov)
         kb = w.size
+        resolved: dict[int, int] = {}  # row at a -> column of its resolved partner at b
+        records: list = []
+        if pairs and self.max_depth > 0:
+            resolved, records = self._resolve_pairs(a, raw, w, x, ov, col_of, tracked)
         ids = np.full(kb, 0, dtype=np.int64)
         taken = np.zeros(kb, dtype=bool)
         match = np.full(kb, -1, dtype=int)
         for r, c in enumerate(col_of):
             if c < 0:
                 continue
-            if ov[r, c] >= self.MATCH_OVERLAP or int(a.ids[r]) in tracked:
+            if ov[r, c] >= self.MATCH_OVERLAP or int(a.ids[r]) in tracked or r in resolved:
                 ids[c] = a.ids[r]
                 taken[c] = True
                 match[c] = r
@@ -545,6 +566,7 @@ class _SectorSolver:
         b = PathPoint(
             coupling=raw.coupling, energies=w, vectors=x, ids=ids, lo=raw.lo, top=raw.top, res_tol=raw.res_tol,
             certified=frozenset(tracked),
+            crossings=tuple((int(a.ids[r1]), int(a.ids[r2]), lam, gap) for r1, r2, lam, gap in records),
         )
         problems: list = []
         lost = False
@@ -560,7 +582,7 @@ class _SectorSolver:
             if c < 0 or weight < self.LOST_WEIGHT or at_low_edge or at_high_edge:
                 lost = True
                 continue
-            if ov[r, c] < self.MIN_OVERLAP:
+            if ov[r, c] < self.MIN_OVERLAP and r not in resolved:
                 second = np.partition(ov[r], -2)[-2] if kb > 1 else 0.0
                 q = int(np.argmax(np.where(np.arange(kb) == c, -1.0, ov[r])))
                 problems.append((t, int(ids[q]) if second > 0 else None, "ambiguous"))
@@ -571,7 +593,7 @@ class _SectorSolver:
             db_all = eb_t - w
             da_all = ea_t - a.energies[np.maximum(match, 0)]
             flipped = (da_all * db_all < 0) & (np.abs(da_all) > ctol) & (np.abs(db_all) > ctol)
-            suspects = np.flatnonzero((flipped | (match < 0)) & (np.arange(kb) != c))
+            suspects = np.flatnonzero((flipped | (match < 0)) & (np.arange(kb) != c) & (np.arange(kb) != resolved.get(r, -1)))
             for c2 in suspects:
                 c2 = int(c2)
                 r2 = match[c2]
@@ -593,6 +615,115 @@ class _SectorSolver:
                 coupled = self._coupled(b, c, c2, abs(db)) and (r2 < 0 or self._coupled(a, r, r2, abs(da)))
                 problems.append((t, int(ids[c2]) if r2 >= 0 else None, "swap" if coupled else "crossing"))
         return b, _StepCheck(ok=not problems and not lost, lost=lost, problems=problems)
+
+    # ------------------------------------------------------------------ two-level anticrossings
+    #: a swapped or ambiguous pair of neighbouring states is treated as an isolated two-level
+    #: problem when the plane it spans at one step end lies in the plane of its two matched
+    #: states at the other end up to this squared cosine (smallest principal angle)
+    PAIR_SUBSPACE = 0.9
+    #: a two-level anticrossing whose minimum gap exceeds this many residual tolerances is
+    #: followed adiabatically (the states keep their energy order); a smaller minimum gap is
+    #: below what the solver resolves and counts as an exact crossing (followed diabatically)
+    RESOLVABLE_GAP = 20.0
+    #: exact solves spent locating the minimum gap of one two-level anticrossing
+    PAIR_EVALS = 5
+
+    def _resolve_pairs(
+        self, a: PathPoint, raw: _Raw, w: np.ndarray, x: np.ndarray, ov: np.ndarray, col_of: np.ndarray, tracked: frozenset
+    ) -> tuple[dict[int, int], list[tuple[int, int, float, float]]]:
+        """Resolve isolated two-level anticrossings met inside the step from ``a`` to ``raw``.
+
+        A tracked state and its neighbour in energy at ``a`` whose matched states at
+        the other end are neighbours in the opposite energy order (a swap), or
+        matched with an ambiguous overlap, are examined as a two-level problem
+        when V couples them at ``a`` (:meth:`_coupled`; an uncoupled pair is an
+        exact crossing, left to the step checks) and their plane is the same at
+        both ends (``PAIR_SUBSPACE``): inside that
+        plane the family is a 2 x 2 problem, whose only event is one anticrossing
+        with a squared gap quadratic in λ.  Its minimum gap is located by
+        successive parabolic interpolation of the squared gap from the two ends
+        and the crossing of the diabatic lines (``PAIR_EVALS`` solves at most,
+        instead of halving the step down to the anticrossing's width).
+
+        * minimum gap above ``RESOLVABLE_GAP`` x the residual tolerance: the
+          states are followed adiabatically (``col_of`` is changed in place so
+          that the pair keeps its energy order) and the anticrossing is recorded;
+        * below it, a swap is an exact crossing within the solver's resolution
+          and keeps the diabatic assignment; an ambiguous pair is left to halving.
+
+        Returns (row -> partner column for every settled row, records
+        ``(lower row, upper row, coupling of the minimum, minimum gap)``).
+        """
+        resolved: dict[int, int] = {}
+        records: list[tuple[int, int, float, float]] = []
+        ka = a.energies.size
+        floor = self.RESOLVABLE_GAP * max(a.res_tol, raw.res_tol)
+        for t in sorted(tracked):
+            r = a.column(t)
+            if r is None or r in resolved or col_of[r] < 0:
+                continue
+            c = int(col_of[r])
+            for r2 in (r - 1, r + 1):
+                if not 0 <= r2 < ka or r2 in resolved or col_of[r2] < 0:
+                    continue
+                c2 = int(col_of[r2])
+                if abs(c2 - c) != 1:
+                    continue
+                swapped = (r2 - r) * (c2 - c) < 0
+                weak = min(ov[r, c], ov[r2, c2]) < self.MIN_OVERLAP
+                if not (swapped or weak):
+                    continue
+                cosines = np.linalg.svd(inner(a.vectors[:, [r, r2]], x[:, [c, c2]]), compute_uv=False)
+                if float(cosines[-1]) ** 2 < self.PAIR_SUBSPACE:
+                    continue
+                if not self._coupled(a, r, r2, abs(float(a.energies[r] - a.energies[r2]))):
+                    continue  # V does not couple the pair: an exact crossing, judged by the step checks
+                lam, gap = self._pair_minimum(a, raw, (r, r2), (c, c2), w)
+                lo_row, hi_row = (r, r2) if a.energies[r] <= a.energies[r2] else (r2, r)
+                if gap > floor:  # adiabatic: the lower state at a stays the lower one
+                    col_of[lo_row], col_of[hi_row] = min(c, c2), max(c, c2)
+                    records.append((lo_row, hi_row, lam, gap))
+                elif not swapped:
+                    continue  # ambiguous and below the solver's resolution: the step checks decide
+                # (a swap below the resolution keeps its diabatic assignment: an exact crossing)
+                resolved[r], resolved[r2] = int(col_of[r2]), int(col_of[r])
+                break
+        return resolved, records
+
+    def _pair_minimum(self, a: PathPoint, raw: _Raw, rows: tuple[int, int], cols: tuple[int, int], w: np.ndarray) -> tuple[float, float]:
+        """(coupling, gap) of the minimum gap of a two-level pair between ``a`` and ``raw`` (a few solves)."""
+        (r, r2), (c, c2) = rows, cols
+        la, lb = a.coupling, raw.coupling
+        key = frozenset((int(a.ids[r]), int(a.ids[r2])))
+        ray = 1 if lb > 0 else -1
+        lo, hi = min(la, lb), max(la, lb)
+        for pair, lam, gap in self._pair_minima[ray]:
+            if pair == key and lo <= lam <= hi:
+                return lam, gap  # located on an earlier path through this step (e.g. a bisection)
+        da = float(a.energies[r] - a.energies[r2])
+        db = float(w[c] - w[c2])  # same characters at the other end (diabatic lines)
+        frac = da / (da - db) if da * db < 0 else 0.5
+        mid = la + float(np.clip(frac, 0.05, 0.95)) * (lb - la)
+        pair = a.vectors[:, [r, r2]]
+
+        def gap2(lam: float) -> float:
+            out = self._solve(float(lam), raw.spec, a.vectors, a.coupling)
+            e = out.energies
+            if e.size < 2:
+                return np.inf
+            weight = np.sum(np.abs(inner(out.vectors, pair)) ** 2, axis=1)
+            best = int(np.argmax(weight[:-1] + weight[1:]))
+            return float((e[best + 1] - e[best]) ** 2)
+
+        pts = sorted([(la, da * da), (mid, gap2(mid)), (lb, db * db)])
+        xs = tuple(p[0] for p in pts)
+        fs = tuple(p[1] for p in pts)
+        xtol = 1e-6 * abs(lb - la) + 1e-15
+        lam, g2, _ = parabolic_minimum(gap2, xs, fs, max_evals=self.PAIR_EVALS - 1, xtol=xtol)
+        lam, gap = float(lam), float(np.sqrt(max(g2, 0.0)))
+        if min(key) >= 0:
+            self._pair_minima[ray].append((key, lam, gap))
+        return lam, gap
 
     def _coupled(self, p: PathPoint, i: int, j: int, gap: float) -> bool:
         """Is |⟨ψ_i|V|ψ_j⟩| larger than the eigenvector errors of the solve can explain?
@@ -629,7 +760,7 @@ class _SectorSolver:
             spec = self._spec(a, tracked, pad)
             if raw is None or raw.spec != spec or raw.coupling != coupling:
                 raw = self._solve(coupling, spec, a.vectors, a.coupling)
-            b, check = self._match(a, raw, tracked)
+            b, check = self._match(a, raw, tracked, pairs=True)
             if not check.lost:
                 break
             pad = 2 * pad + 2
@@ -1024,11 +1155,10 @@ class _SectorSolver:
             self._cache_add(ray, path[1:])
             for j, s in enumerate(sel):
                 p = path[where[inv[j]]]
-                for i, t in enumerate(lv):
-                    c = p.column(t)
-                    energies[i, s] = p.energies[c]
-                    if states is not None:
-                        states[i, s] = p.vectors[:, c]
+                cols = [p.column(t) for t in lv]
+                energies[:, s] = p.energies[cols]
+                if states is not None:
+                    states[:, s] = p.vectors[:, cols].T
             if find_crossings:
                 crossings.extend(self._crossings(path, lv))
         fb = getattr(self._impl, "fallbacks", 0) - fallbacks0
@@ -1066,16 +1196,37 @@ class _SectorSolver:
 
     def _crossings(self, path: list[PathPoint], levels: tuple[int, ...]) -> list[AvoidedCrossing]:
         out = []
+        wanted = set(levels)
+        # anticrossings already located while tracking (two-level pairs resolved inside a step);
+        # the sampled gap minimum of such a pair sits at one end of that step
+        done: set[tuple[frozenset, int]] = set()
+        for j, p in enumerate(path):
+            for i1, i2, lam, gap in p.crossings:
+                if i1 in wanted or i2 in wanted:
+                    out.append(self._resolved_crossing(p, i1, i2, lam, gap))
+                    done.update({(frozenset((i1, i2)), j - 1), (frozenset((i1, i2)), j)})
         seen: set[tuple[frozenset, int]] = set()
         scale = self._scale(abs(path[-1].coupling))
         for t in levels:
             for gm in gap_minima(path, t, scale):
                 key = (frozenset((gm.level, gm.partner_id)), gm.index)
-                if gm.partner_id >= 0 and key in seen:
-                    continue  # the same minimum seen from the partner (both tracked): refined once
+                if key in done or (gm.partner_id >= 0 and key in seen):
+                    continue  # resolved while tracking, or the same minimum seen from the partner: refined once
                 seen.add(key)
                 out.append(self._refine_crossing(path, gm))
         return out
+
+    def _resolved_crossing(self, p: PathPoint, i1: int, i2: int, lam: float, gap: float) -> AvoidedCrossing:
+        """AvoidedCrossing of a two-level pair resolved inside the step that led to ``p``."""
+        ids = [i1, i2]
+        if i1 < 0 or i2 < 0:  # an untracked partner that entered the window: name it by its largest component
+            t, other = (i2, i1) if i1 < 0 else (i1, i2)
+            partner, plabel = self._partner(other, p.vectors[:, p.column(other)], exclude={int(i) for i in p.ids if i >= 0})
+            return AvoidedCrossing(coupling=lam, min_gap=gap, levels=(t, partner), labels=(self.model.label(t), plabel))
+        ids.sort()
+        return AvoidedCrossing(
+            coupling=lam, min_gap=gap, levels=(ids[0], ids[1]), labels=(self.model.label(ids[0]), self.model.label(ids[1]))
+        )
 
     def _refine_crossing(self, path: list[PathPoint], gm: Any) -> AvoidedCrossing:
         j = gm.index

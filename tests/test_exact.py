@@ -214,6 +214,87 @@ def test_tracking_stays_on_the_adiabatic_branch_and_reports_the_anticrossing(bac
     assert not sw.notes
 
 
+@pytest.mark.parametrize("backend,n_extra", [("dense", 0), ("sparse", 200)])
+@pytest.mark.parametrize("w", [1e-4, 1e-5])
+def test_narrow_anticrossing_inside_a_step_is_located_without_halving(backend, n_extra, w):
+    # gap 4w·λ* ~ 4e-5 .. 4e-6, far narrower than the step 0.05: the pair is resolved as a two-level
+    # problem inside the step (a few extra solves at most) instead of by halving down to its width
+    m = crossing_model(w, n_extra)
+    lam = np.linspace(0.0, 0.6, 13)
+    solver = ExactSolver(m, backend=backend)
+    sw = solver.track([1, 2], lam)
+    lower, upper, _ = pair_branches(w, lam)  # closed form (Cohen-Tannoudji et al., Complement B_IV)
+    assert_allclose(sw.energy(1), lower, atol=1e-9)  # adiabatic: level 1 stays the lower branch
+    assert_allclose(sw.energy(2), upper, atol=1e-9)
+    (ac,) = sw.avoided_crossings
+    # minimum of the closed-form gap: λ* = 0.2/(1 + 4w²), gap* = 0.4 w/√(1 + 4w²)
+    assert set(ac.levels) == {1, 2}
+    assert ac.coupling == pytest.approx(0.2 / (1 + 4 * w**2), abs=1e-7)
+    assert ac.min_gap == pytest.approx(0.4 * w / np.sqrt(1 + 4 * w**2), rel=1e-4)
+    assert sw.solves <= lam.size - 1 + 5  # one solve per coupling plus at most five for the pair
+    assert not sw.notes
+
+
+def test_pair_coupled_below_round_off_is_an_exact_crossing_not_an_anticrossing():
+    # Level 0 (E0 = 0) is coupled to the others only by 1e-16 x V1; level 1 is mixed with level 2 and
+    # meets level 0 near λ = -4.6 with a gap ~1e-17, far below round-off.  The two-level search inside
+    # the step cannot resolve that gap (the pair's squared gap is not a parabola: level 2 bends it), so
+    # its sampled minimum must not be reported as an avoided crossing: level 0 stays at E = 0 to
+    # round-off (eigvalsh of the 3 x 3 matrix below; common practice, no source)
+    h0 = np.diag([0.0, 1.0, 2.5])
+    v1 = np.array([[0, 0.3, 0], [0.3, 0, 0.2], [0, 0.2, 0]])
+    v2 = np.diag([0.0, 0.2, -0.1]) + np.array([[0, 0, 0], [0, 0, 0.1], [0, 0.1, 0]])
+    m = Model(h0, v2 + 1e-16 * v1)
+    lam = np.linspace(0.0, -12.0, 13)
+    sw = track(m, [0], lam, backend="dense")
+    assert sw.avoided_crossings == ()
+    ref = [np.linalg.eigvalsh(h0 + c * (v2 + 1e-16 * v1)) for c in lam]
+    assert all(np.min(np.abs(r)) < 1e-12 for r in ref)  # test set-up: 0 stays an eigenvalue
+    assert_allclose(sw.energy(0), 0.0, atol=1e-12)
+
+
+def test_long_sparse_sweep_equals_dense_eigenvalues_and_crossings_equal_brute_force():
+    # 61 equal steps on an 8-spin chain in non-uniform fields (invented numbers, the benchmark's model at
+    # a smaller size): after a few steps the iterative backend filters the extrapolated block of the
+    # previous solves directly.  Referee: dense eigvalsh at every coupling, and each reported avoided
+    # crossing against a bounded minimisation of the dense gap (common practice, no source).
+    n_spins = 8
+    i = np.arange(n_spins)
+    h = 1.0 + 0.37 * np.sin(1.3 * i + 0.4) + 0.05 * i
+    jz = 0.45 + 0.21 * np.cos(0.9 * i[:-1] + 1.1)
+    states = np.arange(2**n_spins)
+    s = 1 - 2 * ((states[:, None] >> (n_spins - 1 - i)[None, :]) & 1)
+    diag = -(s * h).sum(axis=1) - (s[:, :-1] * s[:, 1:] * jz).sum(axis=1)
+    rows = np.repeat(states, n_spins)
+    cols = (states[:, None] ^ (1 << (n_spins - 1 - i))[None, :]).ravel()
+    v = sp.csr_matrix((np.ones(rows.size), (rows, cols)), shape=(2**n_spins,) * 2)
+    m = Model(sp.diags(diag).tocsr(), v, name="chain")
+    lam = np.linspace(0.0, 1.2, 61)
+    sw = track(m, range(6), lam, backend="sparse")
+    dense = np.array([np.linalg.eigvalsh(m.hamiltonian(c).toarray()) for c in lam])
+    # no symmetry sector and no unresolvable crossing: the six tracked levels are the six lowest
+    assert_allclose(np.sort(sw.energies, axis=0).T, dense[:, :6], atol=1e-9)
+    assert residuals(m, sw).max() < 1e-6
+    assert len(sw.avoided_crossings) >= 1
+    for ac in sw.avoided_crossings:
+        j = int(np.argmin(np.abs(lam - ac.coupling)))
+        e_pair = [sw.energy(level)[j] for level in ac.levels]
+        rank = int(np.argmin(np.abs(dense[j] - min(e_pair))))
+
+        def gap(c: float, rank: int = rank) -> float:
+            w = np.linalg.eigvalsh(m.hamiltonian(c).toarray())
+            return float(w[rank + 1] - w[rank])
+
+        from scipy.optimize import minimize_scalar
+
+        best = minimize_scalar(gap, bounds=(ac.coupling - 0.03, ac.coupling + 0.03), method="bounded",
+                               options={"xatol": 1e-9})
+        # a broad minimum is placed from the samples (parabola vertex), a narrower one by a few
+        # parabolic steps: positions to a tenth of a step, depths to 0.1 %
+        assert ac.coupling == pytest.approx(best.x, abs=0.1 * (lam[1] - lam[0]))
+        assert ac.min_gap == pytest.approx(best.fun, rel=1e-3)
+
+
 def test_untracked_partner_is_identified():
     m = crossing_model(0.01)
     sw = track(m, [1], np.linspace(0.0, 0.6, 13))
@@ -223,9 +304,10 @@ def test_untracked_partner_is_identified():
 
 
 def test_unresolvable_crossing_warns_and_is_noted():
-    # a gap of ~2e-7 with a depth cap of 2 halvings cannot be resolved: followed diabatically
+    # a gap of ~4e-7 with refinement switched off (max_depth=0: no halving, no two-level
+    # resolution) cannot be resolved: followed diabatically
     m = crossing_model(1e-6)
-    solver = ExactSolver(m, backend="dense", max_depth=2)
+    solver = ExactSolver(m, backend="dense", max_depth=0)
     with pytest.warns(TrackingWarning, match="narrower than resolvable"):
         sw = solver.track([1], np.linspace(0.0, 0.6, 6))  # grid avoids λ = 0.2 itself
     assert any("narrower than resolvable" in n for n in sw.notes)
