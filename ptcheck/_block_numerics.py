@@ -216,7 +216,14 @@ def _greedy_assignment(weights: np.ndarray) -> np.ndarray:
     For the unitary overlap matrices used here, whenever every assigned weight
     exceeds 1/2 (all accepted steps have >= QUALITY) the assignment is unique,
     so the greedy choice is the optimal one.
+
+    When the rows' largest weights lie in distinct columns (the usual case
+    along a tracked path), the greedy choice is that column for every row:
+    it is returned without the loop.
     """
+    rows = weights.argmax(axis=1)
+    if len(set(rows.tolist())) == rows.size and np.isfinite(weights).all():
+        return rows
     w = weights.astype(float).copy()
     p = w.shape[0]
     perm = np.empty(p, dtype=int)
@@ -243,8 +250,9 @@ def match_eigenvectors(ref: np.ndarray, w: np.ndarray, vecs: np.ndarray, degener
     quality : float
         Smallest assigned overlap ``|<ref_i|vec_i>|²``.
     """
-    vecs = vecs.copy()
-    for c in _degenerate_clusters(w, degeneracy_tol):
+    clusters = _degenerate_clusters(w, degeneracy_tol)
+    vecs = vecs.copy() if clusters else np.ascontiguousarray(vecs)  # (rotated in place below)
+    for c in clusters:
         b = vecs[:, c]
         o = b.conj().T @ ref  # (m, p)
         weight = np.sum(np.abs(o) ** 2, axis=0)
@@ -253,11 +261,13 @@ def match_eigenvectors(ref: np.ndarray, w: np.ndarray, vecs: np.ndarray, degener
         vecs[:, c] = b @ (uu @ vh)
     ov = ref.conj().T @ vecs  # (p_ref, p_new)
     perm = _greedy_assignment(np.abs(ov) ** 2)
-    out = vecs[:, perm]
     phase = ov[np.arange(perm.size), perm]
     mag = np.abs(phase)
-    out = out * np.where(mag > 0, np.conj(phase) / np.where(mag > 0, mag, 1.0), 1.0)[None, :]
-    return w[perm], out, float(np.min(mag**2)) if mag.size else 1.0
+    if (mag > 0).all():
+        unit = np.conj(phase) / mag
+    else:  # a zero overlap keeps its vector's phase
+        unit = np.where(mag > 0, np.conj(phase) / np.where(mag > 0, mag, 1.0), 1.0)
+    return w[perm], vecs[:, perm] * unit[None, :], float(np.min(mag**2)) if mag.size else 1.0
 
 
 @dataclass(frozen=True)
