@@ -341,6 +341,9 @@ class BlockSolution:
     ambiguous : bool
         Some step of the branch following could not be resolved (an avoided
         crossing narrower than the path refinement).
+    shifts : (p, C) ndarray, read-only
+        ``energies − E^(0)`` of each level, computed offset-free (no rounding
+        of a constant carried by ``H0``).
     """
 
     couplings: np.ndarray
@@ -349,6 +352,7 @@ class BlockSolution:
     vectors: np.ndarray
     converged: np.ndarray
     ambiguous: bool
+    shifts: np.ndarray | None = None
 
     def __repr__(self) -> str:
         bad = int(np.size(self.converged) - np.count_nonzero(self.converged))
@@ -541,6 +545,7 @@ class BlockSeries:
             vectors=_readonly(vectors),
             converged=_readonly(converged),
             ambiguous=ambiguous,
+            shifts=_readonly(np.real(energies).astype(float) - self._space.e0[self._space.block][:, None]),
         )
         if len(self._cache) >= 32:
             self._cache.pop(next(iter(self._cache)))
@@ -681,6 +686,15 @@ class BlockLevelExpansion:
         lam = np.asarray(couplings, dtype=float)
         e = self.block.energies(lam.reshape(-1), order)[self._index]
         return e.reshape(lam.shape)[()]
+
+    def shift(self, couplings: Any, order: OrderSpec | None = None) -> np.ndarray:
+        """``E(λ) − E^(0)`` of this level, shape of ``couplings`` (energy units; offset-free, NaN where
+        Brillouin–Wigner did not converge)."""
+        lam = np.asarray(couplings, dtype=float)
+        sol = self.block.solve(lam.reshape(-1), order)
+        self.block._warn(sol)
+        s = np.where(sol.converged[self._index], sol.shifts[self._index], np.nan)
+        return s.reshape(lam.shape)[()]
 
     def state(self, couplings: Any, order: OrderSpec | None = None) -> np.ndarray:
         """Normalised state, work basis: ``(N,)`` for a scalar coupling, else ``(C, N)``."""

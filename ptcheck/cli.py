@@ -97,6 +97,11 @@ model file (TOML; see also `python -c "import ptcheck.modelfile as m; help(m)"`)
   #   h0 = "h0.npy"    v = "v.npy"       # numpy.save, or scipy.sparse.save_npz (.npz)
   #   matrices = "model.npz"             # or one numpy.savez archive with h0 and v
   #   labels = ["g", "e"]                # optional state names; dims = [2, 5] optional
+  #   [model.conserved]                  # optional conserved operators (symmetries the
+  #   parity = "parity.npz"              #   coupling graph cannot see), files like h0;
+  #                                      #   each must commute with h0 and v
+  # either kind may name the physical coupling at λ = 1, shown beside λ in the report:
+  #   coupling_scale = 0.066   coupling_unit = "GHz"   coupling_name = "g"   (in [model])
 
   [check]                                # all optional; flags override
   levels = [0, [1, 0]]                   # ranks or labels ([1, 0] is the label (1,0))

@@ -90,6 +90,10 @@ REFERENCES = ("exact", "bounds", "both")
 #: What :meth:`ValidityBoundary.decision_at` can say about one coupling.
 DECISIONS = ("valid", "not valid", "undecided")
 
+#: An error below this many ulps of the energy scale (span of E0 + |λ| ‖V‖, per unit weight of the target's
+#: levels) is round-off of the shifts and counts as zero in a validity boundary search.
+_NOISE_ULPS = 16
+
 #: Error assigned where the pairing of perturbative and exact states is ambiguous
 #: (the order is counted as failing there; finite so that Brent's method stays defined).
 _AMBIGUOUS_ERROR = 1e300
@@ -801,7 +805,8 @@ def _make_suggestion(model, target, n, partner, ratio, lam, threshold, blk, exac
     if exact:
         text += f"; that block is a whole invariant sector, i.e. {EXACT_IN_SECTOR} (exact diagonalisation, not perturbation theory)"
     if status == "found":
-        text += f"; its validity boundary for the same order and tolerance is |λ| ≈ {abs(boundary):.4g}"
+        phys = model.physical_coupling(abs(boundary))
+        text += f"; its validity boundary for the same order and tolerance is |λ| ≈ {abs(boundary):.4g}" + (f" ({phys})" if phys else "")
     elif status == "not_reached":
         text += "; it meets the same tolerance over the whole range searched"
     elif status not in ("not computed", "exact_in_sector"):
@@ -1039,6 +1044,14 @@ class _ErrorFunction:
         self.levels = list(target.weights)
         self.seen: dict[float, tuple[float, float]] = {}  # s -> (error, reference)
         self.ambiguous: set[float] = set()
+        # round-off of the offset-free shifts (exact and perturbative) of the target's levels, per unit of
+        # energy scale: an error below it cannot be told from zero
+        self._noise = _NOISE_ULPS * np.finfo(float).eps * sum(abs(w) for w in target.weights.values())
+        self._span = float(np.ptp(model.e0_relative)) if model.n > 1 else 0.0
+
+    def noise(self, s: float) -> float:
+        """Round-off floor of the target's absolute error at |λ| = s (energy units)."""
+        return self._noise * (self._span + abs(s) * self.model.norm_v)
 
     def pert_shift(self, s: np.ndarray, spec: OrderSpec | None = None) -> np.ndarray:
         lam = self.direction * np.asarray(s, dtype=float)
@@ -1059,6 +1072,8 @@ class _ErrorFunction:
             self.seen[s] = (_AMBIGUOUS_ERROR, ref_val)
             return _AMBIGUOUS_ERROR
         err = abs(float(self.pert_shift(np.array([s]))[0]) - ex)
+        if err <= self.noise(s):
+            err = 0.0  # below the round-off of the shifts: no error can be resolved (e.g. a χ of 1e-15 at tiny λ)
         if self.relative:
             # a zero reference: undefined relative error, a failure -- unless the order reproduces it exactly
             err = err / abs(ref_val) if ref_val != 0 else (0.0 if err == 0.0 else np.inf)
@@ -1068,13 +1083,15 @@ class _ErrorFunction:
 
 
 def _search_scale(model: Model, target: _Target, *, norm: float | None = None) -> float:
-    """Natural coupling scale: smallest isolation distance / ‖V‖ (``norm``: a bound used instead of ‖V‖)."""
+    """Natural coupling scale: smallest isolation distance inside the level's sector / ‖V‖ (``norm``: a bound
+    used instead of ‖V‖)."""
     nv = model.norm_v if norm is None else norm
     if nv == 0:
         return np.inf
     gaps = []
     for n in target.weights:
-        d = np.abs(model.e0 - model.e0[n])
+        same = model.level_sectors == model.level_sectors[n]
+        d = np.abs(model.e0_relative[same] - model.e0_relative[n])
         d = d[d > model.degeneracy_tol]
         if d.size:
             gaps.append(d.min())
@@ -1321,7 +1338,7 @@ def _boundary(model: Model, target: _Target, spec: OrderSpec, s: CheckSettings, 
     if s.max_coupling is None and s.coupling is not None:
         s_max = max(s_max, 1.5 * s.coupling)  # the search always reaches past the coupling of interest
     s_max = min(s_max, _largest_coupling(model))
-    scale = float(max(np.ptp(model.e0), np.max(np.abs(model.e0)) if not hasattr(solver, "shift_at") else 0.0, 1e-300))
+    scale = float(max(np.ptp(model.e0), 1e-300))  # errors come from offset-free shifts: the offset sets no floor
     if not tol.relative and tol.value < 1e-12 * scale:
         warnings.warn(
             f"tol={tol.value:g} is below ~1e-12 of the energy scale ({scale:.3g}); the boundary will be set by rounding noise",
@@ -1487,7 +1504,8 @@ def _boundary_search(
         # flag the boundary when the reference changes sign up to 1.5 x the boundary, or has already
         # shrunk to a tenth of its largest size before it.
         ef(min(1.5 * hi, s_max))
-        refs = sorted((x, r) for x, (_, r) in ef.seen.items() if x <= 1.5 * hi)
+        # references below the round-off of the shifts carry no sign (e.g. a χ of 1e-15 at tiny λ)
+        refs = sorted((x, r) for x, (_, r) in ef.seen.items() if x <= 1.5 * hi and abs(r) > ef.noise(x))
         vals = np.array([r for _, r in refs])
         nz = vals[vals != 0]
         max_ref = float(np.max(np.abs([r for x, r in refs if x <= hi]), initial=0.0))

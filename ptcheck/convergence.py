@@ -342,6 +342,34 @@ def _dense_v(model: Model) -> np.ndarray:
     return v.toarray() if hasattr(v, "toarray") else np.asarray(v)
 
 
+def _in_sector(model: Model, level: int) -> tuple[Model, int, np.ndarray]:
+    """The level's own symmetry sector: ``(sub-model, index there, parent index of each sub level)``.
+
+    Levels of different sectors never mix, so the level's series, its
+    exceptional points and Kato's bound are those of its sector alone
+    (``model.restrict``); a model with one sector is its own sector.
+    """
+    if len(model.sectors) == 1:
+        return model, level, np.arange(model.n)
+    s = int(model.level_sectors[level])
+    levels = np.asarray(model.sectors[s].levels, dtype=int)
+    return model.restrict(s), int(np.searchsorted(levels, level)), levels
+
+
+def _sector_note(model: Model, sub: Model, level: int) -> str:
+    sector = model.sectors[int(model.level_sectors[level])]
+    return (
+        f"analysed in its symmetry sector {sector.name!r} ({sub.n} of {model.n} levels): levels of other sectors "
+        "never mix with it, so they give it no exceptional point and do not enter Kato's bound"
+    )
+
+
+def _to_parent(r: ConvergenceResult, level: int, levels: np.ndarray, note: str) -> ConvergenceResult:
+    """A result computed on a sector's sub-model, with level and partner indices of the whole model."""
+    partners = np.array([levels[p] if p >= 0 else -1 for p in r.partners], dtype=int)
+    return replace(r, level=level, partners=_ro(partners, int), notes=(note,) + r.notes)
+
+
 def _ep_search(model: Model) -> ExceptionalPointSearch | ReducedExceptionalPointSearch:
     """The EP search for this model: dense up to EP_DENSE_LIMIT (or for dense V), reduced-basis above for sparse V."""
     if model.n > EP_DENSE_LIMIT and model.is_sparse:
@@ -682,11 +710,30 @@ def convergence(
         return _analyse_quantity(m, level, order, coupling, ep_search, settings.treatment, settings.threshold)
     n = m.level_index(level)
     if settings.treatment == "nondegenerate":
-        return _analyse_level(m, n, order, coupling, ep_search, None, [])  # DegenerateLevelError for a degenerate level
+        return _analyse_in_sector(m, n, order, coupling, ep_search)  # DegenerateLevelError for a degenerate level
     (e,) = expansions(m, [n], order, settings=settings)
     if e.treatment == NONDEGENERATE:
-        return replace(_analyse_level(m, n, order, coupling, ep_search, None, []), reason=e.reason)
+        return replace(_analyse_in_sector(m, n, order, coupling, ep_search), reason=e.reason)
     return _analyse_effective(m, n, order, coupling, e)
+
+
+def _analyse_in_sector(
+    m: Model, n: int, order: int, coupling: float | None, ep_search: str,
+    searches: dict | None = None, extra_guesses: list | None = None,
+) -> ConvergenceResult:
+    """:func:`_analyse_level` on the level's own sector; ``searches`` caches one EP search per sector."""
+    sub, k, levels = _in_sector(m, n)
+    search = None
+    if searches is not None:
+        s = int(m.level_sectors[n])
+        run_ep = sub.n >= 2 and (ep_search == "always" or (ep_search == "auto" and sub.n <= EP_DENSE_LIMIT))
+        if run_ep and s not in searches:
+            searches[s] = _ep_search(sub)
+        search = searches.get(s)
+    r = _analyse_level(sub, k, order, coupling, ep_search, search, list(extra_guesses or []))
+    if sub is m:
+        return r
+    return _to_parent(r, n, levels, _sector_note(m, sub, n))
 
 
 def _analyse_effective(m: Model, n: int, order: int, coupling: float | None, e: Any) -> ConvergenceResult:
@@ -698,10 +745,11 @@ def _analyse_effective(m: Model, n: int, order: int, coupling: float | None, e: 
     of one branch inside it.
     """
     levels = list(e.group)
-    inside = np.isin(np.arange(m.n), levels)
-    e_in, e_out = m.e0[inside], m.e0[~inside]
+    sub, _, sector_levels = _in_sector(m, n)  # the group lies in one sector: Kato's bound of that sector
+    inside = np.isin(sector_levels, levels)
+    e_in, e_out = m.e0[sector_levels[inside]], m.e0[sector_levels[~inside]]
     d = float(np.min(np.abs(e_out[:, None] - e_in[None, :]))) if e_out.size else math.inf
-    kato = _kato(d, m.norm_v)
+    kato = _kato(d, sub.norm_v)
     label = m.label(n)
     names = ", ".join(m.label(i) for i in levels)
     branch = e.treatment == DEGENERATE and e.energy_coefficients is not None
@@ -753,6 +801,8 @@ def _analyse_effective(m: Model, n: int, order: int, coupling: float | None, e: 
     )
     est = RadiusEstimates(ratio=ca.ratio, root=ca.root, domb_sykes=ca.domb_sykes, pade=ca.pade if branch else math.nan)
     notes = tuple(ca.notes) + ((note,) if note else ())
+    if sub is not m:
+        notes = (_sector_note(m, sub, n),) + notes
     return ConvergenceResult(
         level=n, label=label, order=order, kind=ca.kind, radius=float(radius), radius_uncertainty=spread,
         estimates=est, exceptional_points=_ro(np.zeros(0, complex)), partners=_ro(np.zeros(0, int)),
@@ -935,14 +985,14 @@ def divergence_map(
             rtol = float(val.check_positive(rtol, "rtol"))
     grid = None if couplings is None else val.as_couplings(couplings)
 
-    run_ep = m.n >= 2 and (ep_search == "always" or (ep_search == "auto" and m.n <= EP_DENSE_LIMIT))
-    search = _ep_search(m) if run_ep else None
+    searches: dict[int, Any] = {}  # one EP search per sector, shared by its levels
     results: list[ConvergenceResult] = []
-    known: list[tuple[complex, complex]] = []
+    known: dict[int, list[tuple[complex, complex]]] = {}  # EPs found so far, per sector (guesses for the next level)
     for n in idx:
-        r = _analyse_level(m, n, order, None, ep_search, search, list(known))
+        s = int(m.level_sectors[n])
+        r = _analyse_in_sector(m, n, order, None, ep_search, searches, known.get(s, []))
         results.append(r)
-        known += [(z, e) for z, e in zip(r.exceptional_points, r.ep_energies) if z.imag > 0]
+        known.setdefault(s, []).extend((z, e) for z, e in zip(r.exceptional_points, r.ep_energies) if z.imag > 0)
 
     radius = np.array([r.radius for r in results])
     kato = np.array([r.kato_bound for r in results])

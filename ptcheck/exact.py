@@ -1336,6 +1336,41 @@ class ExactSolver:
         w, x = self._full.eigenpairs(lam, k=k, sigma=sigma)
         return np.asarray(w, dtype=float) + (centre + self.model.energy_offset), x
 
+    def shifts_near(self, level: Any, coupling: float, *, k: int, shift: float) -> tuple[np.ndarray, np.ndarray]:
+        """The k exact eigenpairs of a level's sector nearest ``E0 + shift``, as shifts from that level's E0.
+
+        Solved on the sector's offset-free sub-model (untracked), so the
+        shifts ``E − E0[level]`` keep the accuracy of the offset-free problem.
+
+        Parameters
+        ----------
+        level : int or label
+        coupling : float
+        k : int
+            Number of eigenpairs (at most the sector's size).
+        shift : float
+            Target ``E − E0[level]`` (energy units).
+
+        Returns
+        -------
+        shifts : (k,) ndarray, ascending (energy units)
+        vectors : (N, k) ndarray, orthonormal columns (zero outside the sector)
+        """
+        n = self.model.level_index(level)
+        lam = val.as_coupling(coupling)
+        s, i = self._where(n)
+        where = self._levels_of[s]
+        k = val.check_int(k, "k", minimum=1, maximum=int(where.size))
+        out = np.zeros((self.model.n, k), dtype=np.result_type(self.model.dtype, float))
+        if where.size == 1:
+            out[n, 0] = 1.0
+            return np.array([lam * float(np.real(self.model.v[n, n]))]), out
+        solver = self._solver(s)
+        e0 = float(solver.model.e0[i])
+        w, x = solver.eigenpairs(lam, k=k, sigma=e0 + float(shift))
+        out[where] = x
+        return np.asarray(w, dtype=float) - e0, out
+
     def level_at(self, level: Any, coupling: float) -> tuple[float, np.ndarray]:
         """Tracked exact energy and state of one level at one coupling.
 

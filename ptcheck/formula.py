@@ -596,8 +596,7 @@ def formula(
         Relative precision of the boundaries.
     variable : str, optional
         Name of the coupling in ``expression`` and ``python`` (an ASCII
-        identifier).  Default: the model's ``coupling_name`` if it has one,
-        else ``"lam"`` (λ in LaTeX).
+        identifier).  Default: ``"lam"`` (λ in LaTeX).
     couplings : (C,) array_like, optional
         Couplings of the error curve.  Default: 201 points reaching 1.5 x the
         widest range found, on the sides searched.
@@ -665,8 +664,7 @@ def formula(
         )
     threshold = float(val.check_positive(threshold, "threshold"))
     if variable is None:
-        name = getattr(model, "coupling_name", None)
-        variable = name if _usable_name(name) and name not in _RESERVED else "lam"
+        variable = "lam"  # the formula is in λ (a model's coupling_name names λ x coupling_scale, not λ)
     variable = _check_variable(variable)
     grid = None if couplings is None else val.as_couplings(couplings)
     if params is None:

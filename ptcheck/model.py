@@ -26,7 +26,8 @@ from . import sectors as sec
 from ._labels import LevelNames, hashable
 from .sectors import Sector
 
-__all__ = ["Model", "MultiCouplingError", "DENSE_LIMIT", "MAX_COUPLINGS", "MAX_GROUP_ROTATION"]
+__all__ = ["Model", "MultiCouplingError", "DENSE_LIMIT", "MAX_COUPLINGS", "MAX_GROUP_ROTATION", "coupling_display",
+           "physical_coupling_text"]
 
 #: Largest basis for which ptcheck will build and diagonalise a dense matrix
 #: (a dense complex 6000 x 6000 matrix is 0.6 GB; eigh takes minutes on 2 cores).
@@ -104,6 +105,10 @@ class Model:
         for g = 66 MHz).  Stored only; λ stays dimensionless everywhere.
     coupling_unit : str, optional
         Unit of ``coupling_scale`` (e.g. ``"MHz"``); needs ``coupling_scale``.
+    coupling_name : str, optional
+        Name of the physical coupling ``λ x coupling_scale`` (e.g. ``"g"``),
+        for display beside λ ("λ* = 0.8 (g = 52.8 MHz)"); needs
+        ``coupling_scale``.  See :meth:`physical_coupling`.
     names : sequence of str, optional
         Names of the couplings, one per ``V_i`` (e.g. ``("g", "E")``; default
         ``("λ",)`` for one coupling, ``("λ1", "λ2", ...)`` for several).
@@ -184,15 +189,17 @@ class Model:
         conserved: Any = None,
         coupling_scale: float | None = None,
         coupling_unit: str | None = None,
+        coupling_name: str | None = None,
         names: Sequence[str] | None = None,
     ) -> None:
+        trusted = self.__dict__.pop("_trusted_input", False)  # set by Model._trusted (built-in builders)
         h0m, h0dims = val.as_operator(h0, "h0", max_dense=DENSE_LIMIT)
         hermitian_rtol = float(val.check_positive(hermitian_rtol, "hermitian_rtol"))
         several = _perturbation_list(v)
         if several is None:
             vm, _ = val.as_operator(v, "v", max_dense=DENSE_LIMIT)
             n = val.check_square_pair(h0m, vm)
-            for nm, m in (("h0", h0m), ("v", vm)):
+            for nm, m in (("h0", h0m), ("v", vm)) if not trusted else ():
                 val.check_finite(m, nm)
                 val.check_hermitian(m, nm, hermitian_rtol, scale=max(val.max_abs(h0m), val.max_abs(vm)))
             user_vs: tuple = (vm,)
@@ -215,14 +222,15 @@ class Model:
                 raise ValueError("labels must be distinct")
         if degeneracy_tol is not None:
             degeneracy_tol = float(val.check_positive(degeneracy_tol, "degeneracy_tol"))
-        coupling_scale, coupling_unit = _coupling_display(coupling_scale, coupling_unit)
-        ops = sec.conserved_operators(conserved, n, hermitian_rtol)
+        coupling_scale, coupling_unit, coupling_name = coupling_display(coupling_scale, coupling_unit, coupling_name)
+        ops = sec.conserved_operators(conserved, n, hermitian_rtol, check=not trusted)
 
         # ---- unperturbed basis per graph component, offset removed ---------------------
         h0_diag = _is_diagonal(h0m)
         offset = sec.energy_offset(h0m)
-        for vi in user_vs:
-            sec.check_commutation(ops, h0m, vi, offset)
+        if not trusted:
+            for vi in user_vs:
+                sec.check_commutation(ops, h0m, vi, offset)
         comp = sec.components(h0m, vgraph, h0_diag)
         e0_rel, t0 = sec.unperturbed_basis(h0m, offset, comp, h0_diag, DENSE_LIMIT)
         span = float(np.ptp(e0_rel)) if n else 0.0
@@ -291,6 +299,7 @@ class Model:
             conserved_names=tuple(nm for nm, _ in ops),
             coupling_scale=coupling_scale,
             coupling_unit=coupling_unit,
+            coupling_name=coupling_name,
             parent_levels=None,
             vs=work_vs,
             coupling_names=coupling_names,
@@ -320,6 +329,7 @@ class Model:
         coupling_unit: str | None,
         parent_levels: tuple | None,
         e0: np.ndarray | None = None,
+        coupling_name: str | None = None,
         vs: tuple | None = None,
         coupling_names: tuple[str, ...] = ("λ",),
         direction: np.ndarray | None = None,
@@ -359,6 +369,7 @@ class Model:
         self.conserved_names = conserved_names
         self.coupling_scale = coupling_scale
         self.coupling_unit = coupling_unit
+        self.coupling_name = coupling_name
         self.parent_levels = parent_levels
         self._group_id = _group_ids(self.e0_relative, self.level_sectors, self.degeneracy_tol)
         self._groups: tuple | None = None
@@ -368,6 +379,15 @@ class Model:
         self._symmetry_degeneracies: tuple | None = None
         self._restricted: dict[int, Model] = {}
         self._offset_free_model: tuple[Model, float] | None = None
+
+    @classmethod
+    def _trusted(cls, h0: Any, v: Any, **kwargs: Any) -> Model:
+        """A model from matrices that a built-in builder made finite, Hermitian and with commuting declared
+        operators by construction: those input checks are skipped (private; the rest is as ``Model(...)``)."""
+        obj = object.__new__(cls)
+        obj._trusted_input = True
+        obj.__init__(h0, v, **kwargs)
+        return obj
 
     @classmethod
     def _from_parts(cls, **parts: Any) -> Model:
@@ -407,6 +427,7 @@ class Model:
             "conserved": list(self.conserved_names),
             "coupling_scale": self.coupling_scale,
             "coupling_unit": self.coupling_unit,
+            "coupling_name": self.coupling_name,
             "couplings": list(self.coupling_names),
             "direction": None if self.direction is None else [float(x) for x in self.direction],
             "sectors": {
@@ -534,6 +555,7 @@ class Model:
             direction=_frozen(d),
             coupling_scale=None,
             coupling_unit=None,
+            coupling_name=None,
             ray_levels=perm if perm is not None else np.arange(self.n),
         )
         return Model._from_parts(**parts)
@@ -570,6 +592,7 @@ class Model:
             conserved_names=self.conserved_names,
             coupling_scale=self.coupling_scale,
             coupling_unit=self.coupling_unit,
+            coupling_name=self.coupling_name,
             parent_levels=self.parent_levels,
             vs=self._vs,
             coupling_names=self.coupling_names,
@@ -590,6 +613,17 @@ class Model:
         if self._norm_v is None:
             self._norm_v = _spectral_norm(self.v)
         return self._norm_v
+
+    def physical_coupling(self, coupling: float) -> str:
+        """The physical coupling at λ, for display: ``"g = 52.8 MHz"`` (``""`` without ``coupling_scale``).
+
+        Examples
+        --------
+        >>> m = Model(np.diag([0.0, 1.0]), [[0, 1], [1, 0]], coupling_scale=66.0, coupling_unit="MHz", coupling_name="g")
+        >>> m.physical_coupling(0.8)
+        'g = 52.8 MHz'
+        """
+        return physical_coupling_text(coupling, self.coupling_scale, self.coupling_unit, self.coupling_name)
 
     def hamiltonian(self, coupling: float) -> np.ndarray | sp.csr_matrix:
         """``H0 + λ V`` in the work basis, shape (N, N), same storage as ``v``."""
@@ -757,6 +791,7 @@ class Model:
             conserved_names=self.conserved_names,
             coupling_scale=self.coupling_scale,
             coupling_unit=self.coupling_unit,
+            coupling_name=self.coupling_name,
             parent_levels=parent,
             vs=None if self._vs is None else sub_vs,
             coupling_names=self.coupling_names,
@@ -987,17 +1022,31 @@ def _regood(v: Any, groups: tuple, ambiguous: np.ndarray) -> tuple[Any, np.ndarr
     return v, (perm if moved else None), rot
 
 
-def _coupling_display(scale: Any, unit: Any) -> tuple[float | None, str | None]:
+def coupling_display(scale: Any, unit: Any, name: Any = None) -> tuple[float | None, str | None, str | None]:
+    """Validate ``coupling_scale``, ``coupling_unit`` and ``coupling_name`` (see :class:`Model`)."""
     if scale is not None:
         scale = val.as_real(scale, "coupling_scale")
         if scale == 0:
             raise ValueError(f"coupling_scale must be a nonzero finite number (the coupling at λ = 1); got {scale!r}")
-    if unit is not None:
-        if not isinstance(unit, str) or not unit.strip():
-            raise TypeError(f"coupling_unit must be a non-empty string such as 'MHz'; got {unit!r}")
+    for what, x, example in (("coupling_unit", unit, "'MHz'"), ("coupling_name", name, "'g'")):
+        if x is None:
+            continue
+        if not isinstance(x, str) or not x.strip():
+            raise TypeError(f"{what} must be a non-empty string such as {example}; got {x!r}")
         if scale is None:
-            raise ValueError(f"coupling_unit={unit!r} needs coupling_scale (the coupling at λ = 1 in that unit)")
-    return scale, unit
+            raise ValueError(f"{what}={x!r} needs coupling_scale (the physical coupling at λ = 1)")
+    return scale, unit, name
+
+
+def physical_coupling_text(coupling: float, scale: float | None, unit: str | None, name: str | None) -> str:
+    """``"g = 52.8 MHz"`` for λ = ``coupling`` (4 significant digits); ``""`` when ``scale`` is None.
+
+    The one place that formats a physical coupling beside λ (reports, figures, panels).
+    """
+    if scale is None or coupling is None or not np.isfinite(coupling):
+        return ""
+    value = f"{coupling * scale:.4g}" + (f" {unit}" if unit else "")
+    return f"{name} = {value}" if name else value
 
 
 def _is_diagonal(m: Any) -> bool:

@@ -23,6 +23,11 @@ or matrices saved with numpy or scipy (paths relative to the TOML file)::
     h0 = "h0.npy"                  # numpy.save; or a scipy.sparse.save_npz file
     v = "v.npy"
     # or one dense archive:  matrices = "model.npz"   (numpy.savez(path, h0=..., v=...))
+    labels = ["g", "e"]            # optional names of the basis states
+    dims = [2, 5]                  # optional product-basis sizes
+    [model.conserved]              # optional conserved operators (symmetries the coupling graph
+    parity = "parity.npz"          #   cannot see): name = matrix file, like h0; each must commute
+                                   #   with h0 and v; sectors are their joint eigenspaces
 
 several couplings ``H0 + λ₁ V₁ + λ₂ V₂``: a list of V files (or arrays ``v1``,
 ``v2`` in the archive), their names, and the point in ``[check]``::
@@ -36,8 +41,14 @@ several couplings ``H0 + λ₁ V₁ + λ₂ V₂``: a list of V files (or arrays
 
 (a built-in model with two couplings, e.g. ``builtin = "polar_molecule"``,
 names its own couplings).
-    labels = ["g", "e"]            # optional names of the basis states
-    dims = [2, 5]                  # optional product-basis sizes
+
+the physical coupling at λ = 1, for display beside λ in reports (any model;
+a built-in qubit–resonator model already names its coupling g)::
+
+    [model]
+    coupling_scale = 0.066         # the coupling at λ = 1, in coupling_unit
+    coupling_unit = "GHz"          # optional
+    coupling_name = "g"            # optional
 
 what to check (all optional here; flags can give or override each entry)::
 
@@ -87,7 +98,7 @@ import scipy.sparse as sp
 
 from . import _validation as val
 from .approximants import parse_orders
-from .model import DENSE_LIMIT, Model
+from .model import DENSE_LIMIT, Model, coupling_display
 from .models import BUILDERS
 from .quantities import Quantity
 
@@ -97,9 +108,10 @@ __all__ = ["ModelFile", "load_model_file", "build_model", "parse_level", "parse_
 MODEL_KINDS = ("builtin", "npy", "npz", "sparse-npz")
 
 #: Builder parameters that set a basis truncation (used for truncation checks).
-SIZE_PARAMS = ("n_photons", "n_qubit", "n_basis", "n_max", "m_max", "n_levels")
+SIZE_PARAMS = ("n_photons", "n_qubit", "n_basis", "n_max", "m_max", "j_max", "n_levels")
 
-_MODEL_KEYS = {"builtin", "name", "params", "h0", "v", "matrices", "labels", "dims", "coupling_names"}
+_MODEL_KEYS = {"builtin", "name", "params", "h0", "v", "matrices", "labels", "dims", "coupling_names", "conserved",
+               "coupling_scale", "coupling_unit", "coupling_name"}
 _CHECK_KEYS = {"levels", "orders", "coupling", "couplings", "tol", "rtol", "treatment", "backend"}
 _QUANTITY_KEYS = {"name", "expr", "levels", "weights", "relative_to", "units", "kind"}
 
@@ -378,7 +390,7 @@ def _from_document(doc: dict, p: Path) -> ModelFile:
     params: dict = {}
     builder = None
     if "builtin" in mt:
-        extra = sorted(set(mt) & {"h0", "v", "matrices", "labels", "dims"})
+        extra = sorted(set(mt) & {"h0", "v", "matrices", "labels", "dims", "conserved"})
         if extra:
             raise ValueError(_where(p, f"[model] names a built-in model and also {', '.join(extra)}; give one or the other"))
         builder = mt["builtin"]
@@ -399,6 +411,7 @@ def _from_document(doc: dict, p: Path) -> ModelFile:
         model.name = mt["name"]
     elif "name" in mt:
         raise ValueError(_where(p, f"[model] name must be a string; got {mt['name']!r}"))
+    _set_coupling_display(model, mt, p)
 
     ct = _check_keys(doc.get("check", {}), _CHECK_KEYS, _where(p, "[check]"))
     try:
@@ -433,6 +446,20 @@ def _from_document(doc: dict, p: Path) -> ModelFile:
         levels=levels, quantities=quantities, orders=orders, coupling=coupling, tol=tol, rtol=rtol,
         treatment=treatment, backend=backend, title=title, couplings=couplings,
     )
+
+
+def _set_coupling_display(model: Model, mt: dict, p: Path) -> None:
+    """``coupling_scale`` / ``coupling_unit`` / ``coupling_name`` of [model] (they override a builder's)."""
+    keys = ("coupling_scale", "coupling_unit", "coupling_name")
+    if not any(k in mt for k in keys):
+        return
+    given = [mt.get(k, getattr(model, k)) for k in keys]
+    if "coupling_scale" in mt and isinstance(given[0], bool):
+        raise ValueError(_where(p, f"[model] coupling_scale must be a number; got {given[0]!r}"))
+    try:
+        model.coupling_scale, model.coupling_unit, model.coupling_name = coupling_display(*given)
+    except (ValueError, TypeError) as exc:
+        raise ValueError(_where(p, f"[model] {exc}")) from None
 
 
 def _coupling_point(x: Any, model: Model, coupling: float | None) -> tuple | None:
@@ -691,11 +718,21 @@ def _model_from_matrices(mt: dict, base: Path, source: Path) -> tuple[Model, str
     if labels is not None:
         labels = [parse_level(x) if not isinstance(x, str) else x for x in _as_list(labels, "labels")]
     dims = mt.get("dims")
+    conserved = mt.get("conserved")
+    if conserved is not None:
+        if not isinstance(conserved, dict) or not conserved:
+            raise ValueError(_where(source, f"[model.conserved] must be a table name = \"matrix file\"; got {conserved!r}"))
+        ops = {}
+        for nm, path in conserved.items():
+            if not isinstance(path, str):
+                raise ValueError(_where(source, f"[model.conserved] {nm} must be a matrix file name (.npy or .npz); got {path!r}"))
+            ops[nm] = _load_matrix(base / path, f"conserved operator {nm!r}", source)[0]
+        conserved = ops
     names = mt.get("coupling_names")
     if names is not None and not (isinstance(names, list) and all(isinstance(x, str) for x in names)):
         raise ValueError(_where(source, f"[model] coupling_names must be a list of strings; got {names!r}"))
     try:
-        model = Model(h0, v, labels=labels, dims=dims, name=source.stem, names=names)
+        model = Model(h0, v, labels=labels, dims=dims, name=source.stem, names=names, conserved=conserved)
     except (ValueError, TypeError) as exc:
         raise ValueError(_where(source, str(exc))) from None
     return model, kind

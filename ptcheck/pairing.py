@@ -121,9 +121,7 @@ def assign(pert: np.ndarray, exact: np.ndarray, energies: np.ndarray, energy_tol
 
 def uses_window(expansion: Any) -> bool:
     """True when a group's exact candidates come from an eigenpair window (see module docstring)."""
-    if len(expansion.group) < 2:
-        return False
-    return not getattr(expansion, "starts_on_good_states", True)
+    return len(expansion.group) >= 2 and not expansion.starts_on_good_states
 
 
 def _groups(exps: Mapping[int, Any], levels: Sequence[int]) -> list[tuple[int, ...]]:
@@ -136,18 +134,29 @@ def _groups(exps: Mapping[int, Any], levels: Sequence[int]) -> list[tuple[int, .
 
 
 def _energy_tol(solver: ExactSolver, lam: float) -> float:
+    """Shifts of candidates closer than this are interchangeable (round-off of the offset-free problem)."""
     m = solver.model
-    scale = float(max(np.max(np.abs(m.e0)), np.ptp(m.e0))) + abs(lam) * m.norm_v
+    e0 = m.e0_relative
+    scale = float(max(np.max(np.abs(e0)), np.ptp(e0))) + abs(lam) * m.norm_v
     return 64 * np.finfo(float).eps * max(scale, np.finfo(float).tiny)
 
 
+def _relative_e0(model: Any, group: tuple[int, ...]) -> np.ndarray:
+    """``E0[n] − E0[group[0]]`` of the group's levels, without the rounding of an energy offset."""
+    e0 = model.e0_relative
+    return np.array([e0[n] - e0[group[0]] for n in group])
+
+
 def _window(solver: ExactSolver, exps: Mapping[int, Any], group: tuple[int, ...], lam: float) -> tuple[np.ndarray, np.ndarray]:
+    """Exact eigenpairs of the group's sector nearest its perturbative energies: (shifts from E0[group[0]], (k, N))."""
     m = solver.model
     k_pair = exps[group[0]].pairing_order
-    sigma = float(np.mean([m.e0[g] + float(exps[g].shift(lam, k_pair)) for g in group]))
-    k = min(m.n, len(group) + 2 * WINDOW_PAD)
-    e, v = solver.eigenpairs(lam, k=k, sigma=sigma)
-    return np.asarray(e, dtype=float), np.asarray(v).T
+    d = _relative_e0(m, group)
+    target = float(np.mean([d[i] + float(exps[g].shift(lam, k_pair)) for i, g in enumerate(group)]))
+    size = int(np.count_nonzero(m.level_sectors == m.level_sectors[group[0]]))
+    k = min(size, len(group) + 2 * WINDOW_PAD)
+    s, v = solver.shifts_near(group[0], lam, k=k, shift=target)
+    return np.asarray(s, dtype=float), np.asarray(v).T
 
 
 def sweep(solver: ExactSolver, exps: Mapping[int, Any], levels: Sequence[int], couplings: np.ndarray, *, keep_states: bool) -> PairedLevels:
@@ -177,10 +186,9 @@ def sweep(solver: ExactSolver, exps: Mapping[int, Any], levels: Sequence[int], c
         crossings = tuple(sw.avoided_crossings)
         notes.extend(sw.notes)
         backend = sw.backend
-        sweep_shifts = getattr(sw, "shifts", None)
         for i, n in enumerate(tracked):
             energies[row[n]] = sw.energies[i]
-            shifts[row[n]] = sweep_shifts[i] if sweep_shifts is not None else sw.energies[i] - model.e0[n]
+            shifts[row[n]] = sw.shifts[i]
             if states is not None and sw.states is not None:
                 states[row[n]] = sw.states[i]
 
@@ -188,6 +196,7 @@ def sweep(solver: ExactSolver, exps: Mapping[int, Any], levels: Sequence[int], c
         rows = [row[n] for n in g]
         k_pair = exps[g[0]].pairing_order
         pert = np.stack([np.asarray(exps[n].state(lam, k_pair)).reshape(C, model.n) for n in g])  # (G, C, N)
+        d = _relative_e0(model, g)
         for c in range(C):
             if lam[c] == 0.0:
                 for n in g:
@@ -197,20 +206,19 @@ def sweep(solver: ExactSolver, exps: Mapping[int, Any], levels: Sequence[int], c
                     if states is not None:
                         states[row[n], c] = pert[g.index(n), c]
                 continue
+            # candidates as shifts from E0[g[0]] (offset-free), energies only for display
             if g in window:
-                cand_e, cand_v = _window(solver, exps, g, float(lam[c]))
-                cand_s = cand_e - np.mean(model.e0[list(g)])
-                base = np.mean(model.e0[list(g)])
+                cand_s, cand_v = _window(solver, exps, g, float(lam[c]))
+                cand_e = model.e0[g[0]] + cand_s
             else:
                 cand_e = energies[rows, c].copy()
-                cand_s = shifts[rows, c] + (model.e0[list(g)] - model.e0[g[0]])
+                cand_s = shifts[rows, c] + d
                 cand_v = states[rows, c].copy()
-                base = model.e0[g[0]]
-            idx, amb, ov = assign(pert[:, c], cand_v, cand_e, _energy_tol(solver, float(lam[c])))
+            idx, amb, ov = assign(pert[:, c], cand_v, cand_s, _energy_tol(solver, float(lam[c])))
             for i, n in enumerate(g):
                 j = int(idx[i])
                 energies[row[n], c] = cand_e[j]
-                shifts[row[n], c] = cand_s[j] + (base - model.e0[n])
+                shifts[row[n], c] = cand_s[j] - d[i]
                 overlap[row[n], c] = ov[i]
                 ambiguous[row[n], c] = amb[i]
                 if states is not None:
@@ -252,32 +260,22 @@ def at(solver: ExactSolver, exps: Mapping[int, Any], levels: Sequence[int], coup
         return {n: 0.0 for n in levels}, {n: False for n in levels}
     groups = _groups(exps, levels)
     grouped = {n for g in groups for n in g}
-    shift_at = getattr(solver, "shift_at", None)
     for n in levels:
         if n in grouped:
             continue
-        if shift_at is not None:
-            shifts[n] = float(shift_at(n, lam))
-        else:
-            shifts[n] = float(solver.level_at(n, lam)[0]) - float(model.e0[n])
+        shifts[n] = float(solver.shift_at(n, lam))
         amb[n] = False
     for g in groups:
         k_pair = exps[g[0]].pairing_order
         pert = np.stack([np.asarray(exps[n].state(lam, k_pair)).reshape(model.n) for n in g])
-        base = float(np.mean(model.e0[list(g)]))
+        d = _relative_e0(model, g)
         if uses_window(exps[g[0]]):
-            cand_e, cand_v = _window(solver, exps, g, lam)
-            cand_s = cand_e - base
+            cand_s, cand_v = _window(solver, exps, g, lam)
         else:
-            pairs = [solver.level_at(n, lam) for n in g]
-            cand_e = np.array([p[0] for p in pairs], dtype=float)
-            cand_v = np.stack([p[1] for p in pairs])
-            if shift_at is not None:
-                cand_s = np.array([float(shift_at(n, lam)) for n in g]) + (model.e0[list(g)] - base)
-            else:
-                cand_s = cand_e - base
-        idx, a, _ = assign(pert, cand_v, cand_e, _energy_tol(solver, lam))
+            cand_v = np.stack([solver.level_at(n, lam)[1] for n in g])
+            cand_s = np.array([float(solver.shift_at(n, lam)) for n in g]) + d
+        idx, a, _ = assign(pert, cand_v, cand_s, _energy_tol(solver, lam))
         for i, n in enumerate(g):
-            shifts[n] = float(cand_s[int(idx[i])]) + (base - float(model.e0[n]))
+            shifts[n] = float(cand_s[int(idx[i])]) - float(d[i])
             amb[n] = bool(a[i])
     return {n: shifts[n] for n in levels}, {n: amb[n] for n in levels}

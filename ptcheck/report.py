@@ -51,7 +51,7 @@ from .approximants import Pade, order_name, parse_orders
 from .compare import TRUNCATION_NOTE, ComparisonResult, ValidityBoundary, compare, validity_boundary
 from .treatment import DEFAULT_TREATMENT, EXACT_IN_SECTOR, NEAR_DEGENERATE, CheckSettings, require_model
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, near_degenerate_pairs
-from .model import Model
+from .model import Model, physical_coupling_text
 from .modelfile import SIZE_PARAMS
 from .quantities import Quantity
 
@@ -594,7 +594,7 @@ def run_check(
                 verdicts.append(_certified_verdict(comp, ti, oi, ci, name, sp_, lam0, thr, relative, b))
                 continue
             status = _verdict_status(b, lam0, e, thr)
-            text = _verdict_sentence(name, sp_, lam0, e, thr, relative, status, b, comp.treatments[ti])
+            text = _verdict_sentence(name, sp_, lam0, e, thr, relative, status, b, comp.treatments[ti], model.physical_coupling)
             verdicts.append(Verdict(name, sp_, lam0, e, thr, relative, status == "valid", float(b.coupling), b.status, text,
                                     status, comp.treatments[ti], comp.reasons[ti] if comp.reasons else ""))
     lowest: dict[str, Any] = {}
@@ -660,6 +660,12 @@ def run_check(
         "params": _json_safe(dict(params)) if params is not None else None,
         "source": _json_safe(dict(source)) if source is not None else None,
         "unperturbed_energies": {model.label(n): float(model.e0[n]) for n in needed},
+        "conserved": list(model.conserved_names),
+        "sectors": model.to_dict()["sectors"],
+        "level_sectors": {model.label(n): model.sectors[model.level_sectors[n]].name for n in needed},
+        "coupling_scale": model.coupling_scale,
+        "coupling_unit": model.coupling_unit,
+        "coupling_name": model.coupling_name,
     }
     settings_info = {
         "targets": list(comp.targets),
@@ -689,7 +695,7 @@ def run_check(
         settings_info["trial_order"] = trial_order
     report_progress(progress, total, total)
     return CheckReport(
-        title=title or f"Can perturbation theory be trusted for {model.name} at λ = {lam0:g}?",
+        title=title or f"Can perturbation theory be trusted for {model.name} at {_with_physical(f'λ = {lam0:g}', lam0, model.physical_coupling)}?",
         description=description,
         invented=bool(invented),
         model=model_info,
@@ -1079,8 +1085,22 @@ def _fmt_lam(x: float) -> str:
     return f"{x:.4g}"
 
 
-def _verdict_sentence(name, spec, lam, e, thr, relative, status, b: ValidityBoundary, treatment_here: str) -> str:
+def _with_physical(text: str, lam: float, physical: Callable[[float], str]) -> str:
+    """``text`` followed by the physical coupling at ``lam`` in parentheses, when the model names one."""
+    phys = physical(lam)
+    return f"{text} ({phys})" if phys else text
+
+
+def _physical_of(model_info: Mapping[str, Any]) -> Callable[[float], str]:
+    """The physical-coupling formatter of a report's model summary (``""`` when it has no scale)."""
+    return lambda lam: physical_coupling_text(lam, model_info.get("coupling_scale"), model_info.get("coupling_unit"),
+                                              model_info.get("coupling_name"))
+
+
+def _verdict_sentence(name, spec, lam, e, thr, relative, status, b: ValidityBoundary, treatment_here: str,
+                      physical: Callable[[float], str] = lambda lam: "") -> str:
     tol = _fmt_err(thr, relative)
+    at = _with_physical(f"λ = {lam:g}", lam, physical)
     how = "" if treatment_here == "nondegenerate" else f" ({treatment_here} treatment)"
     what = f"{name}, {order_name(spec)}{how}"
     if status == "exact within its sector":
@@ -1088,15 +1108,15 @@ def _verdict_sentence(name, spec, lam, e, thr, relative, status, b: ValidityBoun
                 "not a perturbative approximation; no verdict on an order.")
     what += f": error {_fmt_err(e, relative)}"
     if status == "valid":
-        s = f"{what} ≤ {tol} at λ = {lam:g} — valid."
+        s = f"{what} ≤ {tol} at {at} — valid."
     elif status == "undefined":
-        s = f"{what} at λ = {lam:g} — cannot be judged with a relative tolerance."
+        s = f"{what} at {at} — cannot be judged with a relative tolerance."
     elif np.isfinite(e) and e <= thr:
-        s = f"{what} ≤ {tol} at λ = {lam:g}, but only by accident (it exceeds the tolerance at smaller |λ|) — NOT valid."
+        s = f"{what} ≤ {tol} at {at}, but only by accident (it exceeds the tolerance at smaller |λ|) — NOT valid."
     else:
-        s = f"{what} > {tol} at λ = {lam:g} — NOT valid."
+        s = f"{what} > {tol} at {at} — NOT valid."
     if b.status == "found":
-        s += f" It meets the tolerance up to |λ| ≈ {abs(b.coupling):.4g}."
+        s += " It meets the tolerance up to " + _with_physical(f"|λ| ≈ {abs(b.coupling):.4g}", abs(b.coupling), physical) + "."
     elif b.status == "not_reached":
         s += f" It meets the tolerance over the whole range searched (|λ| ≤ {b.max_coupling:.4g})."
     elif b.status == "fails_at_zero":
@@ -1108,12 +1128,13 @@ def _verdict_sentence(name, spec, lam, e, thr, relative, status, b: ValidityBoun
 
 def _verdict_paragraph(r: CheckReport) -> str:
     lam = r.settings["coupling"]
+    at = _with_physical(f"λ = {lam:g}", lam, _physical_of(r.model))
     tol = _fmt_err(r.verdicts[0].tolerance, r.verdicts[0].relative) if r.verdicts else ""
     kind = "relative" if r.settings["rtol"] is not None else "absolute"
     orders = ", ".join(r.settings["orders"])
     if r.valid:
         head = (
-            f"at λ = {lam:g}, {orders} meet{'s' if len(r.settings['orders']) == 1 else ''} the {kind} "
+            f"at {at}, {orders} meet{'s' if len(r.settings['orders']) == 1 else ''} the {kind} "
             f"tolerance {tol} for every target checked ({', '.join(r.settings['targets'])})."
         )
     else:
@@ -1132,7 +1153,7 @@ def _verdict_paragraph(r: CheckReport) -> str:
         if undecided:
             parts.append("the certified bounds cannot decide for "
                          + "; ".join(f"{v.target} at {order_name(v.order)}" for v in undecided))
-        head = f"at λ = {lam:g}, " + "; ".join(parts) + "."
+        head = f"at {at}, " + "; ".join(parts) + "."
     certified = r.settings.get("reference") == "bounds"
     if certified:
         judged = [v for v in r.verdicts if v.status in ("valid", "not valid")]
@@ -1282,7 +1303,12 @@ def comparison_csv(report: CheckReport) -> str:
 
 
 def boundaries_csv(report: CheckReport) -> str:
-    """One row per target × order asked for: error at λ, verdict and validity boundary."""
+    """One row per target × order asked for: error at λ, verdict and validity boundary.
+
+    ``coupling_physical`` / ``boundary_physical`` are λ x the model's ``coupling_scale`` (in its
+    ``coupling_unit``; empty when the model names no physical coupling).
+    """
+    scale = report.model.get("coupling_scale")
     rows = []
     for v, b in zip(report.verdicts, report.boundaries):
         rows.append({
@@ -1290,12 +1316,14 @@ def boundaries_csv(report: CheckReport) -> str:
             "coupling": v.coupling, "error_at_coupling": v.error, "tolerance": v.tolerance,
             "tolerance_kind": "relative" if v.relative else "absolute", "valid": v.valid, "verdict": v.status,
             "boundary": b.coupling, "boundary_status": b.status, "exact_solves": b.exact_solves,
+            "coupling_physical": None if scale is None else v.coupling * scale,
+            "boundary_physical": None if scale is None else b.coupling * scale,
             "reference": b.reference, "error_lower": v.error_lower, "error_upper": v.error_upper,
             "rigorous": v.rigorous, "certified_not": b.certified_not, "rigorous_boundary": b.rigorous_coupling,
             "gap_kind": b.gap_kind,
         })
     cols = ["target", "order", "treatment", "coupling", "error_at_coupling", "tolerance", "tolerance_kind", "valid",
-            "verdict", "boundary", "boundary_status", "exact_solves"]
+            "verdict", "boundary", "boundary_status", "exact_solves", "coupling_physical", "boundary_physical"]
     if any(b.reference == "bounds" for b in report.boundaries):
         cols += ["reference", "error_lower", "error_upper", "rigorous", "certified_not", "rigorous_boundary", "gap_kind"]
     return _csv(rows, cols)
@@ -1365,9 +1393,11 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
     out += ["## Verdict", "", f"**{'VALID' if r.valid else 'NOT VALID'}:** {_verdict_paragraph(r)}", ""]
     out += [f"- {v.text}" for v in r.verdicts]
     comp0 = r.comparison
+    phys = _physical_of(r.model)
     out += ["", "## Treatment", "", "The perturbation theory judged for each target, and why.", "",
             _md_table(["target", "treatment", "reason"], [
                 [t, tr, why] for t, tr, why in zip(comp0.targets, comp0.treatments, comp0.reasons or ("",) * len(comp0.targets))])]
+    out += ["", "## Symmetry sectors", ""] + _sectors_md(r.model)
     if r.suggestions:
         out += ["", "## Suggestions", "",
                 "Beside the verdict, not in its place: the verdict and the exit status judge the treatment asked for.", ""]
@@ -1381,13 +1411,16 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
         ["name", m["name"]], ["basis size N", m["n"]], ["dims", m["dims"] or "—"], ["source", src],
         ["builder parameters", ", ".join(f"{k} = {v}" for k, v in (m.get("params") or {}).items()) or "—"],
         ["‖V‖ (energy units)", f"{m['norm_v']:.6g}"],
-    ])]
+        ["declared conserved operators", ", ".join(m.get("conserved") or []) or "none"],
+        ["symmetry sectors", _sector_summary(m)],
+    ] + ([["physical coupling at λ = 1", phys(1.0)]] if phys(1.0) else []))]
     tol = f"relative {s['rtol']:g}" if s["rtol"] is not None else f"absolute {s['tol']:g} (energy units)"
     if s.get("other_tolerances"):
         tol += f" (judged); also {', '.join(f'{x:g}' for x in s['other_tolerances'])} (boundaries only)"
     out += ["", "## Settings", "", _md_table(["", ""], [
         ["targets", ", ".join(s["targets"])], ["orders judged", ", ".join(s["orders"])],
-        ["coupling λ", f"{s['coupling']:g}"], ["tolerance", tol], ["treatment", s["treatment"]],
+        ["coupling λ", _with_physical(f"{s['coupling']:g}", s["coupling"], phys)], ["tolerance", tol],
+        ["treatment", s["treatment"]],
         ["exact backend", f"{s['backend']} (used: {r.comparison.backend})"],
         ["reference", f"{s.get('reference', 'exact')} ({s.get('reference_reason', 'exact solves')})"],
         ["near-degeneracy threshold", f"{s['threshold']:g}"], ["ptcheck", s["ptcheck_version"]],
@@ -1397,7 +1430,8 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
             "λ* is the smallest |λ| at which the order stops meeting the tolerance (searched towards the sign of λ).", "",
             _md_table(["target", "order", "treatment", f"error at λ = {s['coupling']:g}", "verdict", "λ*", "status", "exact solves"], [
                 [v.target, order_name(v.order), b.treatment, _fmt_err(v.error, v.relative), v.status,
-                 _fmt_lam(abs(b.coupling)) if math.isfinite(b.coupling) else _fmt_lam(b.coupling), b.status, b.exact_solves]
+                 _with_physical(_fmt_lam(abs(b.coupling)), abs(b.coupling), phys) if math.isfinite(b.coupling)
+                 else _fmt_lam(b.coupling), b.status, b.exact_solves]
                 for v, b in zip(r.verdicts, r.boundaries)])]
     if r.other_boundaries:
         rel = s["rtol"] is not None
@@ -1461,6 +1495,48 @@ def to_markdown(report: CheckReport, *, figures: Sequence[Figure] = (), files: S
         out += ["", "## Notes", ""] + [f"- {n}" for n in r.notes]
     out += ["", "---", f"Written by ptcheck {s['ptcheck_version']}."]
     return "\n".join(out) + "\n"
+
+
+def _sector_summary(m: Mapping[str, Any]) -> str:
+    """'2 (parity +1: 8 levels, parity -1: 8 levels)' or '21, sizes 1–11' from a report's model summary."""
+    sec = m.get("sectors") or {}
+    k = int(sec.get("count", 1))
+    names, sizes = sec.get("names", []), sec.get("sizes", [])
+    if k == 1:
+        return "1 (nothing splits H0 + λV)"
+    if k <= 4 and len(names) == k:
+        return f"{k} (" + ", ".join(f"{nm}: {sz} levels" for nm, sz in zip(names, sizes)) + ")"
+    return f"{k}, sizes {min(sizes)}–{max(sizes)}" if sizes else str(k)
+
+
+def _sectors_md(m: Mapping[str, Any]) -> list[str]:
+    """The 'Symmetry sectors' section: how the model splits, and which sector each judged level is in."""
+    sec = m.get("sectors") or {}
+    k = int(sec.get("count", 1))
+    cons = m.get("conserved") or []
+    how = "components of the coupling graph of H0 and V" + (
+        f", split by the declared conserved operator(s) {', '.join(cons)}" if cons else ""
+    )
+    if k == 1:
+        head = f"One sector: nothing splits H0 + λV into invariant subspaces ({how} give one)."
+    else:
+        head = (
+            f"{k} sectors: subspaces that H0 + λV leaves invariant for every λ ({how}). Levels of different sectors "
+            "never mix: degeneracy, mixing ratios, exceptional points, blocks and the exact state carrying each "
+            "label are judged inside the level's own sector."
+        )
+    out = [head, ""]
+    names, sizes = sec.get("names", []), sec.get("sizes", [])
+    size_of = dict(zip(names, sizes))
+    levels = m.get("level_sectors") or {}
+    if levels:
+        out += [_md_table(["level judged", "sector", "levels in the sector"],
+                          [[lab, nm, size_of.get(nm, "—")] for lab, nm in levels.items()])]
+    if 1 < k and names:
+        shown = ", ".join(f"{nm} ({sz})" for nm, sz in list(zip(names, sizes))[:12])
+        more = f", … {k - 12} more (all in report.json)" if k > 12 else ""
+        out += ["", f"Sectors (levels): {shown}{more}."]
+    return out
 
 
 # ---------------------------------------------------------------------- figures

@@ -142,7 +142,7 @@ def format_quantum_number(q: float | None) -> str:
 
 
 # ============================================================================ declared operators
-def conserved_operators(conserved: Any, n: int, hermitian_rtol: float) -> tuple[tuple[str, Any], ...]:
+def conserved_operators(conserved: Any, n: int, hermitian_rtol: float, *, check: bool = True) -> tuple[tuple[str, Any], ...]:
     """Validate the ``conserved=`` argument of Model: ``((name, matrix), ...)``.
 
     Accepts ``None``, a sequence of operators (named ``conserved[i]``) or a
@@ -169,8 +169,9 @@ def conserved_operators(conserved: Any, n: int, hermitian_rtol: float) -> tuple[
         m, _ = val.as_operator(op, name)
         if m.shape != (n, n):
             raise ValueError(f"conserved operator {name!r} must have the shape of h0 ({n}, {n}); got {m.shape}")
-        val.check_finite(m, name)
-        val.check_hermitian(m, name, hermitian_rtol)
+        if check:  # (skipped for operators a built-in builder made Hermitian by construction)
+            val.check_finite(m, name)
+            val.check_hermitian(m, name, hermitian_rtol)
         out.append((name, m))
     return tuple(out)
 

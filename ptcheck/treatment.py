@@ -43,13 +43,12 @@ from dataclasses import asdict, dataclass, field, replace
 from typing import Any, Protocol
 
 import numpy as np
-import scipy.sparse as sp
 
 from . import _block_numerics as num
 from . import _validation as val
 from ._good_states import Branch, group_branches, natural_scales
 from .approximants import OrderSpec, Pade, order_name, parse_order
-from .blocks import HERMITICITY_RTOL, MAX_BLOCK_SIZE, METHODS, BlockWarning, block_series, find_blocks
+from .blocks import HERMITICITY_RTOL, MAX_BLOCK_SIZE, METHODS, BlockWarning, _Space, block_series, find_blocks
 from .degeneracy import DEFAULT_MIXING_THRESHOLD, mixing_ratios
 from .errors import NearDegenerateWarning
 from .exact import BACKENDS
@@ -299,7 +298,9 @@ class LevelExpansion(Protocol):
     without ``E^(0)``; ``state`` is the normalised perturbative state in the work
     basis; ``term`` the size of the order-k contribution; ``pairing_order`` the
     truncation order whose states pair the level with an exact state inside its
-    group (:mod:`ptcheck.pairing`).
+    group (:mod:`ptcheck.pairing`); ``starts_on_good_states`` says whether the
+    group's unperturbed work states are already its good states (else its exact
+    partners are found in a window of eigenpairs).
     """
 
     level: int
@@ -311,6 +312,7 @@ class LevelExpansion(Protocol):
     exact_in_sector: bool
     pairing_order: int
     energy_coefficients: np.ndarray | None
+    starts_on_good_states: bool
 
     def energy(self, couplings: Any, order: Any = None) -> np.ndarray: ...
 
@@ -369,6 +371,10 @@ class SeriesExpansion:
         return False
 
     @property
+    def starts_on_good_states(self) -> bool:
+        return True
+
+    @property
     def energy_coefficients(self) -> np.ndarray:
         return self.series.energy_coefficients
 
@@ -422,14 +428,12 @@ class _DegenerateGroup:
     def __init__(self, model: Model, levels: tuple[int, ...], order: int) -> None:
         self.model = model
         self.levels = levels
-        # the group lives in one symmetry sector: work in that sector's sub-model (levels of other
-        # sectors with the same E0 are not coupled and must not enter the reduced resolvent)
-        space = np.asarray(model.sectors[model.sector_of(levels[0])].levels, dtype=int)
-        self._space = space
-        sub = model.restrict(model.sector_of(levels[0])) if space.size < model.n else model
-        idx = np.searchsorted(space, np.asarray(levels, dtype=int))
-        e0 = sub.e0
-        sw = num.sw_coefficients(e0, sub.v, idx, order)
+        idx = np.asarray(levels, dtype=int)
+        # the group lies in one sector: the numerics run on that sector alone, offset-free (other sectors
+        # never couple to it, and their equal energies are no degeneracy)
+        self.space = space = _Space.of(model, idx)
+        e0 = space.e0
+        sw = num.sw_coefficients(e0, space.v, space.block, order)
         if sw.finite_order < order:
             raise FloatingPointError(
                 f"the effective Hamiltonian of the degenerate group {[model.label(i) for i in levels]} overflows "
@@ -445,18 +449,18 @@ class _DegenerateGroup:
                 stacklevel=4,
             )
         self.sw = sw
-        ep = e0[idx]
+        ep = e0[space.block]
         ref = float(np.mean(ep))
         self.offsets = ref - ep  # shift of level i = eigenvalue of H_eff − ref + offsets[i]
         hs = np.array(sw.heff)
         hs[0] = np.diag(ep - ref).astype(hs.dtype)
         self.hs = hs
         in_q = np.ones(e0.size, dtype=bool)
-        in_q[idx] = False
+        in_q[space.block] = False
         self.gap = float(np.min(np.abs(e0[in_q][:, None] - ep[None, :]))) if np.any(in_q) else math.inf
-        self.branches: list[Branch] = group_branches(np.asarray(sw.heff), natural_scales(model.norm_v, self.gap, order))
+        nv = model.norm_v if space.levels is None else model.restrict(int(model.level_sectors[idx[0]])).norm_v
+        self.branches: list[Branch] = group_branches(np.asarray(sw.heff), natural_scales(nv, self.gap, order))
         self.guess = np.column_stack([b.vector for b in self.branches]).astype(np.result_type(hs.dtype, float))
-        nv = model.norm_v
         lam_scale = (self.gap / (2 * nv) if np.isfinite(self.gap) else 1.0 / nv) if nv > 0 else 1.0
         self.guess_coupling = 1e-6 * lam_scale
         self.scale = float(max(nv, np.finfo(float).tiny))
@@ -485,14 +489,9 @@ class _DegenerateGroup:
     def states(self, lam: np.ndarray, k: int) -> np.ndarray:
         """(p, C, N) normalised perturbative states at order k (work basis)."""
         tr = self.solve(lam, k)
-        ul = num.isometry_at(self.sw, k, lam)  # (C, N_sector, p)
-        sub = np.einsum("cnp,cpi->icn", ul, tr.vectors)
-        sub = sub / np.linalg.norm(sub, axis=2, keepdims=True)
-        if self._space.size == self.model.n:
-            return sub
-        psi = np.zeros(sub.shape[:2] + (self.model.n,), dtype=sub.dtype)
-        psi[:, :, self._space] = sub
-        return psi
+        ul = num.isometry_at(self.sw, k, lam)  # (C, M, p) on the group's sector
+        psi = np.einsum("cnp,cpi->icn", ul, tr.vectors)
+        return self.space.embed(psi / np.linalg.norm(psi, axis=2, keepdims=True))
 
 
 @dataclass(frozen=True, repr=False, eq=False)
@@ -529,6 +528,7 @@ class GroupExpansion:
         """(order + 1, d, d) read-only: ``H_eff^(k)`` of the group (Schrieffer–Wolff, energy units) in the
         work basis of :attr:`group`; the level's energy is the eigenvalue of ``Σ_k λ^k H_eff^(k)`` on its branch."""
         h = np.array(self._group.sw.heff)
+        h[0] += self._group.space.offset * np.eye(h.shape[1], dtype=h.dtype)  # the numerics are offset-free
         h.setflags(write=False)
         return h
 
@@ -614,6 +614,11 @@ class BlockExpansion:
     def exact_in_sector(self) -> bool:
         return self.choice.exact_in_sector
 
+    @property
+    def starts_on_good_states(self) -> bool:
+        """A block's levels are followed from their own unperturbed states (no window of eigenpairs)."""
+        return True
+
     def _k(self, order: Any) -> int:
         spec = _spec(order, self.order)
         _no_pade(spec, self.label, self.treatment)
@@ -623,7 +628,7 @@ class BlockExpansion:
         return self.inner.energy(couplings, self._k(order))
 
     def shift(self, couplings: Any, order: Any = None) -> np.ndarray:
-        return self.energy(couplings, order) - self.inner.block.model.e0[self.level]
+        return self.inner.shift(couplings, self._k(order))
 
     def state(self, couplings: Any, order: Any = None) -> np.ndarray:
         return self.inner.state(couplings, self._k(order))
@@ -641,27 +646,12 @@ def _names(model: Model, levels: Sequence[int]) -> str:
 
 
 def whole_sector(model: Model, levels: Sequence[int]) -> bool:
-    """True when ``levels`` (two or more) span whole invariant sectors of ``H0 + λV``."""
-    levels = sorted({int(i) for i in levels})
+    """True when ``levels`` (two or more) span whole invariant sectors of ``H0 + λV`` (``model.sectors``)."""
+    levels = {int(i) for i in levels}
     if len(levels) < 2:
         return False
-    if len(levels) == model.n:
-        return True
-    sectors = getattr(model, "sectors", None)
-    if sectors:
-        touched = [s for s in sectors if set(getattr(s, "levels", ())) & set(levels)]
-        return bool(touched) and set().union(*(set(s.levels) for s in touched)) == set(levels)
-    v = model.v
-    idx = np.asarray(levels)
-    if sp.issparse(v):
-        cols = sp.csc_matrix(v)[:, idx].tocoo()
-        outside = ~np.isin(cols.row, idx)
-        leak = float(np.max(np.abs(cols.data[outside]), initial=0.0))
-    else:
-        mask = np.ones(model.n, dtype=bool)
-        mask[idx] = False
-        leak = float(np.max(np.abs(v[np.ix_(mask, idx)]), initial=0.0))
-    return leak <= 1e-12 * max(val.max_abs(v), np.finfo(float).tiny)
+    touched = np.unique(model.level_sectors[sorted(levels)])
+    return int(np.isin(model.level_sectors, touched).sum()) == len(levels)
 
 
 def _exact_note(model: Model, levels: Sequence[int]) -> str:

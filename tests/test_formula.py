@@ -279,7 +279,13 @@ def test_ranges_are_the_validity_boundaries(chi_formula):
         texts.append((sig3_down(lo.coupling), sig3_down(hi.coupling)))
     # symmetric to three digits here (χ is even in λ): written |λ| < x, as in the brief's wording
     assert texts[0][0] == texts[0][1]
-    assert f"valid to $1\\,\\%$ for $|\\lambda| < {texts[0][1]}$, to $5\\,\\%$ for $|\\lambda| < {texts[1][1]}$" in chi_formula.latex
+    # the builder names the physical coupling (λ = 1 is g = 0.1): its range follows in parentheses
+    g = m.coupling_scale
+    phys = [sig3_down(abs(r.upper) * g) for r in chi_formula.ranges]
+    assert (
+        f"valid to $1\\,\\%$ for $|\\lambda| < {texts[0][1]}$ (${phys[0]}$), "
+        f"to $5\\,\\%$ for $|\\lambda| < {texts[1][1]}$ (${phys[1]}$)"
+    ) in chi_formula.latex
 
 
 def test_asymmetric_range_names_both_ends(group_formula, three_level):

@@ -13,7 +13,7 @@ from scipy.optimize import brentq
 
 from ptcheck import Model, block_series, compare, convergence, dispersive_shift, find_blocks, validity_boundary
 from ptcheck.blocks import BlockWarning
-from ptcheck.models import jaynes_cummings, kerr_qubit_resonator
+from ptcheck.models import jaynes_cummings, kerr_qubit_resonator, spin_chain
 from ptcheck.quantities import quantity_series, stark_shift
 from ptcheck.treatment import CheckSettings, expansions
 
@@ -68,42 +68,47 @@ def test_lambda_system_default_uses_degenerate_pt_and_pairs_dark_and_bright_stat
 L_SPINS = 6
 
 
-def _ising_matrices(n_spins: int) -> tuple[np.ndarray, np.ndarray]:
-    """Plain matrices of the periodic transverse-field Ising chain, H0 = −Σ σz σz, V = −Σ σx (no symmetry declared)."""
-    sz = np.diag([1.0, -1.0])
-    sx = np.array([[0.0, 1.0], [1.0, 0.0]])
+def ising_matrices(n: int) -> tuple[np.ndarray, np.ndarray]:
+    """H0 = −Σ σz_i σz_{i+1} (ring) and V = −Σ σx_i by Kronecker products of Pauli matrices (common practice,
+    no source): plain matrices, no conserved operator declared."""
+    sz, sx, one = np.diag([1.0, -1.0]), np.array([[0.0, 1.0], [1.0, 0.0]]), np.eye(2)
 
-    def site(op: np.ndarray, i: int) -> np.ndarray:
+    def site(op, i):
         out = np.ones((1, 1))
-        for k in range(n_spins):
-            out = np.kron(out, op if k == i else np.eye(2))
+        for k in range(n):
+            out = np.kron(out, op if k == i else one)
         return out
 
-    h0 = -sum(site(sz, i) @ site(sz, (i + 1) % n_spins) for i in range(n_spins))
-    v = -sum(site(sx, i) for i in range(n_spins))
-    return h0, v
+    return -sum(site(sz, i) @ site(sz, (i + 1) % n) for i in range(n)), -sum(site(sx, i) for i in range(n))
 
 
 @pytest.fixture(scope="module")
 def ising():
-    # plain matrices: the spin-flip parity is NOT declared (the built-in chain declares it)
-    return Model(*_ising_matrices(L_SPINS), name="Ising chain, no symmetry declared")
+    return Model(*ising_matrices(L_SPINS), name="Ising ring, plain matrices")
 
 
-def test_ising_doublet_reports_the_true_error_on_coarse_and_fine_grids(ising):
+@pytest.mark.parametrize("declared", [False, True])
+def test_ising_doublet_reports_the_true_error_on_coarse_and_fine_grids(ising, declared):
     # transverse-field Ising chain (Pfeuty, Ann. Phys. 57, 79 (1970)): the ferromagnetic ground doublet of H0 is
-    # split only by flipping all L spins, i.e. at order L.  Declare nothing: ptcheck must find the good states at
-    # order L and pair labels by overlap, whatever the coupling grid.
+    # split only by flipping all L spins, i.e. at order L.  Plain matrices (nothing declared): ptcheck must find
+    # the good states at order L and pair labels by overlap, whatever the coupling grid.  With the builder's
+    # declared parity the doublet members lie in different sectors and each is non-degenerate there.
+    m = spin_chain(n_spins=L_SPINS) if declared else ising
     coarse = np.array([0.3, 0.5])
     fine = np.linspace(0, 0.5, 11)
-    rc = compare(ising, [0, 1], [2 * L_SPINS], coarse)
-    rf = compare(ising, [0, 1], [2 * L_SPINS], fine)
-    assert rc.treatments == ("degenerate", "degenerate")
-    assert f"order {L_SPINS}" in rc.reasons[0]
+    rc = compare(m, [0, 1], [2 * L_SPINS], coarse)
+    rf = compare(m, [0, 1], [2 * L_SPINS], fine)
+    if declared:
+        assert rc.treatments == ("nondegenerate", "nondegenerate")
+        assert m.sector_of(0) != m.sector_of(1)
+    else:
+        assert rc.treatments == ("degenerate", "degenerate")
+        assert f"order {L_SPINS}" in rc.reasons[0]
+    h0, v = ising_matrices(L_SPINS)
     for r, lam in ((rc, coarse), (rf, fine)):
         assert not r.ambiguous.any()
-        # brute force: dense eigvalsh; the doublet is the two lowest levels, level 0 the lower one for λ > 0
-        h0, v = _ising_matrices(L_SPINS)
+        # brute force: dense eigvalsh of the plain matrices; the doublet is the two lowest levels, level 0 the
+        # lower one for λ > 0
         ex = np.array([np.linalg.eigvalsh(h0 + x * v)[:2] for x in lam]).T
         assert_allclose(r.exact, ex, atol=1e-12)
         split = ex[1] - ex[0]

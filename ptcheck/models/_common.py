@@ -103,3 +103,8 @@ def finish(h0: Any, v: Any, sparse: bool | None) -> tuple[Any, Any]:
         vs.eliminate_zeros()
         return h0s, vs
     return (h0.toarray() if sp.issparse(h0) else np.asarray(h0)), (v.toarray() if sp.issparse(v) else np.asarray(v))
+
+
+def physical(scale: float, name: str) -> dict:
+    """``Model`` keywords naming the physical coupling at λ = 1 (none when it is zero): display only."""
+    return {"coupling_scale": scale, "coupling_name": name} if scale != 0 else {}

@@ -74,7 +74,9 @@ def jaynes_cummings(
     Returns
     -------
     Model
-        Named ``"Jaynes–Cummings"``, ``dims = (2, n_photons)``, labels ``(q, n)``.
+        Named ``"Jaynes–Cummings"``, ``dims = (2, n_photons)``, labels ``(q, n)``;
+        ``coupling_scale = g``, ``coupling_name = "g"`` (reports show g = λ g
+        beside λ, in the units of the energies).
 
     Examples
     --------
@@ -85,7 +87,7 @@ def jaynes_cummings(
     h0, a, sp_plus, g, nph, sparse = _qubit_resonator(omega_q, omega_r, g, n_photons, sparse)
     v = g * (sp.kron(sp_plus, a) + sp.kron(sp_plus.T, a.T))
     h0, v = c.finish(h0, v.tocsr(), sparse)
-    return Model(h0, v, dims=(2, nph), name="Jaynes–Cummings")
+    return Model(h0, v, dims=(2, nph), name="Jaynes–Cummings", **c.physical(g, "g"))
 
 
 def rabi(
@@ -115,7 +117,8 @@ def rabi(
     Returns
     -------
     Model
-        Named ``"Rabi"``, ``dims = (2, n_photons)``, labels ``(q, n)``.
+        Named ``"Rabi"``, ``dims = (2, n_photons)``, labels ``(q, n)``;
+        ``coupling_scale = g``, ``coupling_name = "g"``.
 
     Examples
     --------
@@ -126,4 +129,4 @@ def rabi(
     sigma_x = sp.csr_matrix(np.array([[0.0, 1.0], [1.0, 0.0]]))
     v = g * sp.kron(sigma_x, a + a.T)
     h0, v = c.finish(h0, v.tocsr(), sparse)
-    return Model(h0, v, dims=(2, nph), name="Rabi")
+    return Model(h0, v, dims=(2, nph), name="Rabi", **c.physical(g, "g"))

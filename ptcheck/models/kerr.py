@@ -80,7 +80,8 @@ def kerr_qubit_resonator(
     -------
     Model
         Named ``"Kerr qubit–resonator"`` (``"Kerr qubit–resonator (RWA)"``),
-        ``dims = (n_qubit, n_photons)``, labels ``(j, n)``.
+        ``dims = (n_qubit, n_photons)``, labels ``(j, n)``; ``coupling_scale = g``,
+        ``coupling_name = "g"`` (reports show g = λ g beside λ).
 
     Examples
     --------
@@ -106,7 +107,7 @@ def kerr_qubit_resonator(
         v = gg * sp.kron(b + b.T, a + a.T)
     h0, v = c.finish(h0.tocsr(), v.tocsr(), sparse)
     name = "Kerr qubit–resonator (RWA)" if rwa else "Kerr qubit–resonator"
-    return Model(h0, v, dims=(nq, nph), name=name)
+    return Model(h0, v, dims=(nq, nph), name=name, **c.physical(gg, "g"))
 
 
 def coupled_kerr_qubits(
@@ -152,7 +153,7 @@ def coupled_kerr_qubits(
     -------
     Model
         Named ``"coupled Kerr qubits"``, ``dims = (n_levels, n_levels)``,
-        labels ``(k1, k2)``.
+        labels ``(k1, k2)``; ``coupling_scale = J``, ``coupling_name = "J"``.
 
     Examples
     --------
@@ -171,4 +172,4 @@ def coupled_kerr_qubits(
     h0 = sp.kron(sp.diags(kerr_ladder(w1, a1, n)), eye) + sp.kron(eye, sp.diags(kerr_ladder(w2, a2, n)))
     v = jj * (sp.kron(b, b.T) + sp.kron(b.T, b))
     h0, v = c.finish(h0.tocsr(), v.tocsr(), sparse)
-    return Model(h0, v, dims=(n, n), name="coupled Kerr qubits")
+    return Model(h0, v, dims=(n, n), name="coupled Kerr qubits", **c.physical(jj, "J"))

@@ -64,7 +64,8 @@ def linear_rotor(
     -------
     Model
         Named ``"linear rotor in a field"``, labels ``(J, M)``, one sector per M
-        (declared conserved operator ``"M"``).
+        (declared conserved operator ``"M"``); ``coupling_scale = μE``,
+        ``coupling_name = "μE"`` (reports show μE = λ μE beside λ).
 
     Examples
     --------
@@ -94,4 +95,4 @@ def linear_rotor(
     h0, v = c.finish(h0, v, sp_choice)
     m_op = m_op if sp.issparse(h0) else m_op.toarray()
     labels = [(int(j), int(m)) for j, m in zip(js, ms)]
-    return Model(h0, v, labels=labels, conserved={"M": m_op}, name="linear rotor in a field")
+    return Model(h0, v, labels=labels, conserved={"M": m_op}, name="linear rotor in a field", **c.physical(mu, "μE"))

@@ -166,4 +166,5 @@ def spin_chain(
     if not np.any(fields):
         # spin-flip parity Π σx: |s⟩ -> |s̄⟩ (all bits flipped); a longitudinal field breaks it
         conserved["parity"] = sp.csr_matrix((np.ones(dim), (states, states ^ (dim - 1))), shape=(dim, dim))
-    return Model(h0, v, dims=(2,) * n, name=name, conserved=conserved or None)
+    # Hermitian, finite and parity-commuting by construction: the input checks are skipped (Model._trusted)
+    return Model._trusted(h0, v, dims=(2,) * n, name=name, conserved=conserved or None)
