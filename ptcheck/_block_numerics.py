@@ -37,6 +37,7 @@ Brillouin–Wigner / Löwdin partitioning
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -279,6 +280,10 @@ class TrackResult:
 
 #: Smallest accepted overlap between assigned eigenvectors of neighbouring path points.
 QUALITY = 0.9
+#: Equal steps of a path from its start to its farthest coupling (before any bisection).
+PATH_STEPS = 32
+#: Tracked points kept per truncation order for warm starts (:func:`track_point`).
+MAX_ANCHORS = 512
 _MAX_DEPTH = 40
 _BUDGET = 20_000
 
@@ -291,13 +296,16 @@ def track_branches(
     scale: float,
     *,
     cluster_rtol: float | None = None,
+    steps: int = PATH_STEPS,
 ) -> TrackResult:
     """Follow the eigenbranches of ``H_eff(λ) = Σ_j λ^j heff[j]`` from ``±guess_coupling``.
 
     ``guess_vectors[:, i]`` is the (limit) eigenvector of block level ``i`` near
     λ = 0.  Four monotone paths start at ±guess_coupling (outwards and inwards
-    towards 0); neighbouring points are matched by eigenvector overlap, and an
-    interval is bisected while the overlap is below :data:`QUALITY`.
+    towards 0), each through ``steps`` equal steps to its farthest coupling
+    besides the couplings asked for; neighbouring points are matched by
+    eigenvector overlap, and an interval is bisected while the overlap is
+    below :data:`QUALITY`.
 
     Eigenvalues closer than ``1e-10 x scale`` count as numerically degenerate
     (their eigenvectors are aligned with the previous point).  With
@@ -351,7 +359,7 @@ def track_branches(
                 order = order[::-1]
             sel = sel[order]
             end = couplings[sel[-1]]
-            fill = np.linspace(start, end, 33)[1:]
+            fill = np.linspace(start, end, steps + 1)[1:]
             pts = np.concatenate([couplings[sel], fill])
             pts = pts[np.argsort(np.abs(pts - start), kind="stable")]
             w_all, v_all = eig(np.concatenate([[start], pts]))
@@ -370,6 +378,54 @@ def track_branches(
                 energies[:, i] = e
                 vectors[i] = ref_
     return TrackResult(energies=energies, vectors=vectors, ambiguous=bool(state["ambiguous"]))
+
+
+def track_point(
+    heff: np.ndarray,
+    coupling: float,
+    guess_vectors: np.ndarray,
+    guess_coupling: float,
+    scale: float,
+    anchors: list[tuple[float, np.ndarray]],
+) -> TrackResult:
+    """:func:`track_branches` at one coupling, started from the nearest point already tracked on its path.
+
+    The path of ``coupling`` runs monotonically from ``±guess_coupling``; a
+    point tracked before (``anchors``: ``(coupling, vectors)`` pairs of the
+    same ``heff``, unambiguous) that lies on it, between the start and
+    ``coupling``, carries the branches as well as the start does.  The path
+    continues from the nearest such point, in steps no longer than a fresh
+    path's (``|coupling - start| / PATH_STEPS``), so a search that visits
+    nearby couplings one at a time tracks each of them in a few steps instead
+    of :data:`PATH_STEPS`.  The result is added to ``anchors`` (when
+    unambiguous).
+    """
+    lam = float(coupling)
+    start = math.copysign(guess_coupling, lam)
+    span = abs(lam - start)
+    best = None
+    if span > 0 and anchors:
+        a = np.array([x for x, _ in anchors])
+        on_path = (np.sign(a) == np.sign(lam)) & (np.abs(a - start) <= span) & (np.abs(a - lam) <= span)
+        if on_path.any():
+            best = int(np.flatnonzero(on_path)[np.argmin(np.abs(a[on_path] - lam))])
+    if best is None:
+        tr = track_branches(heff, np.array([lam]), guess_vectors, guess_coupling, scale)
+    else:
+        a_lam, a_vec = anchors[best]
+        steps = max(1, math.ceil(PATH_STEPS * abs(lam - a_lam) / span))
+        tr = track_branches(heff, np.array([lam]), a_vec, abs(a_lam), scale, steps=steps)
+    remember(anchors, np.array([lam]), tr)
+    return tr
+
+
+def remember(anchors: list[tuple[float, np.ndarray]], couplings: np.ndarray, tr: TrackResult) -> None:
+    """Add the tracked points of ``tr`` to ``anchors`` (unambiguous results only; at most :data:`MAX_ANCHORS`)."""
+    if tr.ambiguous:
+        return
+    if len(anchors) + couplings.size > MAX_ANCHORS:
+        anchors.clear()
+    anchors.extend((float(x), tr.vectors[i]) for i, x in enumerate(couplings) if x != 0)
 
 
 def guess_vectors(

@@ -333,6 +333,22 @@ def test_branches_followed_through_a_true_crossing():
     assert e[0, -1] > e[1, -1]  # past the crossing, level 0 is the upper one
 
 
+def test_one_coupling_at_a_time_follows_the_same_branches():
+    # a search visits couplings one by one (each continues from the nearest point tracked before); the
+    # branches must be those of the true-crossing model above: level 1 is 0.1 - λ exactly and level 0 the
+    # lower eigenvalue of the {0, 2} problem (common practice, no source), on both sides of λ = 0 and in
+    # any visiting order
+    v = np.array([[1.0, 0.0, 0.3], [0.0, -1.0, 0.0], [0.3, 0.0, 0.0]])
+    m = Model(np.diag([0.0, 0.1, 5.0]), v)
+    b = m.block_series([0, 1], 8)
+    visits = [0.01, 0.02, 0.04, 0.08, 0.16, 0.12, 0.06, 0.045, 0.055, 0.2, -0.03, -0.2, -0.1, 0.001, 0.07]
+    for x in visits:
+        e = b.energies(x)[:, 0]
+        assert abs(e[1] - (0.1 - x)) < 1e-14, x
+        assert abs(e[0] - np.linalg.eigvalsh([[x, 0.3 * x], [0.3 * x, 5.0]])[0]) < 1e-9, x
+        assert not b.solve(x).ambiguous
+
+
 def test_avoided_crossing_follows_adiabatic_branch():
     # a weak direct coupling turns the crossing into an avoided one; the analytic branches are the
     # adiabatic ones (von Neumann & Wigner non-crossing rule, Phys. Z. 30, 467 (1929))
