@@ -364,7 +364,7 @@ def track_branches(
             pts = pts[np.argsort(np.abs(pts - start), kind="stable")]
             w_all, v_all = eig(np.concatenate([[start], pts]))
             _, ref, _ = match_eigenvectors(guess_vectors, w_all[0], v_all[0], cluster_tol(w_all[0]))
-            clean = _clean_path(ref, w_all[1:], v_all[1:], cluster_tol)
+            clean = _clean_path(ref, w_all[1:], v_all[1:], fixed_dtol, cluster_rtol)
             if clean is not None:
                 results = list(zip(pts, *clean))
             else:
@@ -384,7 +384,8 @@ def track_branches(
     return TrackResult(energies=energies, vectors=vectors, ambiguous=bool(state["ambiguous"]))
 
 
-def _clean_path(ref: np.ndarray, w: np.ndarray, v: np.ndarray, cluster_tol) -> tuple[np.ndarray, np.ndarray] | None:
+def _clean_path(ref: np.ndarray, w: np.ndarray, v: np.ndarray, dtol: float, cluster_rtol: float | None
+                ) -> tuple[np.ndarray, np.ndarray] | None:
     """Every step of a real path matched at once, when no step needs more than the plain rule.
 
     The plain rule (what :func:`match_eigenvectors` does at a step without
@@ -392,20 +393,23 @@ def _clean_path(ref: np.ndarray, w: np.ndarray, v: np.ndarray, cluster_tol) -> t
     columns, all >= :data:`QUALITY`): each branch goes to its largest overlap,
     sign chosen so that the overlap is positive.  For real eigenvectors the
     overlaps with the previous matched vectors are ± the overlaps of the raw
-    eigenvectors (exactly), so the whole path follows from one batched product;
-    the result is bit for bit the step-by-step one.  ``None`` (walk step by step
+    eigenvectors, so the whole path follows from one batched product; the
+    result is bit for bit the step-by-step one.  ``None`` (walk step by step
     instead) for complex vectors or as soon as one step needs more: a
     degenerate cluster, a contested column, an overlap below QUALITY.
 
     ``ref``: (p, p) matched vectors at the start; ``w``, ``v``: (G, p) and
-    (G, p, p) eigenpairs of the path's points.  Returns energies (G, p) and
+    (G, p, p) eigenpairs of the path's points; degeneracy threshold ``dtol``,
+    or ``cluster_rtol x max|w|`` per point.  Returns energies (G, p) and
     matched vectors (G, p, p).
     """
     if np.iscomplexobj(v) or np.iscomplexobj(ref):
         return None
     g_n, p = w.shape
-    if p > 1 and not all(np.all(np.diff(w[g]) > cluster_tol(w[g])) for g in range(g_n)):
-        return None
+    if p > 1:
+        tol = dtol if cluster_rtol is None else cluster_rtol * np.maximum(np.max(np.abs(w), axis=1), np.finfo(float).tiny)
+        if not np.all(np.diff(w, axis=1) > np.reshape(tol, (-1, 1))):
+            return None
     prev = np.concatenate([ref[None], v[:-1]])
     o = np.swapaxes(prev, 1, 2) @ v  # o[g] = prev[g]^T v[g]: rows = previous raw columns (level order at g = 0)
     wts = np.abs(o) ** 2
@@ -414,19 +418,15 @@ def _clean_path(ref: np.ndarray, w: np.ndarray, v: np.ndarray, cluster_tol) -> t
         return None
     if not np.array_equal(np.sort(sigma, axis=1), np.broadcast_to(np.arange(p), sigma.shape)):
         return None
-    energies = np.empty_like(w)
-    vectors = np.empty_like(v)
-    perm = np.arange(p)  # level i sits in raw row perm[i] of o[g]
-    sign = np.ones(p)
+    cols = np.empty_like(sigma)  # cols[g, i]: raw column of level i at point g
+    col = np.arange(p)
     for g in range(g_n):
-        row = perm if g else np.arange(p)
-        col = sigma[g][row]
-        ov = o[g][row, col]
-        sign = sign * (ov / np.abs(ov))
-        energies[g] = w[g][col]
-        vectors[g] = v[g][:, col] * sign[None, :]
-        perm = col
-    return energies, vectors
+        col = sigma[g][col]
+        cols[g] = col
+    rows = np.concatenate([np.arange(p)[None], cols[:-1]])
+    ov = o[np.arange(g_n)[:, None], rows, cols]
+    sign = np.cumprod(ov / np.abs(ov), axis=0)
+    return np.take_along_axis(w, cols, 1), np.take_along_axis(v, cols[:, None, :], 2) * sign[:, None, :]
 
 
 def track_point(
