@@ -93,6 +93,8 @@ DECISIONS = ("valid", "not valid", "undecided")
 #: An error below this many ulps of the energy scale (span of E0 + |λ| ‖V‖, per unit weight of the target's
 #: levels) is round-off of the shifts and counts as zero in a validity boundary search.
 _NOISE_ULPS = 16
+# relative errors are judged from exact shifts only where round-off resolves them to 1e-4 of the shift
+_RESOLVE_RELATIVE = 1e4
 
 #: Error assigned where the pairing of perturbative and exact states is ambiguous
 #: (the order is counted as failing there; finite so that Brent's method stays defined).
@@ -900,6 +902,10 @@ class ValidityBoundary:
     rigorous_coupling : float
         ``reference="bounds"``: signed coupling certified with rigorous gaps
         alone (|·| ≤ |coupling|); NaN for ``reference="exact"``.
+    certified_not_rigorous : bool
+        ``reference="bounds"``: the failure at ``certified_not`` rests on
+        rigorous gaps only (False when it is conditional on an estimated or
+        given gap, or when no failure is certified).
     gap_kind : str
         ``reference="bounds"``: the gap option used (``"auto"``, ``"weyl"``,
         ``"neighbours"``, ``"estimate"`` or ``"given (δ)"``); empty for
@@ -927,6 +933,7 @@ class ValidityBoundary:
     certified_not: float = math.nan
     rigorous: bool = False
     rigorous_coupling: float = math.nan
+    certified_not_rigorous: bool = False
     gap_kind: str = ""
     mat_vecs: int = 0
 
@@ -1016,6 +1023,7 @@ class ValidityBoundary:
             "certified_not": f(self.certified_not),
             "rigorous": self.rigorous,
             "rigorous_coupling": f(self.rigorous_coupling),
+            "certified_not_rigorous": self.certified_not_rigorous,
             "gap_kind": self.gap_kind,
             "mat_vecs": self.mat_vecs,
         }
@@ -1048,6 +1056,7 @@ class _ErrorFunction:
         # energy scale: an error below it cannot be told from zero
         self._noise = _NOISE_ULPS * np.finfo(float).eps * sum(abs(w) for w in target.weights.values())
         self._span = float(np.ptp(model.e0_relative)) if model.n > 1 else 0.0
+        self.top_order = min(int(e.order) for e in exps.values())  # highest order every expansion holds
 
     def noise(self, s: float) -> float:
         """Round-off floor of the target's absolute error at |λ| = s (energy units)."""
@@ -1072,6 +1081,18 @@ class _ErrorFunction:
             self.seen[s] = (_AMBIGUOUS_ERROR, ref_val)
             return _AMBIGUOUS_ERROR
         err = abs(float(self.pert_shift(np.array([s]))[0]) - ex)
+        if self.relative and abs(ref_val) <= _RESOLVE_RELATIVE * self.noise(s):
+            # The exact reference (a shift, or a value that is 0 at λ = 0) is too close to its round-off to
+            # resolve a relative error (tiny λ). There the highest-order series available is exact far below
+            # round-off: judge the order against it, so an order that misses the leading term (e.g. order 1 of a
+            # shift that starts at λ²) fails as λ → 0 instead of "meeting" the tolerance for want of resolution.
+            top = float(self.pert_shift(np.array([s]), self.top_order)[0])
+            own = float(self.pert_shift(np.array([s]))[0])
+            ref_top = top if self.target.relative_to == "shift" else self.unperturbed + top
+            err = abs(own - top) / abs(ref_top) if ref_top != 0 else (0.0 if own == top else np.inf)
+            err = min(err, _AMBIGUOUS_ERROR)
+            self.seen[s] = (err, ref_val)
+            return err
         if err <= self.noise(s):
             err = 0.0  # below the round-off of the shifts: no error can be resolved (e.g. a χ of 1e-15 at tiny λ)
         if self.relative:
@@ -1326,6 +1347,7 @@ def _certified_boundary(
     return ValidityBoundary(
         coupling=coupling, status=status, bracket=bracket, max_coupling=cb.max_coupling, notes=tuple(notes),
         certified_not=fail, rigorous=cb.rigorous, rigorous_coupling=cb.rigorous_coupling, mat_vecs=cb.mat_vecs,
+        certified_not_rigorous=bool(math.isfinite(fail) and cb.fail_rigorous),
         **base,
     )
 

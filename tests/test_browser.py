@@ -2,10 +2,12 @@
 
 Checks that the plot is drawn; that moving the coupling (keyboard on the slider
 handle, or a typed value) changes the rendered plot, the verdict banner and the
-readout; that a typo in the model parameters shows a message that stays while
-the shown model keeps working; and that the page logs no JavaScript error and
-shows no Python traceback.  One test throws on purpose to
-prove the error detector works.  Skipped only when no Chromium executable exists.
+readout; that switching the reference to certified bounds says so in the banner
+and the readout and redraws the plot; that a typo in the model parameters shows
+a message that stays while the shown model keeps working; and that the page logs
+no JavaScript error and shows no Python traceback.  One test throws on purpose
+to prove the error detector works.  Skipped only when no Chromium executable
+exists.
 """
 
 from __future__ import annotations
@@ -157,6 +159,17 @@ def test_coupling_moves_change_the_plot_the_verdict_and_the_readout(page, server
     _wait_text(page, ".ptcheck-verdict", "at λ = 1.23")
     page.wait_for_timeout(1000)  # the slider's echo of its snapped value must not replace the typed one
     assert "At λ = 1.234" in page.inner_text("body") and box.input_value() == "1.234"
+    _assert_clean(page)
+    # judged by certified bounds instead: the banner says so, the readout shows brackets, the plot is redrawn
+    before = _stable_shot(page)
+    ref = page.locator(".widget-dropdown:has-text('reference') select").first
+    (label,) = [t for t in ref.locator("option").all_inner_texts() if t.replace("\xa0", " ") == "certified bounds"]
+    ref.select_option(label=label)  # the widget may show the label with non-breaking spaces
+    _wait_text(page, ".ptcheck-verdict", "judged by certified bounds, no exact solve", timeout=60_000)
+    _wait_text(page, ".widget-html", "∈ [")
+    area = _wait_for_change(page, before)
+    assert area > MIN_DIFF_AREA, f"the plot did not change after switching to certified bounds (diff area {area} px)"
+    assert "At λ = 1.234" in page.inner_text("body")  # the coupling stays where it was
     _assert_clean(page)
 
 

@@ -128,6 +128,27 @@ def test_boundary_relative_and_not_reached():
     assert z.status == "fails_at_zero" and z.coupling == 0.0
 
 
+def test_order_missing_the_leading_term_fails_at_zero_with_a_relative_tolerance():
+    # Two-level closed form E(λ) = Δ/2 - sqrt(Δ²/4 + v²λ²) (standard result): the shift starts at λ², so the
+    # order-1 shift is 0 and its relative error is exactly 1 at every λ != 0 -- no nonzero coupling meets 1 %.
+    # Brute force on a grid where the exact shift is resolvable, then the boundary search itself (which must not
+    # read "meets" from the round-off regime of tiny λ, where the exact shift is below ~1e-12).
+    m = two_level()
+    grid = np.geomspace(1e-4, 1.0, 30)
+    rel = np.abs(e_minus_truncated(grid, 1) - e_minus(grid)) / np.abs(e_minus(grid) + DELTA / 2)
+    assert np.all(rel > 0.99)
+    b = validity_boundary(m, 0, 1, rtol=0.01)
+    assert b.status == "fails_at_zero" and b.coupling == 0.0
+    # the same for a quantity judged on its shift: a transition whose first-order shift vanishes; judged on its
+    # value (Δ + shift) order 1 has a finite boundary
+    q = Quantity("gap shift", {1: 1.0, 0: -1.0}, relative_to="shift")
+    assert validity_boundary(m, q, 1, rtol=0.01).status == "fails_at_zero"
+    assert validity_boundary(m, Quantity("gap", {1: 1.0, 0: -1.0}), 1, rtol=0.01).status == "found"
+    # order 2 still finds the closed-form boundary
+    f = lambda x: abs(e_minus_truncated(x, 2) - e_minus(x)) - 0.01 * abs(e_minus(x) + DELTA / 2)  # noqa: E731
+    assert validity_boundary(m, 0, 2, rtol=0.01).coupling == pytest.approx(brentq(f, 1e-3, 2.0), rel=1e-3)
+
+
 def test_relative_boundary_ill_defined_where_shift_crosses_zero():
     # level 1: E^(1) = -0.1, E^(2) = +v^2/Δ > 0, so the exact shift -0.1λ + 0.09λ² + ... passes through 0
     # near λ ≈ 1.1 (two-level closed form); the order-2 relative error blows up there only because of that

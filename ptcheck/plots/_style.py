@@ -43,6 +43,7 @@ __all__ = [
     "MARKER_COLOR",
     "CROSSING_COLOR",
     "SHADE_COLOR",
+    "BAND_COLOR",
     "FLAG_COLOR",
     "MIXING_CMAP",
     "ORDER0_COLOR",
@@ -86,6 +87,8 @@ EXACT_COLOR = OKABE_ITO["black"]
 MARKER_COLOR = "#777777"
 #: Background bands (errors above a tolerance): neutral grey, so nested bands stay grey.
 SHADE_COLOR = "#555555"
+#: Certified bracket of an exact value, and the legend swatch of the error bands (each drawn in its order's colour).
+BAND_COLOR = "#8C8C8C"
 #: Avoided crossings marked on the levels figure.
 CROSSING_COLOR = "#999999"
 #: Highlight of flagged near-degenerate pairs (a dark red outside the order palette).

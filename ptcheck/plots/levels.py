@@ -6,6 +6,8 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from matplotlib.colors import to_rgba
+from matplotlib.patches import Patch
 
 from ._common import (
     add_caption,
@@ -18,7 +20,10 @@ from ._common import (
     physical_coupling,
     style_axes,
 )
-from ._style import CROSSING_COLOR, EXACT_COLOR, FONT_SIZES, MARKER_COLOR, finite_style, order_style, style
+from ._style import BAND_COLOR, CROSSING_COLOR, EXACT_COLOR, FONT_SIZES, MARKER_COLOR, finite_style, order_style, style
+
+#: Opacity of the certified bracket of an exact value.
+BAND_ALPHA = 0.3
 
 __all__ = ["LevelArtists", "plot_levels", "crossing_info", "spread", "target_unit"]
 
@@ -51,6 +56,15 @@ class LevelArtists:
         Orders and "exact" (framed, inside the axes).
     labels : tuple of Annotation
         Direct label of each exact curve (the target's name) at its right end.
+    bands : tuple of PolyCollection
+        Certified bracket of each target's exact value (grey), when the
+        result has brackets (``compare(..., reference="bounds" or "both")``).
+    band_edges : tuple of (Line2D, Line2D)
+        Lower and upper edge of each bracket.
+    exact_known : bool
+        The result has exact values (``reference`` "exact" or "both"); with
+        certified bounds only, the brackets stand in for the exact curves
+        (markers, direct labels, view limits).
     """
 
     figure: Any
@@ -65,6 +79,9 @@ class LevelArtists:
     caption: Any
     legend: Any
     labels: tuple = ()
+    bands: tuple = ()
+    band_edges: tuple = ()
+    exact_known: bool = True
 
 
 def crossing_info(crossing: Any) -> tuple[float | None, str]:
@@ -96,6 +113,7 @@ def plot_levels(
     ylabel: str | None = None,
     coupling_scale: float | None = None,
     coupling_unit: str | None = None,
+    bands: bool | None = None,
 ) -> LevelArtists:
     """Exact and perturbative values of levels or quantities against λ.
 
@@ -127,6 +145,11 @@ def plot_levels(
         Physical coupling at λ = 1 and its unit (default: the result's
         ``coupling_scale``/``coupling_unit`` if it has them): adds a secondary
         coupling axis on top.
+    bands : bool, optional
+        Draw the certified bracket of each exact value as a grey band
+        (default: whenever the result has brackets).  With certified bounds
+        only (``reference="bounds"``) there is no exact curve and the band is
+        drawn in its place.
 
     Returns
     -------
@@ -142,6 +165,12 @@ def plot_levels(
     (11,)
     """
     check_comparison(result, "plot_levels")
+    has_brackets = getattr(result, "exact_lower", None) is not None
+    if bands is None:
+        bands = has_brackets
+    elif bands and not has_brackets:
+        raise ValueError("bands=True needs a comparison with certified bounds: compare(..., reference='bounds' or 'both')")
+    exact_known = getattr(result, "reference", "exact") != "bounds"
     t_idx = _target_indices(result, targets)
     o_idx = _order_indices(result, orders)
     fig, ax, scale = new_axes(ax)
@@ -164,15 +193,37 @@ def plot_levels(
                 row.append(ln)
             pert_lines.append(tuple(row))
             (ex,) = ax.plot(x, np.asarray(result.exact[ti])[srt] - offset[ti], color=EXACT_COLOR, linewidth=2.6 * lw,
-                            label="exact" if k == 0 else None, zorder=3)
+                            label="exact" if k == 0 and exact_known else None, zorder=3)
             exact_lines.append(ex)
+        band_arts, edge_arts = [], []
+        edge_width = (1.2 if not exact_known else 0.7) * lw
+        if bands:
+            for k, ti in enumerate(t_idx):
+                lo = np.asarray(result.exact_lower[ti], dtype=float)[srt] - offset[ti]
+                hi = np.asarray(result.exact_upper[ti], dtype=float)[srt] - offset[ti]
+                band_arts.append(ax.fill_between(x, lo, hi, color=BAND_COLOR, alpha=BAND_ALPHA, linewidth=0, zorder=2.5))
+                edge = dict(color=EXACT_COLOR, linewidth=edge_width, zorder=2.6)
+                (e_lo,) = ax.plot(x, lo, **edge)
+                (e_hi,) = ax.plot(x, hi, **edge)
+                edge_arts.append((e_lo, e_hi))
         # keep the view on the exact values: diverging orders must not squash them
         ex_vals = np.asarray(result.exact)[t_idx] - offset[t_idx, None]
-        finite = ex_vals[np.isfinite(ex_vals)]
+        if not exact_known:  # the brackets stand in for them
+            lo_all = np.asarray(result.exact_lower)[t_idx] - offset[t_idx, None]
+            hi_all = np.asarray(result.exact_upper)[t_idx] - offset[t_idx, None]
+            ex_vals = np.concatenate([lo_all, hi_all])
+            mid = 0.5 * (lo_all + hi_all)
+        centre = ex_vals if exact_known else mid
+        finite = centre[np.isfinite(centre)]
         if finite.size:
             lo, hi = float(finite.min()), float(finite.max())
             pad = 0.12 * (hi - lo) if hi > lo else max(abs(hi), 1.0) * 0.1
-            ax.set_ylim(lo - pad, hi + pad)
+            lo, hi = lo - pad, hi + pad
+            ends = ex_vals[np.isfinite(ex_vals)]
+            if not exact_known and ends.size:  # wide brackets run past the view rather than squash it
+                reach = hi - lo
+                lo, hi = max(min(lo, float(ends.min())), lo - 0.5 * reach), min(max(hi, float(ends.max())), hi + 0.5 * reach)
+            ax.set_ylim(lo, hi)
         if x.size > 1 and x[-1] > x[0]:
             ax.set_xlim(x[0], x[-1])
         line = markers = None
@@ -180,7 +231,7 @@ def plot_levels(
             line = ax.axvline(float(coupling), color=MARKER_COLOR, linewidth=1.6 * lw, zorder=4)
             i = nearest_index(lam, float(coupling))
             markers, = ax.plot(
-                np.full(len(t_idx), lam[i]), ex_vals[:, i], linestyle="none", marker="o", color=EXACT_COLOR,
+                np.full(ex_vals.shape[0], lam[i]), ex_vals[:, i], linestyle="none", marker="o", color=EXACT_COLOR,
                 markerfacecolor="white", zorder=5,
             )
         crossings = []
@@ -193,12 +244,17 @@ def plot_levels(
                 text, xy=(lc, 0.02), xycoords=("data", "axes fraction"), rotation=90, ha="right", va="bottom",
                 fontsize=FONT_SIZES["caption"] * scale, color="#555555",
             ))
-        labels = _end_labels(ax, [result.targets[i] for i in t_idx], ex_vals[:, srt], scale)
+        labels = _end_labels(ax, [result.targets[i] for i in t_idx], (ex_vals if exact_known else mid)[:, srt], scale)
         ax.set_xlabel("coupling λ")
         ax.set_ylabel(ylabel)
         style_axes(ax, scale)
         add_physical_axis(ax, physical_coupling(result, coupling_scale, coupling_unit), scale)
-        legend = add_legend(ax, scale)
+        handles, texts = ax.get_legend_handles_labels()
+        if band_arts:  # a swatch with the edges drawn; say so when no bracket is wider than the curve
+            widest = _widest_points(ax, np.asarray(result.exact_upper)[t_idx] - np.asarray(result.exact_lower)[t_idx])
+            handles.append(Patch(facecolor=to_rgba(BAND_COLOR, BAND_ALPHA), edgecolor=EXACT_COLOR, linewidth=edge_width))
+            texts.append("certified bracket of the exact value" + (" (thinner than the line)" if widest < 2.6 * lw else ""))
+        legend = add_legend(ax, scale, handles=handles, labels=texts)
         if caption is None:
             caption = caption_text(
                 "levels" if not _all_quantities(result, t_idx) else "values", model=result.model_name, n=result.n,
@@ -208,8 +264,18 @@ def plot_levels(
     return LevelArtists(
         figure=fig, ax=ax, targets=tuple(result.targets[i] for i in t_idx), orders=tuple(result.order_names[i] for i in o_idx),
         exact=tuple(exact_lines), perturbative=tuple(pert_lines), coupling_line=line, coupling_markers=markers,
-        crossings=tuple(crossings), caption=cap, legend=legend, labels=tuple(labels),
+        crossings=tuple(crossings), caption=cap, legend=legend, labels=tuple(labels), bands=tuple(band_arts),
+        band_edges=tuple(edge_arts), exact_known=exact_known,
     )
+
+
+def _widest_points(ax: Any, widths: np.ndarray) -> float:
+    """Largest of ``widths`` (data units along y) in points on the axes as laid out now (0 if none is finite)."""
+    lo, hi = ax.get_ylim()
+    finite = widths[np.isfinite(widths)]
+    if not finite.size or hi <= lo:
+        return 0.0
+    return float(finite.max()) * ax.get_position().height * ax.figure.get_figheight() * 72.0 / (hi - lo)
 
 
 def _end_labels(ax: Any, names: list[str], values: np.ndarray, scale: float) -> list[Any]:

@@ -2,7 +2,8 @@
 
 - what: targets, orders, tolerances, the target the verdict is about;
 - where: the coupling (slider, typed value, physical value) and the range swept;
-- how: treatment and exact solver (and shifts vs energies in the levels figure);
+- how: treatment, reference (exact solves, certified bounds, both) and exact solver (and shifts
+  vs energies in the levels figure);
 - the model box and the export box, secondary (collapsed).
 """
 
@@ -18,7 +19,7 @@ from ..exact import BACKENDS
 from ..treatment import TREATMENTS
 from ._text import fmt_input
 
-__all__ = ["Controls", "EXPORT_FORMATS", "treatment_choices", "default_treatment", "SLIDER_STEPS"]
+__all__ = ["Controls", "EXPORT_FORMATS", "REFERENCE_CHOICES", "treatment_choices", "default_treatment", "SLIDER_STEPS"]
 
 EXPORT_FORMATS = ("png", "svg", "pdf")
 #: Arrow-key steps across the coupling range.
@@ -30,6 +31,16 @@ _TREATMENT_WORDS = {
     "block": "near-degenerate block",
     "auto": "auto (block if near-degenerate)",
 }
+
+
+#: (label, value) of the reference control: what the perturbative values are judged against.
+#: "auto" is resolved by :func:`ptcheck.report.choose_reference` (the one place that decides).
+REFERENCE_CHOICES = (
+    ("auto", "auto"),
+    ("exact", "exact"),
+    ("certified bounds", "bounds"),
+    ("both", "both"),
+)
 
 
 def treatment_choices() -> list[tuple[str, str]]:
@@ -53,7 +64,8 @@ class Controls:
     """The panel's widgets, by plain names (attributes hold ipywidgets)."""
 
     def __init__(self, *, orders: Sequence, order_choices: Sequence, coupling: float, coupling_range: tuple,
-                 tols: Sequence[float], relative: bool, treatment: str, backend: str, folder: str) -> None:
+                 tols: Sequence[float], relative: bool, treatment: str, backend: str, folder: str,
+                 reference: str = "auto") -> None:
         import ipywidgets as w
 
         lo, hi = coupling_range
@@ -88,6 +100,11 @@ class Controls:
         names = [v for _, v in choices]
         self.treatment = w.Dropdown(options=choices, value=treatment if treatment in names else names[0],
                                     description="treatment", style=style, layout=w.Layout(width="340px"))
+        self.reference = w.Dropdown(options=list(REFERENCE_CHOICES), value=reference, description="reference",
+                                    style=style, layout=w.Layout(width="340px"),
+                                    tooltip="what the perturbative values are judged against: exact solves, certified "
+                                            "bounds (Kato–Temple brackets, no exact solve) or both")
+        self.reference_hint = w.HTML()
         self.backend = w.Dropdown(options=list(BACKENDS), value=backend, description="exact solver", style=style,
                                   layout=w.Layout(width="340px"))
         self.shift = w.Checkbox(value=False, description="levels figure: shifts E(λ) − E(0)", indent=False,
@@ -124,7 +141,8 @@ class Controls:
     def how_box(self, *, shift: bool) -> Any:
         import ipywidgets as w
 
-        return w.VBox([_section("HOW"), self.treatment, self.backend] + ([self.shift] if shift else []))
+        return w.VBox([_section("HOW"), self.treatment, self.reference, self.reference_hint, self.backend]
+                      + ([self.shift] if shift else []))
 
     def where_box(self) -> Any:
         import ipywidgets as w

@@ -2,7 +2,7 @@
 
 A panel reads its controls into a :class:`~ptcheck.widgets._session.Settings`;
 a change of anything heavy work depends on (model, targets, orders,
-tolerances, treatment, exact solver, coupling range) runs the engine through
+tolerances, treatment, reference, exact solver, coupling range) runs the engine through
 the :class:`~ptcheck.widgets._session.Session` cache.  Only a complete answer
 replaces what is shown (a :class:`~ptcheck.widgets._session.State`): when a
 request fails, the previous answer stays fully usable (coupling moves, export)
@@ -23,6 +23,7 @@ from typing import Any
 
 import numpy as np
 
+from .. import _validation as val
 from ..approximants import Pade, order_name
 from ..degeneracy import DEFAULT_MIXING_THRESHOLD
 from ..formula import formula
@@ -32,11 +33,24 @@ from ..models import BUILDERS
 from ..plots import SLIDE_SIZE, plot_formula, save
 from ..plots._common import caption_text
 from ..quantities import Quantity
+from ..report import DEFAULT_BOUNDS_ABOVE, choose_reference
 from ._builders import build_model, builder_defaults, format_params, parse_params
-from ._controls import EXPORT_FORMATS, SLIDER_STEPS, Controls, default_treatment
+from ._controls import EXPORT_FORMATS, REFERENCE_CHOICES, SLIDER_STEPS, Controls, default_treatment
 from ._readout import readout_html, values_at
 from ._session import Session, Settings, State
-from ._text import energy_unit, fmt_coupling, fmt_input, fmt_number, fmt_physical, fmt_tol, parse_number, physical_coupling, relative_to_text, sentence
+from ._text import (
+    energy_unit,
+    fmt_coupling,
+    fmt_input,
+    fmt_number,
+    fmt_physical,
+    fmt_tol,
+    panel_words,
+    parse_number,
+    physical_coupling,
+    relative_to_text,
+    sentence,
+)
 from ._verdict import verdict, verdict_html
 from ._views import VIEWS, use_ipympl, write_numbers
 
@@ -102,6 +116,19 @@ class Panel:
     treatment : str, optional
         One of ``ptcheck.treatment.TREATMENTS`` (default: the engine's default).
     backend : {"auto", "dense", "sparse", "qutip"}
+    reference : {"auto", "exact", "bounds", "both"}, default "auto"
+        What the perturbative values are judged against: exact solves,
+        certified bounds (Kato–Temple brackets of the exact levels from
+        perturbative trial states: no exact solve, for models too big to
+        diagonalise; verdicts say "certified valid", "certified NOT valid" or
+        "undecided", rigorous or conditional on an estimated gap), or both
+        side by side.  ``"auto"``: certified bounds when the basis has more
+        than ``bounds_above`` states and every level can be bracketed through
+        its own series, exact solves otherwise
+        (:func:`ptcheck.report.choose_reference`, as on the command line).
+    bounds_above : int, default ``ptcheck.report.DEFAULT_BOUNDS_ABOVE``
+        Basis size above which ``"auto"`` uses certified bounds (the command
+        line's ``--bounds-above``).
     series_order : int, default 30
         Series order analysed for the divergence map.
     threshold : float
@@ -139,6 +166,8 @@ class Panel:
         rtol: float | Sequence[float] | None = None,
         treatment: str | None = None,
         backend: str = "auto",
+        reference: str = "auto",
+        bounds_above: int = DEFAULT_BOUNDS_ABOVE,
         series_order: int = 30,
         threshold: float = DEFAULT_MIXING_THRESHOLD,
         model_params: dict | None = None,
@@ -157,6 +186,8 @@ class Panel:
             raise ValueError(f"canvas must be one of {list(CANVAS_CHOICES)}; got {canvas!r}")
         if not isinstance(n_points, int) or n_points < 3:
             raise ValueError(f"n_points must be an int >= 3; got {n_points!r}")
+        val.check_choice(reference, "reference", [v for _, v in REFERENCE_CHOICES])
+        self.bounds_above = val.check_int(bounds_above, "bounds_above", minimum=0)
         if tol is not None and rtol is not None:
             raise ValueError(f"give tol (absolute) or rtol (relative), not both; got tol={tol!r}, rtol={rtol!r}")
         relative = tol is None
@@ -172,6 +203,7 @@ class Panel:
         self.controls = c = Controls(
             orders=orders, order_choices=order_choices, coupling=start, coupling_range=(lo, hi), tols=tols,
             relative=relative, treatment=treatment or default_treatment(), backend=backend, folder=folder,
+            reference=reference,
         )
         c.shift.value = bool(shift)
         self.banner = w.HTML()
@@ -217,7 +249,7 @@ class Panel:
         # ---- callbacks ------------------------------------------------------------------
         c.coupling.observe(self._on_coupling, names="value")
         c.coupling_text.observe(self._on_coupling_text, names="value")
-        for ctl in (c.levels, c.orders, c.tolerance, c.tolerance_kind, c.treatment, c.backend, c.focus):
+        for ctl in (c.levels, c.orders, c.tolerance, c.tolerance_kind, c.treatment, c.reference, c.backend, c.focus):
             ctl.observe(self._on_heavy, names="value")
         c.coupling_min.observe(self._on_range, names="value")
         c.coupling_max.observe(self._on_range, names="value")
@@ -289,8 +321,8 @@ class Panel:
             s = self._read_settings()
             state = self._compute(s, self.visible_views)
             self._slots["compute"] = ""
-            info = ([state.dropped] if state.dropped else []) + [reason for _, reason in state.unavailable]
-            self._slots["dropped"] = "<br>".join(html.escape(sentence(ValueError(t))) for t in info)
+            info = ([state.dropped] if state.dropped else []) + [reason for _, _, reason in state.unavailable]
+            self._slots["dropped"] = "<br>".join(html.escape(sentence(ValueError(panel_words(t)))) for t in dict.fromkeys(info))
             self.state = state
             self._show_notes()
             for v in self.views.values():
@@ -362,6 +394,9 @@ class Panel:
         fmt = (fmt or self.controls.export_format.value).lower()
         if fmt not in EXPORT_FORMATS:
             raise ValueError(f"export format must be one of {', '.join(EXPORT_FORMATS)}; got {fmt!r}")
+        if s.reference == "bounds":
+            raise ValueError("the formula's validity ranges are found with exact solves, and this answer uses certified "
+                             "bounds with no exact solve; set the reference to 'exact' or 'both' to export the formula")
         if order is None:
             ints = [o for o in s.orders if not isinstance(o, Pade)]
             if not ints:
@@ -415,8 +450,9 @@ class Panel:
         unit = energy_unit(st.model)
         tols = (" & ".join(fmt_tol(t, True) for t in s.tols) if s.relative
                 else " & ".join(fmt_number(t, 3) for t in s.tols) + f" {unit}")
+        ref = {"bounds": "certified bounds, no exact solve", "both": "exact and certified bounds"}.get(s.reference, "")
         return caption_text(kind, model=st.model.name, n=st.model.n, orders=[order_name(o) for o in r.orders],
-                            extra=[f"tolerance {tols}", f"treatment {s.treatment}"])
+                            extra=[f"tolerance {tols}", f"treatment {s.treatment}", ref])
 
     # ------------------------------------------------------------------ internals
     @contextmanager
@@ -434,7 +470,7 @@ class Panel:
             self.progress.layout.visibility = "hidden"
 
     def _error_html(self, exc: BaseException, slot: str) -> str:
-        text = sentence(exc)
+        text = panel_words(sentence(exc))
         detail = ""
         if not isinstance(exc, (ValueError, TypeError)):  # not bad input: where it happened, for a bug report
             tb = traceback.extract_tb(exc.__traceback__)
@@ -528,9 +564,35 @@ class Panel:
         if not lo < hi:
             raise ValueError(f"the coupling range needs 'from' < 'to'; got from {lo:g} to {hi:g}")
         tols, relative = self._read_tolerances()
+        reference, _ = self._reference_choice(targets, orders)
         return Settings(targets=targets, orders=orders, tols=tols, relative=relative, treatment=c.treatment.value,
                         backend=c.backend.value, coupling_min=lo, coupling_max=hi, n_points=self.n_points,
-                        series_order=self.series_order, threshold=self.threshold, focus=self._focus_key())
+                        series_order=self.series_order, threshold=self.threshold, focus=self._focus_key(),
+                        reference=reference)
+
+    def _reference_choice(self, targets: Sequence, orders: Sequence) -> tuple[str, str]:
+        """(reference, why) for these targets and orders: the control resolved ("auto" by report.choose_reference)."""
+        c = self.controls
+        asked = c.reference.value
+        if asked == "both":
+            return "both", "exact solves and certified bounds side by side, as asked"
+        levels = []
+        for t in targets:
+            if isinstance(t, Quantity):
+                levels.extend(self.model.level_index(k) for k in t.weights)
+            else:
+                levels.append(int(t))
+        return choose_reference(self.model, sorted(set(levels)), list(orders), reference=asked,
+                                bounds_above=self.bounds_above, treatment=c.treatment.value)
+
+    def _show_reference_hint(self) -> None:
+        c = self.controls
+        try:
+            targets, orders = tuple(c.levels.value), tuple(c.orders.value)
+            _, why = self._reference_choice(targets, orders) if self.model is not None else ("", "")
+        except ValueError:
+            why = ""
+        c.reference_hint.value = f"<small style='color:#555'>{html.escape(why)}</small>" if why else ""
 
     def _settings_dict(self, st: State) -> dict:
         s = st.settings
@@ -543,7 +605,8 @@ class Panel:
                 "orders": [order_name(o) for o in st.result.orders],
                 "tolerances": [fmt_tol(t, s.relative, unit) for t in s.tols],
                 "tol" if not s.relative else "rtol": list(s.tols),
-                "treatment": s.treatment, "backend": s.backend, "coupling_range": [s.coupling_min, s.coupling_max],
+                "treatment": s.treatment, "backend": s.backend, "reference": s.reference,
+                "reference_reason": st.reference_reason, "coupling_range": [s.coupling_min, s.coupling_max],
                 "n_points": s.n_points, "coupling": self.coupling}
 
     def _focus_key(self) -> Any:
@@ -570,7 +633,8 @@ class Panel:
         if total > 1:
             self.progress.layout.visibility = "visible"
         sess.notes.clear()
-        self.progress.description = "exact & series"
+        self.progress.description = {"bounds": "bounds & series", "both": "exact, bounds & series"}.get(
+            s.reference, "exact & series")
         result, dropped = sess.comparison(s)
         self.progress.value += 1
         self.progress.description = "validity"
@@ -579,14 +643,17 @@ class Panel:
             self.progress.value += 1
 
         bounds, unavailable = sess.boundaries(s, tuple(result.orders), progress=step)
+        _, why = self._reference_choice(s.targets, s.orders)
         state = State(model=self.model, model_text=self._model_text, model_params=self._model_params, settings=s,
-                      result=result, boundaries=bounds,
-                      dropped=dropped, unavailable=tuple(unavailable.items()))
+                      result=result, boundaries=bounds, dropped=dropped,
+                      unavailable=tuple((o, r, reason) for (o, r), reason in unavailable.items()), reference_reason=why)
         if "divergence" in needs:
             self.progress.description = "radius & EPs"
             state = state.with_divergence(sess.divergence(s))
             self.progress.value += 1
         notes = list(sess.notes) + [n for n in result.notes if not n.startswith("Exact values are exact")]
+        if s.reference != "exact":
+            notes.append(f"Reference: {why}.")
         return replace(state, notes=tuple(dict.fromkeys(notes)))
 
     def _complete(self, views: Sequence) -> None:
@@ -617,6 +684,7 @@ class Panel:
     def _update_text(self) -> None:
         self._render_messages()
         self._show_tolerance_hint()
+        self._show_reference_hint()
         st = self.state
         if st is None:
             self.banner.value = ""
@@ -631,13 +699,21 @@ class Panel:
         ti = list(r.targets).index(focus)
         err = point.rel_error if s.relative else point.abs_error
         errors_at = {name: float(err[ti, oi]) for oi, name in enumerate(r.order_names)}
-        undefined = [name for oi, name in enumerate(r.order_names) if s.relative and np.all(np.isnan(r.rel_error[ti, oi]))]
+        undefined = [name for oi, name in enumerate(r.order_names)
+                     if s.relative and s.reference != "bounds" and np.all(np.isnan(r.rel_error[ti, oi]))]
+        missing = {"exact": {}, "bounds": {}}
+        for o, ref, _ in st.unavailable:
+            missing[ref][order_name(o)] = ("not available for this target (see the message)" if ref == "exact" else
+                                           "no certified boundary for this target (see the message)")
         v = verdict(st.boundaries, target=focus, orders=r.orders, tols=s.tols, relative=s.relative, coupling=lam,
-                    model=st.model, unit=unit, errors_at=errors_at, undefined=undefined,
-                    unavailable={order_name(o): "not available for this target (see the message)" for o, _ in st.unavailable})
+                    model=st.model, unit=unit, errors_at=errors_at, undefined=undefined, reference=s.reference,
+                    unavailable=missing["bounds" if s.reference == "bounds" else "exact"],
+                    uncertified=missing["bounds"] if s.reference == "both" else None)
         kind = f"relative error, in % of {relative_to_text(s.focus)}" if s.relative else f"absolute error, in {unit}"
         treat = r.treatments[ti]
-        heading = f"Verdict for {focus} ({treat} treatment; {kind})"
+        against = {"bounds": "; judged by certified bounds, no exact solve",
+                   "both": "; exact solves, with certified bounds"}.get(s.reference, "")
+        heading = f"Verdict for {focus} ({treat} treatment; {kind}{against})"
         self.verdict = v
         self.banner.value = verdict_html(v, heading=heading, stale=self.stale)
         refs = [relative_to_text(t) for t in r.levels]

@@ -3,7 +3,9 @@
 The figures draw straight segments between sweep points: on a linear axis
 between the values, on a log axis between their logarithms.  The values at λ
 are interpolated the same way, so the markers sit on the drawn lines and the
-readout shows the numbers at the markers.
+readout shows the numbers at the markers.  Certified brackets (a comparison
+made with ``reference="bounds"`` or ``"both"``) are interpolated the same way;
+they are certified at the sweep points themselves.
 """
 
 from __future__ import annotations
@@ -15,6 +17,7 @@ from typing import Any
 
 import numpy as np
 
+from .._format import fmt_interval
 from ._text import fmt_error, fmt_number
 
 __all__ = ["interp_linear", "interp_log", "PointValues", "shown_arrays", "values_at", "readout_html"]
@@ -78,6 +81,11 @@ class PointValues:
     perturbative : (T, O) ndarray
     abs_error, rel_error : (T, O) ndarray
         Interpolated as on the log error axis; NaN where undefined.
+    exact_lower, exact_upper : (T,) ndarray or None
+        Certified bracket of the exact value shown (as ``exact``), linear
+        interpolation; None without certified bounds.
+    error_lower, error_upper, rel_error_lower, rel_error_upper : (T, O) ndarray or None
+        Certified brackets of the errors, interpolated as on the log axis.
     """
 
     coupling: float
@@ -85,6 +93,12 @@ class PointValues:
     perturbative: np.ndarray
     abs_error: np.ndarray
     rel_error: np.ndarray
+    exact_lower: np.ndarray | None = None
+    exact_upper: np.ndarray | None = None
+    error_lower: np.ndarray | None = None
+    error_upper: np.ndarray | None = None
+    rel_error_lower: np.ndarray | None = None
+    rel_error_upper: np.ndarray | None = None
 
 
 def shown_arrays(result: Any, shift: bool) -> tuple[np.ndarray, np.ndarray]:
@@ -110,12 +124,23 @@ def values_at(result: Any, coupling: float, *, shift: bool = False) -> PointValu
     order = np.argsort(lam, kind="stable")
     g = lam[order]
     exact, pert = shown_arrays(result, shift)
+    brackets = {}
+    if getattr(result, "exact_lower", None) is not None:
+        # the bracket of the value shown: minus E(0) where the figure shows shifts
+        presents = tuple(getattr(result, "presents", ()) or ())
+        e0 = np.asarray(result.unperturbed, dtype=float)
+        off = np.array([e0[i] if shift or (presents and presents[i] == "shift") else 0.0 for i in range(e0.size)])
+        for f in ("exact_lower", "exact_upper"):
+            brackets[f] = interp_linear(g, (np.asarray(getattr(result, f), dtype=float) - off[:, None])[..., order], coupling)
+        for f in ("error_lower", "error_upper", "rel_error_lower", "rel_error_upper"):
+            brackets[f] = interp_log(g, np.asarray(getattr(result, f), dtype=float)[..., order], coupling)
     return PointValues(
         coupling=float(coupling),
         exact=interp_linear(g, exact[..., order], coupling),
         perturbative=interp_linear(g, pert[..., order], coupling),
         abs_error=interp_log(g, np.asarray(result.abs_error)[..., order], coupling),
         rel_error=interp_log(g, np.asarray(result.rel_error)[..., order], coupling),
+        **brackets,
     )
 
 
@@ -130,10 +155,22 @@ def readout_html(
     where: str,
     relative_to: Sequence[str],
 ) -> str:
-    """Table of exact and perturbative values at λ (as the levels figure shows them) with each order's error."""
+    """Table of exact and perturbative values at λ (as the levels figure shows them) with each order's error.
+
+    With certified bounds the exact column shows the certified bracket of the
+    exact value and each order its certified error bracket, marked ✓ (the
+    whole bracket meets every tolerance), ✗ (it misses every one), ◐ (some)
+    or ? (a tolerance lies inside the bracket: undecided).
+    """
     err = point.rel_error if relative else point.abs_error
+    bounded = point.error_lower is not None
+    exact_known = getattr(result, "reference", "exact") != "bounds"
+    if bounded:
+        e_lo, e_hi = (point.rel_error_lower, point.rel_error_upper) if relative else (point.error_lower, point.error_upper)
     # round-off of an exactly vanishing value (e.g. a first-order shift that is 0) reads as 0
-    scale = float(np.nanmax(np.abs(np.asarray(result.exact)))) if np.size(result.exact) else 0.0
+    sizes = np.abs(np.asarray(result.exact if exact_known else result.exact_upper, dtype=float))
+    sizes = sizes[np.isfinite(sizes)]
+    scale = float(sizes.max()) if sizes.size else 0.0
     floor = 1e-12 * max(scale, np.finfo(float).tiny)
 
     def value(x: float) -> str:
@@ -149,23 +186,68 @@ def readout_html(
             e = float(err[ti, oi])
             val_f = float(point.perturbative[ti, oi])
             val = value(val_f)
-            if not np.isfinite(e):
-                ref = "shift" if ("shift" in relative_to[ti] or "change" in relative_to[ti]) else "value"
-                mark = (f"<span style='color:#666'>error undefined ({ref} ≈ 0)</span>" if relative and np.isfinite(val_f)
-                        else "<span style='color:#666'>error —</span>")
+            if bounded:
+                mark = _bracket_mark(float(e_lo[ti, oi]), float(e_hi[ti, oi]), t_sorted, tols, relative)
+                if exact_known:
+                    mark = _point_mark(e, t_sorted, tols, relative, relative_to[ti], val_f) + "<br>" + mark
             else:
-                ok = sum(e <= t for t in t_sorted)
-                sym, col = ("✓", "#009E73") if ok == len(t_sorted) else ("✗", "#D55E00") if ok == 0 else ("◐", "#B77A00")
-                mark = f"<span style='color:{col}'>{sym} {html.escape(fmt_error(e, tols, relative))}</span>"
+                mark = _point_mark(e, t_sorted, tols, relative, relative_to[ti], val_f)
             cells += f"<td style='padding:0 10px'>{html.escape(val)} &nbsp;{mark}</td>"
+        exact_cell = html.escape(value(float(point.exact[ti]))) if exact_known else ""
+        if bounded:
+            lo, hi = float(point.exact_lower[ti]), float(point.exact_upper[ti])
+            if np.isfinite(lo) and np.isfinite(hi):
+                a, b = fmt_interval(lo, hi, 4, 7)
+                br = f"∈ [{html.escape(a)}, {html.escape(b)}]"
+            else:
+                br = "no certified bracket"
+            exact_cell += ("<br>" if exact_known else "") + f"<span style='color:#555'>{br}</span>"
         rows += (f"<tr><td style='padding:0 10px 0 0'>{html.escape(name)}</td>"
-                 f"<td style='padding:0 10px'>{html.escape(value(float(point.exact[ti])))}</td>{cells}</tr>")
+                 f"<td style='padding:0 10px'>{exact_cell}</td>{cells}</tr>")
     kinds = sorted(set(relative_to))
     err_word = (f"error in % of {' / '.join(kinds)}" if relative else f"absolute error in {unit}")
+    n = np.asarray(result.couplings).size
+    between = (f"certified brackets [a, b] at the {n} sweep points, interpolated between" if bounded
+               else f"interpolated between the {n} sweep points")
     return (
         f"<div style='font-size:13px'><b>At {html.escape(where)}</b> "
         f"<span style='color:#555'>· {html.escape(what)} in {html.escape(unit)} · {html.escape(err_word)} · "
-        f"interpolated between the {np.asarray(result.couplings).size} sweep points</span>"
+        f"{html.escape(between)}</span>"
         f"<table style='margin-top:2px'><tr><th style='text-align:left'>target</th>"
         f"<th style='padding:0 10px;text-align:left'>exact</th>{head}</tr>{rows}</table></div>"
     )
+
+
+_MARKS = {"all": ("✓", "#009E73"), "none": ("✗", "#D55E00"), "some": ("◐", "#B77A00"), "undecided": ("?", "#666666")}
+
+
+def _point_mark(e: float, t_sorted: Sequence[float], tols: Sequence[float], relative: bool, relative_to: str,
+                val: float) -> str:
+    """✓ / ◐ / ✗ and the error, or why it is undefined."""
+    if not np.isfinite(e):
+        ref = "shift" if ("shift" in relative_to or "change" in relative_to) else "value"
+        return (f"<span style='color:#666'>error undefined ({ref} ≈ 0)</span>" if relative and np.isfinite(val)
+                else "<span style='color:#666'>error —</span>")
+    ok = sum(e <= t for t in t_sorted)
+    sym, col = _MARKS["all" if ok == len(t_sorted) else "none" if ok == 0 else "some"]
+    return f"<span style='color:{col}'>{sym} {html.escape(fmt_error(e, tols, relative))}</span>"
+
+
+def _bracket_mark(lo: float, hi: float, t_sorted: Sequence[float], tols: Sequence[float], relative: bool) -> str:
+    """The certified error bracket [lo, hi] with ✓ (meets every tolerance), ✗ (none), ◐ (some) or ? (undecided)."""
+    if np.isnan(lo) or np.isnan(hi):
+        return "<span style='color:#666'>no certified bracket</span>"
+    meets = sum(hi <= t for t in t_sorted)
+    misses = sum(lo > t for t in t_sorted)
+    if meets == len(t_sorted):
+        key = "all"
+    elif misses == len(t_sorted):
+        key = "none"
+    elif meets + misses == len(t_sorted):
+        key = "some"
+    else:
+        key = "undecided"
+    sym, col = _MARKS[key]
+    factor, unit = (100.0, " %") if relative else (1.0, "")
+    a, b = fmt_interval(max(lo, 0.0) * factor, hi * factor, 2, 4)
+    return f"<span style='color:{col}'>{sym} [{html.escape(a)}, {html.escape(b)}]{unit}</span>"

@@ -31,7 +31,9 @@ class Settings:
 
     ``tols`` are fractions when ``relative`` (0.01 = 1 %), energy units otherwise,
     ascending; ``focus`` is the target whose validity boundaries (verdict, errors
-    figure) are computed.
+    figure) are computed; ``reference`` is what they are judged against,
+    already resolved: ``"exact"`` (exact solves), ``"bounds"`` (certified
+    brackets, no exact solve) or ``"both"``.
     """
 
     targets: tuple  # level work indices (int) and Quantity objects
@@ -46,6 +48,12 @@ class Settings:
     series_order: int
     threshold: float
     focus: Any
+    reference: str = "exact"
+
+    @property
+    def references(self) -> tuple[str, ...]:
+        """Kinds of validity boundary computed: ``("exact",)``, ``("bounds",)`` or both."""
+        return ("exact", "bounds") if self.reference == "both" else (self.reference,)
 
     @property
     def couplings(self) -> np.ndarray:
@@ -81,14 +89,21 @@ class State:
     result : ComparisonResult
         Its ``orders`` may leave out orders that do not apply (see ``dropped``).
     boundaries : tuple of ValidityBoundary
-        For ``settings.focus``: every order of ``result`` × tolerance × direction.
+        For ``settings.focus``: every order of ``result`` × tolerance ×
+        direction × reference (``b.reference``: "exact", or "bounds" for
+        certified boundaries).
     divergence : DivergenceMap or None
         Computed when a view needs it.
     dropped : str
         Why orders were left out ("" when none were).
-    unavailable : tuple of (order spec, str)
-        Orders of ``result`` with no verdict for ``settings.focus`` (a Padé
-        approximant of a level without a scalar series), and why.
+    unavailable : tuple of (order spec, str, str)
+        Orders of ``result`` with no boundary of one reference for
+        ``settings.focus`` (a Padé approximant of a level without a scalar
+        series; a certified boundary of a Padé approximant or of a level that
+        is not expanded by its own series), the reference ("exact" or
+        "bounds") and why.
+    reference_reason : str
+        Why the reference is what it is (the "auto" choice explained).
     notes : tuple of str
         Engine warnings and result notes, in plain words.
     """
@@ -103,6 +118,7 @@ class State:
     dropped: str = ""
     unavailable: tuple = ()
     notes: tuple = field(default=())
+    reference_reason: str = ""
 
     def with_divergence(self, d: Any, notes: tuple = ()) -> State:
         return replace(self, divergence=d, notes=tuple(dict.fromkeys(self.notes + tuple(notes))))
@@ -148,11 +164,11 @@ class Session:
         compared and the reason is returned instead of failing everything.
         """
         key = (tuple(map(_key, s.targets)), s.orders, s.treatment, s.backend, s.coupling_min, s.coupling_max,
-               s.n_points, s.threshold)
+               s.n_points, s.threshold, s.reference)
         if key not in self._comparisons:
             run = lambda orders: self._call(  # noqa: E731 - one call site, two order lists
                 compare, self.model, list(s.targets), list(orders), s.couplings, treatment=s.treatment,
-                backend=s.backend, threshold=s.threshold, coupling=s.reach,
+                backend=s.backend, threshold=s.threshold, coupling=s.reach, reference=s.reference,
             )
             dropped = ""
             try:
@@ -170,37 +186,42 @@ class Session:
 
     def boundary_jobs(self, s: Settings, orders: tuple) -> int:
         """How many validity boundaries are not cached yet."""
-        return sum(self._bkey(s, o, t, d) not in self._boundaries for o in orders for t in s.tols for d in s.directions)
+        return sum(self._bkey(s, o, t, d, r) not in self._boundaries
+                   for o in orders for t in s.tols for d in s.directions for r in s.references)
 
     def boundaries(self, s: Settings, orders: tuple, progress: Callable[[], None] | None = None) -> tuple[tuple, dict]:
-        """Validity boundaries of ``s.focus``: each order × tolerance × direction (cached).
+        """Validity boundaries of ``s.focus``: each order × tolerance × direction × reference (cached).
 
-        Returns the boundaries and ``{order spec: reason}`` for the Padé orders
-        the engine refuses for this target (no scalar series to approximate).
+        Returns the boundaries and ``{(order spec, reference): reason}`` for
+        the boundaries the engine refuses for this target: a Padé approximant
+        of a level with no scalar series to approximate; with certified
+        bounds, a Padé approximant or a level not expanded by its own series
+        (the comparison still brackets it).
         """
         out, unavailable = [], {}
-        for o in orders:
-            for t in s.tols:
-                for d in s.directions:
-                    k = self._bkey(s, o, t, d)
-                    if k not in self._boundaries:
-                        try:
-                            self._boundaries[k] = self._call(
-                                validity_boundary, self.model, s.focus, o, direction=d, treatment=s.treatment,
-                                backend=s.backend, max_coupling=s.reach, threshold=s.threshold, coupling=s.reach,
-                                **({"rtol": t} if s.relative else {"tol": t}),
-                            )
-                        except ValueError as exc:
-                            if not isinstance(o, Pade):
-                                raise
-                            self._boundaries[k] = exc
-                        if progress is not None:
-                            progress()
-                    b = self._boundaries[k]
-                    if isinstance(b, Exception):
-                        unavailable[o] = str(b)
-                    else:
-                        out.append(b)
+        for r in s.references:
+            for o in orders:
+                for t in s.tols:
+                    for d in s.directions:
+                        k = self._bkey(s, o, t, d, r)
+                        if k not in self._boundaries:
+                            try:
+                                self._boundaries[k] = self._call(
+                                    validity_boundary, self.model, s.focus, o, direction=d, treatment=s.treatment,
+                                    backend=s.backend, max_coupling=s.reach, threshold=s.threshold, coupling=s.reach,
+                                    reference=r, **({"rtol": t} if s.relative else {"tol": t}),
+                                )
+                            except ValueError as exc:
+                                if not isinstance(o, Pade) and r == "exact":
+                                    raise
+                                self._boundaries[k] = exc
+                            if progress is not None:
+                                progress()
+                        b = self._boundaries[k]
+                        if isinstance(b, Exception):
+                            unavailable[(o, r)] = str(b)
+                        else:
+                            out.append(b)
         return tuple(out), unavailable
 
     def divergence(self, s: Settings) -> Any:
@@ -214,5 +235,5 @@ class Session:
         return self._divergence[key]
 
     @staticmethod
-    def _bkey(s: Settings, order: Any, tol: float, direction: int) -> tuple:
-        return (_key(s.focus), order, direction, tol, s.relative, s.treatment, s.backend, s.reach, s.threshold)
+    def _bkey(s: Settings, order: Any, tol: float, direction: int, reference: str) -> tuple:
+        return (_key(s.focus), order, direction, tol, s.relative, s.treatment, s.backend, s.reach, s.threshold, reference)

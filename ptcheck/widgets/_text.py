@@ -22,6 +22,7 @@ __all__ = [
     "fmt_error",
     "relative_to_text",
     "sentence",
+    "panel_words",
 ]
 
 
@@ -143,4 +144,22 @@ def sentence(exc: BaseException) -> str:
         text = text[0].upper() + text[1:]
     if text[-1] not in ".!?":
         text += "."
+    return text
+
+
+#: Engine phrases about the reference, as the panel's controls say them.
+_PANEL_WORDS = (
+    ("compare(..., reference='bounds') still brackets it at given couplings", "the figures still show its brackets"),
+    ("reference='bounds' brackets", "certified bounds bracket"),
+    ("reference='bounds' certifies", "certified bounds certify"),
+    ("reference='bounds'", "certified bounds"),
+    ("Use reference='exact'", "Choose the reference 'exact' or 'both'"),
+    ("reference='exact'", "the reference 'exact'"),
+)
+
+
+def panel_words(text: str) -> str:
+    """An engine message about the reference worded as the panel's controls say it (no Python call syntax)."""
+    for old, new in _PANEL_WORDS:
+        text = text.replace(old, new)
     return text

@@ -4,6 +4,13 @@ Built from validity boundaries already computed (no engine work), so it follows
 the coupling live.  An order is valid at λ when |λ| lies below its boundary
 |λ*| on the side of λ (the boundary is where the error first exceeds the
 tolerance going out from λ = 0).
+
+With certified bounds (no exact solve) each order at each tolerance is what
+``ValidityBoundary.decision_at(λ)`` decides: "certified valid up to …"
+(rigorous, or conditional on an estimated gap), "certified NOT valid from …",
+or "undecided between … and …".  Certified couplings are printed rounded
+toward safety (the certified coupling down, the coupling of certified
+failure up).
 """
 
 from __future__ import annotations
@@ -14,8 +21,9 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
+from .._format import fmt_certified_range, fmt_toward
 from ..approximants import order_name
-from ._text import fmt_coupling, fmt_number, fmt_tol
+from ._text import fmt_coupling, fmt_number, fmt_tol, physical_coupling
 
 __all__ = ["OrderVerdict", "Verdict", "verdict", "verdict_html"]
 
@@ -35,15 +43,23 @@ class OrderVerdict:
         order meets the tolerance over the whole range checked, 0 when it fails
         at any λ ≠ 0, NaN when the boundary is undefined.
     meets : tuple of bool or None
-        Per tolerance: valid at the current coupling (None: undefined).
+        Per tolerance: valid at the current coupling (None: undefined, or
+        undecided by certified bounds).
     text : str
         The sentence shown.
+    certified : tuple of str
+        Per tolerance, with certified bounds: what the certified boundary
+        decides at the current coupling (``decision_at``: "valid", "not valid"
+        or "undecided"; "" without a certified boundary); empty with exact
+        solves only.  With certified bounds only, ``reach`` is the certified
+        coupling |λ| (``inf``: certified over the whole range).
     """
 
     order: str
     reach: tuple
     meets: tuple
     text: str
+    certified: tuple = ()
 
     @property
     def mark(self) -> str:
@@ -83,7 +99,7 @@ class Verdict:
         return {"target": self.target, "coupling": self.coupling, "tolerances": list(self.tols),
                 "tolerance_kind": "relative" if self.relative else "absolute",
                 "orders": [{"order": o.order, "reach": [num(r) for r in o.reach], "valid_here": list(o.meets),
-                            "text": o.text} for o in self.orders]}
+                            "certified_here": list(o.certified), "text": o.text} for o in self.orders]}
 
     def __repr__(self) -> str:
         marks = ", ".join(f"{o.order} {o.mark}" for o in self.orders)
@@ -106,6 +122,8 @@ def verdict(
     errors_at: dict | None = None,
     undefined: Sequence[str] = (),
     unavailable: dict | None = None,
+    reference: str = "exact",
+    uncertified: dict | None = None,
 ) -> Verdict:
     """Verdict per order from validity boundaries (see module docstring).
 
@@ -128,12 +146,25 @@ def verdict(
         exact reference is ≈ 0 everywhere): no verdict is given for them.
     unavailable : dict, optional
         ``order name -> reason`` for orders without boundaries (no verdict).
+    reference : {"exact", "bounds", "both"}
+        Which boundaries judge: exact ones (``b.reference == "exact"``),
+        certified ones (``"bounds"``), or exact ones with the certified
+        verdict added to each sentence (``"both"``).
+    uncertified : dict, optional
+        With ``"both"``: ``order name -> reason`` for orders without a
+        certified boundary.
     """
     lam = float(coupling)
     side = 1 if lam >= 0 else -1
+    exact_b = [b for b in boundaries if getattr(b, "reference", "exact") == "exact"]
+    cert_b = [b for b in boundaries if getattr(b, "reference", "exact") == "bounds"]
     lines = []
     for spec in orders:
         name = order_name(spec)
+        if reference == "bounds":
+            lines.append(_certified_order(cert_b, spec, name, target=target, tols=tols, relative=relative, lam=lam,
+                                          model=model, unit=unit, unavailable=unavailable or {}))
+            continue
         if name in (unavailable or {}):
             lines.append(OrderVerdict(order=name, reach=(math.nan,) * len(tols), meets=(None,) * len(tols),
                                       text=f"{name}: {unavailable[name]}."))
@@ -143,7 +174,7 @@ def verdict(
                     "is ≈ 0 over the whole range (it does not move); use an absolute tolerance.")
             lines.append(OrderVerdict(order=name, reach=(math.nan,) * len(tols), meets=(None,) * len(tols), text=text))
             continue
-        picked = [_pick(boundaries, spec, tol, relative, side) for tol in tols]
+        picked = [_pick(exact_b, spec, tol, relative, side) for tol in tols]
         if picked and all(b is not None and b.status == "exact_in_sector" for b in picked):
             text = (f"{name}: no verdict — with this treatment {target} is exact within its sector (its block is a "
                     "whole invariant sector: exact diagonalisation, not a perturbative order).")
@@ -161,7 +192,16 @@ def verdict(
             back = [fmt_tol(t, relative, unit) for t, m in zip(tols, meets) if m is False and err <= t]
             if back and lam != 0:
                 text += f" (Its error is back below {' and '.join(back)} here: a cancellation, not a range of validity.)"
-        lines.append(OrderVerdict(order=name, reach=tuple(reach), meets=tuple(meets), text=text))
+        certified: tuple = ()
+        if reference == "both":
+            if name in (uncertified or {}):
+                text += f" Bounds: {uncertified[name]}."
+            else:
+                cv = _certified_order(cert_b, spec, name, target=target, tols=tols, relative=relative, lam=lam,
+                                      model=model, unit=unit, unavailable={})
+                text += " Bounds: " + cv.text.split(": ", 1)[1] if len(tols) == 1 else " Bounds:" + cv.text[len(name):]
+                certified = cv.certified
+        lines.append(OrderVerdict(order=name, reach=tuple(reach), meets=tuple(meets), text=text, certified=certified))
     return Verdict(target=str(target), coupling=lam, tols=tuple(tols), relative=bool(relative), orders=tuple(lines))
 
 
@@ -217,7 +257,7 @@ def _and(tols: Sequence[str]) -> str:
 
 
 def _at(lam: float, tols: Sequence[float], meets: Sequence, reach: Sequence, relative: bool, model: Any, unit: str) -> str:
-    where = fmt_coupling(lam, model)
+    where = fmt_coupling(lam, model, digits=4)
     if lam == 0:
         return f"; at {where} it is exact (no perturbation)."
     if all(r == 0 for r in reach):
@@ -258,3 +298,113 @@ def verdict_html(v: Verdict, *, heading: str, stale: bool = False) -> str:
         f"font-size:15px;line-height:1.45'>{note}<div style='color:#444;font-size:13px'>{html.escape(heading)}</div>"
         f"{rows}</div>"
     )
+
+
+# ---------------------------------------------------------------------- certified bounds
+def _certified_order(boundaries: Sequence[Any], spec: Any, name: str, *, target: str, tols: Sequence[float],
+                     relative: bool, lam: float, model: Any, unit: str, unavailable: dict) -> OrderVerdict:
+    """One order judged by certified boundaries: per tolerance, what ``decision_at(λ)`` decides, in words."""
+    n = len(tols)
+    if name in unavailable:
+        return OrderVerdict(order=name, reach=(math.nan,) * n, meets=(None,) * n, text=f"{name}: {unavailable[name]}.",
+                            certified=("",) * n)
+    side = 1 if lam >= 0 else -1
+    picked = [_pick(boundaries, spec, tol, relative, side) for tol in tols]
+    if picked and all(b is not None and b.status == "exact_in_sector" for b in picked):
+        text = (f"{name}: no verdict — with this treatment {target} is exact within its sector (its block is a "
+                "whole invariant sector: exact diagonalisation, not a perturbative order).")
+        return OrderVerdict(order=name, reach=(math.nan,) * n, meets=(None,) * n, text=text, certified=("undecided",) * n)
+    reach, meets, decisions, groups = [], [], [], {}
+    for tol, b in zip(tols, picked):
+        t = fmt_tol(tol, relative, unit)
+        if b is None:
+            reach.append(math.nan)
+            meets.append(None)
+            decisions.append("")
+            groups.setdefault("no certified boundary", []).append(t)
+            continue
+        d = b.decision_at(lam)
+        decisions.append(d)
+        meets.append(True if d == "valid" else False if d == "not valid" else None)
+        reach.append(_certified_reach(b))
+        groups.setdefault(_certified_phrase(b, d, lam, model), []).append(t)
+    # tolerances with the same phrase share it: "order 4 at 1 % and 5 %: certified valid over the whole range ..."
+    text = name + " " + "; ".join(f"at {_and(ts)}: {phrase}" for phrase, ts in groups.items()) + "."
+    return OrderVerdict(order=name, reach=tuple(reach), meets=tuple(meets), text=text, certified=tuple(decisions))
+
+
+def _certified_reach(b: Any) -> float:
+    if b.status in ("certified", "not_certified"):
+        return abs(float(b.coupling))
+    if b.status == "not_reached":
+        return math.inf
+    if b.status == "fails_at_zero":
+        return 0.0
+    return math.nan
+
+
+def _lam(value: float, model: Any, *, up: bool = False, symbol: str = "λ") -> str:
+    """``λ = 1.101 (g = 72.6 MHz)``: a certified coupling printed rounded toward safety (``up``: away from 0)."""
+    text = f"{symbol} = {fmt_toward(value, up=up)}"
+    phys = physical_coupling(model)
+    if phys is not None:
+        scale, unit = phys
+        text += f" (g = {fmt_toward(value * scale, up=up)}" + (f" {unit})" if unit else ")")
+    return text
+
+
+def _range(low: float, high: float, model: Any, side: int) -> str:
+    """``λ = 1.101 and 1.103``: the low end rounded down, the high end up (physical values beside)."""
+    a, b = fmt_certified_range(abs(low), abs(high))
+    sign = "−" if side < 0 else ""
+    text = f"λ = {sign}{a} and {sign}{b}"
+    phys = physical_coupling(model)
+    if phys is not None:
+        scale, unit = phys
+        pa, pb = fmt_certified_range(abs(low * scale), abs(high * scale))
+        u = f" {unit}" if unit else ""
+        text += f" (g = {sign}{pa}{u} and {sign}{pb}{u})"
+    return text
+
+
+def _gap_words(rigorous: bool, b: Any) -> str:
+    if rigorous:
+        return "rigorous"
+    if str(b.gap_kind).startswith("given"):
+        return "conditional on the gap given"
+    return "conditional on an estimated gap"
+
+
+def _certified_phrase(b: Any, decision: str, lam: float, model: Any) -> str:
+    """What a certified boundary says at λ: certified valid up to …, certified NOT valid from …, undecided between …."""
+    c, f = float(b.coupling), float(b.certified_not)
+    side = b.direction
+    if b.status == "fails_at_zero":
+        return "certified NOT valid at any λ ≠ 0"
+    if b.status not in ("certified", "not_certified", "not_reached"):
+        return f"no certified verdict ({b.status.replace('_', ' ')})"
+    if decision == "valid":
+        rig = b.rigorous or abs(lam) < abs(b.rigorous_coupling)
+        kind = _gap_words(rig, b)
+        if not b.rigorous and rig and math.isfinite(b.rigorous_coupling) and b.rigorous_coupling != 0:
+            kind += f" here; beyond {_lam(b.rigorous_coupling, model)} conditional on an estimated gap"
+        if b.status == "not_reached":
+            return f"certified valid over the whole range checked (|λ| ≤ {fmt_number(b.max_coupling, 3)}) ({kind})"
+        return f"certified valid up to {_lam(c, model)} ({kind})"
+    if decision == "not valid":
+        kind = _gap_words(b.certified_not_rigorous, b)
+        if c == 0:
+            return f"certified NOT valid from {_lam(f, model, up=True)} ({kind})"
+        a, z = fmt_certified_range(abs(c), abs(f))
+        sign = "−" if side < 0 else ""
+        return f"certified NOT valid from λ = {sign}{z} ({kind}; certified valid up to {sign}{a})"
+    # undecided
+    if math.isfinite(f):
+        if c == 0:
+            return (f"undecided below {_lam(f, model, up=True)} (nothing certified there; certified NOT valid from "
+                    f"there, {_gap_words(b.certified_not_rigorous, b)})")
+        return f"undecided between {_range(c, f, model, side)} (certified valid below the first, NOT valid from the second)"
+    if c == 0:
+        return "undecided (nothing certified: the bounds are too wide here; compare with exact solves)"
+    return (f"undecided beyond {_lam(c, model)} (certified valid up to there; no failure certified within "
+            f"|λ| ≤ {fmt_number(b.max_coupling, 3)})")

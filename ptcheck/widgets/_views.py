@@ -213,7 +213,8 @@ class LevelsView(_View):
     def move(self, panel: Any, coupling: float) -> None:
         if self.state is None:
             return
-        _move_markers(self.artists, self.artists.exact, coupling, log=False)
+        a = self.artists
+        _move_markers(a, a.exact if a.exact_known else [ln for pair in a.band_edges for ln in pair], coupling, log=False)
 
     def numbers(self, panel: Any) -> tuple[list[dict], dict]:
         r = self.state.result
@@ -231,7 +232,8 @@ class ErrorsView(_View):
         kind = "relative" if s.relative else "absolute"
         target = panel.error_target_name
         ti = list(r.targets).index(target)
-        self.artists = plot_errors(r, state.boundaries, target=target, orders=_drawable(r.orders, r.abs_error[ti:ti + 1]),
+        drawn = r.abs_error if r.reference != "bounds" else r.error_upper  # with bounds only: what has a bracket
+        self.artists = plot_errors(r, state.boundaries, target=target, orders=_drawable(r.orders, drawn[ti:ti + 1]),
                                    error=kind, tol=list(s.tols), coupling=panel.coupling, ax=self.ax,
                                    caption=panel.caption(f"{kind} error of {target} vs coupling", state),
                                    **_physical(state.model))
@@ -239,7 +241,8 @@ class ErrorsView(_View):
     def move(self, panel: Any, coupling: float) -> None:
         if self.state is None:
             return
-        _move_markers(self.artists, self.artists.lines, coupling, log=True)
+        a = self.artists
+        _move_markers(a, a.lines if a.exact_known else [ln for pair in a.band_edges for ln in pair], coupling, log=True)
 
     def numbers(self, panel: Any) -> tuple[list[dict], dict]:
         st = self.state
