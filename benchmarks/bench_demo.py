@@ -8,7 +8,11 @@ every figure included).  Runs alternate between this checkout and the
 baseline; the minimum wall time is the best estimate of an idle machine, the
 CPU time (process and its workers) shows the work done.  A control (pure-Python
 work on two processes) shows how much parallelism the machine offers at that
-moment: on a loaded machine wall times say little.  Measurements, not tests.
+moment: on a loaded machine wall times say little.  For that case an estimate
+from CPU times is printed too, the same formula for both checkouts: the
+imports (measured alone) run on one core, then the main process's own work
+beside its workers', at best perfectly balanced on two cores (a lower bound of
+the idle-machine wall time).  Measurements, not tests.
 """
 
 from __future__ import annotations
@@ -47,18 +51,52 @@ def control(n: int = 2_000_000) -> float:
         return serial / (time.perf_counter() - t)
 
 
-def run_demo(checkout: Path) -> tuple[float, float]:
-    """(wall, CPU) seconds of one ``ptcheck demo`` from ``checkout``."""
+#: Runs ``ptcheck demo`` in a fresh interpreter and writes (wall, own CPU, workers' CPU) to the file argv[1].
+_WRAPPER = """
+import resource, runpy, sys, time
+t = time.perf_counter()
+report, sys.argv = sys.argv[1], ["ptcheck"] + sys.argv[2:]
+try:
+    runpy.run_module("ptcheck", run_name="__main__")
+except SystemExit as exc:
+    if exc.code:
+        raise
+me, kids = resource.getrusage(resource.RUSAGE_SELF), resource.getrusage(resource.RUSAGE_CHILDREN)
+with open(report, "w") as f:
+    f.write(f"{time.perf_counter() - t} {me.ru_utime + me.ru_stime} {kids.ru_utime + kids.ru_stime} "
+            f"{sys.modules['ptcheck'].__file__}")
+"""
+
+
+def run_demo(checkout: Path) -> tuple[float, float, float, float]:
+    """(wall, CPU, main-process CPU, worker CPU) seconds of one ``ptcheck demo`` from ``checkout``."""
     out = Path(tempfile.mkdtemp(prefix="ptcheck-bench-"))
     env = {**os.environ, "PYTHONPATH": str(checkout)}
     r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
     t = time.perf_counter()
-    subprocess.run([sys.executable, "-m", "ptcheck", "demo", "--out", str(out / "demo")], env=env,
-                   stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, check=True)
+    # run in the empty temporary folder: the interpreter puts its working directory first on sys.path, and
+    # started inside a checkout it would import that checkout's ptcheck whatever PYTHONPATH says
+    subprocess.run([sys.executable, "-c", _WRAPPER, str(out / "cpu.txt"), "demo", "--out", str(out / "demo")], env=env,
+                   cwd=out, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, check=True)
     wall = time.perf_counter() - t
     r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    _, main_cpu, workers_cpu, used = (out / "cpu.txt").read_text().split()
+    if Path(used).resolve().parents[1] != checkout.resolve():
+        raise RuntimeError(f"the run imported {used}, not the checkout {checkout}")
     shutil.rmtree(out, ignore_errors=True)
-    return wall, (r1.ru_utime - r0.ru_utime) + (r1.ru_stime - r0.ru_stime)
+    return wall, (r1.ru_utime - r0.ru_utime) + (r1.ru_stime - r0.ru_stime), float(main_cpu), float(workers_cpu)
+
+
+def import_cpu(checkout: Path, runs: int = 3) -> float:
+    """CPU seconds of ``python -c "import ptcheck.cli"`` from ``checkout`` (minimum of ``runs``)."""
+    env = {**os.environ, "PYTHONPATH": str(checkout)}
+    best = float("inf")
+    for _ in range(runs):
+        r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
+        subprocess.run([sys.executable, "-c", "import ptcheck.cli"], env=env, cwd=tempfile.gettempdir(), check=True)
+        r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+        best = min(best, (r1.ru_utime - r0.ru_utime) + (r1.ru_stime - r0.ru_stime))
+    return best
 
 
 def main() -> None:
@@ -67,20 +105,30 @@ def main() -> None:
     ap.add_argument("--baseline", type=Path, help="another checkout (e.g. the main branch) to compare with")
     a = ap.parse_args()
     checkouts = {"this": HERE} | ({"baseline": a.baseline.resolve()} if a.baseline else {})
-    times: dict[str, list[tuple[float, float]]] = {k: [] for k in checkouts}
+    times: dict[str, list[tuple[float, float, float, float]]] = {k: [] for k in checkouts}
     print(f"parallelism control before: {control():.2f}x (2.0 = two idle cores)")
     for _ in range(a.runs):
         for name, path in checkouts.items():
             times[name].append(run_demo(path))
     print(f"parallelism control after:  {control():.2f}x")
+    estimate = {}
     for name, runs in times.items():
-        walls = sorted(w for w, _ in runs)
-        cpus = sorted(c for _, c in runs)
-        print(f"{name:9s} wall min {walls[0]:6.2f} s  median {walls[len(walls) // 2]:6.2f} s   "
-              f"CPU min {cpus[0]:6.2f} s  ({checkouts[name]})")
+        walls = sorted(r[0] for r in runs)
+        cpus = sorted(r[1] for r in runs)
+        imp = import_cpu(checkouts[name])
+        # idle 2-core machine: the imports on one core, then the main process's own work beside the workers'
+        # (at best perfectly balanced on two cores): a lower bound of the wall time, from the run with least CPU
+        _, cpu, main_cpu, workers_cpu = min(runs, key=lambda r: r[1])
+        rest = max(main_cpu - imp, 0.0)
+        estimate[name] = imp + max(rest, (rest + workers_cpu) / 2)
+        print(f"{name:9s} wall min {walls[0]:6.2f} s  median {walls[len(walls) // 2]:6.2f} s   CPU min {cpus[0]:6.2f} s "
+              f"(imports {imp:4.2f} s, main process {main_cpu:4.2f} s, workers {workers_cpu:4.2f} s)  ({checkouts[name]})")
     if a.baseline:
-        ratio = min(w for w, _ in times["baseline"]) / min(w for w, _ in times["this"])
+        ratio = min(r[0] for r in times["baseline"]) / min(r[0] for r in times["this"])
         print(f"speed-up (min wall, baseline / this): {ratio:.2f}x")
+        print(f"idle 2-core estimate from CPU times (imports + max(main rest, (main rest + workers) / 2)): this "
+              f"{estimate['this']:.2f} s, baseline {estimate['baseline']:.2f} s: speed-up "
+              f"{estimate['baseline'] / estimate['this']:.2f}x")
 
 
 if __name__ == "__main__":

@@ -37,6 +37,7 @@ Brillouin–Wigner / Löwdin partitioning
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -216,7 +217,14 @@ def _greedy_assignment(weights: np.ndarray) -> np.ndarray:
     For the unitary overlap matrices used here, whenever every assigned weight
     exceeds 1/2 (all accepted steps have >= QUALITY) the assignment is unique,
     so the greedy choice is the optimal one.
+
+    When the rows' largest weights lie in distinct columns (the usual case
+    along a tracked path), the greedy choice is that column for every row:
+    it is returned without the loop.
     """
+    rows = weights.argmax(axis=1)
+    if len(set(rows.tolist())) == rows.size and np.isfinite(weights).all():
+        return rows
     w = weights.astype(float).copy()
     p = w.shape[0]
     perm = np.empty(p, dtype=int)
@@ -243,8 +251,9 @@ def match_eigenvectors(ref: np.ndarray, w: np.ndarray, vecs: np.ndarray, degener
     quality : float
         Smallest assigned overlap ``|<ref_i|vec_i>|²``.
     """
-    vecs = vecs.copy()
-    for c in _degenerate_clusters(w, degeneracy_tol):
+    clusters = _degenerate_clusters(w, degeneracy_tol)
+    vecs = vecs.copy() if clusters else np.ascontiguousarray(vecs)  # (rotated in place below)
+    for c in clusters:
         b = vecs[:, c]
         o = b.conj().T @ ref  # (m, p)
         weight = np.sum(np.abs(o) ** 2, axis=0)
@@ -253,11 +262,13 @@ def match_eigenvectors(ref: np.ndarray, w: np.ndarray, vecs: np.ndarray, degener
         vecs[:, c] = b @ (uu @ vh)
     ov = ref.conj().T @ vecs  # (p_ref, p_new)
     perm = _greedy_assignment(np.abs(ov) ** 2)
-    out = vecs[:, perm]
     phase = ov[np.arange(perm.size), perm]
     mag = np.abs(phase)
-    out = out * np.where(mag > 0, np.conj(phase) / np.where(mag > 0, mag, 1.0), 1.0)[None, :]
-    return w[perm], out, float(np.min(mag**2)) if mag.size else 1.0
+    if (mag > 0).all():
+        unit = np.conj(phase) / mag
+    else:  # a zero overlap keeps its vector's phase
+        unit = np.where(mag > 0, np.conj(phase) / np.where(mag > 0, mag, 1.0), 1.0)
+    return w[perm], vecs[:, perm] * unit[None, :], float(np.min(mag**2)) if mag.size else 1.0
 
 
 @dataclass(frozen=True)
@@ -269,6 +280,10 @@ class TrackResult:
 
 #: Smallest accepted overlap between assigned eigenvectors of neighbouring path points.
 QUALITY = 0.9
+#: Equal steps of a path from its start to its farthest coupling (before any bisection).
+PATH_STEPS = 32
+#: Tracked points kept per truncation order for warm starts (:func:`track_point`).
+MAX_ANCHORS = 512
 _MAX_DEPTH = 40
 _BUDGET = 20_000
 
@@ -281,13 +296,16 @@ def track_branches(
     scale: float,
     *,
     cluster_rtol: float | None = None,
+    steps: int = PATH_STEPS,
 ) -> TrackResult:
     """Follow the eigenbranches of ``H_eff(λ) = Σ_j λ^j heff[j]`` from ``±guess_coupling``.
 
     ``guess_vectors[:, i]`` is the (limit) eigenvector of block level ``i`` near
     λ = 0.  Four monotone paths start at ±guess_coupling (outwards and inwards
-    towards 0); neighbouring points are matched by eigenvector overlap, and an
-    interval is bisected while the overlap is below :data:`QUALITY`.
+    towards 0), each through ``steps`` equal steps to its farthest coupling
+    besides the couplings asked for; neighbouring points are matched by
+    eigenvector overlap, and an interval is bisected while the overlap is
+    below :data:`QUALITY`.
 
     Eigenvalues closer than ``1e-10 x scale`` count as numerically degenerate
     (their eigenvectors are aligned with the previous point).  With
@@ -341,17 +359,21 @@ def track_branches(
                 order = order[::-1]
             sel = sel[order]
             end = couplings[sel[-1]]
-            fill = np.linspace(start, end, 33)[1:]
+            fill = np.linspace(start, end, steps + 1)[1:]
             pts = np.concatenate([couplings[sel], fill])
             pts = pts[np.argsort(np.abs(pts - start), kind="stable")]
             w_all, v_all = eig(np.concatenate([[start], pts]))
             _, ref, _ = match_eigenvectors(guess_vectors, w_all[0], v_all[0], cluster_tol(w_all[0]))
-            prev = start
-            results = []
-            for g, lam in enumerate(pts):
-                e, ref = step(prev, ref, lam, w_all[g + 1], v_all[g + 1], 0)
-                results.append((lam, e, ref))
-                prev = lam
+            clean = _clean_path(ref, w_all[1:], v_all[1:], fixed_dtol, cluster_rtol)
+            if clean is not None:
+                results = list(zip(pts, *clean))
+            else:
+                prev = start
+                results = []
+                for g, lam in enumerate(pts):
+                    e, ref = step(prev, ref, lam, w_all[g + 1], v_all[g + 1], 0)
+                    results.append((lam, e, ref))
+                    prev = lam
             lookup = {}
             for lam, e, ref_ in results:
                 lookup[float(lam)] = (e, ref_)
@@ -360,6 +382,99 @@ def track_branches(
                 energies[:, i] = e
                 vectors[i] = ref_
     return TrackResult(energies=energies, vectors=vectors, ambiguous=bool(state["ambiguous"]))
+
+
+def _clean_path(ref: np.ndarray, w: np.ndarray, v: np.ndarray, dtol: float, cluster_rtol: float | None
+                ) -> tuple[np.ndarray, np.ndarray] | None:
+    """Every step of a real path matched at once, when no step needs more than the plain rule.
+
+    The plain rule (what :func:`match_eigenvectors` does at a step without
+    degenerate eigenvalues whose rows have their largest overlaps in distinct
+    columns, all >= :data:`QUALITY`): each branch goes to its largest overlap,
+    sign chosen so that the overlap is positive.  For real eigenvectors the
+    overlaps with the previous matched vectors are ± the overlaps of the raw
+    eigenvectors, so the whole path follows from one batched product; the
+    result is bit for bit the step-by-step one.  ``None`` (walk step by step
+    instead) for complex vectors or as soon as one step needs more: a
+    degenerate cluster, a contested column, an overlap below QUALITY.
+
+    ``ref``: (p, p) matched vectors at the start; ``w``, ``v``: (G, p) and
+    (G, p, p) eigenpairs of the path's points; degeneracy threshold ``dtol``,
+    or ``cluster_rtol x max|w|`` per point.  Returns energies (G, p) and
+    matched vectors (G, p, p).
+    """
+    if np.iscomplexobj(v) or np.iscomplexobj(ref):
+        return None
+    g_n, p = w.shape
+    if p > 1:
+        tol = dtol if cluster_rtol is None else cluster_rtol * np.maximum(np.max(np.abs(w), axis=1), np.finfo(float).tiny)
+        if not np.all(np.diff(w, axis=1) > np.reshape(tol, (-1, 1))):
+            return None
+    prev = np.concatenate([ref[None], v[:-1]])
+    o = np.swapaxes(prev, 1, 2) @ v  # o[g] = prev[g]^T v[g]: rows = previous raw columns (level order at g = 0)
+    wts = np.abs(o) ** 2
+    sigma = wts.argmax(axis=2)
+    if np.take_along_axis(wts, sigma[..., None], 2).min() < QUALITY:
+        return None
+    if not np.array_equal(np.sort(sigma, axis=1), np.broadcast_to(np.arange(p), sigma.shape)):
+        return None
+    cols = np.empty_like(sigma)  # cols[g, i]: raw column of level i at point g
+    col = np.arange(p)
+    for g in range(g_n):
+        col = sigma[g][col]
+        cols[g] = col
+    rows = np.concatenate([np.arange(p)[None], cols[:-1]])
+    ov = o[np.arange(g_n)[:, None], rows, cols]
+    sign = np.cumprod(ov / np.abs(ov), axis=0)
+    return np.take_along_axis(w, cols, 1), np.take_along_axis(v, cols[:, None, :], 2) * sign[:, None, :]
+
+
+def track_point(
+    heff: np.ndarray,
+    coupling: float,
+    guess_vectors: np.ndarray,
+    guess_coupling: float,
+    scale: float,
+    anchors: list[tuple[float, np.ndarray]],
+) -> TrackResult:
+    """:func:`track_branches` at one coupling, started from the nearest point already tracked on its path.
+
+    The path of ``coupling`` runs monotonically from ``±guess_coupling``; a
+    point tracked before (``anchors``: ``(coupling, vectors)`` pairs of the
+    same ``heff``, unambiguous) that lies on it, between the start and
+    ``coupling``, carries the branches as well as the start does.  The path
+    continues from the nearest such point, in steps no longer than a fresh
+    path's (``|coupling - start| / PATH_STEPS``), so a search that visits
+    nearby couplings one at a time tracks each of them in a few steps instead
+    of :data:`PATH_STEPS`.  The result is added to ``anchors`` (when
+    unambiguous).
+    """
+    lam = float(coupling)
+    start = math.copysign(guess_coupling, lam)
+    span = abs(lam - start)
+    best = None
+    if span > 0 and anchors:
+        a = np.array([x for x, _ in anchors])
+        on_path = (np.sign(a) == np.sign(lam)) & (np.abs(a - start) <= span) & (np.abs(a - lam) <= span)
+        if on_path.any():
+            best = int(np.flatnonzero(on_path)[np.argmin(np.abs(a[on_path] - lam))])
+    if best is None:
+        tr = track_branches(heff, np.array([lam]), guess_vectors, guess_coupling, scale)
+    else:
+        a_lam, a_vec = anchors[best]
+        steps = max(1, math.ceil(PATH_STEPS * abs(lam - a_lam) / span))
+        tr = track_branches(heff, np.array([lam]), a_vec, abs(a_lam), scale, steps=steps)
+    remember(anchors, np.array([lam]), tr)
+    return tr
+
+
+def remember(anchors: list[tuple[float, np.ndarray]], couplings: np.ndarray, tr: TrackResult) -> None:
+    """Add the tracked points of ``tr`` to ``anchors`` (unambiguous results only; at most :data:`MAX_ANCHORS`)."""
+    if tr.ambiguous:
+        return
+    if len(anchors) + couplings.size > MAX_ANCHORS:
+        anchors.clear()
+    anchors.extend((float(x), tr.vectors[i]) for i, x in enumerate(couplings) if x != 0)
 
 
 def guess_vectors(

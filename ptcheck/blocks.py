@@ -426,6 +426,7 @@ class BlockSeries:
     _scale: float = field(repr=False)
     _space: "_Space" = field(repr=False)
     _cache: dict = field(default_factory=dict, repr=False)
+    _anchors: dict = field(default_factory=dict, repr=False)  # order -> tracked (coupling, vectors): warm starts
 
     treatment = "block"
 
@@ -524,7 +525,12 @@ class BlockSeries:
         if key in self._cache:
             return self._cache[key]
         heff = self._sw.heff[: k + 1]  # offset-free (E_P relative to the model's energy offset)
-        tr = num.track_branches(heff, lam, self._guess, self._guess_coupling, self._scale)
+        anchors = self._anchors.setdefault(k, [])
+        if lam.size == 1:  # one coupling at a time (a boundary search): continue from the nearest tracked point
+            tr = num.track_point(heff, float(lam[0]), self._guess, self._guess_coupling, self._scale, anchors)
+        else:
+            tr = num.track_branches(heff, lam, self._guess, self._guess_coupling, self._scale)
+            num.remember(anchors, lam, tr)
         energies, vectors, ambiguous = tr.energies, tr.vectors, tr.ambiguous
         converged = np.ones(energies.shape, dtype=bool)
         if self.method == "brillouin-wigner" and k >= 2:

@@ -553,11 +553,11 @@ def _warm_up() -> None:
 
 
 def _demo(a: argparse.Namespace, pool: Any, run: _Run) -> int:
+    from dataclasses import replace
     from functools import partial
 
-    from .models import kerr_qubit_resonator
     from .quantities import dispersive_shift, stark_shift
-    from .report import default_figures, run_check
+    from .report import default_figures, draw_figure, figure_plan, run_check
 
     given = _out_dir(a.out, "ptcheck-demo")
     out = run.out = _prepare_output(given)
@@ -574,10 +574,9 @@ def _demo(a: argparse.Namespace, pool: Any, run: _Run) -> int:
         "coupling λ = 1 (g/2π = 82 MHz); this report checks them against exact diagonalisation, to 1 % (judged) "
         "and 5 %, and shows how far the coupling, the resonator frequency and the photon number can go."
     )
-    side = None
-    if pool is not None:  # two workers started now warm up while the main check runs
-        side = pool.submit(_side_studies, chi) if not a.no_map else None
-        pool.submit(int)
+    fmt = None if a.no_figures else a.figure_format
+    # the side studies (and their figures) start now on the workers, beside the main check
+    side = None if a.no_map or pool is None else _SideStudies(pool, chi, model, fmt)
     with _progress_bar("demo") as bar:
         report = run_check(
             model, [lamb, chi], [2, 4], coupling=1.0, rtol=[0.01, 0.05], builder="kerr_qubit_resonator", params=p,
@@ -585,17 +584,29 @@ def _demo(a: argparse.Namespace, pool: Any, run: _Run) -> int:
             title="Q-17 (invented device): design check of the second-order dispersive formulas",
             description=description, invented=True, progress=bar,
         )
+    drawing: dict[tuple, Any] = {}
+    if pool is not None and fmt is not None:  # the check's own figures: on the workers as soon as the check is done
+        drawing = {key: pool.submit(draw_figure, report, key, figure_format=fmt) for key in figure_plan(report)}
     extras: dict[str, Any] = {"energy_unit": "GHz"}
     if not a.no_map:
-        extras.update(side.result() if side is not None else _side_studies(chi))
-        extras["validity_map_mark"] = (p["omega_r"], 1.0)
-    from dataclasses import replace
-
+        studies, drawn = side.results() if side is not None else (_side_studies(chi), {})
+        extras.update(studies)
+        drawing.update(drawn)
+        extras["validity_map_mark"] = _DEMO_MARK
     report = replace(report, extras={**report.extras, **extras})
-    figures = False if a.no_figures else partial(default_figures, figure_format=a.figure_format, executor=pool)
+    if fmt is None:
+        figures: Any = False
+    elif pool is None:
+        figures = partial(default_figures, figure_format=fmt)
+    else:
+        figures = partial(_demo_figures, drawing=drawing, figure_format=fmt)
     files = _write(report, out, figures=figures, force=a.force)
     _print_summary(report, files, Path(given))
     return EXIT_VALID
+
+
+#: The design point (ω_r in GHz, λ) marked on the demo's validity map.
+_DEMO_MARK = (DEMO_PARAMS["omega_r"], 1.0)
 
 
 def _demo_model(p: dict, **changes: Any) -> Any:
@@ -608,21 +619,89 @@ def _demo_model(p: dict, **changes: Any) -> Any:
 
 
 def _side_studies(chi: Any) -> dict:
-    """The demo's validity map over ω_r and its photon-number boundaries (module level: runs on a worker)."""
+    """The demo's validity map over ω_r and its photon-number boundaries, one after the other in this process."""
+    return {"validity_map": _validity_map_study(chi), "photon_boundaries": _photon_study()}
+
+
+def _validity_map_study(chi: Any) -> Any:
+    """The demo's validity map of χ over ω_r (a small map: serially, a process pool of its own costs more than it saves)."""
     import numpy as np
 
     from .maps import validity_map
-    from .photons import photon_boundaries
 
     p = DEMO_PARAMS
-    vm = validity_map(  # a small map: serially (a process pool of its own costs more than it saves)
+    return validity_map(
         "kerr_qubit_resonator", "omega_r", np.round(np.linspace(5.95, 7.35, 8), 4), level=chi, order=2, rtol=0.01,
         couplings=np.linspace(0.1, 2.0, 20), builder_kwargs={k: v for k, v in p.items() if k != "omega_r"},
         executor="serial",
     )
-    # photon budget: the same device with room for 24 photons in the resonator basis
-    pb = photon_boundaries(_demo_model(p, n_photons=24), 2, rtol=0.01, photons=range(0, 21, 2), units="GHz")
-    return {"validity_map": vm, "photon_boundaries": pb}
+
+
+def _photon_study(executor: Any = None) -> Any:
+    """Photon budget: the same device with room for 24 photons in the resonator basis."""
+    from .photons import photon_boundaries
+
+    return photon_boundaries(_demo_model(DEMO_PARAMS, n_photons=24), 2, rtol=0.01, photons=range(0, 21, 2), units="GHz",
+                             executor=executor)
+
+
+def _map_with_figure(chi: Any, figure_format: str | None) -> tuple[Any, Any]:
+    """The validity map and, straight after it on the same worker, its figure (module level: runs on a worker)."""
+    from .report import draw_study_figure
+
+    vm = _validity_map_study(chi)
+    fig = None if figure_format is None else draw_study_figure(vm, mark=_DEMO_MARK, unit="GHz", figure_format=figure_format)
+    return vm, fig
+
+
+class _SideStudies:
+    """The demo's side studies on a worker pool, started at once: the validity map (and its figure) as one task,
+    the photon numbers as one task each (submitted from a thread that only waits), then the photon figure."""
+
+    def __init__(self, pool: Any, chi: Any, model: Any, figure_format: str | None) -> None:
+        self._map = pool.submit(_map_with_figure, chi, figure_format)
+        self._out: dict[str, Any] = {}
+        scale = {"coupling_scale": model.coupling_scale, "coupling_unit": model.coupling_unit}
+
+        def photons() -> None:
+            try:
+                from .report import draw_study_figure
+
+                pb = self._out["photon_boundaries"] = _photon_study(pool)
+                if figure_format is not None:
+                    self._out["figure"] = pool.submit(draw_study_figure, pb, figure_format=figure_format, **scale)
+            except BaseException as exc:  # handed to the main thread by results()
+                self._out["error"] = exc
+
+        self._thread = threading.Thread(target=photons, name="ptcheck-demo-photons", daemon=True)
+        self._thread.start()
+
+    def results(self) -> tuple[dict, dict]:
+        """({"validity_map": …, "photon_boundaries": …}, {figure key: Figure or future}), once both are done."""
+        vm, vm_fig = self._map.result()
+        self._thread.join()
+        if "error" in self._out:
+            raise self._out["error"]
+        drawn: dict[tuple, Any] = {}
+        if vm_fig is not None:
+            drawn[("validity_map",)] = vm_fig
+        if "figure" in self._out:
+            drawn[("photons",)] = self._out["figure"]
+        return {"validity_map": vm, "photon_boundaries": self._out["photon_boundaries"]}, drawn
+
+
+def _demo_figures(report: Any, *, drawing: dict, figure_format: str) -> list:
+    """The report's figures in plan order: those drawn (or drawing) on the workers, any other one drawn here."""
+    from .report import draw_figure, figure_plan
+
+    out = []
+    for key in figure_plan(report):
+        f = drawing.get(key)
+        if f is None:
+            out.append(draw_figure(report, key, figure_format=figure_format))
+        else:
+            out.append(f.result() if hasattr(f, "result") else f)
+    return out
 
 
 def _set_physical_coupling(model: Any, scale: float, unit: str) -> None:

@@ -195,6 +195,7 @@ def photon_boundaries(
     max_coupling: float | None = None,
     units: str = "",
     progress: ProgressCallback | None = None,
+    executor: Any = None,
 ) -> PhotonBoundaries:
     """Validity boundary of one order against the resonator photon number n, with n_crit beside it.
 
@@ -226,6 +227,10 @@ def photon_boundaries(
     units : str
         Energy unit for the targets' names (e.g. "GHz").
     progress : callable(done, total), optional
+    executor : concurrent.futures.Executor, optional
+        Search the photon numbers as independent tasks there (e.g. a process
+        pool); the result is the same as without.  Default: one after the
+        other in this process.
 
     Returns
     -------
@@ -277,9 +282,18 @@ def photon_boundaries(
     if g == 0:
         raise ValueError(f"model {model.name!r} has no coupling between |1,0⟩ and |0,1⟩ (V element 0): no g to quote")
     notes: list[str] = []
-    with _single_thread_blas():  # many small diagonalisations: one BLAS thread is faster and steadier
-        found = [_boundary(model, _target(quantity, n, units), spec, tol, rtol, treatment, backend, max_coupling, lam,
-                           progress, k, len(photons)) for k, n in enumerate(photons)]
+    jobs = [(model, _target(quantity, n, units), spec, tol, rtol, treatment, backend, max_coupling, lam) for n in photons]
+    if executor is None:
+        found = []
+        for k, job in enumerate(jobs):
+            found.append(_photon_job(job))
+            report_progress(progress, k + 1, len(jobs))
+    else:
+        futures = [executor.submit(_photon_job, job) for job in jobs]
+        found = []
+        for k, f in enumerate(futures):
+            found.append(f.result())
+            report_progress(progress, k + 1, len(jobs))
     bounds = [f[0] for f in found]
     status = [f[1] for f in found]
     solves = [f[2] for f in found]
@@ -315,7 +329,13 @@ def photon_boundaries(
     )
 
 
-def _boundary(model, target, spec, tol, rtol, treatment, backend, max_coupling, lam, progress, k, total):
+def _photon_job(job: tuple) -> tuple:
+    """:func:`_boundary` of one photon number (module level: a worker process can run it)."""
+    with _single_thread_blas():  # many small diagonalisations: one BLAS thread is faster and steadier
+        return _boundary(*job)
+
+
+def _boundary(model, target, spec, tol, rtol, treatment, backend, max_coupling, lam):
     """(λ*, status, exact solves, notes) of one photon number.
 
     A failed search is reported, not raised; warnings of the search (e.g. a
@@ -330,5 +350,4 @@ def _boundary(model, target, spec, tol, rtol, treatment, backend, max_coupling, 
         except (ValueError, ArithmeticError) as exc:
             out = (math.nan, "error", 0, (f"{type(exc).__name__}: {exc}",))
     extra = tuple(f"{w.category.__name__}: {w.message}" for w in caught)
-    report_progress(progress, k + 1, total)
     return out[:3] + (out[3] + extra,)

@@ -1687,19 +1687,39 @@ def draw_figure(report: CheckReport, key: tuple, *, figure_format: str = "png", 
         return done("pairs", f"Levels at λ = {lam:g} and the pairs whose mixing ratio |λV|/|ΔE| is large; "
                     "outlined: near-degenerate blocks (suggested beside the answer).", fig)
     if kind == "validity_map":
+        return draw_study_figure(report.extras["validity_map"], mark=report.extras.get("validity_map_mark"),
+                                 unit=report.extras.get("energy_unit"), figure_format=figure_format, dpi=dpi)
+    if kind == "photons":
+        return draw_study_figure(report.extras["photon_boundaries"], figure_format=figure_format, dpi=dpi, **phys)
+    raise ValueError(f"unknown figure {key!r}; figure_plan gives {figure_plan(report)}")
+
+
+def draw_study_figure(
+    study: Any, *, mark: tuple[float, float] | None = None, unit: str | None = None, coupling_scale: float | None = None,
+    coupling_unit: str | None = None, figure_format: str = "png", dpi: int = 100,
+) -> Figure:
+    """The figure of a side study (a ``ValidityMap`` or ``PhotonBoundaries``), as :func:`draw_figure` draws it.
+
+    It needs the study alone, so it can be drawn as soon as the study is done
+    (e.g. on a worker process, while the main check still runs).  ``mark`` and
+    ``unit``: the design point and energy unit of a validity map;
+    ``coupling_scale``/``coupling_unit``: the second coupling axis of a
+    photon-number figure (the model's physical coupling).
+    """
+    from .photons import PhotonBoundaries
+
+    ext = figure_format
+    fig, ax = _new_figure()
+    if isinstance(study, PhotonBoundaries):
+        phys = {} if coupling_scale is None else {"coupling_scale": coupling_scale, "coupling_unit": coupling_unit}
+        _plots_module().plot_photon_boundaries(study, ax=ax, **phys)
+        name, caption = "photons", study.summary()
+    else:
         from .maps_plot import plot_validity_map
 
-        vm = report.extras["validity_map"]
-        fig, ax = _new_figure()
-        plot_validity_map(vm, ax=ax, mark=report.extras.get("validity_map_mark"), mark_label="design point",
-                          unit=report.extras.get("energy_unit"))
-        return done("validity-map", vm.caption(), fig)
-    if kind == "photons":
-        pb = report.extras["photon_boundaries"]
-        fig, ax = _new_figure()
-        plots.plot_photon_boundaries(pb, ax=ax, **phys)
-        return done("photons", pb.summary(), fig)
-    raise ValueError(f"unknown figure {key!r}; figure_plan gives {figure_plan(report)}")
+        plot_validity_map(study, ax=ax, mark=mark, mark_label="design point", unit=unit)
+        name, caption = "validity-map", study.caption()
+    return Figure(f"{name}.{ext}", caption, _render(fig, fmt=ext, dpi=dpi), ext)
 
 
 def _physical(report: CheckReport) -> dict:

@@ -333,6 +333,56 @@ def test_branches_followed_through_a_true_crossing():
     assert e[0, -1] > e[1, -1]  # past the crossing, level 0 is the upper one
 
 
+def test_one_coupling_at_a_time_follows_the_same_branches():
+    # a search visits couplings one by one (each continues from the nearest point tracked before); the
+    # branches must be those of the true-crossing model above: level 1 is 0.1 - λ exactly and level 0 the
+    # lower eigenvalue of the {0, 2} problem (common practice, no source), on both sides of λ = 0 and in
+    # any visiting order
+    v = np.array([[1.0, 0.0, 0.3], [0.0, -1.0, 0.0], [0.3, 0.0, 0.0]])
+    m = Model(np.diag([0.0, 0.1, 5.0]), v)
+    b = m.block_series([0, 1], 8)
+    visits = [0.01, 0.02, 0.04, 0.08, 0.16, 0.12, 0.06, 0.045, 0.055, 0.2, -0.03, -0.2, -0.1, 0.001, 0.07]
+    for x in visits:
+        e = b.energies(x)[:, 0]
+        assert abs(e[1] - (0.1 - x)) < 1e-14, x
+        assert abs(e[0] - np.linalg.eigvalsh([[x, 0.3 * x], [0.3 * x, 5.0]])[0]) < 1e-9, x
+        assert not b.solve(x).ambiguous
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_branch_tracking_matches_brute_force_following(seed):
+    # referee: follow the eigenvectors of H(λ) = Σ λ^j h_j over 5 000 points by largest overlap (brute
+    # force, common practice, no source); the tracker (its batched path included) must give each branch
+    # the same energies and the same vectors up to sign
+    from ptcheck import _block_numerics as num
+
+    rng = np.random.default_rng(seed)
+    p = 4
+    h = rng.normal(size=(3, p, p))
+    h = 0.5 * (h + np.swapaxes(h, 1, 2))
+    h[0] = np.diag([0.0, 1.0, 2.0, 3.0])
+    lam = np.array([0.05, 0.3, 0.7, 1.2])
+    start = 1e-3
+    tr = num.track_branches(h, lam, np.eye(p), start, 1.0)
+    fine = np.linspace(start, lam[-1], 5_000)
+    w, v = np.linalg.eigh(h[0] + fine[:, None, None] * h[1] + fine[:, None, None] ** 2 * h[2])
+    ref = np.eye(p)
+    want_e, want_v = [], []
+    for k in range(fine.size):
+        cols = np.argmax(np.abs(ref.T @ v[k]) ** 2, axis=1)
+        ref = v[k][:, cols] * np.sign(np.sum(ref * v[k][:, cols], axis=0))
+        want_e.append(w[k][cols])
+        want_v.append(ref)
+    at = [int(np.argmin(np.abs(fine - x))) for x in lam]
+    for c, k in enumerate(at):
+        exact = np.linalg.eigvalsh(h[0] + lam[c] * h[1] + lam[c] ** 2 * h[2])
+        # the brute-force branch order, re-evaluated exactly at λ (the grid point is within 1.2e-4 of it)
+        order = np.argsort(np.argsort(want_e[k]))
+        np.testing.assert_allclose(tr.energies[:, c], exact[order], atol=1e-12)
+        np.testing.assert_allclose(np.abs(np.sum(tr.vectors[c] * want_v[k], axis=0)), 1.0, atol=1e-3)
+    assert not tr.ambiguous
+
+
 def test_avoided_crossing_follows_adiabatic_branch():
     # a weak direct coupling turns the crossing into an avoided one; the analytic branches are the
     # adiabatic ones (von Neumann & Wigner non-crossing rule, Phys. Z. 30, 467 (1929))

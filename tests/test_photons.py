@@ -135,3 +135,21 @@ def test_photon_figure_holds_the_result(jc):
     assert [a.get_ylabel() for a in ax.child_axes] == ["coupling (MHz)"]
     with pytest.raises(TypeError, match="PhotonBoundaries"):
         plot_photon_boundaries(object(), ax=ax)
+
+
+def test_photon_numbers_on_a_process_pool_match_closed_form_and_the_serial_run(jc):
+    # each photon number searched as its own task: the boundaries still match the closed form (as above) and
+    # the whole result is the serial one (common practice, no source: an executor must not change answers)
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor
+
+    if "fork" not in mp.get_all_start_methods():
+        pytest.skip("needs fork")
+    photons = [0, 1, 3]
+    seen = []
+    with ProcessPoolExecutor(max_workers=2, mp_context=mp.get_context("fork")) as ex:
+        pooled = photon_boundaries(jc, 2, rtol=0.01, photons=photons, executor=ex, progress=lambda d, t: seen.append((d, t)))
+    for n, b in zip(photons, pooled.boundary):
+        assert abs(b) == pytest.approx(brute_boundary(transition_error, n, 0.01), rel=2e-3)
+    assert pooled.to_dict() == photon_boundaries(jc, 2, rtol=0.01, photons=photons).to_dict()
+    assert seen == [(1, 3), (2, 3), (3, 3)]

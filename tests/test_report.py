@@ -467,6 +467,28 @@ def test_figure_formats_slide_size_and_same_bytes_on_a_rerun(report, fmt, magic)
         rp.default_figures(report, figure_format="jpg")
 
 
+def test_study_figures_drawn_alone_are_the_report_figures(report):
+    # a side study's figure drawn on its own (as soon as the study is done) is byte for byte the figure the
+    # report draws from its extras (common practice, no source: drawing it earlier must not change it)
+    from dataclasses import replace
+
+    from ptcheck.maps import validity_map
+    from ptcheck.models import jaynes_cummings
+    from ptcheck.photons import photon_boundaries
+
+    jc = jaynes_cummings(n_photons=6)
+    jc.coupling_scale, jc.coupling_unit = 50.0, "MHz"
+    pb = photon_boundaries(jc, 2, rtol=0.01, photons=[0, 1])
+    vm = validity_map("two_level", "delta", [0.8, 1.2], level=0, order=2, rtol=0.01, couplings=[0.1, 0.3],
+                      builder_kwargs={"v": V}, treatment="nondegenerate", executor="serial")
+    r = replace(report, source_model=jc, extras={"validity_map": vm, "validity_map_mark": (1.0, 0.2),
+                                                 "energy_unit": "GHz", "photon_boundaries": pb})
+    alone = rp.draw_study_figure(pb, coupling_scale=50.0, coupling_unit="MHz")
+    assert alone == rp.draw_figure(r, ("photons",)) and alone.filename == "photons.png"
+    assert rp.draw_study_figure(vm, mark=(1.0, 0.2), unit="GHz") == rp.draw_figure(r, ("validity_map",))
+    assert rp.draw_study_figure(pb) != alone  # the second coupling axis is drawn: the figure depends on it
+
+
 def test_boilerplate_said_once():
     texts = ["Level a: radius 2. These are estimates: check them.", "Level b: radius 3. These are estimates: check them."]
     assert rp.said_once(texts) == ["Level a: radius 2. These are estimates: check them.", "Level b: radius 3."]
