@@ -294,8 +294,11 @@ def plot_errors(
             if b.status in ("found", "fails_at_zero"):
                 start = 0.0 if b.status == "fails_at_zero" else float(b.coupling)
                 top = bt if bt is not None and k is not None else ylim[1]
+                outside = x.size > 1 and not (x[0] <= start <= x[-1])
                 text = (f"{order_name(b.order)}: λ* = {fmt_physical(abs(start), phys)}{at}" if b.status == "found"
                         else f"{order_name(b.order)}: fails at any λ ≠ 0{at}")
+                if outside and b.status == "found":  # its line is off the axes; the arrowhead at the edge points to it
+                    text += " (beyond the view)"
                 (bl,) = ax.plot([start, start], [ylim[0], top], color=col,
                                 linestyle=TOLERANCE_DASHES[(k or 0) % len(TOLERANCE_DASHES)] if several else "-",
                                 linewidth=1.6 * lw, marker="o", markevery=[1], markerfacecolor=col,
@@ -304,7 +307,7 @@ def plot_errors(
                 b_used.append(b)
                 if b.status == "fails_at_zero" and at:
                     _said_once(same, bl, text[: -len(at)], at)
-                if x.size > 1 and not (x[0] <= start <= x[-1]):  # beyond the view: an arrowhead at the edge
+                if outside:  # beyond the view: an arrowhead at the edge
                     right = start > x[-1]
                     ax.plot([x[-1] if right else x[0]], [top], linestyle="none", marker=">" if right else "<", color=col,
                             markersize=10 * lw, clip_on=False, zorder=4)
