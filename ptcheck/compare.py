@@ -1139,8 +1139,11 @@ def _first_guess(ef: _ErrorFunction, spec: OrderSpec, tol: float, s_lo: float, s
     if ef.relative:
         top_shift = ef.pert_shift(grid, top)
         ref = np.abs(top_shift) if ef.target.relative_to == "shift" else np.abs(ef.unperturbed + top_shift)
+        # where the reference is below round-off (tiny λ) the estimate says nothing: skip those points (a guess
+        # only; the search checks it with exact values), instead of starting the search at the smallest coupling
+        resolved = ref > _RESOLVE_RELATIVE * ef.noise(grid)
         with np.errstate(divide="ignore", invalid="ignore"):
-            est = np.where(ref > 0, est / ref, np.inf)
+            est = np.where(resolved, est / np.where(resolved, ref, 1.0), 0.0)
     above = np.flatnonzero(est > tol)
     if above.size == 0:
         return float(grid[-1])
