@@ -102,13 +102,31 @@ class DenseBackend:
     supports_rank_window = True
     iterative = False
 
+    #: Up to this size every solve is a full ``eigh``, kept for the last :data:`MEMO_COUPLINGS` couplings:
+    #: several levels tracked one by one at the same coupling (a boundary search of a quantity, a block
+    #: treatment) then share one decomposition; a window of a small matrix costs about as much as all of it.
+    FULL_LIMIT = 256
+    MEMO_COUPLINGS = 4
+
     def __init__(self, model: Model, *, rtol: float, rng: np.random.Generator) -> None:
         _check_dense_size(model, "backend 'dense'")
         self.model = model
+        self._memo: list[tuple[float, np.ndarray, np.ndarray]] = []  # (coupling, all eigenvalues, all vectors)
+
+    def _full(self, coupling: float) -> tuple[np.ndarray, np.ndarray]:
+        for c, w, x in self._memo:
+            if c == coupling:
+                return w, x
+        w, x = sla.eigh(_hamiltonian_dense(self.model, coupling), check_finite=False)
+        self._memo = [(coupling, w, x)] + self._memo[: self.MEMO_COUPLINGS - 1]
+        return w, x
 
     def window(self, coupling: float, lo: int, hi: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
-        h = _hamiltonian_dense(self.model, coupling)
         n = self.model.n
+        if n <= self.FULL_LIMIT:
+            w, x = self._full(coupling)
+            return w[lo:hi].copy(), x[:, lo:hi].copy()
+        h = _hamiltonian_dense(self.model, coupling)
         if lo == 0 and hi == n:
             return sla.eigh(h, check_finite=False)
         return sla.eigh(h, subset_by_index=[lo, hi - 1], check_finite=False)
@@ -117,6 +135,10 @@ class DenseBackend:
         return self.window(coupling, 0, k)
 
     def nearest(self, coupling: float, sigma: float, k: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+        if self.model.n <= self.FULL_LIMIT:
+            w, x = self._full(coupling)
+            lo = _nearest_block(w, sigma, k)
+            return w[lo:lo + k].copy(), x[:, lo:lo + k].copy()
         h = _hamiltonian_dense(self.model, coupling)
         w = sla.eigvalsh(h, check_finite=False)
         lo = _nearest_block(w, sigma, k)
