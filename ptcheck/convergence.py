@@ -187,7 +187,7 @@ class ConvergenceResult:
         coefficient estimates, else the smaller (more cautious) of the two;
         when the coefficient estimates are still shrinking (complete finite
         basis only): that exceptional point if one was found, else the
-        smallest coefficient estimate; never below ``kato_bound``; NaN when
+        smallest of the root-test, Domb–Sykes and Padé estimates; never below ``kato_bound``; NaN when
         nothing could be estimated.
     radius_uncertainty : float
         Half the spread (max - min) of the finite estimates in ``estimates``;
@@ -446,10 +446,9 @@ def _analyse_level(
     ca = analyse(c, d, truncated=model.truncated)
     notes = list(ca.notes)
     # consensus of the extrapolating estimators (the plain ratio test is reported, not used);
-    # estimates still shrinking with the order: the smallest of them, ratio test included
-    r_coef = _smallest_finite(np.array([ca.ratio, ca.root, ca.domb_sykes, ca.pade])) if ca.unsettled else _median_finite(
-        np.array([ca.root, ca.domb_sykes, ca.pade])
-    )
+    # estimates still shrinking with the order: the smallest of them
+    ests = np.array([ca.root, ca.domb_sykes, ca.pade])
+    r_coef = _smallest_finite(ests) if ca.unsettled else _median_finite(ests)
 
     # ---- exceptional points
     run_ep = model.n >= 2 and (ep_search == "always" or (ep_search == "auto" and model.n <= EP_DENSE_LIMIT))
@@ -595,8 +594,8 @@ def _summary(model: Model, r: dict, r_coef: float, r_ep: float, run_ep: bool, n_
     eps = r["exceptional_points"]
     if eps.size:
         partner = r["partners"][0]
-        pn = model.label(int(partner)) if partner >= 0 else "another level"
-        ep_txt = f"the nearest exceptional point on its branch is at λ ≈ {fmt_complex(eps[0], 4)} (|λ| = {abs(eps[0]):.4g}), where it meets level {pn}"
+        pn = f"level {model.label(int(partner))}" if partner >= 0 else "another level"
+        ep_txt = f"the nearest exceptional point on its branch is at λ ≈ {fmt_complex(eps[0], 4)} (|λ| = {abs(eps[0]):.4g}), where it meets {pn}"
     else:
         ep_txt = ""
     if r["kind"] == "terminating":
@@ -630,6 +629,12 @@ def _summary(model: Model, r: dict, r_coef: float, r_ep: float, run_ep: bool, n_
             )
         if r["agreement"] == "agree":
             parts.append(f"Coefficient tests (≈ {r_coef:.4g}) and the singularity picture agree: {ep_txt}.")
+        elif r["agreement"] == "disagree" and ca.unsettled and eps.size:
+            parts.append(
+                f"Coefficient tests give ≈ {r_coef:.4g}, not yet settled, and {ep_txt}; the reported radius is that of "
+                "this exceptional point, a verified singularity on the level's branch (a nearer one missed by the search "
+                "would make it smaller)."
+            )
         elif r["agreement"] == "disagree":
             if eps.size:
                 parts.append(
