@@ -187,8 +187,8 @@ class ConvergenceResult:
         coefficient estimates, else the smaller (more cautious) of the two;
         when the coefficient estimates are still shrinking (complete finite
         basis only): that exceptional point if one was found, else the
-        smallest of the root-test, Domb–Sykes and Padé estimates; never below ``kato_bound``; NaN when
-        nothing could be estimated.
+        smallest of the root-test, Domb–Sykes and Padé estimates; never
+        below ``kato_bound``; NaN when nothing could be estimated.
     radius_uncertainty : float
         Half the spread (max - min) of the finite estimates in ``estimates``;
         NaN with fewer than two.
@@ -790,9 +790,9 @@ def _analyse_effective(m: Model, n: int, order: int, coupling: float | None, e: 
         radius = math.inf
     elif ca.kind == "asymptotic":
         radius = 0.0
-    elif ca.unsettled:  # estimates still shrinking (complete finite basis): the smallest, never below Kato's bound
+    elif ca.unsettled:  # estimates still shrinking (complete finite basis): the smallest
+        # (Kato's bound here is the group's, not a branch's: no floor)
         radius = _smallest_finite(ests)
-        radius = max(radius, kato) if np.isfinite(radius) and np.isfinite(kato) else radius
     else:
         radius = _median_finite(ests)
     fin = ests[np.isfinite(ests)]
