@@ -35,7 +35,9 @@ Works on the energy coefficients ``c_0 … c_K`` of one level.
   and fall).  Both are judged in the pattern index j, so Γ(j + a) growth of
   every p-th coefficient is found as well.  A root-test radius that keeps
   shrinking as orders are added is never called convergent (asymptotic, with
-  a note).  A tail that sits at round-off far below the trend of the
+  a note) — unless the model is known not to be a truncated basis: a finite
+  problem's level is analytic in a disc (Kato 1966, ch. II), so both signs
+  then only mark the estimates as unsettled (convergent, with a note).  A tail that sits at round-off far below the trend of the
   coefficients before it → terminating.
 """
 
@@ -68,14 +70,21 @@ class CoefficientAnalysis:
     pade: float
     pade_poles: np.ndarray  # stable poles in λ (all p roots of each μ-pole)
     notes: tuple[str, ...] = field(default=())
+    #: estimates still shrinking with the order in a model known not to be truncated (reported as convergent)
+    unsettled: bool = False
 
 
 def _nan_result(kind, p, o, k0, notes, b=np.nan):
     return CoefficientAnalysis(kind, p, o, k0, b, np.nan, np.nan, np.nan, np.nan, np.zeros(0, complex), tuple(notes))
 
 
-def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
+def analyse(c: np.ndarray, energy_scale: float, *, truncated: bool | None = None) -> CoefficientAnalysis:
     """Growth class and radius estimates from the coefficients ``c`` (K+1,).
+
+    ``truncated`` is the model's :attr:`ptcheck.Model.truncated`.  For
+    ``False`` (a finite problem in its complete basis) the growth class is
+    never 'asymptotic': signs of factorial growth or a shrinking root-test
+    radius only add a note and set ``unsettled``.
 
     ``energy_scale`` (the isolation distance of the level) sets the coupling
     scale ``s = min_k (energy_scale / |c_k|)^(1/k)`` at which the largest term
@@ -137,10 +146,11 @@ def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
 
     # ---- growth class: log|ratio| vs log j (Theil–Sen slope, robust to outliers)
     b = _growth_exponent(jj, dd, half)
-    if np.isfinite(b) and b > ASYMPTOTIC_SLOPE and _confirm_factorial(jj, dd, b):
+    factorial = bool(np.isfinite(b) and b > ASYMPTOTIC_SLOPE and _confirm_factorial(jj, dd, b))
+    if factorial and truncated is not False:
         return _nan_result("asymptotic", p, o, k0, notes, b)
     shrink = _shrinking_radius(jj, dd)
-    if shrink is not None:
+    if shrink is not None and truncated is not False:
         r_half, r_full = shrink
         notes.append(
             f"the root-test radius keeps shrinking as orders are added ({r_half ** (1.0 / p):.3g} from the first half "
@@ -148,6 +158,19 @@ def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
             "series is treated as asymptotic, not convergent"
         )
         return _nan_result("asymptotic", p, o, k0, notes, b)
+    unsettled = factorial or shrink is not None
+    if unsettled:
+        # a finite matrix family: the level is analytic in a disc (Kato 1966, ch. II), the series converges
+        seen = (
+            f"the root-test radius fell from {shrink[0] ** (1.0 / p):.3g} (first half of the coefficients) to "
+            f"{shrink[1] ** (1.0 / p):.3g} (all of them)"
+            if shrink is not None
+            else f"the coefficient ratios still grow with the order (about like k^{b:.2g})"
+        )
+        notes.append(
+            f"the radius estimates were still shrinking as orders were added: {seen}. The basis is not a truncation, "
+            "so the series converges, but its radius may be smaller than estimated; check with more orders"
+        )
 
     # ---- root test: upper envelope of log|d_j| + 1.5 log j (square-root branch point,
     # generic at an exceptional point, gives |d_j| ~ j^(-3/2) R^(-j) |cos(jθ + φ)|)
@@ -173,6 +196,7 @@ def analyse(c: np.ndarray, energy_scale: float) -> CoefficientAnalysis:
         conv(r_pade_mu),
         poles_l,
         tuple(notes),
+        unsettled,
     )
 
 

@@ -289,6 +289,15 @@ def _num(x: Any) -> str:
     return f"{x.real:.6g}" if x.imag == 0 else f"{x:.6g}"
 
 
+def check_optional_flag(x: Any, name: str) -> bool | None:
+    """True, False or None (unknown); anything else (0/1, strings) is refused."""
+    if x is None:
+        return None
+    if not isinstance(x, (bool, np.bool_)):
+        raise TypeError(f"{name} must be True, False or None; got {x!r}")
+    return bool(x)
+
+
 def check_int(x: Any, name: str, *, minimum: int | None = None, maximum: int | None = None) -> int:
     if isinstance(x, bool) or not isinstance(x, numbers.Integral):
         lo = f" >= {minimum}" if minimum is not None else ""

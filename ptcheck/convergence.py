@@ -177,12 +177,18 @@ class ConvergenceResult:
     kind : {'convergent', 'terminating', 'asymptotic'}
         Growth class of the coefficients: geometric; exactly zero beyond some
         order (up to round-off); factorial (|c_k/c_{k-1}| growing ∝ k).
+        Never 'asymptotic' for a model with ``truncated=False`` (a complete
+        finite basis; see :class:`ptcheck.Model`): estimates that still shrink
+        with the order give 'convergent' with a note instead.
     radius : float
         Estimated radius of convergence in λ (dimensionless): ``inf`` for a
         terminating series, ``0`` for an asymptotic one; otherwise the
         distance to the nearest exceptional point when it agrees with the
         coefficient estimates, else the smaller (more cautious) of the two;
-        never below ``kato_bound``; NaN when nothing could be estimated.
+        when the coefficient estimates are still shrinking (complete finite
+        basis only): that exceptional point if one was found, else the
+        smallest of the root-test, Domb–Sykes and Padé estimates; never
+        below ``kato_bound``; NaN when nothing could be estimated.
     radius_uncertainty : float
         Half the spread (max - min) of the finite estimates in ``estimates``;
         NaN with fewer than two.
@@ -419,6 +425,11 @@ def _median_finite(x: np.ndarray) -> float:
     return float(np.median(x)) if x.size else math.nan
 
 
+def _smallest_finite(x: np.ndarray) -> float:
+    x = x[np.isfinite(x) & (x > 0)]
+    return float(np.min(x)) if x.size else math.nan
+
+
 def _analyse_level(
     model: Model,
     level: int,
@@ -432,10 +443,12 @@ def _analyse_level(
     c = np.asarray(series.energy_coefficients, dtype=float)
     d = _isolation(model, level)
     kato = _kato(d, model.norm_v)
-    ca = analyse(c, d)
+    ca = analyse(c, d, truncated=model.truncated)
     notes = list(ca.notes)
-    # consensus of the extrapolating estimators (the plain ratio test is reported, not used)
-    r_coef = _median_finite(np.array([ca.root, ca.domb_sykes, ca.pade]))
+    # consensus of the extrapolating estimators (the plain ratio test is reported, not used);
+    # estimates still shrinking with the order: the smallest of them
+    ests = np.array([ca.root, ca.domb_sykes, ca.pade])
+    r_coef = _smallest_finite(ests) if ca.unsettled else _median_finite(ests)
 
     # ---- exceptional points
     run_ep = model.n >= 2 and (ep_search == "always" or (ep_search == "auto" and model.n <= EP_DENSE_LIMIT))
@@ -491,8 +504,8 @@ def _analyse_level(
     else:
         if run_ep and np.isfinite(r_coef):
             agreement = "agree" if (np.isfinite(r_ep) and abs(r_coef - r_ep) <= AGREEMENT_RTOL * r_ep) else "disagree"
-        if agreement == "agree":
-            radius = r_ep
+        if agreement == "agree" or (ca.unsettled and eps):
+            radius = r_ep  # unsettled coefficients: a verified singularity on the branch is the better radius
         elif np.isfinite(r_coef) and np.isfinite(r_ep):
             radius = min(r_coef, r_ep)
         elif np.isfinite(r_coef):
@@ -581,8 +594,8 @@ def _summary(model: Model, r: dict, r_coef: float, r_ep: float, run_ep: bool, n_
     eps = r["exceptional_points"]
     if eps.size:
         partner = r["partners"][0]
-        pn = model.label(int(partner)) if partner >= 0 else "another level"
-        ep_txt = f"the nearest exceptional point on its branch is at λ ≈ {fmt_complex(eps[0], 4)} (|λ| = {abs(eps[0]):.4g}), where it meets level {pn}"
+        pn = f"level {model.label(int(partner))}" if partner >= 0 else "another level"
+        ep_txt = f"the nearest exceptional point on its branch is at λ ≈ {fmt_complex(eps[0], 4)} (|λ| = {abs(eps[0]):.4g}), where it meets {pn}"
     else:
         ep_txt = ""
     if r["kind"] == "terminating":
@@ -609,8 +622,19 @@ def _summary(model: Model, r: dict, r_coef: float, r_ep: float, run_ep: bool, n_
             parts.append(f"No radius could be estimated for level {lab} from {K} orders; only Kato's bound is available.")
         else:
             parts.append(f"The series of level {lab} converges for |λ| < {r['radius']:.4g}.")
+        if ca.unsettled:
+            parts.append(
+                f"The coefficient estimates were still shrinking at order {K}; the model is a complete finite basis, so the "
+                "series does converge, but the true radius may be smaller than estimated: check with more orders."
+            )
         if r["agreement"] == "agree":
             parts.append(f"Coefficient tests (≈ {r_coef:.4g}) and the singularity picture agree: {ep_txt}.")
+        elif r["agreement"] == "disagree" and ca.unsettled and eps.size:
+            parts.append(
+                f"Coefficient tests give ≈ {r_coef:.4g}, not yet settled, and {ep_txt}; the reported radius is that of "
+                "this exceptional point, a verified singularity on the level's branch (a nearer one missed by the search "
+                "would make it smaller)."
+            )
         elif r["agreement"] == "disagree":
             if eps.size:
                 parts.append(
@@ -755,17 +779,20 @@ def _analyse_effective(m: Model, n: int, order: int, coupling: float | None, e: 
     branch = e.treatment == DEGENERATE and e.energy_coefficients is not None
     if branch:
         c = np.asarray(e.energy_coefficients, dtype=float)
-        ca = analyse(c, d if np.isfinite(d) else 1.0)
+        ca = analyse(c, d if np.isfinite(d) else 1.0, truncated=m.truncated)
         what = f"the Taylor series of its branch of the degenerate group ({names})"
     else:
         c = np.array([np.linalg.norm(e.term(1.0, k)) for k in range(order + 1)])
-        ca = analyse(c, d if np.isfinite(d) else 1.0)
+        ca = analyse(c, d if np.isfinite(d) else 1.0, truncated=m.truncated)
         what = f"the effective Hamiltonian of the {e.treatment} ({names}) (root test on ‖H_eff^(k)‖)"
     ests = np.array([ca.root, ca.domb_sykes] + ([ca.pade] if branch else []))
     if ca.kind == "terminating":
         radius = math.inf
     elif ca.kind == "asymptotic":
         radius = 0.0
+    elif ca.unsettled:  # estimates still shrinking (complete finite basis): the smallest
+        # (Kato's bound here is the group's, not a branch's: no floor)
+        radius = _smallest_finite(ests)
     else:
         radius = _median_finite(ests)
     fin = ests[np.isfinite(ests)]
@@ -789,6 +816,8 @@ def _analyse_effective(m: Model, n: int, order: int, coupling: float | None, e: 
         body = f"Level {label}: {what} terminates: no radius limit."
     elif np.isfinite(radius):
         body = f"Level {label}: {what} gives a radius ≈ {radius:.4g}."
+        if ca.unsettled:
+            body += " The estimates were still shrinking with the order, so the radius may be smaller: check with more orders."
         if coupling is not None:
             body += f" λ = {coupling:g} lies {'inside' if abs(coupling) < radius else 'outside'} that disc."
     else:

@@ -121,6 +121,16 @@ class Model:
     names : sequence of str, optional
         Names of the couplings, one per ``V_i`` (e.g. ``("g", "E")``; default
         ``("λ",)`` for one coupling, ``("λ1", "λ2", ...)`` for several).
+    truncated : bool or None, default None
+        Whether the basis is a truncation of an infinite problem (a photon,
+        level, charge or angular-momentum cut-off): ``True``; the complete,
+        exact Hilbert space of a finite problem (spins, a two-level system, a
+        finite lattice of fermions): ``False``; ``None`` when unknown.  The
+        built-in builders set it.  It decides one thing: a series of a model
+        known not to be truncated is never classified as asymptotic
+        (:func:`ptcheck.convergence`), since a non-degenerate level of a
+        finite matrix family is analytic in a disc of radius at least the Kato
+        bound (Kato, *Perturbation Theory for Linear Operators*, 1966, ch. II).
 
     Attributes
     ----------
@@ -167,6 +177,8 @@ class Model:
     parent_levels : tuple of int or None
         For a sub-model made by :meth:`restrict`: the parent's work index of
         each level; ``None`` for a model built from matrices.
+    truncated : bool or None
+        As given (see Parameters); sub-models and ray models keep it.
 
     Notes
     -----
@@ -216,8 +228,10 @@ class Model:
         coupling_unit: str | None = None,
         coupling_name: str | None = None,
         names: Sequence[str] | None = None,
+        truncated: bool | None = None,
     ) -> None:
         trusted = self.__dict__.pop("_trusted_input", False)  # set by Model._trusted (built-in builders)
+        truncated = val.check_optional_flag(truncated, "truncated")
         h0m, h0dims = val.as_operator(h0, "h0", max_dense=DENSE_LIMIT)
         hermitian_rtol = float(val.check_positive(hermitian_rtol, "hermitian_rtol"))
         several = _perturbation_list(v)
@@ -329,6 +343,7 @@ class Model:
             parent_levels=None,
             vs=work_vs,
             coupling_names=coupling_names,
+            truncated=truncated,
         )
 
     # ------------------------------------------------------------------ construction
@@ -360,8 +375,10 @@ class Model:
         coupling_names: tuple[str, ...] = ("λ",),
         direction: np.ndarray | None = None,
         ray_levels: np.ndarray | None = None,
+        truncated: bool | None = None,
     ) -> None:
         self.name = name
+        self.truncated = truncated
         self.n = n
         self.dims = dims
         self.hermitian_rtol = hermitian_rtol
@@ -456,6 +473,7 @@ class Model:
             "coupling_name": self.coupling_name,
             "couplings": list(self.coupling_names),
             "direction": None if self.direction is None else [float(x) for x in self.direction],
+            "truncated": self.truncated,
             "sectors": {
                 "count": int(k),
                 "listed": int(listed),
@@ -625,6 +643,7 @@ class Model:
             coupling_names=self.coupling_names,
             direction=self.direction,
             ray_levels=self._ray_levels,
+            truncated=self.truncated,
         )
 
     @property
@@ -823,6 +842,7 @@ class Model:
             vs=None if self._vs is None else sub_vs,
             coupling_names=self.coupling_names,
             direction=self.direction,
+            truncated=self.truncated,
         )
         return sub
 

@@ -87,7 +87,7 @@ def jaynes_cummings(
     h0, a, sp_plus, g, nph, sparse = _qubit_resonator(omega_q, omega_r, g, n_photons, sparse)
     v = g * (sp.kron(sp_plus, a) + sp.kron(sp_plus.T, a.T))
     h0, v = c.finish(h0, v.tocsr(), sparse)
-    return Model(h0, v, dims=(2, nph), name="Jaynes–Cummings", **c.physical(g, "g"))
+    return Model(h0, v, dims=(2, nph), name="Jaynes–Cummings", truncated=True, **c.physical(g, "g"))
 
 
 def rabi(
@@ -129,4 +129,4 @@ def rabi(
     sigma_x = sp.csr_matrix(np.array([[0.0, 1.0], [1.0, 0.0]]))
     v = g * sp.kron(sigma_x, a + a.T)
     h0, v = c.finish(h0, v.tocsr(), sparse)
-    return Model(h0, v, dims=(2, nph), name="Rabi", **c.physical(g, "g"))
+    return Model(h0, v, dims=(2, nph), name="Rabi", truncated=True, **c.physical(g, "g"))

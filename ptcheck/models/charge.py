@@ -44,7 +44,7 @@ def _cosine_model(b: float, v0: float, offset: float, n_max: int, sparse: bool |
     size = n.size
     v = sp.diags([np.full(size - 1, -v0 / 2)] * 2, [1, -1], shape=(size, size), format="csr")
     h0, v = c.finish(h0, v, sparse)
-    return Model(h0, v, labels=[(int(k),) for k in n], name=name)
+    return Model(h0, v, labels=[(int(k),) for k in n], name=name, truncated=True)
 
 
 def charge_qubit(

@@ -105,4 +105,4 @@ def hubbard_dimer(*, t: float = 1.0, u: float = 8.0, sector: str = "sz0") -> Mod
     v_fock = -tt * (hop + hop.T)
     h0 = b.T @ h0_fock @ b
     v = b.T @ v_fock @ b
-    return Model(h0, v, labels=labels, name="Hubbard dimer")
+    return Model(h0, v, labels=labels, name="Hubbard dimer", truncated=False)

@@ -107,7 +107,7 @@ def kerr_qubit_resonator(
         v = gg * sp.kron(b + b.T, a + a.T)
     h0, v = c.finish(h0.tocsr(), v.tocsr(), sparse)
     name = "Kerr qubit–resonator (RWA)" if rwa else "Kerr qubit–resonator"
-    return Model(h0, v, dims=(nq, nph), name=name, **c.physical(gg, "g"))
+    return Model(h0, v, dims=(nq, nph), name=name, truncated=True, **c.physical(gg, "g"))
 
 
 def coupled_kerr_qubits(
@@ -172,4 +172,4 @@ def coupled_kerr_qubits(
     h0 = sp.kron(sp.diags(kerr_ladder(w1, a1, n)), eye) + sp.kron(eye, sp.diags(kerr_ladder(w2, a2, n)))
     v = jj * (sp.kron(b, b.T) + sp.kron(b.T, b))
     h0, v = c.finish(h0.tocsr(), v.tocsr(), sparse)
-    return Model(h0, v, dims=(n, n), name="coupled Kerr qubits", **c.physical(jj, "J"))
+    return Model(h0, v, dims=(n, n), name="coupled Kerr qubits", truncated=True, **c.physical(jj, "J"))

@@ -111,4 +111,4 @@ def polar_molecule(
     _, v_b = c.finish(h0, v_b, sp_choice)
     mirror = mirror if sp.issparse(h0d) else mirror.toarray()
     labels = [(int(j), int(m)) for j, m in zip(js, ms)]
-    return Model(h0d, [v_e, v_b], names=("E", "B"), labels=labels, conserved={"σ": mirror}, name="polar molecule (invented)")
+    return Model(h0d, [v_e, v_b], names=("E", "B"), labels=labels, conserved={"σ": mirror}, name="polar molecule (invented)", truncated=True)

@@ -93,4 +93,4 @@ def anharmonic_oscillator(*, kind: str = "quartic", n_basis: int = 60, sparse: b
     h0 = sp.diags([k + 0.5 for k in range(nb)], format="csr")
     v = position_power(power, nb)
     h0, v = c.finish(h0, v, sparse)
-    return Model(h0, v, labels=[(k,) for k in range(nb)], name=name)
+    return Model(h0, v, labels=[(k,) for k in range(nb)], name=name, truncated=True)

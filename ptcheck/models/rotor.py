@@ -95,4 +95,4 @@ def linear_rotor(
     h0, v = c.finish(h0, v, sp_choice)
     m_op = m_op if sp.issparse(h0) else m_op.toarray()
     labels = [(int(j), int(m)) for j, m in zip(js, ms)]
-    return Model(h0, v, labels=labels, conserved={"M": m_op}, name="linear rotor in a field", **c.physical(mu, "μE"))
+    return Model(h0, v, labels=labels, conserved={"M": m_op}, name="linear rotor in a field", truncated=True, **c.physical(mu, "μE"))

@@ -173,4 +173,4 @@ def spin_chain(
         # spin-flip parity Π σx: |s⟩ -> |s̄⟩ (all bits flipped); a longitudinal field breaks it
         conserved["parity"] = sp.csr_matrix((np.ones(dim), states ^ (dim - 1), np.arange(dim + 1, dtype=np.int32)), shape=(dim, dim))
     # Hermitian, finite and parity-commuting by construction: the input checks are skipped (Model._trusted)
-    return Model._trusted(h0, v, dims=(2,) * n, name=name, conserved=conserved or None)
+    return Model._trusted(h0, v, dims=(2,) * n, name=name, conserved=conserved or None, truncated=False)

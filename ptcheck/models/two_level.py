@@ -52,4 +52,4 @@ def two_level(*, delta: float = 1.0, v: float = 0.5, phase: float = 0.0) -> Mode
     vm = np.array([[0.0, off], [np.conj(off), 0.0]])
     if phi == 0.0:
         vm = vm.real.copy()
-    return Model(h0, vm, labels=["g", "e"], name="two-level system")
+    return Model(h0, vm, labels=["g", "e"], name="two-level system", truncated=False)
