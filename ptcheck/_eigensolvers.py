@@ -102,47 +102,63 @@ class DenseBackend:
     supports_rank_window = True
     iterative = False
 
-    #: Up to this size every solve is a full ``eigh``, kept for the last :data:`MEMO_COUPLINGS` couplings:
-    #: several levels tracked one by one at the same coupling (a boundary search of a quantity, a block
-    #: treatment) then share one decomposition; a window of a small matrix costs about as much as all of it.
+    #: Solves are kept for the last :data:`MEMO_COUPLINGS` couplings. Up to this size a second, different
+    #: request at the same coupling (several levels tracked one by one: a quantity's boundary search, a block
+    #: treatment) gets the full ``eigh``, which then serves every level there; a first request stays a window.
     FULL_LIMIT = 256
     MEMO_COUPLINGS = 4
 
     def __init__(self, model: Model, *, rtol: float, rng: np.random.Generator) -> None:
         _check_dense_size(model, "backend 'dense'")
         self.model = model
-        self._memo: list[tuple[float, np.ndarray, np.ndarray]] = []  # (coupling, all eigenvalues, all vectors)
+        self._memo: list[tuple[float, int, int, np.ndarray, np.ndarray]] = []  # (coupling, lo, hi, values, vectors)
 
-    def _full(self, coupling: float) -> tuple[np.ndarray, np.ndarray]:
-        for c, w, x in self._memo:
-            if c == coupling:
-                return w, x
+    def _recall(self, coupling: float, lo: int, hi: int) -> tuple[np.ndarray, np.ndarray] | None:
+        for c, a, b, w, x in self._memo:
+            if c == coupling and a <= lo and hi <= b:
+                return w[lo - a : hi - a].copy(), x[:, lo - a : hi - a].copy()
+        return None
+
+    def _keep(self, coupling: float, lo: int, w: np.ndarray, x: np.ndarray) -> None:
+        self._memo = [(coupling, lo, lo + w.size, w, x)] + self._memo[: self.MEMO_COUPLINGS - 1]
+
+    def _full_if_asked_again(self, coupling: float) -> tuple[np.ndarray, np.ndarray] | None:
+        """The whole spectrum at ``coupling`` when a window there was solved before (small matrices only)."""
+        n = self.model.n
+        if n > self.FULL_LIMIT or not any(c == coupling for c, *_ in self._memo):
+            return None
         w, x = sla.eigh(_hamiltonian_dense(self.model, coupling), check_finite=False)
-        self._memo = [(coupling, w, x)] + self._memo[: self.MEMO_COUPLINGS - 1]
+        self._keep(coupling, 0, w, x)
         return w, x
 
     def window(self, coupling: float, lo: int, hi: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
-        n = self.model.n
-        if n <= self.FULL_LIMIT:
-            w, x = self._full(coupling)
-            return w[lo:hi].copy(), x[:, lo:hi].copy()
+        got = self._recall(coupling, lo, hi)
+        if got is not None:
+            return got
+        full = self._full_if_asked_again(coupling)
+        if full is not None:
+            return full[0][lo:hi].copy(), full[1][:, lo:hi].copy()
         h = _hamiltonian_dense(self.model, coupling)
-        if lo == 0 and hi == n:
-            return sla.eigh(h, check_finite=False)
-        return sla.eigh(h, subset_by_index=[lo, hi - 1], check_finite=False)
+        n = self.model.n
+        w, x = sla.eigh(h, check_finite=False) if lo == 0 and hi == n else sla.eigh(
+            h, subset_by_index=[lo, hi - 1], check_finite=False)
+        self._keep(coupling, lo, w, x)
+        return w.copy(), x.copy()
 
     def lowest(self, coupling: float, k: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
         return self.window(coupling, 0, k)
 
     def nearest(self, coupling: float, sigma: float, k: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
-        if self.model.n <= self.FULL_LIMIT:
-            w, x = self._full(coupling)
-            lo = _nearest_block(w, sigma, k)
-            return w[lo:lo + k].copy(), x[:, lo:lo + k].copy()
+        full = self._recall(coupling, 0, self.model.n)
+        if full is None:
+            full = self._full_if_asked_again(coupling)
+        if full is not None:
+            lo = _nearest_block(full[0], sigma, k)
+            return full[0][lo : lo + k].copy(), full[1][:, lo : lo + k].copy()
         h = _hamiltonian_dense(self.model, coupling)
         w = sla.eigvalsh(h, check_finite=False)
         lo = _nearest_block(w, sigma, k)
-        return sla.eigh(h, subset_by_index=[lo, lo + k - 1], check_finite=False)
+        return self.window(coupling, lo, lo + k)
 
     def probe(self, coupling: float, k: int, start: np.ndarray, *, tight: Any = (), basis: Any = None) -> tuple[np.ndarray, np.ndarray] | None:
         """The k lowest eigenpairs (LAPACK: every column is exact; ``start``, ``tight``, ``basis`` are not needed)."""
