@@ -35,6 +35,7 @@ from __future__ import annotations
 import argparse
 import contextlib
 import io
+import os
 import signal
 import sys
 import textwrap
@@ -733,8 +734,19 @@ def _interrupted(exc: KeyboardInterrupt, run: _Run) -> int:
     return EXIT_TERMINATED if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
 
 
-def _raise_terminated(signum: int, frame: Any) -> None:
-    raise _Terminated()
+def _terminator(owner: int, exc: type[BaseException]) -> Any:
+    """Signal handler of process ``owner``: raise ``exc`` there; end quietly in a forked worker.
+
+    A worker forked from ``owner`` inherits the handler until its own set-up runs; stopped while starting up it
+    must not print a traceback into the caller's stderr, so it exits as the signal's default action would.
+    """
+
+    def handler(signum: int, frame: Any) -> None:
+        if os.getpid() != owner:
+            os._exit(128 + signum)
+        raise exc()
+
+    return handler
 
 
 @contextlib.contextmanager
@@ -744,8 +756,8 @@ def _signal_handlers() -> Iterator[None]:
         yield
         return
     previous = {sig: signal.getsignal(sig) for sig in (signal.SIGINT, signal.SIGTERM)}
-    signal.signal(signal.SIGINT, signal.default_int_handler)
-    signal.signal(signal.SIGTERM, _raise_terminated)
+    signal.signal(signal.SIGINT, _terminator(os.getpid(), KeyboardInterrupt))
+    signal.signal(signal.SIGTERM, _terminator(os.getpid(), _Terminated))
     try:
         yield
     finally:
