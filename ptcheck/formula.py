@@ -238,10 +238,25 @@ def _is_real(c: _Coef) -> bool:
     return c.fraction is not None or c.value.imag == 0.0
 
 
+def _term(m_tex: str, m_py: str, p_tex: str, p_py: str, *, constant: bool) -> tuple[str, str]:
+    """(LaTeX, Python) of one term: magnitude times power (a unit magnitude left out beside a power)."""
+    if not constant and m_py == "1":
+        m_tex, m_py = "", ""
+    sep_tex = "\\," if ("\\times" in m_tex or m_tex.startswith("10^")) and p_tex else ""
+    return m_tex + sep_tex + p_tex, m_py + ("*" if m_py and p_py else "") + p_py
+
+
+def _join_terms(terms: Sequence[tuple[bool, str, str]]) -> tuple[str, str]:
+    """(LaTeX, Python) sum of (negative, term LaTeX, term Python); "0" for no terms."""
+    if not terms:
+        return "0", "0"
+    signs = [("-" if neg else "") if i == 0 else (" - " if neg else " + ") for i, (neg, _, _) in enumerate(terms)]
+    return "".join(g + t for g, (_, t, _) in zip(signs, terms)), "".join(g + q for g, (_, _, q) in zip(signs, terms))
+
+
 def _poly(coefs: Sequence[_Coef], var_tex: str, var_py: str, digits: int) -> tuple[str, str]:
     """(LaTeX, Python) text of Σ_k c_k x^k, zero terms left out."""
-    tex: list[str] = []
-    py: list[str] = []
+    terms: list[tuple[bool, str, str]] = []
     for k, c in enumerate(coefs):
         if c.fraction == 0:
             continue
@@ -260,20 +275,8 @@ def _poly(coefs: Sequence[_Coef], var_tex: str, var_py: str, digits: int) -> tup
             sign = "-" if im < 0 else "+"
             m_tex = f"({_tex_float(re, digits)} {sign} {_tex_float(abs(im), digits)}\\,i)"
             m_py = f"({re!r}{sign}{abs(im)!r}j)"
-        if k > 0 and m_py == "1":
-            m_tex, m_py = "", ""
-        sep_tex = "\\," if ("\\times" in m_tex or m_tex.startswith("10^")) and p_tex else ""
-        term_tex = m_tex + sep_tex + p_tex
-        term_py = m_py + ("*" if m_py and p_py else "") + p_py
-        if not tex:
-            tex.append(("-" if neg else "") + term_tex)
-            py.append(("-" if neg else "") + term_py)
-        else:
-            tex.append((" - " if neg else " + ") + term_tex)
-            py.append((" - " if neg else " + ") + term_py)
-    if not tex:
-        return "0", "0"
-    return "".join(tex), "".join(py)
+        terms.append((neg, *_term(m_tex, m_py, p_tex, p_py, constant=k == 0)))
+    return _join_terms(terms)
 
 
 def _sig3_down(x: float) -> str:

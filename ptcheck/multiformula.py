@@ -34,12 +34,14 @@ from .formula import (
     DEFAULT_RTOLS,
     LATEX_DIGITS,
     _check_variable,
+    _join_terms,
     _py_fraction,
     _RESERVED,
     _tex_float,
     _tex_fraction,
     _tex_symbol,
     _tex_text,
+    _term,
     _usable_name,
     simple_rational,
 )
@@ -334,8 +336,7 @@ def _monomial(a: int, b: int, texs: Sequence[str], names: Sequence[str]) -> tupl
 
 def _polynomial(c: np.ndarray, rationals: tuple, zero: np.ndarray, k: int, texs: Sequence[str], names: Sequence[str]) -> tuple[str, str]:
     """(LaTeX, Python) of Σ E^(a,b) λ₁^a λ₂^b by total degree, descending powers of the first coupling."""
-    tex: list[str] = []
-    py: list[str] = []
+    terms: list[tuple[bool, str, str]] = []
     for d in range(k + 1):
         for a in range(d, -1, -1):
             b = d - a
@@ -343,23 +344,10 @@ def _polynomial(c: np.ndarray, rationals: tuple, zero: np.ndarray, k: int, texs:
                 continue
             x = float(c[a, b])
             f = rationals[a][b]
-            neg = x < 0
             m_tex = _tex_fraction(abs(f), LATEX_DIGITS) if f is not None else _tex_float(abs(x), LATEX_DIGITS)
             m_py = _py_fraction(abs(f)) if f is not None else repr(abs(x))
-            mono_tex, mono_py = _monomial(a, b, texs, names)
-            if d > 0 and m_py == "1":
-                m_tex, m_py = "", ""
-            term_tex = m_tex + ("\\," if m_tex and mono_tex and ("\\times" in m_tex or m_tex.startswith("10^")) else "") + mono_tex
-            term_py = m_py + ("*" if m_py and mono_py else "") + mono_py
-            if not tex:
-                tex.append(("-" if neg else "") + term_tex)
-                py.append(("-" if neg else "") + term_py)
-            else:
-                tex.append((" - " if neg else " + ") + term_tex)
-                py.append((" - " if neg else " + ") + term_py)
-    if not tex:
-        return "0", "0"
-    return "".join(tex), "".join(py)
+            terms.append((x < 0, *_term(m_tex, m_py, *_monomial(a, b, texs, names), constant=d == 0)))
+    return _join_terms(terms)
 
 
 def _axis_reach(r: ValidityRegion, angle: float) -> tuple[str, float] | None:
