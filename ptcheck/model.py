@@ -1048,31 +1048,38 @@ def _regood(v: Any, groups: tuple, ambiguous: np.ndarray) -> tuple[Any, np.ndarr
             v.sort_indices()
     if not rotate:
         return v, (perm if moved else None), None
-    rows, cols, data, blocks = [], [], [], []
     with sec.small_blas():
-        for idx in rotate:
-            block = _submatrix(v, idx)
-            _, u = np.linalg.eigh(0.5 * (block + block.conj().T))
-            blocks.append(u)
-            rows.append(np.repeat(idx, idx.size))
-            cols.append(np.tile(idx, idx.size))
-            data.append(u.ravel())
-    touched = np.zeros(n, dtype=bool)
-    for idx in rotate:
-        touched[idx] = True
-    rest = np.flatnonzero(~touched)
-    rows.append(rest), cols.append(rest), data.append(np.ones(rest.size))
-    dtype = np.result_type(*[x.dtype for x in data], np.float64)
-    rot = sp.csr_matrix((np.concatenate(data).astype(dtype), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
+        blocks = [_good_rotation(v, idx) for idx in rotate]
+    rot, _ = _rotation_matrix(n, rotate, blocks)
     if sp.issparse(v):
         v = (rot.conj().T @ v @ rot).tocsr()
         v.sort_indices()
     else:
-        v = np.array(v, dtype=np.result_type(v.dtype, dtype))
+        v = np.array(v, dtype=np.result_type(v.dtype, rot.dtype))
         for idx, u in zip(rotate, blocks):
             v[:, idx] = v[:, idx] @ u
             v[idx, :] = u.conj().T @ v[idx, :]
     return v, (perm if moved else None), rot
+
+
+def _good_rotation(v: Any, idx: np.ndarray) -> np.ndarray:
+    """Eigenvectors of V on the degenerate group ``idx``: its first-order good states (columns)."""
+    block = _submatrix(v, idx)
+    return np.linalg.eigh(0.5 * (block + block.conj().T))[1]
+
+
+def _rotation_matrix(n: int, groups: list[np.ndarray], blocks: list[np.ndarray]) -> tuple[Any, np.ndarray]:
+    """(N × N CSR rotation: ``blocks`` on ``groups``, identity elsewhere; mask of the rotated states)."""
+    touched = np.zeros(n, dtype=bool)
+    for idx in groups:
+        touched[idx] = True
+    rest = np.flatnonzero(~touched)
+    rows = [np.repeat(idx, idx.size) for idx in groups] + [rest]
+    cols = [np.tile(idx, idx.size) for idx in groups] + [rest]
+    data = [u.ravel() for u in blocks] + [np.ones(rest.size)]
+    dtype = np.result_type(*[x.dtype for x in data], np.float64)
+    rot = sp.csr_matrix((np.concatenate(data).astype(dtype), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
+    return rot, touched
 
 
 def coupling_display(scale: Any, unit: Any, name: Any = None) -> tuple[float | None, str | None, str | None]:
@@ -1218,8 +1225,7 @@ def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) ->
     order = np.argsort(key, kind="stable")
     starts = np.searchsorted(key[order], mixing)
     ends = np.searchsorted(key[order], mixing, side="right")
-    rotated, too_big = [], []
-    rows, cols, data = [], [], []
+    rotated, too_big, blocks = [], [], []
     limit = _rotation_limit(v)
     with sec.small_blas():
         for a, b in zip(starts, ends):
@@ -1227,21 +1233,11 @@ def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) ->
             if idx.size > limit:
                 too_big.append(idx)
                 continue
-            block = _submatrix(v, idx)
-            _, u = np.linalg.eigh(0.5 * (block + block.conj().T))
             rotated.append(idx)
-            rows.append(np.repeat(idx, idx.size))
-            cols.append(np.tile(idx, idx.size))
-            data.append(u.ravel())
+            blocks.append(_good_rotation(v, idx))
     if not rotated:
         return v, None, [], too_big
-    touched = np.zeros(n, dtype=bool)
-    for idx in rotated:
-        touched[idx] = True
-    rest = np.flatnonzero(~touched)
-    rows.append(rest), cols.append(rest), data.append(np.ones(rest.size))
-    dtype = np.result_type(*[x.dtype for x in data], np.float64)
-    rot = sp.csr_matrix((np.concatenate(data).astype(dtype), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
+    rot, touched = _rotation_matrix(n, rotated, blocks)
     if sp.issparse(v):
         # only rows and columns of rotated groups change: V' = V_rest + R^H V_touched R
         rows = np.repeat(np.arange(n), np.diff(v.indptr))
@@ -1254,9 +1250,8 @@ def _good_states(v: Any, sector_of: np.ndarray, cid: np.ndarray, rtol: float) ->
         )
         v = (keep + (rot.conj().T @ part @ rot)).tocsr()
     else:
-        v = np.array(v, dtype=np.result_type(v.dtype, dtype))
-        for idx in rotated:
-            u = rot[idx][:, idx].toarray()
+        v = np.array(v, dtype=np.result_type(v.dtype, rot.dtype))
+        for idx, u in zip(rotated, blocks):
             v[:, idx] = v[:, idx] @ u
             v[idx, :] = u.conj().T @ v[idx, :]
     return v, rot, rotated, too_big
