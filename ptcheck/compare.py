@@ -1080,24 +1080,23 @@ class _ErrorFunction:
             self.ambiguous.add(s)
             self.seen[s] = (_AMBIGUOUS_ERROR, ref_val)
             return _AMBIGUOUS_ERROR
-        err = abs(float(self.pert_shift(np.array([s]))[0]) - ex)
+        own = float(self.pert_shift(np.array([s]))[0])
+        ref = ref_val
         if self.relative and abs(ref_val) <= _RESOLVE_RELATIVE * self.noise(s):
             # The exact reference (a shift, or a value that is 0 at λ = 0) is too close to its round-off to
             # resolve a relative error (tiny λ). There the highest-order series available is exact far below
             # round-off: judge the order against it, so an order that misses the leading term (e.g. order 1 of a
             # shift that starts at λ²) fails as λ → 0 instead of "meeting" the tolerance for want of resolution.
             top = float(self.pert_shift(np.array([s]), self.top_order)[0])
-            own = float(self.pert_shift(np.array([s]))[0])
-            ref_top = top if self.target.relative_to == "shift" else self.unperturbed + top
-            err = abs(own - top) / abs(ref_top) if ref_top != 0 else (0.0 if own == top else np.inf)
-            err = min(err, _AMBIGUOUS_ERROR)
-            self.seen[s] = (err, ref_val)
-            return err
-        if err <= self.noise(s):
-            err = 0.0  # below the round-off of the shifts: no error can be resolved (e.g. a χ of 1e-15 at tiny λ)
+            err = abs(own - top)
+            ref = top if self.target.relative_to == "shift" else self.unperturbed + top
+        else:
+            err = abs(own - ex)
+            if err <= self.noise(s):
+                err = 0.0  # below the round-off of the shifts: no error can be resolved (e.g. a χ of 1e-15 at tiny λ)
         if self.relative:
             # a zero reference: undefined relative error, a failure -- unless the order reproduces it exactly
-            err = err / abs(ref_val) if ref_val != 0 else (0.0 if err == 0.0 else np.inf)
+            err = err / abs(ref) if ref != 0 else (0.0 if err == 0.0 else np.inf)
         err = min(err, _AMBIGUOUS_ERROR)
         self.seen[s] = (err, ref_val)
         return err
