@@ -113,50 +113,44 @@ class DenseBackend:
         self.model = model
         self._memo: list[tuple[float, int, int, np.ndarray, np.ndarray]] = []  # (coupling, lo, hi, values, vectors)
 
-    def _recall(self, coupling: float, lo: int, hi: int) -> tuple[np.ndarray, np.ndarray] | None:
+    def _kept(self, coupling: float, lo: int, hi: int) -> tuple[int, np.ndarray, np.ndarray] | None:
+        """(first index, values, vectors) of a kept solve at ``coupling`` that covers ranks lo..hi−1."""
         for c, a, b, w, x in self._memo:
             if c == coupling and a <= lo and hi <= b:
-                return w[lo - a : hi - a].copy(), x[:, lo - a : hi - a].copy()
+                return a, w, x
         return None
 
     def _keep(self, coupling: float, lo: int, w: np.ndarray, x: np.ndarray) -> None:
         self._memo = [(coupling, lo, lo + w.size, w, x)] + self._memo[: self.MEMO_COUPLINGS - 1]
 
-    def _full_if_asked_again(self, coupling: float) -> tuple[np.ndarray, np.ndarray] | None:
-        """The whole spectrum at ``coupling`` when a window there was solved before (small matrices only)."""
+    def _all(self, coupling: float) -> tuple[int, np.ndarray, np.ndarray] | None:
+        """The whole spectrum at ``coupling``: kept, or solved now when a window there was solved before
+        (small matrices only); None otherwise."""
         n = self.model.n
-        if n > self.FULL_LIMIT or not any(c == coupling for c, *_ in self._memo):
-            return None
-        w, x = sla.eigh(_hamiltonian_dense(self.model, coupling), check_finite=False)
-        self._keep(coupling, 0, w, x)
-        return w, x
+        got = self._kept(coupling, 0, n)
+        if got is None and n <= self.FULL_LIMIT and any(c == coupling for c, *_ in self._memo):
+            w, x = sla.eigh(_hamiltonian_dense(self.model, coupling), check_finite=False)
+            self._keep(coupling, 0, w, x)
+            got = (0, w, x)
+        return got
 
     def window(self, coupling: float, lo: int, hi: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
-        got = self._recall(coupling, lo, hi)
-        if got is not None:
-            return got
-        full = self._full_if_asked_again(coupling)
-        if full is not None:
-            return full[0][lo:hi].copy(), full[1][:, lo:hi].copy()
-        h = _hamiltonian_dense(self.model, coupling)
-        n = self.model.n
-        w, x = sla.eigh(h, check_finite=False) if lo == 0 and hi == n else sla.eigh(
-            h, subset_by_index=[lo, hi - 1], check_finite=False)
-        self._keep(coupling, lo, w, x)
-        return w.copy(), x.copy()
+        got = self._kept(coupling, lo, hi) or self._all(coupling)
+        if got is None:
+            h = _hamiltonian_dense(self.model, coupling)
+            w, x = sla.eigh(h, check_finite=False) if (lo, hi) == (0, self.model.n) else sla.eigh(
+                h, subset_by_index=[lo, hi - 1], check_finite=False)
+            self._keep(coupling, lo, w, x)
+            got = (lo, w, x)
+        a, w, x = got
+        return w[lo - a : hi - a].copy(), x[:, lo - a : hi - a].copy()
 
     def lowest(self, coupling: float, k: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
         return self.window(coupling, 0, k)
 
     def nearest(self, coupling: float, sigma: float, k: int, start: Any = None, start_coupling: float | None = None) -> tuple[np.ndarray, np.ndarray]:
-        full = self._recall(coupling, 0, self.model.n)
-        if full is None:
-            full = self._full_if_asked_again(coupling)
-        if full is not None:
-            lo = _nearest_block(full[0], sigma, k)
-            return full[0][lo : lo + k].copy(), full[1][:, lo : lo + k].copy()
-        h = _hamiltonian_dense(self.model, coupling)
-        w = sla.eigvalsh(h, check_finite=False)
+        got = self._all(coupling)
+        w = got[1] if got is not None else sla.eigvalsh(_hamiltonian_dense(self.model, coupling), check_finite=False)
         lo = _nearest_block(w, sigma, k)
         return self.window(coupling, lo, lo + k)
 
