@@ -26,6 +26,7 @@ import scipy.sparse as sp
 
 from ..model import Model
 from . import _common as c
+from .rotor import cos_theta, jm_basis
 
 __all__ = ["polar_molecule", "MAX_J"]
 
@@ -84,27 +85,19 @@ def polar_molecule(
     gb = c.real(g_b, "g_b")
     jm = c.size(j_max, "j_max", minimum=1, maximum=MAX_J)
     sp_choice = c.sparse_choice(sparse)
-    js = np.concatenate([np.full(2 * j + 1, j) for j in range(jm + 1)])
-    ms = np.concatenate([np.arange(-j, j + 1) for j in range(jm + 1)])
+    js, ms, index = jm_basis(jm)
     n = js.size
-    index = {(int(j), int(m)): i for i, (j, m) in enumerate(zip(js, ms))}
     h0 = sp.diags(bb * js * (js + 1.0), format="csr")
-    rs, cs, vs_e, rz, cz, vs_b = [], [], [], [], [], []
+    v_e = -mu * cos_theta(js, ms, index, jm)
+    rz, cz, vs_b = [], [], []
     for i, (j, m) in enumerate(zip(js, ms)):
         j, m = int(j), int(m)
-        if j < jm:
-            k = index[(j + 1, m)]
-            elem = -mu * np.sqrt(((j + 1.0) ** 2 - m**2) / ((2.0 * j + 1.0) * (2.0 * j + 3.0)))
-            rs += [i, k]
-            cs += [k, i]
-            vs_e += [elem, elem]
         if m < j:
             k = index[(j, m + 1)]
             elem = -gb * 0.5 * np.sqrt(j * (j + 1.0) - m * (m + 1.0))
             rz += [i, k]
             cz += [k, i]
             vs_b += [elem, elem]
-    v_e = sp.csr_matrix((vs_e, (rs, cs)), shape=(n, n))
     v_b = sp.csr_matrix((vs_b, (rz, cz)), shape=(n, n))
     mirror = sp.csr_matrix((np.ones(n), (np.arange(n), [index[(int(j), -int(m))] for j, m in zip(js, ms)])), shape=(n, n))
     h0d, v_e = c.finish(h0, v_e, sp_choice)

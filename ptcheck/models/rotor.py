@@ -77,22 +77,31 @@ def linear_rotor(
     mu = c.real(mu_e, "mu_e")
     jm = c.size(j_max, "j_max", minimum=1, maximum=MAX_J)
     sp_choice = c.sparse_choice(sparse)
-    js = np.concatenate([np.full(2 * j + 1, j) for j in range(jm + 1)])
-    ms = np.concatenate([np.arange(-j, j + 1) for j in range(jm + 1)])
-    n = js.size
-    index = {(int(j), int(m)): i for i, (j, m) in enumerate(zip(js, ms))}
+    js, ms, index = jm_basis(jm)
     h0 = sp.diags(bb * js * (js + 1.0), format="csr")
-    rows, cols, vals = [], [], []
-    for i, (j, m) in enumerate(zip(js, ms)):
-        if j < jm:
-            k = index[(int(j) + 1, int(m))]
-            elem = np.sqrt(((j + 1.0) ** 2 - m**2) / ((2.0 * j + 1.0) * (2.0 * j + 3.0)))
-            rows += [i, k]
-            cols += [k, i]
-            vals += [-mu * elem, -mu * elem]
-    v = sp.csr_matrix((vals, (rows, cols)), shape=(n, n))
+    v = -mu * cos_theta(js, ms, index, jm)
     m_op = sp.diags(ms.astype(float), format="csr")
     h0, v = c.finish(h0, v, sp_choice)
     m_op = m_op if sp.issparse(h0) else m_op.toarray()
     labels = [(int(j), int(m)) for j, m in zip(js, ms)]
     return Model(h0, v, labels=labels, conserved={"M": m_op}, name="linear rotor in a field", truncated=True, **c.physical(mu, "μE"))
+
+
+def jm_basis(j_max: int) -> tuple[np.ndarray, np.ndarray, dict]:
+    """The |J, M⟩ basis J = 0 … j_max, all M: (J of each state, M of each state, (J, M) → index)."""
+    js = np.concatenate([np.full(2 * j + 1, j) for j in range(j_max + 1)])
+    ms = np.concatenate([np.arange(-j, j + 1) for j in range(j_max + 1)])
+    return js, ms, {(int(j), int(m)): i for i, (j, m) in enumerate(zip(js, ms))}
+
+
+def cos_theta(js: np.ndarray, ms: np.ndarray, index: dict, j_max: int) -> sp.csr_matrix:
+    """cos θ in the |J, M⟩ basis: ⟨J+1, M|cos θ|J, M⟩ = sqrt(((J+1)² − M²) / ((2J+1)(2J+3))), real symmetric."""
+    rows, cols, vals = [], [], []
+    for i, (j, m) in enumerate(zip(js, ms)):
+        if j < j_max:
+            k = index[(int(j) + 1, int(m))]
+            elem = np.sqrt(((j + 1.0) ** 2 - m**2) / ((2.0 * j + 1.0) * (2.0 * j + 3.0)))
+            rows += [i, k]
+            cols += [k, i]
+            vals += [elem, elem]
+    return sp.csr_matrix((vals, (rows, cols)), shape=(js.size, js.size))
