@@ -46,3 +46,22 @@ def random_hermitian(rng, n, *, complex_=False, sparse=False, density=0.3):
         a = a * mask
     h = (a + a.conj().T) / 2
     return sp.csr_matrix(h) if sparse else h
+
+
+def ising_ring(n: int, j: float = 1.0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Transverse-field Ising ring as plain matrices: H0 = −J Σ σz_i σz_{i+1}, V = −J Σ σx_i and the spin-flip
+    parity Π σx, by Kronecker products of Pauli matrices (site 0 most significant; common practice, no source)."""
+    sz, sx, one = np.diag([1.0, -1.0]), np.array([[0.0, 1.0], [1.0, 0.0]]), np.eye(2)
+
+    def site(op, i):
+        out = np.ones((1, 1))
+        for k in range(n):
+            out = np.kron(out, op if k == i else one)
+        return out
+
+    h0 = -j * sum(site(sz, i) @ site(sz, (i + 1) % n) for i in range(n))
+    v = -j * sum(site(sx, i) for i in range(n))
+    parity = np.ones((1, 1))
+    for _ in range(n):
+        parity = np.kron(parity, sx)
+    return h0, v, parity

@@ -15,6 +15,8 @@ from scipy.optimize import brentq
 from ptcheck import Model, compare, validity_boundary
 from ptcheck.models import linear_rotor, spin_chain
 
+from conftest import ising_ring
+
 B, MU_E, J_MAX = 1.0, 0.5, 10
 
 
@@ -89,25 +91,12 @@ def test_rotor_default_boundary_equals_brute_force(rotor, label):
 L_SPINS, ORDER = 8, 16
 
 
-def ising_matrices(n: int) -> tuple[np.ndarray, np.ndarray]:
-    """H0 = −Σ σz_i σz_{i+1} (ring) and V = −Σ σx_i by Kronecker products (common practice, no source)."""
-    sz, sx, one = np.diag([1.0, -1.0]), np.array([[0.0, 1.0], [1.0, 0.0]]), np.eye(2)
-
-    def site(op, i):
-        out = np.ones((1, 1))
-        for k in range(n):
-            out = np.kron(out, op if k == i else one)
-        return out
-
-    return -sum(site(sz, i) @ site(sz, (i + 1) % n) for i in range(n)), -sum(site(sx, i) for i in range(n))
-
-
 @pytest.mark.parametrize("declared", [True, False])
 def test_ising_doublet_order16_error_is_the_true_error_on_any_grid(declared):
     # transverse-field Ising ring (Pfeuty, Ann. Phys. 57, 79 (1970): critical at λ = h/J = 1); its ferromagnetic
     # ground doublet is split only at order L.  With the builder the parity is declared (each member alone in its
     # sector); with plain matrices ptcheck must use degenerate perturbation theory and pair by overlap.
-    h0, v = ising_matrices(L_SPINS)
+    h0, v = ising_ring(L_SPINS)[:2]
     m = spin_chain(n_spins=L_SPINS) if declared else Model(h0, v, name="Ising ring, plain matrices")
     coarse = np.array([0.3, 0.5])
     fine = np.linspace(0.0, 0.5, 11)

@@ -23,6 +23,8 @@ from ptcheck.modelfile import load_model_file
 from ptcheck.models import jaynes_cummings, kerr_qubit_resonator, linear_rotor
 from ptcheck.report import boundaries_csv, run_check, to_json, to_markdown
 
+from conftest import ising_ring
+
 J_MAX = 6
 
 
@@ -80,23 +82,6 @@ def test_builders_name_their_physical_coupling_and_none_when_it_is_zero():
 
 
 # ----------------------------------------------------------------------------- model files
-def ising_ring(n: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """H0 = −Σ σz σz (ring), V = −Σ σx, parity Π σx by Kronecker products (common practice, no source)."""
-    sz, sx, one = np.diag([1.0, -1.0]), np.array([[0.0, 1.0], [1.0, 0.0]]), np.eye(2)
-
-    def site(op, i):
-        out = np.ones((1, 1))
-        for k in range(n):
-            out = np.kron(out, op if k == i else one)
-        return out
-
-    parity = np.ones((1, 1))
-    for _ in range(n):
-        parity = np.kron(parity, sx)
-    h0 = -sum(site(sz, i) @ site(sz, (i + 1) % n) for i in range(n))
-    return h0, -sum(site(sx, i) for i in range(n)), parity
-
-
 def write_ring(tmp_path, extra: str = "") -> str:
     h0, v, parity = ising_ring(4)
     np.save(tmp_path / "h0.npy", h0)

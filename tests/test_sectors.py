@@ -21,6 +21,8 @@ from ptcheck.blocks import block_series
 from ptcheck.models import linear_rotor, spin_chain
 from ptcheck.sectors import Sector
 
+from conftest import ising_ring
+
 
 # ----------------------------------------------------------------------------- references (outside ptcheck)
 def rotor_sector(b: float, mu_e: float, j_max: int, m: int, lam: float) -> np.ndarray:
@@ -33,25 +35,6 @@ def rotor_sector(b: float, mu_e: float, j_max: int, m: int, lam: float) -> np.nd
     js = np.arange(abs(m), j_max + 1, dtype=float)
     off = np.sqrt(((js[:-1] + 1) ** 2 - m**2) / ((2 * js[:-1] + 1) * (2 * js[:-1] + 3)))
     return np.diag(b * js * (js + 1)) - lam * mu_e * (np.diag(off, 1) + np.diag(off, -1))
-
-
-def ising_user_matrices(n: int, j: float = 1.0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """H0 = −J Σ σz_i σz_{i+1} (ring), V = −J Σ σx_i and the parity Π σx, by Kronecker products of Pauli
-    matrices (site 0 most significant; common practice, no source)."""
-    sz, sx, one = np.diag([1.0, -1.0]), np.array([[0.0, 1.0], [1.0, 0.0]]), np.eye(2)
-
-    def site(op, i):
-        out = np.ones((1, 1))
-        for k in range(n):
-            out = np.kron(out, op if k == i else one)
-        return out
-
-    h0 = -j * sum(site(sz, i) @ site(sz, (i + 1) % n) for i in range(n))
-    v = -j * sum(site(sx, i) for i in range(n))
-    parity = np.ones((1, 1))
-    for _ in range(n):
-        parity = np.kron(parity, sx)
-    return h0, v, parity
 
 
 def parity_basis(parity: np.ndarray, sign: int) -> np.ndarray:
@@ -136,7 +119,7 @@ def test_ising_ground_doublet_tracked_in_its_parity_sectors(grid):
     m = spin_chain(n_spins=n)
     assert m.sector_of(0) != m.sector_of(1)
     assert {m.sectors[m.sector_of(0)].name, m.sectors[m.sector_of(1)].name} == {"parity +1", "parity -1"}
-    h0, v, parity = ising_user_matrices(n)
+    h0, v, parity = ising_ring(n)
     sw = track(m, [0, 1], grid)
     assert not sw.avoided_crossings and not sw.notes  # no reported crossing
     for i, lev in enumerate([0, 1]):
@@ -156,7 +139,7 @@ def test_ising_order16_error_is_the_same_on_any_grid():
     fine = compare(m, [0], [16], list(np.linspace(0.0, 0.5, 11))).to_dict()
     assert coarse["exact"][0][0] == pytest.approx(fine["exact"][0][6], abs=1e-12)  # λ = 0.3
     assert coarse["exact"][0][1] == pytest.approx(fine["exact"][0][10], abs=1e-12)  # λ = 0.5
-    h0, v, parity = ising_user_matrices(8)
+    h0, v, parity = ising_ring(8)
     want = parity_sector_spectrum(h0 + 0.3 * v, parity_basis(parity, +1))[0]
     assert coarse["exact"][0][0] == pytest.approx(want, abs=1e-10)
     assert abs(coarse["perturbative"][0][0][0] - want) < 1e-9  # the true order-16 error, far below the splitting

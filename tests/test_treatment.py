@@ -17,6 +17,8 @@ from ptcheck.models import jaynes_cummings, kerr_qubit_resonator, spin_chain
 from ptcheck.quantities import quantity_series, stark_shift
 from ptcheck.treatment import CheckSettings, expansions
 
+from conftest import ising_ring
+
 
 # ---------------------------------------------------------------------------------------------- Λ system
 def lambda_system(o1=0.3, o2=0.4, delta=2.0):
@@ -68,23 +70,9 @@ def test_lambda_system_default_uses_degenerate_pt_and_pairs_dark_and_bright_stat
 L_SPINS = 6
 
 
-def ising_matrices(n: int) -> tuple[np.ndarray, np.ndarray]:
-    """H0 = −Σ σz_i σz_{i+1} (ring) and V = −Σ σx_i by Kronecker products of Pauli matrices (common practice,
-    no source): plain matrices, no conserved operator declared."""
-    sz, sx, one = np.diag([1.0, -1.0]), np.array([[0.0, 1.0], [1.0, 0.0]]), np.eye(2)
-
-    def site(op, i):
-        out = np.ones((1, 1))
-        for k in range(n):
-            out = np.kron(out, op if k == i else one)
-        return out
-
-    return -sum(site(sz, i) @ site(sz, (i + 1) % n) for i in range(n)), -sum(site(sx, i) for i in range(n))
-
-
 @pytest.fixture(scope="module")
 def ising():
-    return Model(*ising_matrices(L_SPINS), name="Ising ring, plain matrices")
+    return Model(*ising_ring(L_SPINS)[:2], name="Ising ring, plain matrices")
 
 
 @pytest.mark.parametrize("declared", [False, True])
@@ -104,7 +92,7 @@ def test_ising_doublet_reports_the_true_error_on_coarse_and_fine_grids(ising, de
     else:
         assert rc.treatments == ("degenerate", "degenerate")
         assert f"order {L_SPINS}" in rc.reasons[0]
-    h0, v = ising_matrices(L_SPINS)
+    h0, v = ising_ring(L_SPINS)[:2]
     for r, lam in ((rc, coarse), (rf, fine)):
         assert not r.ambiguous.any()
         # brute force: dense eigvalsh of the plain matrices; the doublet is the two lowest levels, level 0 the
