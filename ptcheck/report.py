@@ -1560,7 +1560,7 @@ def _render(fig: Any, *, fmt: str = "png", dpi: int = 100) -> bytes:
     engine = fig.get_layout_engine()
     if engine is not None:
         engine.execute(fig)
-        fig.set_layout_engine("none")
+        fig.set_layout_engine(None)  # no engine at all: savefig then draws once (a placeholder engine makes it lay out again)
     with mpl.rc_context({"svg.hashsalt": "ptcheck"}):
         fig.savefig(buf, format=fmt, dpi=dpi, metadata=meta, facecolor="white", **kw)
     return buf.getvalue()
