@@ -196,6 +196,7 @@ def photon_boundaries(
     units: str = "",
     progress: ProgressCallback | None = None,
     executor: Any = None,
+    suggestions: bool = True,
 ) -> PhotonBoundaries:
     """Validity boundary of one order against the resonator photon number n, with n_crit beside it.
 
@@ -231,6 +232,13 @@ def photon_boundaries(
         Search the photon numbers as independent tasks there (e.g. a process
         pool); the result is the same as without.  Default: one after the
         other in this process.
+    suggestions : bool, default True
+        Where a near-degenerate partner limits the series at some n, add to
+        ``notes`` the boundary of the near-degenerate block that would treat
+        them together (:attr:`ValidityBoundary.suggestions`).  Each costs one
+        more search with that treatment (several times the cost of the
+        default search); ``False`` keeps only the boundaries asked for and the
+        near-degeneracy warnings (which name the partner and the treatment).
 
     Returns
     -------
@@ -282,7 +290,8 @@ def photon_boundaries(
     if g == 0:
         raise ValueError(f"model {model.name!r} has no coupling between |1,0⟩ and |0,1⟩ (V element 0): no g to quote")
     notes: list[str] = []
-    jobs = [(model, _target(quantity, n, units), spec, tol, rtol, treatment, backend, max_coupling, lam) for n in photons]
+    jobs = [(model, _target(quantity, n, units), spec, tol, rtol, treatment, backend, max_coupling, lam, bool(suggestions))
+            for n in photons]
     if executor is None:
         found = []
         for k, job in enumerate(jobs):
@@ -335,7 +344,7 @@ def _photon_job(job: tuple) -> tuple:
         return _boundary(*job)
 
 
-def _boundary(model, target, spec, tol, rtol, treatment, backend, max_coupling, lam):
+def _boundary(model, target, spec, tol, rtol, treatment, backend, max_coupling, lam, suggestions):
     """(λ*, status, exact solves, notes) of one photon number.
 
     A failed search is reported, not raised; warnings of the search (e.g. a
@@ -345,7 +354,8 @@ def _boundary(model, target, spec, tol, rtol, treatment, backend, max_coupling, 
         warnings.simplefilter("always")
         try:
             b = validity_boundary(model, target, spec, tol=tol, rtol=rtol, treatment=treatment, backend=backend,
-                                  max_coupling=max_coupling, coupling=lam if lam != 0 else None)
+                                  max_coupling=max_coupling, coupling=lam if lam != 0 else None,
+                                  suggestions=suggestions)
             out = (float(b.coupling), b.status, int(b.exact_solves), tuple(b.notes[1:]))  # [0]: generic truncation note
         except (ValueError, ArithmeticError) as exc:
             out = (math.nan, "error", 0, (f"{type(exc).__name__}: {exc}",))

@@ -153,3 +153,21 @@ def test_photon_numbers_on_a_process_pool_match_closed_form_and_the_serial_run(j
         assert abs(b) == pytest.approx(brute_boundary(transition_error, n, 0.01), rel=2e-3)
     assert pooled.to_dict() == photon_boundaries(jc, 2, rtol=0.01, photons=photons).to_dict()
     assert seen == [(1, 3), (2, 3), (3, 3)]
+
+
+def test_block_suggestions_are_beside_the_answer_and_can_be_left_out():
+    # A Kerr-ladder qubit (invented numbers): at n = 6 photons |1,6⟩ nearly meets |2,5⟩ at λ = 1, so the
+    # non-degenerate boundary comes with the boundary of the near-degenerate block beside it.  Leaving
+    # the suggestions out must not change the answer asked for (common practice, no source).
+    from ptcheck.models import kerr_qubit_resonator
+
+    m = kerr_qubit_resonator(omega_q=5.21, alpha=-0.232, omega_r=6.41, g=0.082, n_qubit=4, n_photons=10)
+    with_s = photon_boundaries(m, 2, rtol=0.01, photons=[0, 6])
+    without = photon_boundaries(m, 2, rtol=0.01, photons=[0, 6], suggestions=False)
+    assert with_s.boundary.tolist() == without.boundary.tolist()
+    assert with_s.status == without.status == ("found", "found")
+    offered = [n for n in with_s.notes if "would treat them together" in n]
+    assert offered and all(n.startswith("n = 6:") for n in offered)
+    assert not any("would treat them together" in n for n in without.notes)
+    # the near-degeneracy itself is still said, with the treatment that handles it
+    assert any(n.startswith("n = 6:") and "treatment='block'" in n for n in without.notes)
