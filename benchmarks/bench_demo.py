@@ -13,6 +13,14 @@ from CPU times is printed too, the same formula for both checkouts: the
 imports (measured alone) run on one core, then the main process's own work
 beside its workers', at best perfectly balanced on two cores (a lower bound of
 the idle-machine wall time).  Measurements, not tests.
+
+Bytecode: an installed package runs from compiled bytecode (``pip install``
+compiles it; an editable install writes it on the first import).  Where the
+environment forbids writing it (``PYTHONDONTWRITEBYTECODE``, as on some CI
+machines) every run would compile every module of the package again, which
+no user pays.  By default both checkouts therefore run with their bytecode in
+a temporary cache (``PYTHONPYCACHEPREFIX``), filled by one untimed run each;
+``--bytecode none`` measures the compile-every-time case instead.
 """
 
 from __future__ import annotations
@@ -68,10 +76,22 @@ with open(report, "w") as f:
 """
 
 
-def run_demo(checkout: Path) -> tuple[float, float, float, float]:
+def _env(checkout: Path, pycache: Path | None) -> dict:
+    """The environment of a run from ``checkout``: bytecode read from (and written to) ``pycache``, or never written."""
+    env = {**os.environ, "PYTHONPATH": str(checkout)}
+    if pycache is None:
+        env["PYTHONDONTWRITEBYTECODE"] = "1"
+        env.pop("PYTHONPYCACHEPREFIX", None)
+    else:
+        env.pop("PYTHONDONTWRITEBYTECODE", None)
+        env["PYTHONPYCACHEPREFIX"] = str(pycache)
+    return env
+
+
+def run_demo(checkout: Path, pycache: Path | None = None) -> tuple[float, float, float, float]:
     """(wall, CPU, main-process CPU, worker CPU) seconds of one ``ptcheck demo`` from ``checkout``."""
     out = Path(tempfile.mkdtemp(prefix="ptcheck-bench-"))
-    env = {**os.environ, "PYTHONPATH": str(checkout)}
+    env = _env(checkout, pycache)
     r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
     t = time.perf_counter()
     # run in the empty temporary folder: the interpreter puts its working directory first on sys.path, and
@@ -87,9 +107,9 @@ def run_demo(checkout: Path) -> tuple[float, float, float, float]:
     return wall, (r1.ru_utime - r0.ru_utime) + (r1.ru_stime - r0.ru_stime), float(main_cpu), float(workers_cpu)
 
 
-def import_cpu(checkout: Path, runs: int = 3) -> float:
+def import_cpu(checkout: Path, pycache: Path | None = None, runs: int = 3) -> float:
     """CPU seconds of ``python -c "import ptcheck.cli"`` from ``checkout`` (minimum of ``runs``)."""
-    env = {**os.environ, "PYTHONPATH": str(checkout)}
+    env = _env(checkout, pycache)
     best = float("inf")
     for _ in range(runs):
         r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
@@ -103,19 +123,26 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--runs", type=int, default=5)
     ap.add_argument("--baseline", type=Path, help="another checkout (e.g. the main branch) to compare with")
+    ap.add_argument("--bytecode", choices=("cached", "none"), default="cached",
+                    help="run from cached bytecode as an installed package does (default), or compile every time")
     a = ap.parse_args()
+    pycache = Path(tempfile.mkdtemp(prefix="ptcheck-bench-pyc-")) if a.bytecode == "cached" else None
     checkouts = {"this": HERE} | ({"baseline": a.baseline.resolve()} if a.baseline else {})
     times: dict[str, list[tuple[float, float, float, float]]] = {k: [] for k in checkouts}
+    print(f"bytecode: {'cached (one untimed run per checkout fills it)' if pycache else 'compiled in every run'}")
+    if pycache is not None:
+        for path in checkouts.values():
+            run_demo(path, pycache)
     print(f"parallelism control before: {control():.2f}x (2.0 = two idle cores)")
     for _ in range(a.runs):
         for name, path in checkouts.items():
-            times[name].append(run_demo(path))
+            times[name].append(run_demo(path, pycache))
     print(f"parallelism control after:  {control():.2f}x")
     estimate = {}
     for name, runs in times.items():
         walls = sorted(r[0] for r in runs)
         cpus = sorted(r[1] for r in runs)
-        imp = import_cpu(checkouts[name])
+        imp = import_cpu(checkouts[name], pycache)
         # idle 2-core machine: the imports on one core, then the main process's own work beside the workers'
         # (at best perfectly balanced on two cores): a lower bound of the wall time, from the run with least CPU
         _, cpu, main_cpu, workers_cpu = min(runs, key=lambda r: r[1])
@@ -129,6 +156,8 @@ def main() -> None:
         print(f"idle 2-core estimate from CPU times (imports + max(main rest, (main rest + workers) / 2)): this "
               f"{estimate['this']:.2f} s, baseline {estimate['baseline']:.2f} s: speed-up "
               f"{estimate['baseline'] / estimate['this']:.2f}x")
+    if pycache is not None:
+        shutil.rmtree(pycache, ignore_errors=True)
 
 
 if __name__ == "__main__":
