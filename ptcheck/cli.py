@@ -34,7 +34,6 @@ from __future__ import annotations
 
 import argparse
 import contextlib
-import io
 import os
 import signal
 import sys
@@ -45,6 +44,7 @@ from collections.abc import Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
+from ._demo import DEMO_PARAMS
 from .treatment import DEFAULT_TREATMENT, TREATMENTS
 
 __all__ = ["main", "build_parser", "DEMO_PARAMS"]
@@ -55,17 +55,6 @@ EXIT_INTERRUPTED, EXIT_TERMINATED = 130, 143
 
 #: Figure file formats (as in :data:`ptcheck.report.FIGURE_FORMATS`; kept here so --help needs no heavy import).
 FIGURE_FORMATS = ("png", "svg", "pdf")
-
-#: The invented demo device "Q-17": a transmon-like Kerr-ladder qubit and its
-#: readout resonator (GHz).  These numbers describe no real device.
-DEMO_PARAMS = {
-    "omega_q": 5.21,
-    "alpha": -0.232,
-    "omega_r": 6.41,
-    "g": 0.082,
-    "n_qubit": 4,
-    "n_photons": 8,
-}
 
 _MAIN_EPILOG = """\
 exit status:
@@ -512,58 +501,24 @@ def _figures(a: argparse.Namespace) -> Any:
 def _cmd_demo(a: argparse.Namespace, run: _Run) -> int:
     from .maps import _single_thread_blas
 
-    # small matrices (N = 32, 96): one BLAS thread is faster than several; independent parts (the side
-    # studies, each figure) run on two forked workers beside the main check
-    with _single_thread_blas(), _worker_pool() as pool:
-        return _demo(a, pool, run)
+    # small matrices (N = 32, 96): one BLAS thread is faster than several; the independent parts (side studies,
+    # figures) run on forked workers beside the check (ptcheck._demo)
+    with _single_thread_blas():
+        return _demo(a, run)
 
 
-@contextlib.contextmanager
-def _worker_pool() -> Iterator[Any]:
-    """Two forked worker processes, shut down on the way out; None where fork is unavailable."""
-    import multiprocessing as mp
-    from concurrent.futures import ProcessPoolExecutor
-
-    if "fork" not in mp.get_all_start_methods():
-        yield None
-        return
-    from .maps import _stop_pool
-
-    pool = ProcessPoolExecutor(max_workers=2, mp_context=mp.get_context("fork"), initializer=_warm_up)
-    try:
-        yield pool
-    except BaseException:  # an interrupt or an error: stop the workers now, leave no orphans
-        _stop_pool(pool)
-        raise
-    pool.shutdown(wait=True, cancel_futures=True)
-
-
-def _warm_up() -> None:
-    """Workers end quietly on SIGINT/SIGTERM (the caller stops them); import the figure code and load the fonts in a worker, while the main check runs (the main process
-    itself never imports matplotlib: the figures are drawn on the workers)."""
-    from .maps import _worker_init
-
-    _worker_init()
-    from matplotlib.figure import Figure
-
-    from . import maps_plot  # noqa: F401
-    from .plots import _common
-
-    _common.text_width("λ 0123456789 ⟩", 12.0)
-    Figure(figsize=(1, 1)).savefig(io.BytesIO(), format="png")
-
-
-def _demo(a: argparse.Namespace, pool: Any, run: _Run) -> int:
+def _demo(a: argparse.Namespace, run: _Run) -> int:
     from dataclasses import replace
     from functools import partial
 
+    from ._demo import DEMO_MARK, DemoWork, demo_model
     from .quantities import dispersive_shift, stark_shift
-    from .report import default_figures, draw_figure, figure_plan, run_check
+    from .report import run_check
 
     given = _out_dir(a.out, "ptcheck-demo")
     out = run.out = _prepare_output(given)
     p = DEMO_PARAMS
-    model = _demo_model(p)
+    model = demo_model(p)
     lamb = stark_shift((1, 0), (0, 0), name="qubit Lamb shift", units="GHz")
     chi = dispersive_shift(name="chi", units="GHz")
     description = (
@@ -576,143 +531,24 @@ def _demo(a: argparse.Namespace, pool: Any, run: _Run) -> int:
         "and 5 %, and shows how far the coupling, the resonator frequency and the photon number can go."
     )
     fmt = None if a.no_figures else a.figure_format
-    # the side studies (and their figures) start now on the workers, beside the main check
-    side = None if a.no_map or pool is None else _SideStudies(pool, chi, model, fmt)
-    with _progress_bar("demo") as bar:
-        report = run_check(
-            model, [lamb, chi], [2, 4], coupling=1.0, rtol=[0.01, 0.05], builder="kerr_qubit_resonator", params=p,
-            source={"demo": "Q-17 (invented)"},
-            title="Q-17 (invented device): design check of the second-order dispersive formulas",
-            description=description, invented=True, progress=bar,
-        )
-    drawing: dict[tuple, Any] = {}
-    if pool is not None and fmt is not None:  # the check's own figures: on the workers as soon as the check is done
-        drawing = {key: pool.submit(draw_figure, report, key, figure_format=fmt) for key in figure_plan(report)}
-    extras: dict[str, Any] = {"energy_unit": "GHz"}
-    if not a.no_map:
-        studies, drawn = side.results() if side is not None else (_side_studies(chi), {})
-        extras.update(studies)
-        drawing.update(drawn)
-        extras["validity_map_mark"] = _DEMO_MARK
-    report = replace(report, extras={**report.extras, **extras})
-    if fmt is None:
-        figures: Any = False
-    elif pool is None:
-        figures = partial(default_figures, figure_format=fmt)
-    else:
-        figures = partial(_demo_figures, drawing=drawing, figure_format=fmt)
-    files = _write(report, out, figures=figures, force=a.force)
+    with contextlib.ExitStack() as stack:
+        # the side studies start now on a worker; the check runs here meanwhile
+        work = DemoWork(stack, chi, model, studies=not a.no_map, figure_format=fmt)
+        with _progress_bar("demo") as bar:
+            report = run_check(
+                model, [lamb, chi], [2, 4], coupling=1.0, rtol=[0.01, 0.05], builder="kerr_qubit_resonator", params=p,
+                source={"demo": "Q-17 (invented)"},
+                title="Q-17 (invented device): design check of the second-order dispersive formulas",
+                description=description, invented=True, progress=bar, executor=work.executor,
+            )
+        extras: dict[str, Any] = {"energy_unit": "GHz", **work.studies()}
+        if not a.no_map:
+            extras["validity_map_mark"] = DEMO_MARK
+        report = replace(report, extras={**report.extras, **extras})
+        figures: Any = False if fmt is None else partial(work.figures, figure_format=fmt)
+        files = _write(report, out, figures=figures, force=a.force)
     _print_summary(report, files, Path(given))
     return EXIT_VALID
-
-
-#: The design point (ω_r in GHz, λ) marked on the demo's validity map.
-_DEMO_MARK = (DEMO_PARAMS["omega_r"], 1.0)
-
-
-def _demo_model(p: dict, **changes: Any) -> Any:
-    from .models import kerr_qubit_resonator
-
-    model = kerr_qubit_resonator(**{**p, **changes})
-    model.name = "Q-17 qubit + readout resonator (invented)"
-    _set_physical_coupling(model, 1000.0 * p["g"], "MHz")
-    return model
-
-
-def _side_studies(chi: Any) -> dict:
-    """The demo's validity map over ω_r and its photon-number boundaries, one after the other in this process."""
-    return {"validity_map": _validity_map_study(chi), "photon_boundaries": _photon_study()}
-
-
-def _validity_map_study(chi: Any) -> Any:
-    """The demo's validity map of χ over ω_r (a small map: serially, a process pool of its own costs more than it saves)."""
-    import numpy as np
-
-    from .maps import validity_map
-
-    p = DEMO_PARAMS
-    return validity_map(
-        "kerr_qubit_resonator", "omega_r", np.round(np.linspace(5.95, 7.35, 8), 4), level=chi, order=2, rtol=0.01,
-        couplings=np.linspace(0.1, 2.0, 20), builder_kwargs={k: v for k, v in p.items() if k != "omega_r"},
-        executor="serial",
-    )
-
-
-def _photon_study(executor: Any = None) -> Any:
-    """Photon budget: the same device with room for 24 photons in the resonator basis.
-
-    The report shows λ*_n of the dispersive formula beside n_crit; the block treatment's boundary per photon
-    number (a second, costlier search each) is left out: the near-degeneracy notes still name it.
-    """
-    from .photons import photon_boundaries
-
-    return photon_boundaries(_demo_model(DEMO_PARAMS, n_photons=24), 2, rtol=0.01, photons=range(0, 21, 2), units="GHz",
-                             executor=executor, suggestions=False)
-
-
-def _map_with_figure(chi: Any, figure_format: str | None) -> tuple[Any, Any]:
-    """The validity map and, straight after it on the same worker, its figure (module level: runs on a worker)."""
-    from .report import draw_study_figure
-
-    vm = _validity_map_study(chi)
-    fig = None if figure_format is None else draw_study_figure(vm, mark=_DEMO_MARK, unit="GHz", figure_format=figure_format)
-    return vm, fig
-
-
-class _SideStudies:
-    """The demo's side studies on a worker pool, started at once: the validity map (and its figure) as one task,
-    the photon numbers as one task each (submitted from a thread that only waits), then the photon figure."""
-
-    def __init__(self, pool: Any, chi: Any, model: Any, figure_format: str | None) -> None:
-        self._map = pool.submit(_map_with_figure, chi, figure_format)
-        self._out: dict[str, Any] = {}
-        scale = {"coupling_scale": model.coupling_scale, "coupling_unit": model.coupling_unit}
-
-        def photons() -> None:
-            try:
-                from .report import draw_study_figure
-
-                pb = self._out["photon_boundaries"] = _photon_study(pool)
-                if figure_format is not None:
-                    self._out["figure"] = pool.submit(draw_study_figure, pb, figure_format=figure_format, **scale)
-            except BaseException as exc:  # handed to the main thread by results()
-                self._out["error"] = exc
-
-        self._thread = threading.Thread(target=photons, name="ptcheck-demo-photons", daemon=True)
-        self._thread.start()
-
-    def results(self) -> tuple[dict, dict]:
-        """({"validity_map": …, "photon_boundaries": …}, {figure key: Figure or future}), once both are done."""
-        vm, vm_fig = self._map.result()
-        self._thread.join()
-        if "error" in self._out:
-            raise self._out["error"]
-        drawn: dict[tuple, Any] = {}
-        if vm_fig is not None:
-            drawn[("validity_map",)] = vm_fig
-        if "figure" in self._out:
-            drawn[("photons",)] = self._out["figure"]
-        return {"validity_map": vm, "photon_boundaries": self._out["photon_boundaries"]}, drawn
-
-
-def _demo_figures(report: Any, *, drawing: dict, figure_format: str) -> list:
-    """The report's figures in plan order: those drawn (or drawing) on the workers, any other one drawn here."""
-    from .report import draw_figure, figure_plan
-
-    out = []
-    for key in figure_plan(report):
-        f = drawing.get(key)
-        if f is None:
-            out.append(draw_figure(report, key, figure_format=figure_format))
-        else:
-            out.append(f.result() if hasattr(f, "result") else f)
-    return out
-
-
-def _set_physical_coupling(model: Any, scale: float, unit: str) -> None:
-    """λ = 1 ↔ ``scale`` ``unit`` on the model, for the figures' second coupling axis."""
-    model.coupling_scale = scale
-    model.coupling_unit = unit
 
 
 # ---------------------------------------------------------------------- entry point

@@ -419,6 +419,7 @@ def run_check(
     bounds_above: int = DEFAULT_BOUNDS_ABOVE,
     gap: str | float = "auto",
     trial_order: int | None = None,
+    executor: Any = None,
 ) -> CheckReport:
     """Run the full check of levels / quantities of a model at one coupling.
 
@@ -477,6 +478,10 @@ def run_check(
         Gap source of the bounds (:mod:`ptcheck.bounds`).
     trial_order : int, optional
         Order of the bounds' trial states (default ``max(12, k + 10)``).
+    executor : concurrent.futures.Executor, optional
+        Run the convergence diagnosis of each level there (e.g. a process
+        pool), beside the boundaries and the comparison computed here; the
+        report is the same as without.  Default: everything in this process.
 
     Returns
     -------
@@ -542,6 +547,12 @@ def run_check(
         report_progress(progress, step, total)
 
     tolkw = {"rtol": thr} if relative else {"tol": thr}
+    from .convergence import convergence as _convergence  # lazy: heavier module
+
+    conv_kw = {"coupling": lam0, "treatment": settings.treatment, "threshold": threshold}
+    # the convergence diagnosis (step 4) needs nothing computed before it: on an executor it starts now
+    conv_tasks = None if executor is None else [
+        executor.submit(_convergence, model, n, convergence_order, **conv_kw) for n in needed]
 
     # 1. validity boundaries of every order asked for (λ is the coupling of interest: the first
     #    crossing below it is always found, so the verdict and the boundary agree)
@@ -609,14 +620,12 @@ def run_check(
                 break
 
     # 4. convergence of each level's series (the same treatment)
-    from .convergence import convergence as _convergence  # lazy: heavier module
-
     conv = []
     conv_notes = []
-    for n in needed:
+    for k, n in enumerate(needed):
         try:
-            conv.append(_convergence(model, n, convergence_order, coupling=lam0, treatment=settings.treatment,
-                                     threshold=threshold))
+            conv.append(_convergence(model, n, convergence_order, **conv_kw) if conv_tasks is None
+                        else conv_tasks[k].result())
         except (ValueError, FloatingPointError) as exc:
             conv.append(None)
             conv_notes.append(f"No convergence diagnosis for level {model.label(n)}: {exc}")

@@ -449,11 +449,13 @@ def test_interrupt_while_the_command_starts_is_one_line(tmp_path):
 
 
 @pytest.mark.slow
-def test_sigterm_to_demo_leaves_no_worker_processes(tmp_path):
+@pytest.mark.parametrize("flags, workers", [(["--no-figures"], 1), ([], 2)])
+def test_sigterm_to_demo_leaves_no_worker_processes(tmp_path, flags, workers):
     psutil = pytest.importorskip("psutil")
-    p = start_cli("demo", "--out", "d", "--no-figures", cwd=tmp_path)
+    p = start_cli("demo", "--out", "d", *flags, cwd=tmp_path)
     proc = psutil.Process(p.pid)
-    wait_for(lambda: len(proc.children(recursive=True)) >= 2, p)  # the validity map's worker pool runs
+    # the side studies' worker runs (and, with figures, the drawing worker)
+    wait_for(lambda: len(proc.children(recursive=True)) >= workers, p)
     workers = proc.children(recursive=True)
     p.send_signal(signal.SIGTERM)
     _, err = p.communicate(timeout=120)
@@ -464,3 +466,17 @@ def test_sigterm_to_demo_leaves_no_worker_processes(tmp_path):
         w.kill()
     assert alive == []
     assert not (tmp_path / "d").exists()
+
+
+@pytest.mark.slow
+def test_demo_spread_over_workers_writes_the_same_files_as_one_process(tmp_path, monkeypatch):
+    # the demo's parts run on forked workers where fork exists (ptcheck._demo); where it does not, one after
+    # the other in one process.  Both must write byte-identical files (common practice, no source).
+    assert main(["demo", "--out", str(tmp_path / "spread")]) == 0
+    monkeypatch.setattr("ptcheck._demo.mp.get_all_start_methods", lambda: ["spawn"])
+    assert main(["demo", "--out", str(tmp_path / "serial")]) == 0
+    names = sorted(p.name for p in (tmp_path / "spread").iterdir())
+    assert names == sorted(p.name for p in (tmp_path / "serial").iterdir())
+    assert {"report.json", "validity-map.png", "photons.png", "convergence.png"} <= set(names)
+    for name in names:
+        assert (tmp_path / "spread" / name).read_bytes() == (tmp_path / "serial" / name).read_bytes(), name

@@ -56,6 +56,24 @@ def test_verdicts_match_closed_form(report):
     assert report.verdict_text.startswith("NOT VALID")
 
 
+def test_convergence_on_an_executor_gives_the_same_report(report):
+    # run_check(executor=...) runs the convergence diagnosis there: the report must not change.  The radius
+    # itself is the closed form: √((Δ/2)² + λ²v²) branches at λ = ±iΔ/(2v) (any QM text; see exact_ground).
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor
+
+    m = two_level(delta=DELTA, v=V)
+    kw = dict(coupling=0.45, tol=1e-5, treatment="nondegenerate", title="two-level check")
+    pools = [ThreadPoolExecutor(1)]
+    if "fork" in mp.get_all_start_methods():
+        pools.append(ProcessPoolExecutor(1, mp_context=mp.get_context("fork")))
+    for pool in pools:
+        with pool:
+            other = run_check(m, [0], [2, 4], executor=pool, **kw)
+        assert to_json(other) == to_json(report)
+    assert report.convergence[0].radius == pytest.approx(DELTA / (2 * V), rel=1e-6)
+
+
 def test_json_is_strict_and_complete(report):
     text = to_json(report)
 
