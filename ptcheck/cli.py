@@ -34,6 +34,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import gc
 import os
 import signal
 import sys
@@ -45,6 +46,7 @@ from pathlib import Path
 from typing import Any
 
 from ._demo import DEMO_PARAMS
+from ._startup import _is_command_line
 from .treatment import DEFAULT_TREATMENT, TREATMENTS
 
 __all__ = ["main", "build_parser", "DEMO_PARAMS"]
@@ -614,6 +616,9 @@ def _bad_input_types() -> tuple[type[BaseException], ...]:
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit status (see the module docstring)."""
     run = _Run()
+    owner = argv is None and _is_command_line()
+    if owner:  # this process is the ptcheck command: what is imported now lives until it ends
+        gc.freeze()  # (the collector skips it; forked workers do not copy the pages it would touch)
     try:
         with _signal_handlers():
             try:
@@ -622,6 +627,9 @@ def main(argv: Sequence[str] | None = None) -> int:
                 return _interrupted(exc, run)
     except KeyboardInterrupt as exc:  # a second signal while the first one was being reported
         return EXIT_TERMINATED if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
+    finally:
+        if owner:  # the process ends next: the interpreter's exit then skips a collection over every object (~0.2 s)
+            gc.freeze()
 
 
 def _main(argv: Sequence[str] | None, run: _Run) -> int:
