@@ -60,10 +60,13 @@ def control(n: int = 2_000_000) -> float:
 
 
 #: Runs ``ptcheck demo`` in a fresh interpreter and writes (wall, own CPU, workers' CPU) to the file argv[1].
+#: The process presents itself as ``python -m ptcheck ...`` (sys.orig_argv), so that ptcheck behaves as it does
+#: for a user who types the command (it checks how it was started, e.g. to tidy up quickly before exit).
 _WRAPPER = """
 import resource, runpy, sys, time
 t = time.perf_counter()
 report, sys.argv = sys.argv[1], ["ptcheck"] + sys.argv[2:]
+sys.orig_argv = [sys.executable, "-m", "ptcheck", *sys.argv[1:]]
 try:
     runpy.run_module("ptcheck", run_name="__main__")
 except SystemExit as exc:
