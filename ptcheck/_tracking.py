@@ -16,7 +16,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment, minimize_scalar
 
 from ._eigensolvers import combine, inner
 
@@ -103,9 +102,29 @@ def overlaps(prev: np.ndarray, x: np.ndarray) -> np.ndarray:
 
 
 def assign(ov: np.ndarray) -> np.ndarray:
-    """Column matched to each row (-1 if none), maximising the summed overlaps."""
+    """Column matched to each row (-1 if none), maximising the summed overlaps.
+
+    Where every row has one strictly largest entry and no two rows share its
+    column, that choice is the unique optimum (every row at its own maximum):
+    it is returned at once.  Otherwise the Hungarian method
+    (``scipy.optimize.linear_sum_assignment``, imported only then: importing
+    scipy.optimize costs as much as the rest of scipy ptcheck needs).
+    """
+    ka, kb = ov.shape
+    if 0 < ka <= kb and np.all(np.isfinite(ov)):
+        best = np.argmax(ov, axis=1)
+        if np.unique(best).size == ka:
+            if kb == 1:
+                return best
+            rows = np.arange(ka)
+            rest = ov.copy()
+            rest[rows, best] = -np.inf
+            if np.all(ov[rows, best] > rest.max(axis=1)):
+                return best
+    from scipy.optimize import linear_sum_assignment
+
     rows, cols = linear_sum_assignment(-ov)
-    out = np.full(ov.shape[0], -1, dtype=int)
+    out = np.full(ka, -1, dtype=int)
     out[rows] = cols
     return out
 
@@ -221,6 +240,8 @@ def parabolic_minimum(
         num = (x1 - x0) ** 2 * (f1 - f2) - (x1 - x2) ** 2 * (f1 - f0)
         curv = (f2 - f1) / (x2 - x1) - (f1 - f0) / (x1 - x0) if x2 > x1 > x0 else -1.0
         if den == 0 or curv <= 0:
+            from scipy.optimize import minimize_scalar  # here only: a heavy import
+
             res = minimize_scalar(
                 f, bounds=(lo, hi), method="bounded", options={"xatol": xtol, "maxiter": max(max_evals - evals - 1, 1)}
             )

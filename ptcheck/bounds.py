@@ -71,11 +71,11 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
-from scipy.optimize import brentq
 
 from . import _validation as val
 from ._cluster import group_brackets
 from ._gaps import GAP_KINDS, LevelEngine, Settings
+from ._roots import brentq
 from ._trial import operator_scales
 from .approximants import OrderSpec, Pade, order_name, parse_order, required_order
 from .errors import DegenerateLevelError

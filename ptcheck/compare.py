@@ -28,11 +28,11 @@ from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
-from scipy.optimize import brentq
 from scipy.sparse.linalg import ArpackError, ArpackNoConvergence
 
 from . import _validation as val
 from . import pairing
+from ._roots import brentq
 from .approximants import OrderSpec, Pade, order_name, parse_order, parse_orders, required_order
 from .bounds import bounds_options, certify, error_brackets, level_brackets
 from .degeneracy import DEFAULT_MIXING_THRESHOLD

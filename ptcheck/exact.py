@@ -88,7 +88,6 @@ from typing import Any
 import numpy as np
 import scipy.sparse as sp
 
-from scipy.optimize import minimize_scalar
 
 from . import _validation as val
 from ._eigensolvers import inner, make_backend
@@ -915,6 +914,8 @@ class _SectorSolver:
             weight = np.sum(np.abs(inner(raw.vectors, pair)) ** 2, axis=1)
             best = int(np.argmax(weight[:-1] + weight[1:]))
             return float(w[best + 1] - w[best])
+
+        from scipy.optimize import minimize_scalar  # here only: a heavy import
 
         lo, hi = sorted((a.coupling, b.coupling))
         res = minimize_scalar(gap, bounds=(lo, hi), method="bounded", options={"maxiter": 8, "xatol": 1e-3 * (hi - lo)})

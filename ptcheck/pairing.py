@@ -35,8 +35,8 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy.optimize import linear_sum_assignment
 
+from ._tracking import assign as _max_overlap_assignment
 from .exact import ExactSolver
 
 __all__ = ["CLEAR_FACTOR", "WINDOW_PAD", "PairedLevels", "assign", "sweep", "at", "uses_window"]
@@ -105,9 +105,7 @@ def assign(pert: np.ndarray, exact: np.ndarray, energies: np.ndarray, energy_tol
     overlap : (G,) ndarray
     """
     w = np.abs(np.conj(pert) @ exact.T) ** 2  # (G, M)
-    rows, cols = linear_sum_assignment(-w)
-    index = np.empty(pert.shape[0], dtype=int)
-    index[rows] = cols
+    index = _max_overlap_assignment(w)
     ambiguous = np.zeros(pert.shape[0], dtype=bool)
     overlap = w[np.arange(pert.shape[0]), index]
     for i, j in enumerate(index):

@@ -48,3 +48,12 @@ def test_engine_imports_without_matplotlib_or_widgets():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120)
     assert out.returncode == 0, out.stderr
     assert out.stdout.strip() == "ok"
+
+
+def test_the_command_line_starts_without_scipy_optimize():
+    # scipy.optimize loads scipy.special, scipy.spatial, scipy.fft ...: as long to import as the rest of
+    # scipy that ptcheck needs, paid by every command.  The engine brings its own root finder and takes
+    # the Hungarian method from scipy only when an assignment is ambiguous (common practice, no source).
+    code = "import sys, ptcheck.cli, ptcheck.report, ptcheck.maps\nprint('scipy.optimize' in sys.modules)\n"
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
+    assert out.strip() == "False"
