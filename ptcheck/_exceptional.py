@@ -203,7 +203,9 @@ class ExceptionalPointSearch:
         ``H(λ) - σ`` (one LU factorisation; ``start`` warm-starts the block,
         e.g. with the block of the previous step) and the orthonormal block
         itself, to pass on as the next ``start``; with ``'full'`` the nearest
-        eigenpairs of a full eigendecomposition.  Vectors have unit norm.
+        eigenpairs of a full eigendecomposition (and the vectors again in
+        place of the block: a full solve takes no start).  Vectors have unit
+        norm.
         The iteration stops when the sum and product of the two nearest Ritz
         values (smooth even where the two coalesce) change by less than
         ``rtol`` x the spectral scale.  The factorised shift sits ``offset``
@@ -217,6 +219,8 @@ class ExceptionalPointSearch:
             w, r = self.eig(lam)
             order = np.argsort(np.abs(w - sigma), kind="stable")[:p]
             x = r[:, order] / np.linalg.norm(r[:, order], axis=0)
+            if self.solver == "full":  # the block only ever comes back as a start, which full solves ignore
+                return w[order], x, x
             return w[order], x, np.linalg.qr(x)[0]  # (near a coalescence the span is poorly resolved)
         escale = self._escale(lam)
         shift = sigma + self._nudge(escale if offset is None else offset / 1e-9)
