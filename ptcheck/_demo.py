@@ -27,7 +27,7 @@ import io
 import multiprocessing as mp
 import threading
 from collections.abc import Iterator
-from concurrent.futures import Future, ProcessPoolExecutor
+from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from typing import Any, Callable
 
 __all__ = ["DEMO_PARAMS", "DEMO_MARK", "DemoWork", "demo_model"]
@@ -215,8 +215,9 @@ class DemoWork:
     def figures(self, report: Any, *, figure_format: str) -> list:
         """The report's figures in :func:`ptcheck.report.figure_plan` order, drawn here and on the drawing worker.
 
-        Both take the next figure from one list as soon as they are free (the heaviest first), so neither waits
-        while the other still has several to draw.
+        One list, heaviest first: the worker takes from the front, this process from the back, each as soon as
+        it is free.  While two or more are left the worker keeps one waiting in its queue (no gap between its
+        figures); the last one goes to whichever is free first.
         """
         from .report import default_figures, draw_figure, figure_plan
 
@@ -229,24 +230,32 @@ class DemoWork:
         failed: list[BaseException] = []  # the feeder's error
         stop = threading.Event()  # this thread failed: the feeder takes nothing more
 
-        def take() -> tuple | None:
-            with lock:
-                return todo.pop(0) if todo and not failed and not stop.is_set() else None
-
         def feed() -> None:  # the drawing worker's share (a thread that only waits)
             try:
-                for f in list(done.values()):  # the side studies' figures first
-                    f.result()
-                while (key := take()) is not None:
-                    done[key] = self._draw.submit(draw_figure, report, key, figure_format=figure_format)
-                    done[key].result()
+                mine = list(done.values())  # the side studies' figures may still be drawing there
+                while True:
+                    busy = [f for f in mine if not f.done()]
+                    with lock:
+                        ok = bool(todo) and not failed and not stop.is_set()
+                        key = todo.pop(0) if ok and (not busy or (len(busy) < 2 and len(todo) >= 2)) else None
+                    if key is not None:
+                        done[key] = self._draw.submit(draw_figure, report, key, figure_format=figure_format)
+                        mine.append(done[key])
+                    elif busy:
+                        wait(busy, return_when=FIRST_COMPLETED)
+                    else:
+                        return
             except BaseException as exc:  # re-raised below, in this thread
                 failed.append(exc)
+
+        def take_last() -> tuple | None:
+            with lock:
+                return todo.pop() if todo and not failed else None
 
         feeder = threading.Thread(target=feed, name="ptcheck-demo-drawing", daemon=True)
         feeder.start()
         try:
-            while (key := take()) is not None:
+            while (key := take_last()) is not None:
                 done[key] = draw_figure(report, key, figure_format=figure_format)
         except BaseException:  # (the worker is stopped on the way out; the feeder then ends by itself)
             stop.set()
