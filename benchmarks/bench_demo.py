@@ -39,6 +39,11 @@ from pathlib import Path
 HERE = Path(__file__).resolve().parents[1]
 
 
+def _load() -> float:
+    """1-minute load average (NaN where the platform has none)."""
+    return os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+
+
 def _burn(n: int) -> int:
     s = 0
     for i in range(n):
@@ -136,11 +141,13 @@ def main() -> None:
     if pycache is not None:
         for path in checkouts.values():
             run_demo(path, pycache)
+    print(f"load average (1 min) before: {_load():.2f}")
     print(f"parallelism control before: {control():.2f}x (2.0 = two idle cores)")
     for _ in range(a.runs):
         for name, path in checkouts.items():
             times[name].append(run_demo(path, pycache))
     print(f"parallelism control after:  {control():.2f}x")
+    print(f"load average (1 min) after:  {_load():.2f}")
     estimate = {}
     for name, runs in times.items():
         walls = sorted(r[0] for r in runs)
