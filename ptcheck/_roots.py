@@ -6,7 +6,7 @@ scipy.fft and more: about as long as all the rest of scipy that ptcheck
 uses, paid by every command and every ``import ptcheck``.  This is the same
 algorithm with the same stopping rule as ``scipy.optimize.brentq`` (R. P.
 Brent, *Algorithms for Minimization without Derivatives*, Prentice-Hall
-1973, ch. 4; scipy's C transcription of it), so it returns the same root to
+1973, ch. 4; scipy's C implementation of it), so it returns the same root to
 the last bit (``tests/test_roots.py`` checks it against scipy).
 """
 

@@ -65,3 +65,24 @@ def ising_ring(n: int, j: float = 1.0) -> tuple[np.ndarray, np.ndarray, np.ndarr
     for _ in range(n):
         parity = np.kron(parity, sx)
     return h0, v, parity
+
+
+def two_level_rs2_boundary(v: float, rtol: float, lam_max: float = 3.0) -> float:
+    """First λ where order-2 RS of the lower level of diag(−½, ½) + λ v σx misses rtol of the exact shift.
+
+    Exact: E = −√(¼ + v²λ²) (2×2 eigenvalue, closed form); RS order 2: E = −½ − v²λ²
+    (second-order shift |V01|²/(E0 − E1)); textbook two-state results, e.g. Sakurai,
+    Modern Quantum Mechanics (1994), §5.1.  Brute force: a grid of step 1e-4 up to
+    ``lam_max`` to bracket, scipy's brentq to refine.
+    """
+    from scipy.optimize import brentq
+
+    def excess(lam: float) -> float:
+        shift = -np.sqrt(0.25 + (v * lam) ** 2) + 0.5
+        return abs(-(v * lam) ** 2 - shift) / abs(shift) - rtol
+
+    grid = np.linspace(1e-4, lam_max, int(round(lam_max * 1e4)) + 1)
+    vals = np.array([excess(x) for x in grid])
+    i = int(np.argmax(vals > 0))
+    assert vals[i] > 0 and vals[i - 1] <= 0
+    return brentq(excess, grid[i - 1], grid[i], xtol=1e-12)

@@ -14,9 +14,9 @@ import logging
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose, assert_array_equal
-from scipy.optimize import brentq
 
 import ipywidgets
+from conftest import two_level_rs2_boundary
 
 from ptcheck import Model
 from ptcheck.errors import DegenerateLevelError
@@ -56,23 +56,6 @@ def two_level(v: float = 0.5) -> Model:
     return Model(np.diag([-0.5, 0.5]), [[0.0, v], [v, 0.0]], name="two-level")
 
 
-def brute_force_boundary(v: float, rtol: float) -> float:
-    """First λ where order-2 RS of the lower level of diag(−½, ½) + λ v σx misses rtol of the exact shift.
-
-    Exact: E = −√(¼ + v²λ²) (2×2 eigenvalue, closed form); RS order 2: E = −½ − v²λ²
-    (second-order shift |V01|²/(E0 − E1)); textbook two-state results, e.g. Sakurai,
-    Modern Quantum Mechanics (1994), §5.1.  Fine grid to bracket, brentq to refine.
-    """
-
-    def excess(lam: float) -> float:
-        shift = -np.sqrt(0.25 + (v * lam) ** 2) + 0.5
-        return abs(-(v * lam) ** 2 - shift) / abs(shift) - rtol
-
-    grid = np.linspace(1e-4, 2.0, 20001)
-    vals = np.array([excess(x) for x in grid])
-    i = int(np.argmax(vals > 0))
-    assert vals[i] > 0 and vals[i - 1] <= 0
-    return brentq(excess, grid[i - 1], grid[i], xtol=1e-12)
 
 
 # ---------------------------------------------------------------- the callback detector itself
@@ -86,8 +69,8 @@ def test_swallowed_callback_error_is_detected(caplog):
 
 
 # ---------------------------------------------------------------- verdict against brute force
-def test_verdict_follows_the_brute_force_boundary():
-    lam1, lam5 = brute_force_boundary(0.5, 0.01), brute_force_boundary(0.5, 0.05)
+def test_verdict_follows_the_two_level_rs2_boundary():
+    lam1, lam5 = two_level_rs2_boundary(0.5, 0.01), two_level_rs2_boundary(0.5, 0.05)
     p = LevelsPanel(two_level(), levels=[0], orders=(2,), rtol=(0.01, 0.05), coupling_range=(0.0, 2.0), n_points=41,
                     treatment="nondegenerate",  # the series the brute force checks (no block)
                     raise_errors=True, canvas="image")
@@ -109,7 +92,7 @@ def test_verdict_follows_the_brute_force_boundary():
 
 
 def test_verdict_on_the_negative_side_uses_that_side_s_boundary():
-    lam1 = brute_force_boundary(0.5, 0.01)  # E(−λ) = E(λ) for this model: the same |λ*| on both sides
+    lam1 = two_level_rs2_boundary(0.5, 0.01)  # E(−λ) = E(λ) for this model: the same |λ*| on both sides
     p = LevelsPanel(two_level(), levels=[0], orders=(2,), rtol=0.01, coupling_range=(-1.0, 1.0), n_points=41,
                     treatment="nondegenerate", raise_errors=True, canvas="image")
     try:
@@ -125,7 +108,7 @@ def test_verdict_on_the_negative_side_uses_that_side_s_boundary():
 def test_single_tolerance_sentence_and_physical_coupling():
     m = Model(np.diag([-0.5, 0.5]), [[0.0, 0.5], [0.5, 0.0]], name="two-level", coupling_scale=66.0,
               coupling_unit="MHz")  # λ = 1 is g = 66 MHz
-    lam1 = brute_force_boundary(0.5, 0.01)
+    lam1 = two_level_rs2_boundary(0.5, 0.01)
     p = LevelsPanel(m, levels=[0], orders=(2,), rtol=0.01, coupling_range=(0.0, 1.0), n_points=41, raise_errors=True,
                     treatment="nondegenerate",
                     canvas="image")

@@ -14,6 +14,8 @@ import pytest
 from numpy.testing import assert_allclose
 from scipy.optimize import brentq
 
+from conftest import two_level_rs2_boundary
+
 from ptcheck import Model, validity_boundary
 from ptcheck._format import fmt_certified_range, fmt_toward
 from ptcheck.errors import NearDegenerateWarning
@@ -36,22 +38,6 @@ def two_level(v: float = 0.5) -> Model:
     return Model(np.diag([-0.5, 0.5]), [[0.0, v], [v, 0.0]], name="two-level")
 
 
-def two_level_boundary(v: float, rtol: float) -> float:
-    """First λ where order-2 RS of the lower level of diag(−½, ½) + λ v σx misses rtol of the exact shift.
-
-    Exact E = −√(¼ + v²λ²) and RS order 2 E = −½ − v²λ²: textbook two-state results, e.g. Sakurai, Modern
-    Quantum Mechanics (1994), §5.1.  Fine grid to bracket, brentq to refine.
-    """
-
-    def excess(lam: float) -> float:
-        shift = -np.sqrt(0.25 + (v * lam) ** 2) + 0.5
-        return abs(-(v * lam) ** 2 - shift) / abs(shift) - rtol
-
-    grid = np.linspace(1e-4, 3.0, 30001)
-    vals = np.array([excess(x) for x in grid])
-    i = int(np.argmax(vals > 0))
-    assert vals[i] > 0 and vals[i - 1] <= 0
-    return brentq(excess, grid[i - 1], grid[i], xtol=1e-12)
 
 
 E0_SIX = np.array([0.0, 1.0, 1.7, 2.6, 3.1, 4.0])
@@ -245,7 +231,7 @@ def test_banner_follows_decision_at_and_brute_force_on_the_six_level_model():
 
 
 def test_certified_coupling_in_the_banner_against_the_closed_form():
-    lam1 = two_level_boundary(0.5, 0.01)
+    lam1 = two_level_rs2_boundary(0.5, 0.01)
     p = LevelsPanel(two_level(), levels=[0], orders=(2,), rtol=0.01, coupling_range=(0.0, 2.0), reference="bounds",
                     **OPTS)
     try:
@@ -272,7 +258,7 @@ def test_both_adds_the_certified_sentence_to_the_exact_one():
     p = LevelsPanel(two_level(), levels=[0], orders=(2,), rtol=0.01, coupling_range=(0.0, 2.0), reference="both",
                     **OPTS)
     try:
-        lam = 0.5 * two_level_boundary(0.5, 0.01)
+        lam = 0.5 * two_level_rs2_boundary(0.5, 0.01)
         p.set_coupling(lam)
         (line,) = p.verdict.orders
         exact_b = [b for b in p.boundaries if b.reference == "exact"]
@@ -307,7 +293,7 @@ def test_refused_certified_boundaries_are_explained_in_panel_words():
     p = LevelsPanel(two_level(), levels=[0], orders=(2, "pade1/1"), rtol=0.01, coupling_range=(0.0, 1.0),
                     reference="bounds", **OPTS)
     try:
-        p.set_coupling(0.5 * two_level_boundary(0.5, 0.01))
+        p.set_coupling(0.5 * two_level_rs2_boundary(0.5, 0.01))
         lines = {o.order: o for o in p.verdict.orders}
         assert lines["order 2"].certified == ("valid",)
         assert lines["Padé[1/1]"].meets == (None,) and "no certified boundary" in lines["Padé[1/1]"].text
