@@ -30,6 +30,8 @@ from collections.abc import Iterator
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from typing import Any, Callable
 
+from .maps import _stop_pool, _worker_init
+
 __all__ = ["DEMO_PARAMS", "DEMO_MARK", "DemoWork", "demo_model"]
 
 #: The invented demo device "Q-17": a transmon-like Kerr-ladder qubit and its
@@ -103,24 +105,15 @@ def load_figure_code() -> None:
     Figure(figsize=(1, 1)).savefig(io.BytesIO(), format="png")
 
 
-def _quiet_worker() -> None:
-    """Start-up of a forked worker: the caller's signal handling is reset (the caller stops its workers)."""
-    from .maps import _worker_init
-
-    _worker_init()
-
-
 def _drawing_worker() -> None:
     """Start-up of a drawing worker forked before the figure code was loaded: load it there."""
-    _quiet_worker()
+    _worker_init()
     load_figure_code()
 
 
 @contextlib.contextmanager
 def _one_worker(initializer: Callable[[], None]) -> Iterator[ProcessPoolExecutor]:
     """One forked worker process (forked at the first task), stopped on the way out."""
-    from .maps import _stop_pool
-
     pool = ProcessPoolExecutor(max_workers=1, mp_context=mp.get_context("fork"), initializer=initializer)
     try:
         yield pool
@@ -165,7 +158,7 @@ class DemoWork:
         if "fork" not in mp.get_all_start_methods():
             return
         if studies:
-            self._compute = stack.enter_context(_one_worker(_quiet_worker))
+            self._compute = stack.enter_context(_one_worker(_worker_init))
             self._study_futures = {
                 ("validity_map",): self._compute.submit(validity_map_study, chi),
                 ("photons",): self._compute.submit(photon_study),
@@ -174,7 +167,7 @@ class DemoWork:
             return
         if self._compute is not None:
             load_figure_code()  # here, while the compute worker runs the studies
-            self._draw = stack.enter_context(_one_worker(_quiet_worker))
+            self._draw = stack.enter_context(_one_worker(_worker_init))
         else:  # nothing else to overlap with: the drawing worker loads it itself while the check runs here
             self._draw = stack.enter_context(_one_worker(_drawing_worker))
         self._draw.submit(int)  # fork it now, from this thread
@@ -212,7 +205,7 @@ class DemoWork:
             raise self._error
         return out
 
-    def figures(self, report: Any, *, figure_format: str) -> list:
+    def figures(self, report: Any) -> list:
         """The report's figures in :func:`ptcheck.report.figure_plan` order, drawn here and on the drawing worker.
 
         One list, heaviest first: the worker takes from the front, this process from the back, each as soon as
@@ -222,7 +215,7 @@ class DemoWork:
         from .report import default_figures, draw_figure, figure_plan
 
         if self._draw is None:
-            return default_figures(report, figure_format=figure_format)
+            return default_figures(report, figure_format=self._fmt)
         plan = figure_plan(report)
         done: dict[tuple, Any] = {k: f for k, f in self._drawn.items() if k in plan}
         todo = sorted((k for k in plan if k not in done), key=_drawing_cost, reverse=True)
@@ -239,7 +232,7 @@ class DemoWork:
                         ok = bool(todo) and not failed and not stop.is_set()
                         key = todo.pop(0) if ok and (not busy or (len(busy) < 2 and len(todo) >= 2)) else None
                     if key is not None:
-                        done[key] = self._draw.submit(draw_figure, report, key, figure_format=figure_format)
+                        done[key] = self._draw.submit(draw_figure, report, key, figure_format=self._fmt)
                         mine.append(done[key])
                     elif busy:
                         wait(busy, return_when=FIRST_COMPLETED)
@@ -256,7 +249,7 @@ class DemoWork:
         feeder.start()
         try:
             while (key := take_last()) is not None:
-                done[key] = draw_figure(report, key, figure_format=figure_format)
+                done[key] = draw_figure(report, key, figure_format=self._fmt)
         except BaseException:  # (the worker is stopped on the way out; the feeder then ends by itself)
             stop.set()
             raise

@@ -114,8 +114,6 @@ def assign(ov: np.ndarray) -> np.ndarray:
     if 0 < ka <= kb and np.all(np.isfinite(ov)):
         best = np.argmax(ov, axis=1)
         if np.unique(best).size == ka:
-            if kb == 1:
-                return best
             rows = np.arange(ka)
             rest = ov.copy()
             rest[rows, best] = -np.inf

@@ -511,7 +511,6 @@ def _cmd_demo(a: argparse.Namespace, run: _Run) -> int:
 
 def _demo(a: argparse.Namespace, run: _Run) -> int:
     from dataclasses import replace
-    from functools import partial
 
     from ._demo import DEMO_MARK, DemoWork, demo_model
     from .quantities import dispersive_shift, stark_shift
@@ -547,7 +546,7 @@ def _demo(a: argparse.Namespace, run: _Run) -> int:
         if not a.no_map:
             extras["validity_map_mark"] = DEMO_MARK
         report = replace(report, extras={**report.extras, **extras})
-        figures: Any = False if fmt is None else partial(work.figures, figure_format=fmt)
+        figures: Any = False if fmt is None else work.figures
         files = _write(report, out, figures=figures, force=a.force)
     _print_summary(report, files, Path(given))
     return EXIT_VALID
